@@ -1,0 +1,1 @@
+//! stet: run a Markdown experiment document and render its report.
