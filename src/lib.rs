@@ -1,1 +1,211 @@
 //! stet: run a Markdown experiment document and render its report.
+//!
+//! The flow is document → plan → run → report: [`document`] parses the Markdown and
+//! the step settings, [`plan`] resolves references and computes cache keys, [`run`]
+//! executes what the [`cache`] does not hold, and [`report`] renders HTML and JSON.
+//! The command layer (`main.rs`) only parses flags, calls [`build`] and maps errors
+//! to exit codes.
+
+pub mod cache;
+pub mod data;
+pub mod document;
+pub mod fit;
+pub mod nn;
+pub mod outcome;
+pub mod plan;
+pub mod report;
+pub mod run;
+
+use std::path::{Path, PathBuf};
+
+use cache::Cache;
+use document::{Document, DocumentErrors, Problem};
+use plan::Plan;
+use run::{RunOptions, Status, StepRecord};
+
+/// Where the cache lives.
+#[derive(Clone, Debug)]
+pub enum CacheChoice {
+    /// `.stet/` beside the document, or `$STET_CACHE` when set.
+    Default,
+    Dir(PathBuf),
+    /// Run everything, keep nothing.
+    Off,
+}
+
+/// What `stet build` was asked to do.
+#[derive(Clone, Debug)]
+pub struct BuildOptions {
+    pub document: PathBuf,
+    /// The report path; `DOC.html` beside `DOC.md` when absent.
+    pub output: Option<PathBuf>,
+    pub json: Option<PathBuf>,
+    pub cache: CacheChoice,
+    pub jobs: usize,
+    pub templates: Option<PathBuf>,
+    pub allow_html: bool,
+}
+
+/// Why a command could not be carried out (exit code 2).
+#[derive(Debug, thiserror::Error)]
+pub enum Error {
+    #[error("{0}")]
+    Document(DocumentErrors),
+    #[error("{context}: {source}")]
+    Io {
+        context: String,
+        source: std::io::Error,
+    },
+    #[error("{0}")]
+    Usage(String),
+}
+
+/// What a finished build did.
+#[derive(Debug)]
+pub struct BuildSummary {
+    pub report: PathBuf,
+    pub steps: usize,
+    pub ran: usize,
+    pub reused: usize,
+    /// Ids and errors of the steps that failed (exit code 1 when any).
+    pub failed: Vec<(String, String)>,
+    /// Cache warnings (corrupt entries recomputed, writes that failed).
+    pub warnings: Vec<String>,
+}
+
+/// A document read from disk and planned.
+pub struct Loaded {
+    pub name: String,
+    pub document: Document,
+    pub hash: String,
+    pub plan: Plan,
+}
+
+/// Reads, parses and plans a document; every problem found is reported together.
+pub fn load(path: &Path) -> Result<Loaded, Error> {
+    let bytes = std::fs::read(path).map_err(|source| Error::Io {
+        context: format!("reading {}", path.display()),
+        source,
+    })?;
+    let name = path.display().to_string();
+    let source = match String::from_utf8(bytes) {
+        Ok(source) => source,
+        Err(error) => {
+            let at = error.utf8_error().valid_up_to();
+            let text = String::from_utf8_lossy(error.as_bytes()).into_owned();
+            let problem = Problem::new(at..at + 1, "the document is not valid UTF-8 text")
+                .with_help("save the file as UTF-8");
+            return Err(Error::Document(DocumentErrors::for_file(path, text, vec![problem])));
+        }
+    };
+    let hash = blake3::hash(source.as_bytes()).to_hex().to_string();
+    let document = document::parse(&source)
+        .map_err(|problems| Error::Document(DocumentErrors::for_file(path, source.clone(), problems)))?;
+    let base_dir = path.parent().unwrap_or(Path::new("."));
+    let plan = plan::plan(&document, base_dir)
+        .map_err(|problems| Error::Document(DocumentErrors::for_file(path, source.clone(), problems)))?;
+    Ok(Loaded {
+        name,
+        document,
+        hash,
+        plan,
+    })
+}
+
+/// The cache a command uses for a document.
+pub fn open_cache(choice: &CacheChoice, document: &Path) -> Cache {
+    match choice {
+        CacheChoice::Off => Cache::disabled(),
+        CacheChoice::Dir(dir) => Cache::at(dir.clone()),
+        CacheChoice::Default => match std::env::var_os("STET_CACHE") {
+            Some(dir) if !dir.is_empty() => Cache::at(PathBuf::from(dir)),
+            _ => Cache::at(document.parent().unwrap_or(Path::new(".")).join(".stet")),
+        },
+    }
+}
+
+/// `stet build`: runs what is not cached and writes the report (and the JSON summary).
+/// Nothing is written when the document cannot be used.
+pub fn build(options: &BuildOptions) -> Result<BuildSummary, Error> {
+    let templates = match &options.templates {
+        Some(dir) => report::Templates::with_overrides(dir).map_err(Error::Usage)?,
+        None => report::Templates::built_in(),
+    };
+    let loaded = load(&options.document)?;
+    let cache = open_cache(&options.cache, &options.document);
+    let records = run::execute(&loaded.plan, &cache, RunOptions { jobs: options.jobs });
+    let built_at = build_time();
+    let html = report::render(
+        &report::ReportInput {
+            document: &loaded.document,
+            document_name: &loaded.name,
+            document_hash: &loaded.hash,
+            plan: &loaded.plan,
+            records: &records,
+            allow_html: options.allow_html,
+            built_at: &built_at,
+        },
+        &templates,
+    )
+    .map_err(|error| Error::Usage(format!("rendering the report: {error:#}")))?;
+    let report_path = options
+        .output
+        .clone()
+        .unwrap_or_else(|| options.document.with_extension("html"));
+    write_output(&report_path, html.as_bytes())?;
+    if let Some(json_path) = &options.json {
+        let summary = report::summary::summary(&loaded.name, &loaded.hash, &loaded.plan, &records);
+        let text = serde_json::to_string_pretty(&summary).expect("a JSON value serialises");
+        write_output(json_path, text.as_bytes())?;
+    }
+    Ok(summarise(report_path, &loaded.plan, &records, cache.take_warnings()))
+}
+
+fn summarise(report: PathBuf, plan: &Plan, records: &[StepRecord], warnings: Vec<String>) -> BuildSummary {
+    let count = |wanted: fn(&Status) -> bool| records.iter().filter(|r| wanted(&r.status)).count();
+    BuildSummary {
+        report,
+        steps: records.len(),
+        ran: count(|s| matches!(s, Status::Ran { .. })),
+        reused: count(|s| matches!(s, Status::Reused)),
+        failed: plan
+            .steps
+            .iter()
+            .zip(records)
+            .filter_map(|(step, record)| match &record.status {
+                Status::Failed { error } => Some((step.id.clone(), error.clone())),
+                _ => None,
+            })
+            .collect(),
+        warnings,
+    }
+}
+
+/// Writes a file atomically so an interrupted build never leaves a torn report.
+fn write_output(path: &Path, bytes: &[u8]) -> Result<(), Error> {
+    let dir = match path.parent() {
+        Some(dir) if !dir.as_os_str().is_empty() => dir,
+        _ => Path::new("."),
+    };
+    let write = || -> std::io::Result<()> {
+        let mut file = tempfile::NamedTempFile::new_in(dir)?;
+        std::io::Write::write_all(&mut file, bytes)?;
+        file.persist(path).map_err(|error| error.error)?;
+        Ok(())
+    };
+    write().map_err(|source| Error::Io {
+        context: format!("writing {}", path.display()),
+        source,
+    })
+}
+
+/// The build time in UTC; `SOURCE_DATE_EPOCH` fixes it for reproducible reports.
+fn build_time() -> String {
+    let now = std::env::var("SOURCE_DATE_EPOCH")
+        .ok()
+        .and_then(|seconds| seconds.parse::<u64>().ok())
+        .map(|seconds| std::time::UNIX_EPOCH + std::time::Duration::from_secs(seconds))
+        .unwrap_or_else(std::time::SystemTime::now);
+    let stamp = humantime::format_rfc3339_seconds(now).to_string();
+    stamp.replacen('T', " ", 1).replace('Z', " UTC")
+}

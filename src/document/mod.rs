@@ -1,0 +1,308 @@
+//! Markdown → a list of prose pieces and step blocks, each with its source span.
+//!
+//! A step is a top-level fenced block whose info string is `yaml KIND ID`. Everything
+//! else (prose, other code blocks, plain `yaml` blocks) is prose, kept as Markdown
+//! source so that the report renders it and so that it never enters a cache key.
+
+pub mod front;
+pub mod problem;
+pub mod spec;
+pub mod yaml;
+
+use std::ops::Range;
+
+use pulldown_cmark::{CodeBlockKind, Event, Options, Parser, Tag, TagEnd};
+
+pub use front::FrontMatter;
+pub use problem::{DocumentErrors, Problem};
+use problem::nearest;
+pub use spec::{StepKind, StepSpec};
+
+/// A parsed document: front matter and the pieces of its body in order.
+#[derive(Clone, Debug)]
+pub struct Document {
+    pub source: String,
+    pub front: FrontMatter,
+    pub pieces: Vec<Piece>,
+}
+
+/// A run of prose, or one step.
+#[derive(Clone, Debug)]
+pub enum Piece {
+    /// Markdown source of the prose between steps.
+    Prose(String),
+    Step(StepBlock),
+}
+
+/// One step block as written: kind, id, raw YAML and where it sits in the source.
+#[derive(Clone, Debug)]
+pub struct StepBlock {
+    pub kind: StepKind,
+    pub id: String,
+    pub yaml: String,
+    /// Byte offset of the YAML text in the document.
+    pub yaml_offset: usize,
+    /// Byte range of the info string (`yaml KIND ID`).
+    pub info_span: Range<usize>,
+    /// Byte range of the whole fenced block.
+    pub span: Range<usize>,
+}
+
+impl Document {
+    pub fn steps(&self) -> impl Iterator<Item = &StepBlock> {
+        self.pieces.iter().filter_map(|piece| match piece {
+            Piece::Step(step) => Some(step),
+            Piece::Prose(_) => None,
+        })
+    }
+}
+
+/// Markdown extensions the report supports (GitHub tables and friends).
+pub fn markdown_options() -> Options {
+    Options::ENABLE_TABLES
+        | Options::ENABLE_STRIKETHROUGH
+        | Options::ENABLE_FOOTNOTES
+        | Options::ENABLE_TASKLISTS
+}
+
+/// Splits a document into front matter, prose and step blocks. Every problem found is
+/// collected rather than stopping at the first.
+pub fn parse(source: &str) -> Result<Document, Vec<Problem>> {
+    let mut problems = Vec::new();
+    if source.trim().is_empty() {
+        return Err(vec![Problem::new(
+            0..0,
+            "the document is empty: expected Markdown prose and at least one step block such as ```yaml data NAME",
+        )]);
+    }
+    let front_split = front::split(source);
+    let front = front::parse(front_split.yaml, &mut problems);
+    let body_start = front_split.body_start;
+    let blocks = find_step_blocks(source, body_start, &mut problems);
+
+    let mut pieces = Vec::new();
+    let mut cursor = body_start;
+    for block in blocks {
+        push_prose(&mut pieces, &source[cursor..block.span.start]);
+        cursor = block.span.end;
+        pieces.push(Piece::Step(block));
+    }
+    push_prose(&mut pieces, &source[cursor..]);
+
+    if problems.is_empty() && !pieces.iter().any(|p| matches!(p, Piece::Step(_))) {
+        problems.push(Problem::new(
+            body_start..body_start,
+            "the document has no steps: expected at least one fenced block with an info string like `yaml data NAME`",
+        ));
+    }
+    if problems.is_empty() {
+        Ok(Document {
+            source: source.to_string(),
+            front,
+            pieces,
+        })
+    } else {
+        Err(problems)
+    }
+}
+
+fn push_prose(pieces: &mut Vec<Piece>, text: &str) {
+    if !text.trim().is_empty() {
+        pieces.push(Piece::Prose(text.to_string()));
+    }
+}
+
+/// State of the fenced block being read.
+struct OpenBlock {
+    info: String,
+    span: Range<usize>,
+    text: String,
+    text_offset: Option<usize>,
+    nested: bool,
+}
+
+fn find_step_blocks(source: &str, body_start: usize, problems: &mut Vec<Problem>) -> Vec<StepBlock> {
+    let body = &source[body_start..];
+    let mut blocks = Vec::new();
+    let mut depth = 0usize;
+    let mut open: Option<OpenBlock> = None;
+    for (event, range) in Parser::new_ext(body, markdown_options()).into_offset_iter() {
+        let range = range.start + body_start..range.end + body_start;
+        match event {
+            Event::Start(Tag::CodeBlock(CodeBlockKind::Fenced(info))) => {
+                open = Some(OpenBlock {
+                    info: info.to_string(),
+                    span: range,
+                    text: String::new(),
+                    text_offset: None,
+                    nested: depth > 0,
+                });
+                depth += 1;
+            }
+            Event::Text(text) if open.is_some() => {
+                let block = open.as_mut().expect("checked above");
+                block.text_offset.get_or_insert(range.start);
+                block.text.push_str(&text);
+            }
+            Event::End(TagEnd::CodeBlock) => {
+                depth -= 1;
+                if let Some(block) = open.take() {
+                    if let Some(step) = step_block(source, block, problems) {
+                        blocks.push(step);
+                    }
+                }
+            }
+            Event::Start(_) => depth += 1,
+            Event::End(_) => depth -= 1,
+            _ => {}
+        }
+    }
+    blocks
+}
+
+/// Turns a fenced block into a step if its info string asks for one.
+fn step_block(source: &str, block: OpenBlock, problems: &mut Vec<Problem>) -> Option<StepBlock> {
+    let mut words = block.info.split_whitespace();
+    if words.next() != Some("yaml") {
+        return None;
+    }
+    let kind_word = words.next()?;
+    let info_span = info_span(source, &block.span, &block.info);
+    let Some(kind) = StepKind::from_word(kind_word) else {
+        let problem = Problem::new(info_span, format!("'{kind_word}' is not a step kind"));
+        let kinds = StepKind::ALL.iter().map(|kind| kind.word());
+        problems.push(match nearest(kind_word, kinds) {
+            Some(suggestion) => problem.with_help(format!("did you mean '{suggestion}'?")),
+            None => problem.with_help(format!(
+                "the step kinds are: {}",
+                StepKind::ALL.map(|kind| kind.word()).join(", ")
+            )),
+        });
+        return None;
+    };
+    let Some(id) = words.next() else {
+        problems.push(
+            Problem::new(info_span, format!("the {kind_word} step has no id"))
+                .with_help(format!("write `yaml {kind_word} NAME` so later steps can refer to it")),
+        );
+        return None;
+    };
+    if let Some(extra) = words.next() {
+        problems.push(Problem::new(
+            info_span,
+            format!("unexpected '{extra}' after the step id '{id}': expected `yaml KIND ID`"),
+        ));
+        return None;
+    }
+    if !is_valid_id(id) {
+        problems.push(
+            Problem::new(info_span, format!("'{id}' is not a valid step id"))
+                .with_help("an id starts with a letter and uses letters, digits, '_' and '-'"),
+        );
+        return None;
+    }
+    if block.nested {
+        problems.push(
+            Problem::new(info_span, format!("step '{id}' is inside a list or quote"))
+                .with_help("steps must be top-level blocks, not indented"),
+        );
+        return None;
+    }
+    let yaml_offset = block.text_offset.unwrap_or_else(|| content_start(source, &block.span));
+    Some(StepBlock {
+        kind,
+        id: id.to_string(),
+        yaml: block.text,
+        yaml_offset,
+        info_span,
+        span: block.span,
+    })
+}
+
+fn is_valid_id(id: &str) -> bool {
+    let mut chars = id.chars();
+    chars.next().is_some_and(|c| c.is_ascii_alphabetic())
+        && chars.all(|c| c.is_ascii_alphanumeric() || c == '_' || c == '-')
+}
+
+/// The byte range of the info string on the opening fence line.
+fn info_span(source: &str, span: &Range<usize>, info: &str) -> Range<usize> {
+    let fence_line = &source[span.start..content_start(source, span)];
+    match fence_line.find(info.trim()) {
+        Some(i) => span.start + i..span.start + i + info.trim().len(),
+        None => span.start..span.start + fence_line.trim_end().len(),
+    }
+}
+
+/// Where the line after the opening fence starts.
+fn content_start(source: &str, span: &Range<usize>) -> usize {
+    source[span.start..span.end]
+        .find('\n')
+        .map_or(span.end, |i| span.start + i + 1)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::problem::line_and_column;
+    use super::*;
+
+    const DOC: &str = "---\ntitle: Test\n---\n# Intro\n\nSome prose.\n\n```yaml data hives\nfile: hives.csv\ntarget: status\n```\n\nMore prose.\n\n```python\nprint(1)\n```\n\n```yaml net small\nhidden: [4]\n```\n";
+
+    #[test]
+    fn steps_and_prose_come_out_in_order() {
+        let doc = parse(DOC).unwrap();
+        let kinds: Vec<&str> = doc
+            .pieces
+            .iter()
+            .map(|p| match p {
+                Piece::Prose(_) => "prose",
+                Piece::Step(s) => s.id.as_str(),
+            })
+            .collect();
+        assert_eq!(kinds, ["prose", "hives", "prose", "small"]);
+        let hives = doc.steps().next().unwrap();
+        assert_eq!(hives.kind, StepKind::Data);
+        assert_eq!(hives.yaml, "file: hives.csv\ntarget: status\n");
+        assert_eq!(line_and_column(DOC, hives.yaml_offset), (9, 1));
+        assert_eq!(doc.front.title.as_deref(), Some("Test"));
+    }
+
+    #[test]
+    fn other_code_blocks_stay_in_the_prose() {
+        let doc = parse(DOC).unwrap();
+        let Piece::Prose(prose) = &doc.pieces[2] else { panic!() };
+        assert!(prose.contains("print(1)"));
+    }
+
+    #[test]
+    fn a_misspelt_kind_suggests_the_nearest() {
+        let problems = parse("```yaml trian base\nepochs: 3\n```\n").unwrap_err();
+        assert_eq!(problems.len(), 1);
+        assert!(problems[0].message.contains("'trian' is not a step kind"));
+        assert_eq!(problems[0].help.as_deref(), Some("did you mean 'train'?"));
+    }
+
+    #[test]
+    fn a_step_without_an_id_is_an_error() {
+        let problems = parse("text\n\n```yaml data\nfile: x.csv\n```\n").unwrap_err();
+        assert!(problems[0].message.contains("no id"));
+        assert_eq!(line_and_column("text\n\n```yaml data\n", problems[0].span.start), (3, 4));
+    }
+
+    #[test]
+    fn plain_yaml_blocks_are_not_steps() {
+        let problems = parse("```yaml\na: 1\n```\n").unwrap_err();
+        assert!(problems[0].message.contains("no steps"));
+    }
+
+    #[test]
+    fn an_empty_document_is_an_error() {
+        assert!(parse("  \n").unwrap_err()[0].message.contains("empty"));
+    }
+
+    #[test]
+    fn a_step_inside_a_list_is_refused() {
+        let problems = parse("- item\n\n  ```yaml data d\n  file: x.csv\n  ```\n").unwrap_err();
+        assert!(problems[0].message.contains("inside a list"), "{problems:?}");
+    }
+}

@@ -1,0 +1,390 @@
+//! Step settings in two stages: serde structs that mirror the YAML exactly (unknown
+//! keys rejected), then validated specs with every default applied. Nothing past this
+//! module sees raw YAML. A validated spec serialises canonically (fixed field order),
+//! which is what enters a step's cache key.
+
+use serde::{Deserialize, Deserializer, Serialize};
+
+use super::StepBlock;
+use super::problem::Problem;
+use super::yaml::{self, Block};
+use crate::data::{DataSettings, Missing, Scale, Split, Task};
+use crate::nn::{Activation, BatchSize, Init, Optimizer};
+
+/// The kinds of step a document can declare.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Hash, Serialize, Deserialize)]
+#[serde(rename_all = "snake_case")]
+pub enum StepKind {
+    Data,
+    Net,
+    Train,
+}
+
+impl StepKind {
+    pub const ALL: [StepKind; 3] = [StepKind::Data, StepKind::Net, StepKind::Train];
+
+    /// The word used in the info string and in summaries.
+    pub fn word(self) -> &'static str {
+        match self {
+            StepKind::Data => "data",
+            StepKind::Net => "net",
+            StepKind::Train => "train",
+        }
+    }
+
+    pub fn from_word(word: &str) -> Option<StepKind> {
+        StepKind::ALL.into_iter().find(|kind| kind.word() == word)
+    }
+}
+
+/// The YAML word of a setting's value: its serde name (setting enums are snake_case).
+pub fn word<T: Serialize>(value: &T) -> String {
+    match serde_json::to_value(value) {
+        Ok(serde_json::Value::String(word)) => word,
+        _ => unreachable!("setting enums serialise as words"),
+    }
+}
+
+/// A step's validated settings, defaults applied.
+#[derive(Clone, Debug, PartialEq, Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum StepSpec {
+    Data(DataSpec),
+    Net(NetSpec),
+    Train(TrainSpec),
+}
+
+/// `data`: which CSV file to read and how to prepare it.
+#[derive(Clone, Debug, PartialEq, Serialize)]
+pub struct DataSpec {
+    /// The path as written, relative to the document's folder.
+    pub file: String,
+    pub settings: DataSettings,
+}
+
+/// The output layer's activation, or `auto` to choose it from the task.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(rename_all = "snake_case")]
+pub enum OutputChoice {
+    Auto,
+    Sigmoid,
+    Softmax,
+    Linear,
+    Tanh,
+}
+
+/// `net`: the shape of a network, independent of the data it will meet.
+#[derive(Clone, Debug, PartialEq, Serialize)]
+pub struct NetSpec {
+    pub hidden: Vec<usize>,
+    pub activation: Activation,
+    pub output: OutputChoice,
+    pub init: Init,
+}
+
+/// The training objective, or `auto` to choose it from the task.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(rename_all = "snake_case")]
+pub enum LossChoice {
+    Auto,
+    Mse,
+    CrossEntropy,
+}
+
+/// `train`: which data and net, and how to fit them.
+#[derive(Clone, Debug, PartialEq, Serialize)]
+pub struct TrainSpec {
+    pub data: String,
+    pub net: String,
+    pub loss: LossChoice,
+    pub optimizer: Optimizer,
+    pub batch: BatchSize,
+    pub epochs: usize,
+    pub target_loss: Option<f64>,
+    pub patience: Option<usize>,
+    pub l2: f64,
+    pub shuffle: bool,
+    pub seed: u64,
+}
+
+impl StepSpec {
+    /// The ids of the steps this one reads, with the kind each must have.
+    pub fn references(&self) -> Vec<(&str, StepKind, &'static str)> {
+        match self {
+            StepSpec::Data(_) | StepSpec::Net(_) => Vec::new(),
+            StepSpec::Train(train) => vec![
+                (train.data.as_str(), StepKind::Data, "data"),
+                (train.net.as_str(), StepKind::Net, "net"),
+            ],
+        }
+    }
+}
+
+#[derive(Deserialize)]
+#[serde(deny_unknown_fields)]
+struct RawData {
+    file: String,
+    inputs: Option<Vec<String>>,
+    target: OneOrMany,
+    task: Option<Task>,
+    scale: Option<Scale>,
+    missing: Option<Missing>,
+    holdout: Option<f64>,
+    folds: Option<usize>,
+    seed: Option<u64>,
+}
+const DATA_KEYS: &[&str] = &[
+    "file", "inputs", "target", "task", "scale", "missing", "holdout", "folds", "seed",
+];
+
+#[derive(Deserialize)]
+#[serde(untagged)]
+enum OneOrMany {
+    One(String),
+    Many(Vec<String>),
+}
+
+#[derive(Deserialize)]
+#[serde(deny_unknown_fields)]
+struct RawNet {
+    hidden: Option<Vec<usize>>,
+    activation: Option<Activation>,
+    output: Option<OutputChoice>,
+    init: Option<Init>,
+}
+const NET_KEYS: &[&str] = &["hidden", "activation", "output", "init"];
+
+#[derive(Clone, Copy, Deserialize)]
+#[serde(rename_all = "snake_case")]
+enum OptimizerKind {
+    Sgd,
+    Adam,
+}
+
+#[derive(Deserialize)]
+#[serde(deny_unknown_fields)]
+struct RawTrain {
+    data: String,
+    net: String,
+    loss: Option<LossChoice>,
+    optimizer: Option<OptimizerKind>,
+    learning_rate: Option<f64>,
+    momentum: Option<f64>,
+    #[serde(default, deserialize_with = "batch_size")]
+    batch: Option<BatchSize>,
+    epochs: Option<usize>,
+    target_loss: Option<f64>,
+    patience: Option<usize>,
+    l2: Option<f64>,
+    shuffle: Option<bool>,
+    seed: Option<u64>,
+}
+const TRAIN_KEYS: &[&str] = &[
+    "data", "net", "loss", "optimizer", "learning_rate", "momentum", "batch", "epochs",
+    "target_loss", "patience", "l2", "shuffle", "seed",
+];
+
+/// `batch` is a row count or the word `full`.
+fn batch_size<'de, D: Deserializer<'de>>(deserializer: D) -> Result<Option<BatchSize>, D::Error> {
+    #[derive(Deserialize)]
+    #[serde(untagged)]
+    enum Raw {
+        Rows(usize),
+        Word(String),
+    }
+    match Raw::deserialize(deserializer)? {
+        Raw::Rows(rows) => Ok(Some(BatchSize::Rows(rows))),
+        Raw::Word(word) if word == "full" => Ok(Some(BatchSize::Full)),
+        Raw::Word(word) => Err(serde::de::Error::custom(format!(
+            "batch must be a number of rows or 'full', not '{word}'"
+        ))),
+    }
+}
+
+/// Checks of one block's values, each reported at the line of its key.
+struct Checker<'a> {
+    block: Block<'a>,
+    fallback: std::ops::Range<usize>,
+    problems: &'a mut Vec<Problem>,
+}
+
+impl Checker<'_> {
+    fn require(&mut self, ok: bool, key: &str, message: impl FnOnce() -> String) {
+        if !ok {
+            let span = key_span(self.block, key).unwrap_or(self.fallback.clone());
+            self.problems.push(Problem::new(span, message()));
+        }
+    }
+}
+
+/// The byte span of the line where `key:` is set in a block.
+fn key_span(block: Block<'_>, key: &str) -> Option<std::ops::Range<usize>> {
+    let mut offset = block.offset;
+    for line in block.text.split_inclusive('\n') {
+        let trimmed = line.trim_start();
+        if trimmed.starts_with(key) && trimmed[key.len()..].trim_start().starts_with(':') {
+            let indent = line.len() - trimmed.len();
+            return Some(offset + indent..offset + line.trim_end().len());
+        }
+        offset += line.len();
+    }
+    None
+}
+
+/// Parses and validates one step's settings; `None` when a problem was recorded.
+pub fn parse_step(step: &StepBlock, default_seed: u64, problems: &mut Vec<Problem>) -> Option<StepSpec> {
+    let block = Block {
+        text: &step.yaml,
+        offset: step.yaml_offset,
+    };
+    let before = problems.len();
+    let mut check = Checker {
+        block,
+        fallback: step.info_span.clone(),
+        problems,
+    };
+    let spec = match step.kind {
+        StepKind::Data => {
+            let raw: RawData = deserialize(block, DATA_KEYS, &step.info_span, check.problems)?;
+            StepSpec::Data(validate_data(raw, default_seed, &mut check))
+        }
+        StepKind::Net => {
+            let raw: RawNet = deserialize(block, NET_KEYS, &step.info_span, check.problems)?;
+            StepSpec::Net(validate_net(raw, &mut check))
+        }
+        StepKind::Train => {
+            let raw: RawTrain = deserialize(block, TRAIN_KEYS, &step.info_span, check.problems)?;
+            StepSpec::Train(validate_train(raw, default_seed, &mut check))
+        }
+    };
+    (problems.len() == before).then_some(spec)
+}
+
+/// An empty block deserialises as YAML null; report it as missing settings instead.
+fn deserialize<T: serde::de::DeserializeOwned>(
+    block: Block<'_>,
+    known: &[&str],
+    info_span: &std::ops::Range<usize>,
+    problems: &mut Vec<Problem>,
+) -> Option<T> {
+    if block.text.trim().is_empty() {
+        problems.push(
+            Problem::new(info_span.clone(), "the step has no settings")
+                .with_help(format!("settings of this kind: {}", known.join(", "))),
+        );
+        return None;
+    }
+    yaml::deserialize(block, known, problems)
+}
+
+fn validate_data(raw: RawData, default_seed: u64, check: &mut Checker<'_>) -> DataSpec {
+    let target = match raw.target {
+        OneOrMany::One(name) => vec![name],
+        OneOrMany::Many(names) => names,
+    };
+    check.require(!target.is_empty(), "target", || "target must name at least one column".into());
+    check.require(!raw.file.trim().is_empty(), "file", || "file must name a CSV file".into());
+    let split = match (raw.holdout, raw.folds) {
+        (Some(_), Some(_)) => {
+            check.require(false, "folds", || "set either holdout or folds, not both".into());
+            Split::Holdout(0.2)
+        }
+        (_, Some(folds)) => {
+            check.require(folds >= 2, "folds", || format!("folds must be at least 2, not {folds}"));
+            Split::Folds(folds)
+        }
+        (holdout, None) => {
+            let holdout = holdout.unwrap_or(0.2);
+            check.require((0.0..1.0).contains(&holdout), "holdout", || {
+                format!("holdout is the fraction of rows held out: expected at least 0 and below 1, not {holdout}")
+            });
+            Split::Holdout(holdout)
+        }
+    };
+    DataSpec {
+        file: raw.file,
+        settings: DataSettings {
+            inputs: raw.inputs,
+            target,
+            task: raw.task,
+            scale: raw.scale.unwrap_or(Scale::Standard),
+            missing: raw.missing.unwrap_or(Missing::Error),
+            split,
+            seed: raw.seed.unwrap_or(default_seed),
+        },
+    }
+}
+
+fn validate_net(raw: RawNet, check: &mut Checker<'_>) -> NetSpec {
+    let hidden = raw.hidden.unwrap_or_else(|| vec![8]);
+    check.require(hidden.iter().all(|&width| width > 0), "hidden", || {
+        "every hidden layer needs at least one unit; use `hidden: []` for no hidden layer".into()
+    });
+    let activation = raw.activation.unwrap_or(Activation::Tanh);
+    check.require(activation != Activation::Softmax, "activation", || {
+        "softmax is an output activation; hidden layers take sigmoid, tanh, relu, leaky_relu or linear".into()
+    });
+    NetSpec {
+        hidden,
+        activation,
+        output: raw.output.unwrap_or(OutputChoice::Auto),
+        init: raw.init.unwrap_or(Init::Xavier),
+    }
+}
+
+fn validate_train(raw: RawTrain, default_seed: u64, check: &mut Checker<'_>) -> TrainSpec {
+    let kind = raw.optimizer.unwrap_or(OptimizerKind::Sgd);
+    let learning_rate = raw.learning_rate.unwrap_or(match kind {
+        OptimizerKind::Sgd => 0.01,
+        OptimizerKind::Adam => 0.001,
+    });
+    check.require(learning_rate > 0.0 && learning_rate.is_finite(), "learning_rate", || {
+        format!("learning_rate must be a positive number, not {learning_rate}")
+    });
+    let momentum = raw.momentum.unwrap_or(0.9);
+    check.require((0.0..1.0).contains(&momentum), "momentum", || {
+        format!("momentum must be at least 0 and below 1, not {momentum}")
+    });
+    // Adam keeps its own moment estimates; `momentum` is a setting of sgd only.
+    let optimizer = match kind {
+        OptimizerKind::Sgd => Optimizer::Sgd {
+            learning_rate,
+            momentum,
+        },
+        OptimizerKind::Adam => Optimizer::Adam {
+            learning_rate,
+            beta1: 0.9,
+            beta2: 0.999,
+            epsilon: 1e-8,
+        },
+    };
+    let batch = raw.batch.unwrap_or(BatchSize::Rows(32));
+    check.require(batch != BatchSize::Rows(0), "batch", || {
+        "batch must be at least 1 row, or 'full'".into()
+    });
+    let epochs = raw.epochs.unwrap_or(1000);
+    check.require(epochs > 0, "epochs", || "epochs must be at least 1".into());
+    if let Some(target) = raw.target_loss {
+        check.require(target >= 0.0 && target.is_finite(), "target_loss", || {
+            format!("target_loss must be a loss value of 0 or more, not {target}")
+        });
+    }
+    if let Some(patience) = raw.patience {
+        check.require(patience > 0, "patience", || "patience must be at least 1 epoch".into());
+    }
+    let l2 = raw.l2.unwrap_or(0.0);
+    check.require(l2 >= 0.0 && l2.is_finite(), "l2", || format!("l2 must be 0 or more, not {l2}"));
+    TrainSpec {
+        data: raw.data,
+        net: raw.net,
+        loss: raw.loss.unwrap_or(LossChoice::Auto),
+        optimizer,
+        batch,
+        epochs,
+        target_loss: raw.target_loss,
+        patience: raw.patience,
+        l2,
+        shuffle: raw.shuffle.unwrap_or(true),
+        seed: raw.seed.unwrap_or(default_seed),
+    }
+}

@@ -1,0 +1,63 @@
+//! Deserialising a YAML block that sits inside the Markdown source, so that every
+//! error is reported at its place in the document rather than in the block.
+
+use serde::de::DeserializeOwned;
+
+use super::problem::{Problem, nearest};
+
+/// A YAML text and the byte offset where it starts in the document.
+#[derive(Clone, Copy, Debug)]
+pub struct Block<'a> {
+    pub text: &'a str,
+    pub offset: usize,
+}
+
+/// Deserialises `block` into `T` (whose serde derive rejects unknown keys); on failure
+/// records one problem at the error's position, suggesting the nearest of `known` keys
+/// for a misspelt one.
+pub fn deserialize<T: DeserializeOwned>(
+    block: Block<'_>,
+    known: &[&str],
+    problems: &mut Vec<Problem>,
+) -> Option<T> {
+    match serde_yaml::from_str::<T>(block.text) {
+        Ok(value) => Some(value),
+        Err(error) => {
+            problems.push(problem_from(&error, block, known));
+            None
+        }
+    }
+}
+
+fn problem_from(error: &serde_yaml::Error, block: Block<'_>, known: &[&str]) -> Problem {
+    let start = block.offset + error.location().map_or(0, |location| location.index());
+    let line_end = block.text[start - block.offset..]
+        .find('\n')
+        .map_or(block.offset + block.text.len(), |i| start + i);
+    let message = plain_message(error);
+    let problem = Problem::new(start..line_end.max(start + 1), message.clone());
+    match unknown_key(&message) {
+        Some(key) => match nearest(key, known.iter().copied()) {
+            Some(suggestion) => problem.with_help(format!("did you mean '{suggestion}'?")),
+            None => problem.with_help(format!("known settings here: {}", known.join(", "))),
+        },
+        None => problem,
+    }
+}
+
+/// serde_yaml appends " at line L column C" to its messages; the diagnostic already
+/// says where, in document coordinates, so drop the block-relative position.
+fn plain_message(error: &serde_yaml::Error) -> String {
+    let text = error.to_string();
+    let text = match text.rfind(" at line ") {
+        Some(i) => text[..i].to_string(),
+        None => text,
+    };
+    let text = text.replace("unknown field", "unknown setting");
+    text.replacen("missing field", "missing setting", 1)
+}
+
+fn unknown_key(message: &str) -> Option<&str> {
+    let rest = message.strip_prefix("unknown setting `")?;
+    rest.split('`').next()
+}

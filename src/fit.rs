@@ -1,0 +1,165 @@
+//! Fitting one network on one partition of a prepared data set: the bridge between a
+//! train step's settings and the `nn` engine. No I/O.
+
+use std::time::Instant;
+
+use crate::data::{Prepared, Task};
+use crate::document::spec::{LossChoice, NetSpec, OutputChoice, TrainSpec, word};
+use crate::nn::{self, Activation, Loss, Network, TrainConfig};
+use crate::outcome::{DataSummary, ModelShape, RunResult, SetMetrics};
+
+/// The network shape, output activation and loss a train step uses on this data.
+pub fn model_shape(data: &DataSummary, net: &NetSpec, train: &TrainSpec) -> Result<ModelShape, String> {
+    let inputs = data.feature_count;
+    let outputs = data.output_count();
+    let task = data.task;
+    let output = match net.output {
+        OutputChoice::Auto => match task {
+            Task::Classify if outputs == 1 => Activation::Sigmoid,
+            Task::Classify => Activation::Softmax,
+            Task::Regress => Activation::Linear,
+        },
+        OutputChoice::Sigmoid => Activation::Sigmoid,
+        OutputChoice::Softmax => Activation::Softmax,
+        OutputChoice::Linear => Activation::Linear,
+        OutputChoice::Tanh => Activation::Tanh,
+    };
+    if output == Activation::Softmax && outputs == 1 {
+        return Err("a softmax output needs at least two output columns; with two classes use sigmoid or auto".into());
+    }
+    let loss = match train.loss {
+        LossChoice::Auto => match task {
+            Task::Classify => Loss::CrossEntropy,
+            Task::Regress => Loss::Mse,
+        },
+        LossChoice::Mse => Loss::Mse,
+        LossChoice::CrossEntropy => Loss::CrossEntropy,
+    };
+    if loss == Loss::CrossEntropy && !matches!(output, Activation::Sigmoid | Activation::Softmax) {
+        return Err(format!(
+            "cross_entropy needs outputs that are probabilities (sigmoid or softmax), not {}",
+            word(&output)
+        ));
+    }
+    if loss == Loss::CrossEntropy && task == Task::Regress {
+        return Err("cross_entropy is a classification loss; this data step regresses (use mse)".into());
+    }
+    let mut sizes = vec![inputs];
+    sizes.extend(&net.hidden);
+    sizes.push(outputs);
+    Ok(ModelShape {
+        hints: hidden_width_hints(inputs, outputs, &net.hidden),
+        sizes,
+        hidden: net.activation,
+        output,
+        loss,
+    })
+}
+
+/// Remarks on hidden widths outside the usual rules of thumb (common practice; the
+/// usual published source is Heaton, Introduction to Neural Networks for Java, 2008):
+/// a width between the output and input sizes, near two thirds of the input size plus
+/// the output size, and under twice the input size.
+pub fn hidden_width_hints(inputs: usize, outputs: usize, hidden: &[usize]) -> Vec<String> {
+    let low = inputs.min(outputs);
+    let high = inputs.max(outputs);
+    let suggested = (2.0 * inputs as f64 / 3.0 + outputs as f64).round() as usize;
+    hidden
+        .iter()
+        .enumerate()
+        .filter_map(|(layer, &width)| {
+            let mut broken = Vec::new();
+            if width < low || width > high {
+                broken.push(format!("between the output and input sizes ({low}–{high})"));
+            }
+            if width >= 2 * inputs {
+                broken.push(format!("under twice the input size (< {})", 2 * inputs));
+            }
+            (!broken.is_empty()).then(|| {
+                format!(
+                    "hidden layer {} has {width} units; rules of thumb suggest {}; about {suggested} (two thirds of the inputs plus the outputs) is a common start",
+                    layer + 1,
+                    broken.join(" and ")
+                )
+            })
+        })
+        .collect()
+}
+
+/// Trains one network on partition `partition` and measures it on both sets of rows.
+pub fn fit(
+    prepared: &Prepared,
+    partition: usize,
+    shape: &ModelShape,
+    net: &NetSpec,
+    train: &TrainSpec,
+) -> RunResult {
+    let split = prepared.split(partition);
+    let started = Instant::now();
+    let network = Network::initialise(&shape.sizes, shape.hidden, shape.output, net.init, train.seed);
+    let config = TrainConfig {
+        loss: shape.loss,
+        optimizer: train.optimizer.clone(),
+        batch: train.batch,
+        epochs: train.epochs,
+        target_loss: train.target_loss,
+        patience: train.patience,
+        l2: train.l2,
+        shuffle: train.shuffle,
+        seed: train.seed,
+        update_biases: true,
+    };
+    let has_test = split.x_test.nrows() > 0;
+    let validation = has_test.then(|| (split.x_test.view(), split.y_test.view()));
+    let fitted = nn::train(network, split.x_train.view(), split.y_train.view(), validation, &config);
+    let seconds = started.elapsed().as_secs_f64();
+    let measure = |x: &ndarray::Array2<f64>, y: &ndarray::Array2<f64>| {
+        set_metrics(prepared.encoding.task, &fitted.network, x, y, shape.loss)
+    };
+    let train_metrics = measure(&split.x_train, &split.y_train);
+    let test_metrics = has_test.then(|| measure(&split.x_test, &split.y_test));
+    RunResult {
+        fit: fitted,
+        seconds,
+        train: train_metrics,
+        test: test_metrics,
+    }
+}
+
+fn set_metrics(
+    task: Task,
+    network: &Network,
+    x: &ndarray::Array2<f64>,
+    y: &ndarray::Array2<f64>,
+    loss: Loss,
+) -> SetMetrics {
+    let outputs = network.predict(x.view());
+    let loss_value = nn::mean_loss(network, x.view(), y.view(), loss);
+    match task {
+        Task::Classify => SetMetrics::Classification {
+            loss: loss_value,
+            metrics: nn::classification_metrics(y.view(), outputs.view()),
+        },
+        Task::Regress => SetMetrics::Regression {
+            loss: loss_value,
+            metrics: nn::regression_metrics(y.view(), outputs.view()),
+        },
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    // Seven inputs and two outputs: 3–4 hidden units sit inside the rules of thumb,
+    // 16 breaks them (common practice; Heaton 2008).
+    #[test]
+    fn the_hidden_width_hint_flags_sixteen_units_on_seven_inputs() {
+        assert!(hidden_width_hints(7, 2, &[3]).is_empty());
+        assert!(hidden_width_hints(7, 2, &[4]).is_empty());
+        let hints = hidden_width_hints(7, 2, &[16]);
+        assert_eq!(hints.len(), 1);
+        assert!(hints[0].contains("16 units"), "{hints:?}");
+        assert!(hints[0].contains("under twice the input size"), "{hints:?}");
+    }
+}

@@ -1,0 +1,123 @@
+//! The `stet` command: parse the command line, call the library, print what happened
+//! and map it to an exit code (0 all steps succeeded, 1 a step failed, 2 unusable input).
+
+use std::path::PathBuf;
+use std::process::ExitCode;
+
+use clap::{Parser, Subcommand};
+use stet::{BuildOptions, CacheChoice, Error};
+
+#[derive(Parser)]
+#[command(name = "stet", version, about = "Run a Markdown experiment document and render its report")]
+struct Cli {
+    #[command(subcommand)]
+    command: Command,
+}
+
+#[derive(Subcommand)]
+enum Command {
+    /// Run every step whose result is not cached and render the report.
+    Build {
+        /// The experiment document (Markdown).
+        document: PathBuf,
+        /// Where to write the report [default: DOC.html beside DOC.md].
+        #[arg(short = 'o', long = "output", value_name = "OUT.html")]
+        output: Option<PathBuf>,
+        /// Also write a JSON summary of every step.
+        #[arg(long, value_name = "SUMMARY.json")]
+        json: Option<PathBuf>,
+        /// The cache folder [default: $STET_CACHE, else .stet/ beside the document].
+        #[arg(long, value_name = "DIR")]
+        cache: Option<PathBuf>,
+        /// Run everything and write nothing to the cache.
+        #[arg(long, conflicts_with = "cache")]
+        no_cache: bool,
+        /// Training runs at once [default: the number of cores].
+        #[arg(long, value_name = "N")]
+        jobs: Option<usize>,
+        /// Read report templates from this folder instead of the built-in ones.
+        #[arg(long, value_name = "DIR")]
+        templates: Option<PathBuf>,
+        /// Render raw HTML in the document's prose instead of showing it as text.
+        #[arg(long)]
+        allow_html: bool,
+    },
+}
+
+fn main() -> ExitCode {
+    let cli = Cli::parse();
+    match run(cli.command) {
+        Ok(code) => code,
+        Err(error) => {
+            report_error(&error);
+            ExitCode::from(2)
+        }
+    }
+}
+
+fn run(command: Command) -> Result<ExitCode, Error> {
+    match command {
+        Command::Build {
+            document,
+            output,
+            json,
+            cache,
+            no_cache,
+            jobs,
+            templates,
+            allow_html,
+        } => {
+            let options = BuildOptions {
+                document,
+                output,
+                json,
+                cache: match (no_cache, cache) {
+                    (true, _) => CacheChoice::Off,
+                    (false, Some(dir)) => CacheChoice::Dir(dir),
+                    (false, None) => CacheChoice::Default,
+                },
+                jobs: jobs.unwrap_or_else(default_jobs),
+                templates,
+                allow_html,
+            };
+            let summary = stet::build(&options)?;
+            for warning in &summary.warnings {
+                eprintln!("warning: {warning}");
+            }
+            for (id, error) in &summary.failed {
+                eprintln!("step '{id}' failed: {error}");
+            }
+            eprintln!(
+                "{}: {} steps, {} ran, {} reused, {} failed",
+                summary.report.display(),
+                summary.steps,
+                summary.ran,
+                summary.reused,
+                summary.failed.len()
+            );
+            Ok(if summary.failed.is_empty() { ExitCode::SUCCESS } else { ExitCode::from(1) })
+        }
+    }
+}
+
+fn default_jobs() -> usize {
+    std::thread::available_parallelism().map_or(1, |n| n.get())
+}
+
+/// Document problems print with their source line marked; others as one line.
+fn report_error(error: &Error) {
+    match error {
+        Error::Document(errors) => {
+            let handler = miette::GraphicalReportHandler::new();
+            for diagnostic in errors.diagnostics() {
+                let mut out = String::new();
+                match handler.render_report(&mut out, &diagnostic) {
+                    Ok(()) => eprint!("{out}"),
+                    Err(_) => eprintln!("error: {diagnostic}"),
+                }
+            }
+            eprintln!("{}: {} problem(s); nothing was written", errors.path, errors.problems.len());
+        }
+        other => eprintln!("error: {other}"),
+    }
+}

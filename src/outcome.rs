@@ -1,0 +1,180 @@
+//! What each step produces: the typed, serialisable results that the cache stores and
+//! the report and JSON summary read.
+
+use serde::{Deserialize, Serialize};
+
+use crate::data::{InputColumn, Scale, Task};
+use crate::nn::{Activation, ClassificationMetrics, Loss, RegressionMetrics, TrainOutcome};
+
+/// Wall-clock seconds.
+pub type Seconds = f64;
+
+/// A data step's result as the report shows it.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct DataSummary {
+    pub file: String,
+    pub task: Task,
+    pub rows_read: usize,
+    pub rows_dropped: usize,
+    pub columns: Vec<InputColumn>,
+    pub feature_count: usize,
+    pub target_names: Vec<String>,
+    pub classes: Option<Vec<String>>,
+    pub scale: Scale,
+    /// Training and held-out rows of each partition (one for a holdout, k for folds).
+    pub partitions: Vec<PartitionSummary>,
+}
+
+impl DataSummary {
+    /// Output units a network needs: one for two classes, one per class for more,
+    /// one per target column for regression.
+    pub fn output_count(&self) -> usize {
+        match (&self.task, &self.classes) {
+            (Task::Classify, Some(classes)) if classes.len() == 2 => 1,
+            (Task::Classify, Some(classes)) => classes.len(),
+            _ => self.target_names.len(),
+        }
+    }
+}
+
+/// Row counts of one partition, with class balance for classification.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct PartitionSummary {
+    pub train_rows: usize,
+    pub test_rows: usize,
+    pub train_classes: Vec<usize>,
+    pub test_classes: Vec<usize>,
+}
+
+/// Metrics of a fitted network on one set of rows.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+#[serde(rename_all = "snake_case")]
+pub enum SetMetrics {
+    Classification { loss: f64, metrics: ClassificationMetrics },
+    Regression { loss: f64, metrics: RegressionMetrics },
+}
+
+impl SetMetrics {
+    /// The headline numbers by name, as the JSON summary and tables list them.
+    pub fn named(&self) -> Vec<(&'static str, f64)> {
+        match self {
+            SetMetrics::Classification { loss, metrics } => vec![
+                ("loss", *loss),
+                ("accuracy", metrics.accuracy),
+                ("log_loss", metrics.log_loss),
+            ],
+            SetMetrics::Regression { loss, metrics } => vec![
+                ("loss", *loss),
+                ("mse", metrics.mse),
+                ("mae", metrics.mae),
+                ("r2", metrics.r2),
+            ],
+        }
+    }
+}
+
+/// One network fitted on one partition.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct RunResult {
+    pub fit: TrainOutcome,
+    pub seconds: Seconds,
+    pub train: SetMetrics,
+    pub test: Option<SetMetrics>,
+}
+
+/// How a train step's networks were built, shared by all its runs.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct ModelShape {
+    /// Layer widths from inputs to outputs.
+    pub sizes: Vec<usize>,
+    pub hidden: Activation,
+    pub output: Activation,
+    pub loss: Loss,
+    /// Rule-of-thumb remarks on hidden-layer widths.
+    pub hints: Vec<String>,
+}
+
+/// A train step's result: one run per partition.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct TrainResult {
+    pub shape: ModelShape,
+    pub runs: Vec<RunResult>,
+}
+
+/// A step's result.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+#[serde(rename_all = "snake_case")]
+pub enum Outcome {
+    Data(DataSummary),
+    Net,
+    Train(TrainResult),
+}
+
+/// A metric over a train step's runs: the mean and, with several runs, the sample
+/// standard deviation (n − 1).
+#[derive(Clone, Debug, PartialEq, Serialize)]
+pub struct MetricStat {
+    pub name: &'static str,
+    pub mean: f64,
+    pub sd: Option<f64>,
+}
+
+/// Which rows metrics are measured on.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum RowSet {
+    Train,
+    Test,
+}
+
+impl TrainResult {
+    /// Each headline metric on `rows`, over all runs; `None` when there are no such rows.
+    pub fn metric_stats(&self, rows: RowSet) -> Option<Vec<MetricStat>> {
+        let sets: Vec<&SetMetrics> = self
+            .runs
+            .iter()
+            .map(|run| match rows {
+                RowSet::Train => Some(&run.train),
+                RowSet::Test => run.test.as_ref(),
+            })
+            .collect::<Option<_>>()?;
+        let named: Vec<Vec<(&'static str, f64)>> = sets.iter().map(|set| set.named()).collect();
+        let first = named.first()?;
+        Some(
+            first
+                .iter()
+                .enumerate()
+                .map(|(i, (name, _))| {
+                    let values: Vec<f64> = named.iter().map(|set| set[i].1).collect();
+                    let (mean, sd) = mean_and_sd(&values);
+                    MetricStat { name, mean, sd }
+                })
+                .collect(),
+        )
+    }
+}
+
+/// Mean and sample standard deviation; no deviation for a single value.
+pub fn mean_and_sd(values: &[f64]) -> (f64, Option<f64>) {
+    let n = values.len() as f64;
+    let mean = values.iter().sum::<f64>() / n;
+    if values.len() < 2 {
+        return (mean, None);
+    }
+    let variance = values.iter().map(|v| (v - mean).powi(2)).sum::<f64>() / (n - 1.0);
+    (mean, Some(variance.sqrt()))
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    // Computed by hand: mean 7/3; squared deviations 16/9 + 1/9 + 25/9 = 42/9, over n − 1 = 2
+    // gives 7/3, whose square root is 1.5275252316519468 (numpy: np.std([1, 2, 4], ddof=1)).
+    #[test]
+    fn mean_and_sample_sd_match_numpy() {
+        let (mean, sd) = mean_and_sd(&[1.0, 2.0, 4.0]);
+        assert!((mean - 7.0 / 3.0).abs() < 1e-15);
+        assert!((sd.unwrap() - 1.5275252316519468).abs() < 1e-12);
+        assert_eq!(mean_and_sd(&[3.0]), (3.0, None));
+    }
+}

@@ -1,0 +1,202 @@
+//! The step graph: parsed specs, references resolved, execution order, file inputs
+//! read and hashed, and each step's cache key.
+
+use std::collections::HashMap;
+use std::path::{Path, PathBuf};
+use std::sync::Arc;
+
+use crate::document::spec::parse_step;
+use crate::document::{Document, Problem, StepBlock, StepKind, StepSpec};
+use crate::document::problem::nearest;
+
+/// Bumped whenever the meaning of a cached result changes, so old entries miss.
+pub const CACHE_FORMAT_VERSION: u32 = 1;
+
+/// A step's cache key: the BLAKE3 hash of everything its result depends on, in hex.
+pub type Key = String;
+
+/// The first 10 hex digits of a key, as shown in reports and `stet status`.
+pub fn short_key(key: &str) -> &str {
+    &key[..10.min(key.len())]
+}
+
+/// A file a step reads, with its bytes and their hash.
+#[derive(Clone, Debug)]
+pub struct InputFile {
+    /// The path as written in the document.
+    pub written: String,
+    pub path: PathBuf,
+    pub bytes: Arc<[u8]>,
+    pub hash: blake3::Hash,
+}
+
+/// One step, ready to run.
+#[derive(Clone, Debug)]
+pub struct PlannedStep {
+    pub id: String,
+    pub kind: StepKind,
+    pub spec: StepSpec,
+    /// Index of the step's block among the document's pieces.
+    pub piece: usize,
+    /// Indices (into `Plan::steps`) of the steps this one reads.
+    pub upstream: Vec<usize>,
+    pub files: Vec<InputFile>,
+    pub key: Key,
+}
+
+/// Every step of a document in document order, with an order to run them in.
+#[derive(Clone, Debug)]
+pub struct Plan {
+    pub steps: Vec<PlannedStep>,
+    /// Indices into `steps` such that every step comes after the steps it reads.
+    pub order: Vec<usize>,
+}
+
+impl Plan {
+    pub fn index_of(&self, id: &str) -> Option<usize> {
+        self.steps.iter().position(|step| step.id == id)
+    }
+}
+
+/// Builds the plan of a parsed document whose data paths are relative to `base_dir`.
+pub fn plan(document: &Document, base_dir: &Path) -> Result<Plan, Vec<Problem>> {
+    let default_seed = document.front.seed.unwrap_or(0);
+    let mut problems = Vec::new();
+    let mut parsed: Vec<(usize, &StepBlock, StepSpec)> = Vec::new();
+    let mut seen: HashMap<&str, &StepBlock> = HashMap::new();
+    for (piece, block) in document.pieces.iter().enumerate().filter_map(|(i, piece)| match piece {
+        crate::document::Piece::Step(block) => Some((i, block)),
+        crate::document::Piece::Prose(_) => None,
+    }) {
+        if let Some(first) = seen.insert(&block.id, block) {
+            let (line, _) = crate::document::problem::line_and_column(&document.source, first.info_span.start);
+            problems.push(Problem::new(
+                block.info_span.clone(),
+                format!("a step named '{}' is already defined on line {line}", block.id),
+            ).with_help("give each step its own id"));
+            continue;
+        }
+        if let Some(spec) = parse_step(block, default_seed, &mut problems) {
+            parsed.push((piece, block, spec));
+        }
+    }
+
+    let kinds: HashMap<&str, StepKind> = document.steps().map(|b| (b.id.as_str(), b.kind)).collect();
+    let index: HashMap<&str, usize> = parsed.iter().enumerate().map(|(i, (_, b, _))| (b.id.as_str(), i)).collect();
+    let mut steps = Vec::new();
+    for (piece, block, spec) in &parsed {
+        let mut upstream = Vec::new();
+        for (id, wanted, setting) in spec.references() {
+            match kinds.get(id) {
+                None => problems.push(missing_reference(block, setting, id, &kinds)),
+                Some(kind) if *kind != wanted => problems.push(Problem::new(
+                    setting_span(block, setting),
+                    format!("'{id}' is a {} step, but {setting} must name a {} step", kind.word(), wanted.word()),
+                )),
+                // A referenced step that failed to parse already has its own problem.
+                Some(_) => upstream.extend(index.get(id).copied()),
+            }
+        }
+        let files = read_files(block, spec, base_dir, &mut problems);
+        steps.push(PlannedStep {
+            id: block.id.clone(),
+            kind: block.kind,
+            spec: spec.clone(),
+            piece: *piece,
+            upstream,
+            files,
+            key: String::new(),
+        });
+    }
+    if !problems.is_empty() {
+        return Err(problems);
+    }
+    let order = execution_order(&steps);
+    for &i in &order {
+        let upstream_keys: Vec<Key> = steps[i].upstream.iter().map(|&u| steps[u].key.clone()).collect();
+        steps[i].key = step_key(&steps[i], &upstream_keys);
+    }
+    Ok(Plan { steps, order })
+}
+
+fn missing_reference(block: &StepBlock, setting: &str, id: &str, kinds: &HashMap<&str, StepKind>) -> Problem {
+    let problem = Problem::new(setting_span(block, setting), format!("no step is named '{id}'"));
+    match nearest(id, kinds.keys().copied()) {
+        Some(suggestion) => problem.with_help(format!("did you mean '{suggestion}'?")),
+        None => problem.with_help(format!(
+            "steps in this document: {}",
+            kinds.keys().copied().collect::<Vec<_>>().join(", ")
+        )),
+    }
+}
+
+/// The span of `setting:` in the block, or its info string.
+fn setting_span(block: &StepBlock, setting: &str) -> std::ops::Range<usize> {
+    let mut offset = block.yaml_offset;
+    for line in block.yaml.split_inclusive('\n') {
+        let trimmed = line.trim_start();
+        if trimmed.strip_prefix(setting).is_some_and(|rest| rest.trim_start().starts_with(':')) {
+            let indent = line.len() - trimmed.len();
+            return offset + indent..offset + line.trim_end().len();
+        }
+        offset += line.len();
+    }
+    block.info_span.clone()
+}
+
+fn read_files(block: &StepBlock, spec: &StepSpec, base_dir: &Path, problems: &mut Vec<Problem>) -> Vec<InputFile> {
+    let written = match spec {
+        StepSpec::Data(data) => &data.file,
+        StepSpec::Net(_) | StepSpec::Train(_) => return Vec::new(),
+    };
+    let path = base_dir.join(written);
+    match std::fs::read(&path) {
+        Ok(bytes) => vec![InputFile {
+            written: written.clone(),
+            hash: blake3::hash(&bytes),
+            bytes: bytes.into(),
+            path,
+        }],
+        Err(error) => {
+            problems.push(Problem::new(
+                setting_span(block, "file"),
+                format!("cannot read '{}': {error}", path.display()),
+            ).with_help("the path is relative to the document's folder"));
+            Vec::new()
+        }
+    }
+}
+
+/// Kahn's algorithm, taking ready steps in document order so the order is stable.
+/// The step kinds only ever read kinds that cannot read back, so there is no cycle.
+fn execution_order(steps: &[PlannedStep]) -> Vec<usize> {
+    let mut done = vec![false; steps.len()];
+    let mut order = Vec::with_capacity(steps.len());
+    while order.len() < steps.len() {
+        let ready = (0..steps.len())
+            .find(|&i| !done[i] && steps[i].upstream.iter().all(|&u| done[u]))
+            .expect("step references form no cycle");
+        done[ready] = true;
+        order.push(ready);
+    }
+    order
+}
+
+/// BLAKE3 over the format version, the kind, the canonical settings, the upstream
+/// keys and the hash of every file read. Prose never enters.
+fn step_key(step: &PlannedStep, upstream_keys: &[Key]) -> Key {
+    let mut hasher = blake3::Hasher::new();
+    hasher.update(&CACHE_FORMAT_VERSION.to_le_bytes());
+    hasher.update(step.kind.word().as_bytes());
+    hasher.update(b"\0");
+    let settings = serde_json::to_vec(&step.spec).expect("specs serialise");
+    hasher.update(&(settings.len() as u64).to_le_bytes());
+    hasher.update(&settings);
+    for key in upstream_keys {
+        hasher.update(key.as_bytes());
+    }
+    for file in &step.files {
+        hasher.update(file.hash.as_bytes());
+    }
+    hasher.finalize().to_hex().to_string()
+}

@@ -1,0 +1,276 @@
+//! The HTML report: one self-contained file with CSS and SVG charts inline, rendered
+//! from minijinja templates compiled into the binary (or read from `--templates DIR`).
+//! Renderers return strings; only the command layer writes files.
+
+pub mod chart;
+pub mod format;
+pub mod prose;
+pub mod settings;
+pub mod summary;
+pub mod view;
+
+use std::path::Path;
+
+use minijinja::Environment;
+use pulldown_cmark::{Event, Parser, Tag};
+use serde::Serialize;
+
+use crate::document::{Document, Piece, StepSpec};
+use crate::outcome::Outcome;
+use crate::plan::{Plan, short_key};
+use crate::run::{Status, StepRecord};
+use format::seconds;
+use settings::SettingRow;
+use view::{DataView, TrainView, data_view, train_view};
+
+/// The templates the binary carries: (name, text).
+const BUILT_IN: &[(&str, &str)] = &[
+    ("report.html", include_str!("../../templates/report.html")),
+    ("step.html", include_str!("../../templates/step.html")),
+    ("style.css", include_str!("../../templates/style.css")),
+];
+
+/// A loaded set of templates.
+pub struct Templates {
+    env: Environment<'static>,
+}
+
+impl Templates {
+    /// The templates compiled into the binary.
+    pub fn built_in() -> Templates {
+        let mut env = Environment::new();
+        for (name, text) in BUILT_IN {
+            env.add_template(name, text).expect("built-in templates parse");
+        }
+        Templates { env }
+    }
+
+    /// The built-in templates, each replaced by a file of the same name in `dir` if present.
+    pub fn with_overrides(dir: &Path) -> Result<Templates, String> {
+        let mut env = Environment::new();
+        for (name, text) in BUILT_IN {
+            let path = dir.join(name);
+            let source = match std::fs::read_to_string(&path) {
+                Ok(source) => source,
+                Err(error) if error.kind() == std::io::ErrorKind::NotFound => text.to_string(),
+                Err(error) => return Err(format!("reading {}: {error}", path.display())),
+            };
+            env.add_template_owned(name.to_string(), source)
+                .map_err(|error| format!("template {}: {error}", path.display()))?;
+        }
+        Ok(Templates { env })
+    }
+}
+
+/// Everything a report is made from.
+pub struct ReportInput<'a> {
+    pub document: &'a Document,
+    /// The document's path as the user gave it.
+    pub document_name: &'a str,
+    pub document_hash: &'a str,
+    pub plan: &'a Plan,
+    pub records: &'a [StepRecord],
+    pub allow_html: bool,
+    /// When the build ran, already formatted.
+    pub built_at: &'a str,
+}
+
+#[derive(Serialize)]
+struct ReportView<'a> {
+    title: String,
+    author: Option<&'a str>,
+    notes: Option<&'a str>,
+    built_at: &'a str,
+    run_summary: String,
+    version: &'static str,
+    document_name: &'a str,
+    document_hash: &'a str,
+    pieces: Vec<PieceView>,
+}
+
+#[derive(Serialize)]
+#[serde(tag = "type", rename_all = "snake_case")]
+enum PieceView {
+    Prose { html: String },
+    Step(Box<StepView>),
+}
+
+#[derive(Serialize)]
+struct StepView {
+    id: String,
+    kind: &'static str,
+    key: String,
+    status: &'static str,
+    status_text: String,
+    error: Option<String>,
+    beside_html: String,
+    settings: Vec<SettingRow>,
+    yaml: String,
+    data: Option<DataView>,
+    train: Option<TrainView>,
+}
+
+/// Renders the report to a string.
+pub fn render(input: &ReportInput<'_>, templates: &Templates) -> Result<String, minijinja::Error> {
+    let view = ReportView {
+        title: title(input),
+        author: input.document.front.author.as_deref(),
+        notes: input.document.front.notes.as_deref(),
+        built_at: input.built_at,
+        run_summary: run_summary(input.records),
+        version: env!("CARGO_PKG_VERSION"),
+        document_name: input.document_name,
+        document_hash: input.document_hash,
+        pieces: pieces(input),
+    };
+    templates.env.get_template("report.html")?.render(&view)
+}
+
+/// The front matter's title, else the first heading's text, else the file name.
+fn title(input: &ReportInput<'_>) -> String {
+    if let Some(title) = &input.document.front.title {
+        return title.clone();
+    }
+    for piece in &input.document.pieces {
+        if let Piece::Prose(markdown) = piece {
+            let mut in_heading = false;
+            let mut text = String::new();
+            for event in Parser::new(markdown) {
+                match event {
+                    Event::Start(Tag::Heading { .. }) => in_heading = true,
+                    Event::End(pulldown_cmark::TagEnd::Heading(_)) if in_heading => return text,
+                    Event::Text(t) | Event::Code(t) if in_heading => text.push_str(&t),
+                    _ => {}
+                }
+            }
+        }
+    }
+    input.document_name.to_string()
+}
+
+fn run_summary(records: &[StepRecord]) -> String {
+    let count = |wanted: fn(&Status) -> bool| records.iter().filter(|r| wanted(&r.status)).count();
+    let ran = count(|s| matches!(s, Status::Ran { .. }));
+    let reused = count(|s| matches!(s, Status::Reused));
+    let failed = count(|s| matches!(s, Status::Failed { .. }));
+    let training: f64 = records
+        .iter()
+        .filter_map(|record| match (&record.status, &record.outcome) {
+            (Status::Ran { seconds }, Some(Outcome::Train(_))) => Some(*seconds),
+            _ => None,
+        })
+        .sum();
+    let mut summary = format!("{} steps · {ran} ran · {reused} reused", records.len());
+    if failed > 0 {
+        summary.push_str(&format!(" · {failed} failed"));
+    }
+    summary.push_str(&format!(" · training {}", seconds(training)));
+    summary
+}
+
+fn pieces(input: &ReportInput<'_>) -> Vec<PieceView> {
+    let mut views = Vec::new();
+    let mut pending_prose: Option<&str> = None;
+    let flush = |views: &mut Vec<PieceView>, prose: &str| {
+        views.push(PieceView::Prose {
+            html: prose::render(prose, input.allow_html),
+        })
+    };
+    for (index, piece) in input.document.pieces.iter().enumerate() {
+        match piece {
+            Piece::Prose(markdown) => {
+                if let Some(previous) = pending_prose.replace(markdown) {
+                    flush(&mut views, previous);
+                }
+            }
+            Piece::Step(block) => {
+                let (lead, beside) = match pending_prose.take() {
+                    Some(markdown) => split_lead(markdown),
+                    None => ("", ""),
+                };
+                if !lead.trim().is_empty() {
+                    flush(&mut views, lead);
+                }
+                let step_index = input
+                    .plan
+                    .steps
+                    .iter()
+                    .position(|step| step.piece == index)
+                    .expect("every block is planned");
+                views.push(PieceView::Step(Box::new(step_view(
+                    input,
+                    step_index,
+                    &block.yaml,
+                    prose::render(beside, input.allow_html),
+                ))));
+            }
+        }
+    }
+    if let Some(rest) = pending_prose {
+        flush(&mut views, rest);
+    }
+    views
+}
+
+/// Splits the prose before a step at its last heading: the part up to the heading
+/// spans the page, the heading and what follows it sit beside the step's results.
+fn split_lead(markdown: &str) -> (&str, &str) {
+    let last_heading = Parser::new(markdown)
+        .into_offset_iter()
+        .filter(|(event, _)| matches!(event, Event::Start(Tag::Heading { .. })))
+        .map(|(_, range)| range.start)
+        .last();
+    match last_heading {
+        Some(start) => markdown.split_at(start),
+        None => ("", markdown),
+    }
+}
+
+fn step_view(input: &ReportInput<'_>, index: usize, yaml: &str, beside_html: String) -> StepView {
+    let step = &input.plan.steps[index];
+    let record = &input.records[index];
+    let (status, status_text, error) = match &record.status {
+        Status::Ran { seconds: s } => ("ran", format!("ran in {}", seconds(*s)), None),
+        Status::Reused => ("reused", "reused from the cache".to_string(), None),
+        Status::Failed { error } => ("failed", "failed".to_string(), Some(error.clone())),
+    };
+    let classes = match &step.spec {
+        StepSpec::Train(_) => match input.records[step.upstream[0]].outcome.as_ref() {
+            Some(Outcome::Data(summary)) => summary.classes.clone(),
+            _ => None,
+        },
+        _ => None,
+    };
+    StepView {
+        id: step.id.clone(),
+        kind: step.kind.word(),
+        key: short_key(&step.key).to_string(),
+        status,
+        status_text,
+        error,
+        beside_html,
+        settings: settings::rows(&step.spec, yaml),
+        yaml: yaml.to_string(),
+        data: match &record.outcome {
+            Some(Outcome::Data(summary)) => Some(data_view(summary)),
+            _ => None,
+        },
+        train: match &record.outcome {
+            Some(Outcome::Train(result)) => Some(train_view(result, classes.as_deref())),
+            _ => None,
+        },
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn the_lead_splits_at_the_last_heading() {
+        let (lead, beside) = split_lead("# Title\n\nIntro.\n\n## Base run\n\nWhy.\n");
+        assert_eq!(lead, "# Title\n\nIntro.\n\n");
+        assert_eq!(beside, "## Base run\n\nWhy.\n");
+        assert_eq!(split_lead("Only prose.\n"), ("", "Only prose.\n"));
+    }
+}

@@ -1,0 +1,134 @@
+//! A step's settings as the compact key–value rows its card shows: every setting with
+//! its value after defaults, the ones the author did not write marked as defaults.
+
+use std::collections::HashSet;
+
+use serde::Serialize;
+
+use crate::data::Split;
+use crate::document::StepSpec;
+use crate::document::spec::word;
+use crate::nn::{BatchSize, Optimizer};
+
+/// One row of a settings table.
+#[derive(Clone, Debug, Serialize)]
+pub struct SettingRow {
+    pub name: &'static str,
+    pub value: String,
+    /// Not written in the block: the default applies.
+    pub default: bool,
+}
+
+/// The settings rows of a step; `yaml` is the block as written, to tell defaults apart.
+pub fn rows(spec: &StepSpec, yaml: &str) -> Vec<SettingRow> {
+    let written = written_keys(yaml);
+    let row = |name: &'static str, value: String| SettingRow {
+        default: !written.contains(name),
+        name,
+        value,
+    };
+    match spec {
+        StepSpec::Data(data) => {
+            let settings = &data.settings;
+            let mut rows = vec![
+                row("file", data.file.clone()),
+                row("target", settings.target.join(", ")),
+                row(
+                    "inputs",
+                    settings
+                        .inputs
+                        .as_ref()
+                        .map_or("all other columns".into(), |inputs| inputs.join(", ")),
+                ),
+                row(
+                    "task",
+                    settings.task.map_or("from the target column".into(), |task| word(&task)),
+                ),
+                row(
+                    "scale",
+                    word(&settings.scale),
+                ),
+                row(
+                    "missing",
+                    word(&settings.missing),
+                ),
+            ];
+            rows.push(match settings.split {
+                Split::Holdout(fraction) => row("holdout", fraction.to_string()),
+                Split::Folds(folds) => row("folds", folds.to_string()),
+            });
+            rows.push(row("seed", settings.seed.to_string()));
+            rows
+        }
+        StepSpec::Net(net) => vec![
+            row(
+                "hidden",
+                format!(
+                    "[{}]",
+                    net.hidden.iter().map(ToString::to_string).collect::<Vec<_>>().join(", ")
+                ),
+            ),
+            row("activation", word(&net.activation)),
+            row(
+                "output",
+                word(&net.output),
+            ),
+            row(
+                "init",
+                word(&net.init),
+            ),
+        ],
+        StepSpec::Train(train) => {
+            let mut rows = vec![row("data", train.data.clone()), row("net", train.net.clone())];
+            rows.push(row(
+                "loss",
+                word(&train.loss),
+            ));
+            match &train.optimizer {
+                Optimizer::Sgd {
+                    learning_rate,
+                    momentum,
+                } => {
+                    rows.push(row("optimizer", "sgd".into()));
+                    rows.push(row("learning_rate", learning_rate.to_string()));
+                    rows.push(row("momentum", momentum.to_string()));
+                }
+                Optimizer::Adam { learning_rate, .. } => {
+                    rows.push(row("optimizer", "adam".into()));
+                    rows.push(row("learning_rate", learning_rate.to_string()));
+                }
+            }
+            rows.push(row(
+                "batch",
+                match train.batch {
+                    BatchSize::Rows(rows) => rows.to_string(),
+                    BatchSize::Full => "full".into(),
+                },
+            ));
+            rows.push(row("epochs", train.epochs.to_string()));
+            if let Some(target) = train.target_loss {
+                rows.push(row("target_loss", target.to_string()));
+            }
+            if let Some(patience) = train.patience {
+                rows.push(row("patience", patience.to_string()));
+            }
+            rows.push(row("l2", train.l2.to_string()));
+            rows.push(row("shuffle", train.shuffle.to_string()));
+            rows.push(row("seed", train.seed.to_string()));
+            rows
+        }
+    }
+}
+
+/// Top-level keys written in a block (the block already parsed, so this only needs
+/// the mapping's keys).
+fn written_keys(yaml: &str) -> HashSet<String> {
+    match serde_yaml::from_str::<serde_yaml::Mapping>(yaml) {
+        Ok(mapping) => mapping
+            .keys()
+            .filter_map(|key| key.as_str().map(str::to_string))
+            .collect(),
+        Err(_) => HashSet::new(),
+    }
+}
+

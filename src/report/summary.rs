@@ -1,0 +1,97 @@
+//! The `--json` summary for scripts and CI: one object per step in document order.
+//! Non-finite numbers (a diverged run) are written as null.
+
+use serde_json::{Map, Value, json};
+
+use super::format::stop_code;
+use crate::outcome::{MetricStat, Outcome, RowSet, RunResult, SetMetrics, TrainResult};
+use crate::plan::Plan;
+use crate::run::{Status, StepRecord};
+
+/// The summary as a JSON value.
+pub fn summary(document_name: &str, document_hash: &str, plan: &Plan, records: &[StepRecord]) -> Value {
+    let steps: Vec<Value> = plan
+        .steps
+        .iter()
+        .zip(records)
+        .map(|(step, record)| {
+            let mut object = Map::new();
+            object.insert("id".into(), json!(step.id));
+            object.insert("kind".into(), json!(step.kind.word()));
+            match &record.status {
+                Status::Ran { seconds } => {
+                    object.insert("status".into(), json!("ran"));
+                    object.insert("seconds".into(), json!(seconds));
+                }
+                Status::Reused => {
+                    object.insert("status".into(), json!("reused"));
+                }
+                Status::Failed { error } => {
+                    object.insert("status".into(), json!("failed"));
+                    object.insert("error".into(), json!(error));
+                }
+            }
+            object.insert("key".into(), json!(step.key));
+            if let Some(Outcome::Train(result)) = &record.outcome {
+                train_fields(result, &mut object);
+            }
+            Value::Object(object)
+        })
+        .collect();
+    json!({"document": document_name, "hash": document_hash, "steps": steps})
+}
+
+fn train_fields(result: &TrainResult, object: &mut Map<String, Value>) {
+    let mut metrics = Map::new();
+    let mut sd = Map::new();
+    for (name, rows) in [("train", RowSet::Train), ("test", RowSet::Test)] {
+        if let Some(stats) = result.metric_stats(rows) {
+            metrics.insert(name.into(), stat_means(&stats));
+            if result.runs.len() > 1 {
+                sd.insert(name.into(), stat_sds(&stats));
+            }
+        }
+    }
+    object.insert("metrics".into(), Value::Object(metrics));
+    if let [run] = result.runs.as_slice() {
+        object.insert("stop".into(), stop(run));
+    } else {
+        object.insert("sd".into(), Value::Object(sd));
+        let folds = result.runs.iter().map(fold).collect();
+        object.insert("folds".into(), Value::Array(folds));
+    }
+}
+
+fn stat_means(stats: &[MetricStat]) -> Value {
+    Value::Object(stats.iter().map(|s| (s.name.to_string(), number(s.mean))).collect())
+}
+
+fn stat_sds(stats: &[MetricStat]) -> Value {
+    Value::Object(
+        stats
+            .iter()
+            .map(|s| (s.name.to_string(), number(s.sd.unwrap_or(0.0))))
+            .collect(),
+    )
+}
+
+fn stop(run: &RunResult) -> Value {
+    json!({"reason": stop_code(run.fit.stop), "epoch": run.fit.epochs_run})
+}
+
+fn fold(run: &RunResult) -> Value {
+    let mut metrics = Map::new();
+    metrics.insert("train".into(), set(&run.train));
+    if let Some(test) = &run.test {
+        metrics.insert("test".into(), set(test));
+    }
+    json!({"seconds": run.seconds, "metrics": metrics, "stop": stop(run)})
+}
+
+fn set(metrics: &SetMetrics) -> Value {
+    Value::Object(metrics.named().into_iter().map(|(k, v)| (k.to_string(), number(v))).collect())
+}
+
+fn number(value: f64) -> Value {
+    if value.is_finite() { json!(value) } else { Value::Null }
+}

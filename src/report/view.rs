@@ -1,0 +1,333 @@
+//! Step results turned into plain, already-formatted views for the templates, so the
+//! templates hold layout only and every string they print is escaped by minijinja.
+
+use serde::Serialize;
+
+use super::chart::{self, Series};
+use super::format::{mean_sd, number, seconds, stop_reason};
+use crate::document::spec::word;
+use crate::nn::ClassificationMetrics;
+use crate::outcome::{DataSummary, MetricStat, RowSet, SetMetrics, TrainResult};
+
+/// What a data step's card shows.
+#[derive(Serialize)]
+pub struct DataView {
+    pub task: String,
+    pub rows_read: usize,
+    pub rows_dropped: usize,
+    pub features: usize,
+    pub columns: Vec<ColumnView>,
+    pub targets: String,
+    pub split: String,
+    pub classes: Vec<ClassRow>,
+    pub scale: String,
+}
+
+#[derive(Serialize)]
+pub struct ColumnView {
+    pub name: String,
+    pub kind: String,
+    pub note: String,
+}
+
+#[derive(Serialize)]
+pub struct ClassRow {
+    pub label: String,
+    pub train: usize,
+    pub test: usize,
+}
+
+pub fn data_view(summary: &DataSummary) -> DataView {
+    let columns = summary
+        .columns
+        .iter()
+        .map(|column| {
+            let (kind, note) = match &column.kind {
+                crate::data::ColumnKind::Numeric => ("numeric".to_string(), String::new()),
+                crate::data::ColumnKind::Categorical { categories } => (
+                    format!("text, {} categories", categories.len()),
+                    format!("one-hot: {}", categories.join(", ")),
+                ),
+            };
+            let note = if column.constant {
+                let constant = "constant on the training rows: carries no information, left unscaled";
+                if note.is_empty() { constant.to_string() } else { format!("{note}; {constant}") }
+            } else {
+                note
+            };
+            ColumnView {
+                name: column.name.clone(),
+                kind,
+                note,
+            }
+        })
+        .collect();
+    let first = &summary.partitions[0];
+    let split = if summary.partitions.len() > 1 {
+        format!(
+            "{} folds of about {} held-out rows each",
+            summary.partitions.len(),
+            first.test_rows
+        )
+    } else {
+        format!("{} training rows, {} held out", first.train_rows, first.test_rows)
+    };
+    let classes = summary
+        .classes
+        .iter()
+        .flatten()
+        .enumerate()
+        .map(|(i, label)| ClassRow {
+            label: label.clone(),
+            train: first.train_classes.get(i).copied().unwrap_or(0),
+            test: first.test_classes.get(i).copied().unwrap_or(0),
+        })
+        .collect();
+    DataView {
+        task: word(&summary.task),
+        rows_read: summary.rows_read,
+        rows_dropped: summary.rows_dropped,
+        features: summary.feature_count,
+        columns,
+        targets: summary.target_names.join(", "),
+        split,
+        classes,
+        scale: word(&summary.scale),
+    }
+}
+
+/// What a train step's card shows.
+#[derive(Serialize)]
+pub struct TrainView {
+    pub layers: String,
+    pub loss: String,
+    pub metric_names: Vec<String>,
+    pub metric_rows: Vec<MetricRow>,
+    pub stop: String,
+    pub epochs: String,
+    pub seconds: String,
+    pub chart: String,
+    pub confusion: Option<ConfusionView>,
+    pub hints: Vec<String>,
+    pub folds: Vec<FoldRow>,
+}
+
+#[derive(Serialize)]
+pub struct MetricRow {
+    pub rows: &'static str,
+    pub values: Vec<String>,
+}
+
+#[derive(Serialize)]
+pub struct FoldRow {
+    pub fold: usize,
+    pub stop: String,
+    pub epochs: usize,
+    pub values: Vec<String>,
+}
+
+#[derive(Serialize)]
+pub struct ConfusionView {
+    pub rows_label: &'static str,
+    pub labels: Vec<String>,
+    pub rows: Vec<ConfusionRow>,
+}
+
+#[derive(Serialize)]
+pub struct ConfusionRow {
+    pub label: String,
+    pub cells: Vec<ConfusionCell>,
+    pub precision: String,
+    pub recall: String,
+}
+
+#[derive(Serialize)]
+pub struct ConfusionCell {
+    pub count: usize,
+    pub diagonal: bool,
+}
+
+pub fn train_view(result: &TrainResult, classes: Option<&[String]>) -> TrainView {
+    let shape = &result.shape;
+    let last = shape.sizes.len() - 1;
+    let layers = shape
+        .sizes
+        .iter()
+        .enumerate()
+        .map(|(i, size)| match i {
+            0 => format!("{size} inputs"),
+            i if i == last => format!("{size} {}", word(&shape.output)),
+            _ => format!("{size} {}", word(&shape.hidden)),
+        })
+        .collect::<Vec<_>>()
+        .join(" → ");
+    let train_stats = result.metric_stats(RowSet::Train).expect("every run has training rows");
+    let test_stats = result.metric_stats(RowSet::Test);
+    let metric_names = train_stats.iter().map(|stat| stat.name.replace('_', " ")).collect();
+    let mut metric_rows = vec![MetricRow {
+        rows: "training",
+        values: stat_values(&train_stats),
+    }];
+    if let Some(stats) = &test_stats {
+        metric_rows.push(MetricRow {
+            rows: "held out",
+            values: stat_values(stats),
+        });
+    }
+    let runs = &result.runs;
+    let single = runs.len() == 1;
+    let folds = if single {
+        Vec::new()
+    } else {
+        runs.iter()
+            .enumerate()
+            .map(|(i, run)| fold_row(i, run))
+            .collect()
+    };
+    let stop = if single {
+        stop_reason(runs[0].fit.stop).to_string()
+    } else {
+        stop_counts(result)
+    };
+    let epochs = if single {
+        runs[0].fit.epochs_run.to_string()
+    } else {
+        let total: usize = runs.iter().map(|run| run.fit.epochs_run).sum();
+        format!("{} on average", total / runs.len())
+    };
+    TrainView {
+        layers,
+        loss: word(&shape.loss),
+        metric_names,
+        metric_rows,
+        stop,
+        epochs,
+        seconds: seconds(runs.iter().map(|run| run.seconds).sum()),
+        chart: loss_chart(result),
+        confusion: classes.and_then(|labels| confusion_view(result, labels)),
+        hints: shape.hints.clone(),
+        folds,
+    }
+}
+
+fn stat_values(stats: &[MetricStat]) -> Vec<String> {
+    stats
+        .iter()
+        .map(|stat| match stat.sd {
+            Some(sd) => mean_sd(stat.mean, sd),
+            None => number(stat.mean),
+        })
+        .collect()
+}
+
+/// A fold's row in the per-fold table: its held-out metrics.
+fn fold_row(index: usize, run: &crate::outcome::RunResult) -> FoldRow {
+    let set = run.test.as_ref().unwrap_or(&run.train);
+    FoldRow {
+        fold: index + 1,
+        stop: stop_reason(run.fit.stop).to_string(),
+        epochs: run.fit.epochs_run,
+        values: set.named().iter().map(|(_, value)| number(*value)).collect(),
+    }
+}
+
+fn stop_counts(result: &TrainResult) -> String {
+    let mut counts: Vec<(&str, usize)> = Vec::new();
+    for run in &result.runs {
+        let reason = stop_reason(run.fit.stop);
+        match counts.iter_mut().find(|(name, _)| *name == reason) {
+            Some((_, count)) => *count += 1,
+            None => counts.push((reason, 1)),
+        }
+    }
+    counts
+        .iter()
+        .map(|(reason, count)| format!("{reason} ({count})"))
+        .collect::<Vec<_>>()
+        .join(", ")
+}
+
+/// Training and validation loss per epoch; with folds, one pair of lines per fold.
+fn loss_chart(result: &TrainResult) -> String {
+    let several = result.runs.len() > 1;
+    let mut series = Vec::new();
+    for (i, run) in result.runs.iter().enumerate() {
+        let suffix = if several { format!(" (fold {})", i + 1) } else { String::new() };
+        let history = &run.fit.history;
+        series.push(Series {
+            label: format!("training{suffix}"),
+            points: chart::thin(history.iter().enumerate().map(|(e, l)| ((e + 1) as f64, l.train)).collect()),
+            dashed: false,
+        });
+        let validation: Vec<(f64, f64)> = history
+            .iter()
+            .enumerate()
+            .filter_map(|(e, l)| l.validation.map(|v| ((e + 1) as f64, v)))
+            .collect();
+        if !validation.is_empty() {
+            series.push(Series {
+                label: format!("validation{suffix}"),
+                points: chart::thin(validation),
+                dashed: true,
+            });
+        }
+    }
+    chart::line_chart(&series, "loss", true)
+}
+
+/// The confusion matrix summed over runs, on held-out rows when there are any.
+fn confusion_view(result: &TrainResult, labels: &[String]) -> Option<ConfusionView> {
+    let held_out = result.runs.iter().all(|run| run.test.is_some());
+    let matrices: Vec<&ClassificationMetrics> = result
+        .runs
+        .iter()
+        .filter_map(|run| {
+            let set = if held_out { run.test.as_ref() } else { Some(&run.train) };
+            match set {
+                Some(SetMetrics::Classification { metrics, .. }) => Some(metrics),
+                _ => None,
+            }
+        })
+        .collect();
+    let first = matrices.first()?;
+    let k = first.confusion.len();
+    let mut total = vec![vec![0usize; k]; k];
+    for metrics in &matrices {
+        for (i, row) in metrics.confusion.iter().enumerate() {
+            for (j, count) in row.iter().enumerate() {
+                total[i][j] += count;
+            }
+        }
+    }
+    let rows = total
+        .iter()
+        .enumerate()
+        .map(|(i, row)| {
+            let predicted_here: usize = total.iter().map(|r| r[i]).sum();
+            let actual_here: usize = row.iter().sum();
+            ConfusionRow {
+                label: labels.get(i).cloned().unwrap_or_default(),
+                cells: row
+                    .iter()
+                    .enumerate()
+                    .map(|(j, &count)| ConfusionCell { count, diagonal: i == j })
+                    .collect(),
+                precision: ratio(row[i], predicted_here),
+                recall: ratio(row[i], actual_here),
+            }
+        })
+        .collect();
+    Some(ConfusionView {
+        rows_label: if held_out { "held-out rows" } else { "training rows" },
+        labels: labels.to_vec(),
+        rows,
+    })
+}
+
+fn ratio(part: usize, whole: usize) -> String {
+    if whole == 0 {
+        "—".into()
+    } else {
+        number(part as f64 / whole as f64)
+    }
+}
