@@ -1,0 +1,235 @@
+//! Activation functions, each beside its derivative.
+//!
+//! A layer computes `a = f(z)` element by element on a batch whose rows are
+//! samples (softmax works on each row as a whole). Both directions work in
+//! place on preallocated buffers, so training allocates nothing per batch.
+//!
+//! Derivatives are written in terms of the layer's *output* `a`, not `z`, so
+//! the forward pass only has to keep activations:
+//!
+//! | activation | `f(z)`                          | `f'` in terms of `a`      |
+//! |------------|---------------------------------|---------------------------|
+//! | sigmoid    | `1 / (1 + e^-z)`                | `a (1 − a)`               |
+//! | tanh       | `tanh z`                        | `1 − a²`                  |
+//! | relu       | `max(z, 0)`                     | `1` if `a > 0`, else `0`  |
+//! | leaky relu | `z` if `z ≥ 0`, else `0.01 z`   | `1` if `a > 0`, else 0.01 |
+//! | linear     | `z`                             | `1`                       |
+//!
+//! For relu and leaky relu `a > 0` exactly when `z > 0`; at the kink `z = 0`
+//! the left derivative is used, as scikit-learn does for relu.
+//!
+//! Softmax couples the outputs of a row, so instead of an element-wise
+//! derivative it applies its Jacobian–vector product: for an upstream
+//! gradient `g` on one row, `∂L/∂z = a ⊙ (g − ⟨g, a⟩)`. It is only valid as an
+//! output activation.
+
+use ndarray::{ArrayView2, ArrayViewMut1, ArrayViewMut2, Zip};
+use serde::{Deserialize, Serialize};
+
+/// Slope of [`Activation::LeakyRelu`] for negative inputs.
+pub const LEAKY_SLOPE: f64 = 0.01;
+
+/// The non-linearity applied by a layer after its affine map.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Hash, Serialize, Deserialize)]
+#[serde(rename_all = "snake_case")]
+pub enum Activation {
+    /// Logistic function `1 / (1 + e^-z)`.
+    Sigmoid,
+    /// Hyperbolic tangent.
+    Tanh,
+    /// Rectified linear unit `max(z, 0)`.
+    Relu,
+    /// `z` for `z ≥ 0`, [`LEAKY_SLOPE`]` · z` otherwise.
+    LeakyRelu,
+    /// The identity.
+    Linear,
+    /// Row-wise `e^z_i / Σ_j e^z_j`; only valid for the output layer.
+    Softmax,
+}
+
+impl Activation {
+    /// Whether this activation may be used by a hidden layer (all but softmax).
+    pub fn valid_for_hidden(self) -> bool {
+        self != Activation::Softmax
+    }
+
+    /// Replaces each pre-activation `z` in `z` (rows are samples) by `f(z)`.
+    ///
+    /// NaN inputs stay NaN so that a diverging run is noticed by its loss.
+    pub fn apply(self, mut z: ArrayViewMut2<f64>) {
+        match self {
+            Activation::Sigmoid => z.mapv_inplace(sigmoid),
+            Activation::Tanh => z.mapv_inplace(f64::tanh),
+            // Written with `<` rather than `max` so that NaN propagates.
+            Activation::Relu => z.mapv_inplace(|v| if v < 0.0 { 0.0 } else { v }),
+            Activation::LeakyRelu => z.mapv_inplace(|v| if v < 0.0 { LEAKY_SLOPE * v } else { v }),
+            Activation::Linear => {}
+            Activation::Softmax => z.rows_mut().into_iter().for_each(softmax_row),
+        }
+    }
+
+    /// Turns `grad`, holding `∂L/∂a` for this layer's outputs `a`, into
+    /// `∂L/∂z` in place (the chain rule through the activation).
+    pub fn backprop(self, a: ArrayView2<f64>, mut grad: ArrayViewMut2<f64>) {
+        let zip = Zip::from(&mut grad).and(&a);
+        match self {
+            Activation::Sigmoid => zip.for_each(|g, &a| *g *= a * (1.0 - a)),
+            Activation::Tanh => zip.for_each(|g, &a| *g *= 1.0 - a * a),
+            Activation::Relu => zip.for_each(|g, &a| {
+                if a <= 0.0 {
+                    *g = 0.0;
+                }
+            }),
+            Activation::LeakyRelu => zip.for_each(|g, &a| {
+                if a <= 0.0 {
+                    *g *= LEAKY_SLOPE;
+                }
+            }),
+            Activation::Linear => {}
+            Activation::Softmax => Zip::from(grad.rows_mut())
+                .and(a.rows())
+                .for_each(|mut g, a| {
+                    let inner = g.dot(&a);
+                    Zip::from(&mut g)
+                        .and(&a)
+                        .for_each(|g, &a| *g = a * (*g - inner));
+                }),
+        }
+    }
+}
+
+/// Logistic function, evaluated so that `e^x` is only taken of `x ≤ 0` and
+/// cannot overflow.
+pub fn sigmoid(z: f64) -> f64 {
+    if z >= 0.0 {
+        1.0 / (1.0 + (-z).exp())
+    } else {
+        let e = z.exp();
+        e / (1.0 + e)
+    }
+}
+
+/// Softmax of one row in place. Subtracting the row maximum first leaves the
+/// result unchanged mathematically and keeps `exp` from overflowing.
+fn softmax_row(mut row: ArrayViewMut1<f64>) {
+    let max = row.fold(f64::NEG_INFINITY, |m, &v| m.max(v));
+    row.mapv_inplace(|v| (v - max).exp());
+    let sum = row.sum();
+    row.mapv_inplace(|v| v / sum);
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use ndarray::{Array2, array};
+
+    const ALL: [Activation; 6] = [
+        Activation::Sigmoid,
+        Activation::Tanh,
+        Activation::Relu,
+        Activation::LeakyRelu,
+        Activation::Linear,
+        Activation::Softmax,
+    ];
+
+    fn applied(f: Activation, z: &Array2<f64>) -> Array2<f64> {
+        let mut a = z.clone();
+        f.apply(a.view_mut());
+        a
+    }
+
+    #[test]
+    fn known_values() {
+        let z = array![[-2.0, 0.0, 3.0]];
+        // sigmoid(-2) = 1/(1+e^2), sigmoid(3) = 1/(1+e^-3): from the definition.
+        let s = applied(Activation::Sigmoid, &z);
+        assert!((s[[0, 0]] - 0.11920292202211755).abs() < 1e-15);
+        assert_eq!(s[[0, 1]], 0.5);
+        assert!((s[[0, 2]] - 0.9525741268224334).abs() < 1e-15);
+        assert_eq!(
+            applied(Activation::Relu, &z),
+            array![[0.0, 0.0, 3.0]],
+            "relu clips negatives"
+        );
+        assert_eq!(
+            applied(Activation::LeakyRelu, &z),
+            array![[-0.02, 0.0, 3.0]]
+        );
+        assert_eq!(applied(Activation::Linear, &z), z);
+        let t = applied(Activation::Tanh, &z);
+        assert!((t[[0, 2]] - 3.0f64.tanh()).abs() < 1e-16);
+        // softmax of (-2, 0, 3) = e^z / (e^-2 + 1 + e^3), computed by hand from the definition.
+        let p = applied(Activation::Softmax, &z);
+        let denom = (-2.0f64).exp() + 1.0 + 3.0f64.exp();
+        assert!((p[[0, 0]] - (-2.0f64).exp() / denom).abs() < 1e-16);
+        assert!((p[[0, 1]] - 1.0 / denom).abs() < 1e-16);
+        assert!((p.sum() - 1.0).abs() < 1e-15);
+    }
+
+    #[test]
+    fn extreme_inputs_stay_finite() {
+        let z = array![[-800.0, 800.0], [1000.0, 999.0]];
+        let s = applied(Activation::Sigmoid, &z);
+        assert_eq!(s[[0, 0]], 0.0);
+        assert_eq!(s[[0, 1]], 1.0);
+        let p = applied(Activation::Softmax, &z);
+        assert!(p.iter().all(|v| v.is_finite()));
+        assert_eq!(p[[0, 1]], 1.0);
+        // softmax(1000, 999) = (1/(1+e^-1), e^-1/(1+e^-1)) since only differences matter.
+        assert!((p[[1, 0]] - sigmoid(1.0)).abs() < 1e-15);
+    }
+
+    #[test]
+    fn nan_propagates() {
+        let z = array![[f64::NAN, 1.0]];
+        for f in ALL {
+            let a = applied(f, &z);
+            assert!(a[[0, 0]].is_nan(), "{f:?} hid a NaN");
+        }
+    }
+
+    /// The derivative written in terms of the output agrees with a central
+    /// difference of `f` at several points away from the relu kink.
+    #[test]
+    fn derivatives_match_central_differences() {
+        let z = array![[-1.7, -0.3, 0.4, 2.2]];
+        let h = 1e-6;
+        for f in ALL {
+            let a = applied(f, &z);
+            let upstream = array![[0.3, -1.2, 0.7, 2.0]];
+            let mut analytic = upstream.clone();
+            f.backprop(a.view(), analytic.view_mut());
+            // Numerical: ∂/∂z_j of Σ_i upstream_i a_i(z).
+            for j in 0..z.ncols() {
+                let mut plus = z.clone();
+                plus[[0, j]] += h;
+                let mut minus = z.clone();
+                minus[[0, j]] -= h;
+                let diff = (&applied(f, &plus) - &applied(f, &minus)) * &upstream;
+                let numeric = diff.sum() / (2.0 * h);
+                assert!(
+                    (numeric - analytic[[0, j]]).abs() < 1e-8,
+                    "{f:?} column {j}: numeric {numeric}, analytic {}",
+                    analytic[[0, j]]
+                );
+            }
+        }
+    }
+
+    #[test]
+    fn only_softmax_is_output_only() {
+        for f in ALL {
+            assert_eq!(f.valid_for_hidden(), f != Activation::Softmax);
+        }
+    }
+
+    #[test]
+    fn serde_names_are_snake_case() {
+        assert_eq!(
+            serde_json::to_string(&Activation::LeakyRelu).unwrap(),
+            "\"leaky_relu\""
+        );
+        let back: Activation = serde_json::from_str("\"softmax\"").unwrap();
+        assert_eq!(back, Activation::Softmax);
+    }
+}

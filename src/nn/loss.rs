@@ -1,0 +1,224 @@
+//! Loss functions, each beside its gradient.
+//!
+//! For a batch of `n` rows with outputs `o` (probabilities `p` for
+//! cross-entropy) and targets `t`:
+//!
+//! * mean squared error: `L = (1/n) Σ_rows ½ Σ_outputs (o − t)²`;
+//! * cross-entropy with a softmax output: `L = −(1/n) Σ_rows Σ_outputs t ln p`
+//!   (targets are one-hot rows or probability rows summing to 1);
+//! * cross-entropy with sigmoid outputs (binary or multi-label):
+//!   `L = −(1/n) Σ_rows Σ_outputs [t ln p + (1 − t) ln(1 − p)]`.
+//!
+//! In the loss *value* `p` is clipped to `[1e-15, 1 − 1e-15]` so a saturated
+//! output gives a large finite loss instead of infinity (the same clip as
+//! scikit-learn's `log_loss`); the gradient uses the unclipped outputs.
+//!
+//! The output layer's delta `∂L/∂z` is `(o − t)/n` for softmax with
+//! cross-entropy, sigmoid with cross-entropy and linear with squared error:
+//! the activation's derivative cancels the loss's, and using the fused form
+//! saves work and avoids dividing by a saturated `p (1 − p)`. Every other
+//! combination (squared error after sigmoid, tanh, relu, softmax, …) takes
+//! `∂L/∂o = (o − t)/n` and chains it through [`Activation::backprop`].
+//! Averaging over the batch matches scikit-learn's MLP gradient.
+
+use ndarray::{ArrayView2, ArrayViewMut2, Zip};
+use serde::{Deserialize, Serialize};
+
+use super::activation::Activation;
+
+/// Smallest probability used when evaluating a cross-entropy value.
+const PROBABILITY_CLIP: f64 = 1e-15;
+
+/// The training objective.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Hash, Serialize, Deserialize)]
+#[serde(rename_all = "snake_case")]
+pub enum Loss {
+    /// Half the squared error summed over outputs, averaged over rows.
+    Mse,
+    /// Negative log-likelihood: categorical after softmax, binary per output
+    /// after sigmoid.
+    CrossEntropy,
+}
+
+impl Loss {
+    /// Whether this loss can follow the given output activation: squared
+    /// error follows any, cross-entropy needs probabilities (sigmoid or
+    /// softmax).
+    pub fn supports(self, output: Activation) -> bool {
+        match self {
+            Loss::Mse => true,
+            Loss::CrossEntropy => matches!(output, Activation::Sigmoid | Activation::Softmax),
+        }
+    }
+
+    /// The loss summed over the rows of a batch (divide by the row count for
+    /// the mean). Rows are added in order, so the result is reproducible.
+    ///
+    /// # Panics
+    /// If the shapes differ, or the combination is not [`supported`](Self::supports).
+    pub fn total(
+        self,
+        output: Activation,
+        outputs: ArrayView2<f64>,
+        targets: ArrayView2<f64>,
+    ) -> f64 {
+        self.check(output, outputs, targets);
+        let per_element: fn(f64, f64) -> f64 = match (self, output) {
+            (Loss::Mse, _) => |o, t| 0.5 * (o - t) * (o - t),
+            (Loss::CrossEntropy, Activation::Softmax) => |p, t| -t * clip(p).ln(),
+            (Loss::CrossEntropy, _) => |p, t| {
+                let p = clip(p);
+                -(t * p.ln() + (1.0 - t) * (1.0 - p).ln())
+            },
+        };
+        outputs
+            .rows()
+            .into_iter()
+            .zip(targets.rows())
+            .map(|(o, t)| {
+                o.iter()
+                    .zip(t.iter())
+                    .map(|(&o, &t)| per_element(o, t))
+                    .sum::<f64>()
+            })
+            .sum()
+    }
+
+    /// Writes `∂L/∂z` of the output layer into `delta`, where `L` is the mean
+    /// loss of this batch (so every entry carries a factor `1/n`).
+    ///
+    /// # Panics
+    /// If the shapes differ, or the combination is not [`supported`](Self::supports).
+    pub fn output_delta(
+        self,
+        output: Activation,
+        outputs: ArrayView2<f64>,
+        targets: ArrayView2<f64>,
+        mut delta: ArrayViewMut2<f64>,
+    ) {
+        self.check(output, outputs, targets);
+        assert_eq!(delta.dim(), outputs.dim(), "delta buffer shape");
+        let n = outputs.nrows() as f64;
+        // Both losses start from (o − t)/n: it is ∂L/∂o for squared error and
+        // the fused ∂L/∂z for cross-entropy after sigmoid or softmax.
+        Zip::from(&mut delta)
+            .and(&outputs)
+            .and(&targets)
+            .for_each(|d, &o, &t| *d = (o - t) / n);
+        let fused = match self {
+            Loss::Mse => output == Activation::Linear,
+            Loss::CrossEntropy => true,
+        };
+        if !fused {
+            output.backprop(outputs, delta);
+        }
+    }
+
+    fn check(self, output: Activation, outputs: ArrayView2<f64>, targets: ArrayView2<f64>) {
+        assert!(
+            self.supports(output),
+            "{self:?} loss cannot follow a {output:?} output"
+        );
+        assert_eq!(
+            outputs.dim(),
+            targets.dim(),
+            "outputs and targets must have the same shape"
+        );
+    }
+}
+
+fn clip(p: f64) -> f64 {
+    p.clamp(PROBABILITY_CLIP, 1.0 - PROBABILITY_CLIP)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use ndarray::{Array2, array};
+
+    #[test]
+    fn mse_value_by_hand() {
+        // Rows: ½((0.5−1)² + (2−0)²) = ½(0.25 + 4) = 2.125 and ½(0 + 1) = 0.5, worked by hand.
+        let o = array![[0.5, 2.0], [1.0, -1.0]];
+        let t = array![[1.0, 0.0], [1.0, 0.0]];
+        assert_eq!(
+            Loss::Mse.total(Activation::Linear, o.view(), t.view()),
+            2.625
+        );
+    }
+
+    #[test]
+    fn cross_entropy_values_by_hand() {
+        // Softmax: −ln 0.7 − ln 0.5, worked by hand from the definition.
+        let p = array![[0.2, 0.7, 0.1], [0.5, 0.25, 0.25]];
+        let t = array![[0.0, 1.0, 0.0], [1.0, 0.0, 0.0]];
+        let expected = -(0.7f64.ln() + 0.5f64.ln());
+        let got = Loss::CrossEntropy.total(Activation::Softmax, p.view(), t.view());
+        assert!((got - expected).abs() < 1e-15);
+        // Sigmoid: −[ln 0.8 + ln(1 − 0.3)] for one row with two labels, by hand.
+        let p = array![[0.8, 0.3]];
+        let t = array![[1.0, 0.0]];
+        let expected = -(0.8f64.ln() + 0.7f64.ln());
+        let got = Loss::CrossEntropy.total(Activation::Sigmoid, p.view(), t.view());
+        assert!((got - expected).abs() < 1e-15);
+    }
+
+    #[test]
+    fn saturated_probabilities_give_finite_loss() {
+        let p = array![[0.0, 1.0]];
+        let t = array![[1.0, 0.0]];
+        let got = Loss::CrossEntropy.total(Activation::Sigmoid, p.view(), t.view());
+        // Two terms of −ln(1e-15) ≈ 34.54 each.
+        assert!((got - 2.0 * -(1e-15f64).ln()).abs() < 1e-3, "{got}");
+    }
+
+    fn delta(loss: Loss, f: Activation, o: &Array2<f64>, t: &Array2<f64>) -> Array2<f64> {
+        let mut d = Array2::zeros(o.dim());
+        loss.output_delta(f, o.view(), t.view(), d.view_mut());
+        d
+    }
+
+    #[test]
+    fn fused_deltas_are_mean_residuals() {
+        let o = array![[0.2, 0.8], [0.6, 0.4]];
+        let t = array![[0.0, 1.0], [1.0, 0.0]];
+        let expected = array![[0.1, -0.1], [-0.2, 0.2]];
+        for (loss, f) in [
+            (Loss::CrossEntropy, Activation::Softmax),
+            (Loss::CrossEntropy, Activation::Sigmoid),
+            (Loss::Mse, Activation::Linear),
+        ] {
+            let d = delta(loss, f, &o, &t);
+            assert!(
+                (&d - &expected).iter().all(|e| e.abs() < 1e-16),
+                "{loss:?}/{f:?}"
+            );
+        }
+    }
+
+    #[test]
+    fn mse_after_sigmoid_chains_the_derivative() {
+        // (o − t) · o (1 − o) / n with n = 1: (0.75 − 1) · 0.75 · 0.25 = −0.046875, by hand.
+        let o = array![[0.75]];
+        let t = array![[1.0]];
+        assert_eq!(
+            delta(Loss::Mse, Activation::Sigmoid, &o, &t),
+            array![[-0.046875]]
+        );
+    }
+
+    #[test]
+    fn supported_combinations() {
+        assert!(Loss::Mse.supports(Activation::Tanh));
+        assert!(Loss::CrossEntropy.supports(Activation::Sigmoid));
+        assert!(!Loss::CrossEntropy.supports(Activation::Linear));
+        assert!(!Loss::CrossEntropy.supports(Activation::Relu));
+    }
+
+    #[test]
+    #[should_panic(expected = "cannot follow")]
+    fn cross_entropy_after_linear_is_refused() {
+        let o = array![[0.5]];
+        Loss::CrossEntropy.total(Activation::Linear, o.view(), o.view());
+    }
+}
