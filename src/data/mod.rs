@@ -1,0 +1,25 @@
+//! Data preparation: from the bytes of a CSV file to scaled training and test
+//! matrices, as the data settings of an experiment document describe.
+//!
+//! The steps, each in its own module: [`read_table`] reads text cells;
+//! [`prepare`] resolves column names, handles missing values, encodes
+//! columns as numbers ([`Encoding`]), splits rows into partitions and fits a
+//! [`Scaler`] on each partition's training rows. [`Prepared::split`] then
+//! hands out the matrices of one partition, and [`Encoding::encode_inputs`]
+//! encodes new rows for prediction.
+
+mod columns;
+mod encode;
+mod error;
+mod prepare;
+mod scale;
+mod settings;
+mod split;
+mod table;
+
+pub use encode::{ColumnKind, Encoding, InputColumn, MISSING_MARKERS, is_missing, parse_number};
+pub use error::DataError;
+pub use prepare::{Partition, Prepared, SplitData, prepare};
+pub use scale::Scaler;
+pub use settings::{DataSettings, Missing, Scale, Split, Task};
+pub use table::{Table, read_table};

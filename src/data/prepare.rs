@@ -1,0 +1,319 @@
+//! The whole preparation of a table for training: pick columns, handle
+//! missing values, encode, split, and fit one scaler per partition.
+//!
+//! The encoding is learned from all kept rows (categories and classes must be
+//! the same in every partition, or feature columns would not line up), while
+//! the scaler, which uses the values themselves, is fitted per partition on
+//! its training rows only.
+
+use ndarray::{Array2, Axis};
+use serde::{Deserialize, Serialize};
+
+use super::columns::{self, UsedColumns};
+use super::encode::{self, Encoding, is_missing};
+use super::error::DataError;
+use super::scale::Scaler;
+use super::settings::{DataSettings, Missing};
+use super::split::{self, Strata};
+use super::table::Table;
+
+/// One training/test division of the kept rows and the scaler fitted on its training rows.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct Partition {
+    /// Indices into the kept rows (rows of [`Prepared::x`]), sorted.
+    pub train_rows: Vec<usize>,
+    /// Indices into the kept rows, sorted; empty for a holdout of 0.
+    pub test_rows: Vec<usize>,
+    /// Fitted on `train_rows` only.
+    pub scaler: Scaler,
+}
+
+/// The matrices of one partition, inputs scaled by its scaler, targets as in [`Prepared::y`].
+#[derive(Clone, Debug, PartialEq)]
+pub struct SplitData {
+    /// Scaled training inputs.
+    pub x_train: Array2<f64>,
+    /// Training targets.
+    pub y_train: Array2<f64>,
+    /// Scaled test inputs.
+    pub x_test: Array2<f64>,
+    /// Test targets.
+    pub y_test: Array2<f64>,
+}
+
+/// A table ready for training.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct Prepared {
+    /// How columns became features and targets.
+    pub encoding: Encoding,
+    /// Encoded, unscaled inputs of the kept rows.
+    pub x: Array2<f64>,
+    /// Classify: one 0/1 column when there are exactly two classes
+    /// (1 = `classes[1]`), else one indicator column per class.
+    /// Regress: the numeric targets.
+    pub y: Array2<f64>,
+    /// Class index per kept row (classify only).
+    pub labels: Option<Vec<usize>>,
+    /// 1-based file line of each kept row, to point at rows in the report.
+    pub lines: Vec<u64>,
+    /// Data rows in the table.
+    pub rows_read: usize,
+    /// Rows left out for a missing value in a used column.
+    pub rows_dropped: usize,
+    /// One partition for a holdout, k for k-fold.
+    pub partitions: Vec<Partition>,
+}
+
+impl Prepared {
+    /// Scaled inputs and targets of partition `partition`.
+    ///
+    /// # Panics
+    /// If there is no such partition.
+    pub fn split(&self, partition: usize) -> SplitData {
+        let p = &self.partitions[partition];
+        let pick = |m: &Array2<f64>, rows: &[usize]| m.select(Axis(0), rows);
+        SplitData {
+            x_train: p.scaler.apply(pick(&self.x, &p.train_rows).view()),
+            y_train: pick(&self.y, &p.train_rows),
+            x_test: p.scaler.apply(pick(&self.x, &p.test_rows).view()),
+            y_test: pick(&self.y, &p.test_rows),
+        }
+    }
+
+    /// Number of `rows` (indices into the kept rows) in each class, in class
+    /// order; empty for regression.
+    pub fn class_counts(&self, rows: &[usize]) -> Vec<usize> {
+        let (Some(labels), Some(classes)) = (&self.labels, &self.encoding.classes) else {
+            return Vec::new();
+        };
+        let mut counts = vec![0; classes.len()];
+        for &row in rows {
+            counts[labels[row]] += 1;
+        }
+        counts
+    }
+}
+
+/// Prepare `table` for training as `settings` say.
+pub fn prepare(table: &Table, settings: &DataSettings) -> Result<Prepared, DataError> {
+    let used = columns::resolve(table, settings)?;
+    let kept = kept_rows(table, &used, settings.missing)?;
+    let rows_read = table.rows.len();
+    let rows_dropped = rows_read - kept.len();
+    // Two rows are the least that can be both learned from and tested or
+    // told apart; anything fewer is almost surely a wrong file.
+    const MIN_ROWS: usize = 2;
+    if kept.len() < MIN_ROWS {
+        return Err(DataError::TooFewRows {
+            rows: kept.len(),
+            read: rows_read,
+            dropped: rows_dropped,
+            needed: MIN_ROWS,
+        });
+    }
+
+    let encoded = encode::fit(table, &used, &kept, settings.task)?;
+    let strata = match (&encoded.labels, &encoded.encoding.classes) {
+        (Some(labels), Some(classes)) => Some(Strata { labels, classes }),
+        _ => None,
+    };
+    let numeric = encoded.encoding.numeric_mask();
+    let partitions = split::split_rows(settings.split, kept.len(), strata, settings.seed)?
+        .into_iter()
+        .map(|s| Partition {
+            scaler: Scaler::fit(
+                settings.scale,
+                encoded.x.select(Axis(0), &s.train).view(),
+                &numeric,
+            ),
+            train_rows: s.train,
+            test_rows: s.test,
+        })
+        .collect();
+
+    Ok(Prepared {
+        encoding: encoded.encoding,
+        x: encoded.x,
+        y: encoded.y,
+        labels: encoded.labels,
+        lines: kept.iter().map(|&r| table.line(r)).collect(),
+        rows_read,
+        rows_dropped,
+        partitions,
+    })
+}
+
+/// Rows with no missing value in a used column; with `Missing::Error` the
+/// first other row is an error naming its line and column.
+fn kept_rows(table: &Table, used: &UsedColumns, missing: Missing) -> Result<Vec<usize>, DataError> {
+    let first_missing = |row: usize| {
+        used.all()
+            .find(|&c| is_missing(encode::cell(table, row, c)))
+    };
+    let (kept, with_missing): (Vec<usize>, Vec<usize>) =
+        (0..table.rows.len()).partition(|&row| first_missing(row).is_none());
+    if missing == Missing::Error
+        && let Some(&row) = with_missing.first()
+    {
+        let col = first_missing(row).expect("row was found to have a missing value");
+        return Err(DataError::MissingValue {
+            line: table.line(row),
+            column: table.headers[col].clone(),
+            value: encode::cell(table, row, col).trim().to_string(),
+            more_rows: with_missing.len() - 1,
+        });
+    }
+    Ok(kept)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::data::settings::{Scale, Split, Task};
+    use crate::data::table::read_table;
+
+    fn settings(target: &str) -> DataSettings {
+        DataSettings {
+            inputs: None,
+            target: vec![target.to_string()],
+            task: None,
+            scale: Scale::Standard,
+            missing: Missing::Error,
+            split: Split::Holdout(0.0),
+            seed: 1,
+        }
+    }
+
+    const GAPS: &[u8] = b"a,b,y\n\
+        1,p,0\n\
+        ,p,1\n\
+        3,NA,0\n\
+        4,q,?\n\
+        5,q,1\n";
+
+    #[test]
+    fn missing_error_names_first_line_column_and_how_many_more() {
+        let err = prepare(&read_table(GAPS).unwrap(), &settings("y")).unwrap_err();
+        assert_eq!(
+            err,
+            DataError::MissingValue {
+                line: 3,
+                column: "a".into(),
+                value: String::new(),
+                more_rows: 2
+            }
+        );
+        assert_eq!(
+            err.to_string(),
+            "line 3, column `a`: the value is missing (empty cell), and 2 more rows have \
+             missing values; set `missing: drop` to drop rows with missing values"
+        );
+    }
+
+    #[test]
+    fn missing_drop_leaves_rows_out_and_counts_them() {
+        let s = DataSettings {
+            missing: Missing::Drop,
+            ..settings("y")
+        };
+        let p = prepare(&read_table(GAPS).unwrap(), &s).unwrap();
+        assert_eq!((p.rows_read, p.rows_dropped), (5, 3));
+        assert_eq!(p.lines, vec![2, 6]);
+        assert_eq!(p.x, ndarray::array![[1.0, 1.0, 0.0], [5.0, 0.0, 1.0]]);
+        assert_eq!(p.encoding.task, Task::Regress);
+    }
+
+    #[test]
+    fn missing_values_in_unused_columns_do_not_count() {
+        let s = DataSettings {
+            inputs: Some(vec!["a".into()]),
+            ..settings("b")
+        };
+        let t = read_table(b"a,b,notes\n1,x,\n2,y,?\n").unwrap();
+        let p = prepare(&t, &s).unwrap();
+        assert_eq!(p.rows_dropped, 0);
+        assert_eq!(p.encoding.classes, Some(vec!["x".into(), "y".into()]));
+    }
+
+    #[test]
+    fn too_few_rows_after_dropping_is_an_error() {
+        let s = DataSettings {
+            missing: Missing::Drop,
+            ..settings("y")
+        };
+        let t = read_table(b"x,y\n1,2\nNA,3\n").unwrap();
+        let err = prepare(&t, &s).unwrap_err();
+        assert_eq!(
+            err.to_string(),
+            "only 1 rows are left (of 2 read, 1 dropped for missing values): at least 2 are needed"
+        );
+        let header_only = read_table(b"x,y\n").unwrap();
+        assert!(matches!(
+            prepare(&header_only, &settings("y")).unwrap_err(),
+            DataError::TooFewRows {
+                rows: 0,
+                read: 0,
+                ..
+            }
+        ));
+    }
+
+    #[test]
+    fn scaler_is_fitted_on_training_rows_only() {
+        // Regression folds of 4 rows in 2 folds: 2 training rows each.
+        let t = read_table(b"x,y\n1,0\n2,0\n3,0\n10,0\n").unwrap();
+        let s = DataSettings {
+            split: Split::Folds(2),
+            scale: Scale::Minmax,
+            ..settings("y")
+        };
+        let p = prepare(&t, &s).unwrap();
+        for (i, part) in p.partitions.iter().enumerate() {
+            let train: Vec<f64> = part.train_rows.iter().map(|&r| p.x[[r, 0]]).collect();
+            let min = train.iter().copied().fold(f64::INFINITY, f64::min);
+            let max = train.iter().copied().fold(f64::NEG_INFINITY, f64::max);
+            assert_eq!(part.scaler.offset, vec![min]);
+            assert_eq!(part.scaler.divisor, vec![max - min]);
+            let data = p.split(i);
+            assert_eq!((data.x_train.nrows(), data.x_test.nrows()), (2, 2));
+        }
+    }
+
+    #[test]
+    fn split_selects_and_scales_partition_rows() {
+        let t = read_table(b"x,c\n1,a\n2,b\n3,a\n4,b\n5,a\n6,b\n").unwrap();
+        let s = DataSettings {
+            split: Split::Holdout(0.34),
+            ..settings("c")
+        };
+        let p = prepare(&t, &s).unwrap();
+        let part = &p.partitions[0];
+        // round(0.34 · 3) = 1 test row per class.
+        assert_eq!(p.class_counts(&part.test_rows), vec![1, 1]);
+        assert_eq!(p.class_counts(&part.train_rows), vec![2, 2]);
+        let data = p.split(0);
+        for (i, &row) in part.test_rows.iter().enumerate() {
+            let expected = (p.x[[row, 0]] - part.scaler.offset[0]) / part.scaler.divisor[0];
+            assert_eq!(data.x_test[[i, 0]], expected);
+            assert_eq!(data.y_test[[i, 0]], p.y[[row, 0]]);
+        }
+        // Standard scaling on the training rows gives them mean 0.
+        assert!(data.x_train.column(0).sum().abs() < 1e-12);
+    }
+
+    #[test]
+    fn class_counts_are_empty_for_regression() {
+        let t = read_table(b"x,y\n1,2\n3,4\n").unwrap();
+        let p = prepare(&t, &settings("y")).unwrap();
+        assert!(p.class_counts(&[0, 1]).is_empty());
+    }
+
+    #[test]
+    fn prepared_round_trips_through_json() {
+        let t = read_table(b"x,c\n1,a\n2,b\n3,a\n4,b\n").unwrap();
+        let p = prepare(&t, &settings("c")).unwrap();
+        let json = serde_json::to_string(&p).unwrap();
+        let back: Prepared = serde_json::from_str(&json).unwrap();
+        assert_eq!(back, p);
+    }
+}

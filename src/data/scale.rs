@@ -1,0 +1,183 @@
+//! Rescaling numeric features so that they are of similar size, which helps
+//! gradient descent.
+//!
+//! A scaler is fitted on training rows only and then applied unchanged to test
+//! rows and new rows: fitting it on test rows would leak information about
+//! them into training.
+
+use ndarray::{Array2, ArrayView2, Axis};
+use serde::{Deserialize, Serialize};
+
+use super::settings::Scale;
+
+/// A per-feature affine map `x' = (x − offset) / divisor`.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct Scaler {
+    /// The kind of scaling that was fitted.
+    pub kind: Scale,
+    /// Subtracted from each feature.
+    pub offset: Vec<f64>,
+    /// Then each feature is divided by this; never 0.
+    pub divisor: Vec<f64>,
+}
+
+impl Scaler {
+    /// Fit on the rows of `x`. Only features marked true in `numeric` are
+    /// scaled; the others (one-hot indicators) keep offset 0 and divisor 1, as
+    /// does every feature when `x` has no rows.
+    ///
+    /// - `Standard`: offset = mean, divisor = population standard deviation
+    ///   (dividing by n, not n − 1).
+    /// - `Minmax`: offset = minimum, divisor = maximum − minimum, mapping the
+    ///   training rows onto [0, 1].
+    /// - `None`: offset 0, divisor 1.
+    ///
+    /// A feature with the same value on every row gets divisor 1, so it maps
+    /// to 0 instead of dividing by zero.
+    ///
+    /// # Panics
+    /// If `numeric` does not have one entry per column of `x`.
+    pub fn fit(kind: Scale, x: ArrayView2<f64>, numeric: &[bool]) -> Scaler {
+        assert_eq!(
+            numeric.len(),
+            x.ncols(),
+            "the numeric mask needs one entry per feature"
+        );
+        let mut offset = vec![0.0; x.ncols()];
+        let mut divisor = vec![1.0; x.ncols()];
+        if kind != Scale::None && x.nrows() > 0 {
+            for (j, column) in x.axis_iter(Axis(1)).enumerate() {
+                if !numeric[j] {
+                    continue;
+                }
+                let min = column.iter().copied().fold(f64::INFINITY, f64::min);
+                let max = column.iter().copied().fold(f64::NEG_INFINITY, f64::max);
+                // Checked on the values themselves: a computed standard
+                // deviation of a constant column can come out as a tiny
+                // rounding error instead of 0.
+                let constant = min == max;
+                let (o, d) = match kind {
+                    Scale::Standard => {
+                        let n = column.len() as f64;
+                        let mean = column.sum() / n;
+                        let variance = column.iter().map(|v| (v - mean).powi(2)).sum::<f64>() / n;
+                        (mean, variance.sqrt())
+                    }
+                    Scale::Minmax => (min, max - min),
+                    Scale::None => unreachable!("handled above"),
+                };
+                offset[j] = o;
+                divisor[j] = if constant { 1.0 } else { d };
+            }
+        }
+        Scaler {
+            kind,
+            offset,
+            divisor,
+        }
+    }
+
+    /// Apply the fitted map to the rows of `x`.
+    ///
+    /// # Panics
+    /// If `x` does not have as many columns as the scaler was fitted on.
+    pub fn apply(&self, x: ArrayView2<f64>) -> Array2<f64> {
+        assert_eq!(
+            x.ncols(),
+            self.offset.len(),
+            "the scaler was fitted on a different number of features"
+        );
+        let mut out = x.to_owned();
+        for (j, mut column) in out.axis_iter_mut(Axis(1)).enumerate() {
+            let (o, d) = (self.offset[j], self.divisor[j]);
+            column.mapv_inplace(|v| (v - o) / d);
+        }
+        out
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use ndarray::array;
+
+    fn close(a: f64, b: f64) -> bool {
+        (a - b).abs() < 1e-12
+    }
+
+    // Feature 0: 2, 4, 4, 4, 5, 5, 7, 9. Computed by hand:
+    //   mean = 40 / 8 = 5
+    //   squared deviations 9, 1, 1, 1, 0, 0, 4, 16 sum to 32
+    //   population variance = 32 / 8 = 4, standard deviation = 2
+    //   min = 2, max = 9, range = 7
+    // Feature 1 is a one-hot indicator and must stay as it is.
+    fn data() -> Array2<f64> {
+        array![
+            [2.0, 1.0],
+            [4.0, 0.0],
+            [4.0, 0.0],
+            [4.0, 1.0],
+            [5.0, 0.0],
+            [5.0, 0.0],
+            [7.0, 1.0],
+            [9.0, 0.0]
+        ]
+    }
+
+    #[test]
+    fn standard_uses_mean_and_population_sd() {
+        let s = Scaler::fit(Scale::Standard, data().view(), &[true, false]);
+        assert_eq!(s.offset, vec![5.0, 0.0]);
+        assert_eq!(s.divisor, vec![2.0, 1.0]);
+        let scaled = s.apply(data().view());
+        // (2 − 5) / 2 = −1.5, (9 − 5) / 2 = 2, (4 − 5) / 2 = −0.5
+        assert!(close(scaled[[0, 0]], -1.5));
+        assert!(close(scaled[[7, 0]], 2.0));
+        assert!(close(scaled[[1, 0]], -0.5));
+        assert_eq!(scaled.column(1), data().column(1));
+    }
+
+    #[test]
+    fn minmax_maps_training_range_to_unit_interval() {
+        let s = Scaler::fit(Scale::Minmax, data().view(), &[true, false]);
+        assert_eq!(s.offset, vec![2.0, 0.0]);
+        assert_eq!(s.divisor, vec![7.0, 1.0]);
+        let scaled = s.apply(data().view());
+        assert!(close(scaled[[0, 0]], 0.0));
+        assert!(close(scaled[[7, 0]], 1.0));
+        // (4 − 2) / 7
+        assert!(close(scaled[[1, 0]], 2.0 / 7.0));
+        // Values outside the training range land outside [0, 1].
+        let new = s.apply(array![[16.0, 1.0]].view());
+        assert!(close(new[[0, 0]], 2.0));
+    }
+
+    #[test]
+    fn none_is_the_identity() {
+        let s = Scaler::fit(Scale::None, data().view(), &[true, false]);
+        assert_eq!(s.offset, vec![0.0, 0.0]);
+        assert_eq!(s.divisor, vec![1.0, 1.0]);
+        assert_eq!(s.apply(data().view()), data());
+    }
+
+    #[test]
+    fn constant_column_gets_divisor_one() {
+        // 0.1 is not exact in binary, so the mean of three 0.1s differs from
+        // 0.1 by a rounding error; the divisor must still be 1.
+        let x = array![[0.1, 3.0], [0.1, 3.0], [0.1, 3.0]];
+        for kind in [Scale::Standard, Scale::Minmax] {
+            let s = Scaler::fit(kind, x.view(), &[true, true]);
+            assert_eq!(s.divisor, vec![1.0, 1.0], "{kind:?}");
+            let scaled = s.apply(x.view());
+            assert!(scaled.iter().all(|v| v.abs() < 1e-15), "{kind:?}: {scaled}");
+        }
+    }
+
+    #[test]
+    fn no_rows_gives_the_identity() {
+        let x = Array2::<f64>::zeros((0, 2));
+        let s = Scaler::fit(Scale::Standard, x.view(), &[true, true]);
+        assert_eq!(s.offset, vec![0.0, 0.0]);
+        assert_eq!(s.divisor, vec![1.0, 1.0]);
+    }
+}
