@@ -4,7 +4,6 @@
 //! writers (several builds, several machines on a shared file system) need no lock.
 
 use std::fs;
-use std::io::Write;
 use std::path::{Path, PathBuf};
 use std::sync::atomic::{AtomicBool, Ordering};
 
@@ -82,12 +81,17 @@ impl Cache {
     /// The path of an entry.
     pub fn entry_path(&self, key: &str, kind: EntryKind) -> Option<PathBuf> {
         let dir = self.dir.as_ref()?;
-        Some(dir.join("entries").join(&key[..2]).join(format!("{key}.{}", kind.suffix())))
+        Some(
+            dir.join("entries")
+                .join(&key[..2])
+                .join(format!("{key}.{}", kind.suffix())),
+        )
     }
 
     /// Whether an entry exists (without verifying it).
     pub fn contains(&self, key: &str, kind: EntryKind) -> bool {
-        self.entry_path(key, kind).is_some_and(|path| path.is_file())
+        self.entry_path(key, kind)
+            .is_some_and(|path| path.is_file())
     }
 
     /// Loads an entry; a missing one is `None`, and so is one that fails its checksum
@@ -113,7 +117,7 @@ impl Cache {
         let Some(path) = self.entry_path(key, kind) else {
             return;
         };
-        if let Err(error) = write_atomically(&path, &encode(value)) {
+        if let Err(error) = crate::atomic::write(&path, &encode(value)) {
             if !self.write_failed.swap(true, Ordering::Relaxed) {
                 self.warn(format!(
                     "cannot write to the cache ({error}); continuing without caching"
@@ -143,18 +147,6 @@ fn decode<T: DeserializeOwned>(bytes: &[u8]) -> Option<T> {
     postcard::from_bytes(payload).ok()
 }
 
-/// Writes to a temporary file in the entry's own folder, then renames it into place,
-/// so a reader sees either nothing or the whole entry, even across machines.
-pub fn write_atomically(path: &Path, bytes: &[u8]) -> std::io::Result<()> {
-    let dir = path.parent().expect("entry paths have a folder");
-    fs::create_dir_all(dir)?;
-    let mut file = tempfile::NamedTempFile::new_in(dir)?;
-    file.write_all(bytes)?;
-    file.as_file().sync_all()?;
-    file.persist(path).map_err(|error| error.error)?;
-    Ok(())
-}
-
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -166,7 +158,10 @@ mod tests {
         let dir = tempfile::tempdir().unwrap();
         let cache = Cache::at(dir.path().to_path_buf());
         cache.store(KEY, EntryKind::Run, &vec![1.5f64, 2.5]);
-        assert_eq!(cache.load::<Vec<f64>>(KEY, EntryKind::Run), Some(vec![1.5, 2.5]));
+        assert_eq!(
+            cache.load::<Vec<f64>>(KEY, EntryKind::Run),
+            Some(vec![1.5, 2.5])
+        );
         assert_eq!(cache.load::<Vec<f64>>(KEY, EntryKind::Prepared), None);
     }
 

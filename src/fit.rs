@@ -9,7 +9,11 @@ use crate::nn::{self, Activation, Loss, Network, TrainConfig};
 use crate::outcome::{DataSummary, ModelShape, RunResult, SetMetrics};
 
 /// The network shape, output activation and loss a train step uses on this data.
-pub fn model_shape(data: &DataSummary, net: &NetSpec, train: &TrainSpec) -> Result<ModelShape, String> {
+pub fn model_shape(
+    data: &DataSummary,
+    net: &NetSpec,
+    train: &TrainSpec,
+) -> Result<ModelShape, String> {
     let inputs = data.feature_count;
     let outputs = data.output_count();
     let task = data.task;
@@ -42,7 +46,9 @@ pub fn model_shape(data: &DataSummary, net: &NetSpec, train: &TrainSpec) -> Resu
         ));
     }
     if loss == Loss::CrossEntropy && task == Task::Regress {
-        return Err("cross_entropy is a classification loss; this data step regresses (use mse)".into());
+        return Err(
+            "cross_entropy is a classification loss; this data step regresses (use mse)".into(),
+        );
     }
     let mut sizes = vec![inputs];
     sizes.extend(&net.hidden);
@@ -96,7 +102,13 @@ pub fn fit(
 ) -> RunResult {
     let split = prepared.split(partition);
     let started = Instant::now();
-    let network = Network::initialise(&shape.sizes, shape.hidden, shape.output, net.init, train.seed);
+    let network = Network::initialise(
+        &shape.sizes,
+        shape.hidden,
+        shape.output,
+        net.init,
+        train.seed,
+    );
     let config = TrainConfig {
         loss: shape.loss,
         optimizer: train.optimizer.clone(),
@@ -111,7 +123,13 @@ pub fn fit(
     };
     let has_test = split.x_test.nrows() > 0;
     let validation = has_test.then(|| (split.x_test.view(), split.y_test.view()));
-    let fitted = nn::train(network, split.x_train.view(), split.y_train.view(), validation, &config);
+    let fitted = nn::train(
+        network,
+        split.x_train.view(),
+        split.y_train.view(),
+        validation,
+        &config,
+    );
     let seconds = started.elapsed().as_secs_f64();
     let measure = |x: &ndarray::Array2<f64>, y: &ndarray::Array2<f64>| {
         set_metrics(prepared.encoding.task, &fitted.network, x, y, shape.loss)

@@ -6,6 +6,7 @@
 //! The command layer (`main.rs`) only parses flags, calls [`build`] and maps errors
 //! to exit codes.
 
+pub mod atomic;
 pub mod cache;
 pub mod data;
 pub mod document;
@@ -95,15 +96,21 @@ pub fn load(path: &Path) -> Result<Loaded, Error> {
             let text = String::from_utf8_lossy(error.as_bytes()).into_owned();
             let problem = Problem::new(at..at + 1, "the document is not valid UTF-8 text")
                 .with_help("save the file as UTF-8");
-            return Err(Error::Document(DocumentErrors::for_file(path, text, vec![problem])));
+            return Err(Error::Document(DocumentErrors::for_file(
+                path,
+                text,
+                vec![problem],
+            )));
         }
     };
     let hash = blake3::hash(source.as_bytes()).to_hex().to_string();
-    let document = document::parse(&source)
-        .map_err(|problems| Error::Document(DocumentErrors::for_file(path, source.clone(), problems)))?;
+    let document = document::parse(&source).map_err(|problems| {
+        Error::Document(DocumentErrors::for_file(path, source.clone(), problems))
+    })?;
     let base_dir = path.parent().unwrap_or(Path::new("."));
-    let plan = plan::plan(&document, base_dir)
-        .map_err(|problems| Error::Document(DocumentErrors::for_file(path, source.clone(), problems)))?;
+    let plan = plan::plan(&document, base_dir).map_err(|problems| {
+        Error::Document(DocumentErrors::for_file(path, source.clone(), problems))
+    })?;
     Ok(Loaded {
         name,
         document,
@@ -158,10 +165,20 @@ pub fn build(options: &BuildOptions) -> Result<BuildSummary, Error> {
         let text = serde_json::to_string_pretty(&summary).expect("a JSON value serialises");
         write_output(json_path, text.as_bytes())?;
     }
-    Ok(summarise(report_path, &loaded.plan, &records, cache.take_warnings()))
+    Ok(summarise(
+        report_path,
+        &loaded.plan,
+        &records,
+        cache.take_warnings(),
+    ))
 }
 
-fn summarise(report: PathBuf, plan: &Plan, records: &[StepRecord], warnings: Vec<String>) -> BuildSummary {
+fn summarise(
+    report: PathBuf,
+    plan: &Plan,
+    records: &[StepRecord],
+    warnings: Vec<String>,
+) -> BuildSummary {
     let count = |wanted: fn(&Status) -> bool| records.iter().filter(|r| wanted(&r.status)).count();
     BuildSummary {
         report,
@@ -181,19 +198,9 @@ fn summarise(report: PathBuf, plan: &Plan, records: &[StepRecord], warnings: Vec
     }
 }
 
-/// Writes a file atomically so an interrupted build never leaves a torn report.
+/// Writes a result file atomically so an interrupted build never leaves it torn.
 fn write_output(path: &Path, bytes: &[u8]) -> Result<(), Error> {
-    let dir = match path.parent() {
-        Some(dir) if !dir.as_os_str().is_empty() => dir,
-        _ => Path::new("."),
-    };
-    let write = || -> std::io::Result<()> {
-        let mut file = tempfile::NamedTempFile::new_in(dir)?;
-        std::io::Write::write_all(&mut file, bytes)?;
-        file.persist(path).map_err(|error| error.error)?;
-        Ok(())
-    };
-    write().map_err(|source| Error::Io {
+    atomic::write(path, bytes).map_err(|source| Error::Io {
         context: format!("writing {}", path.display()),
         source,
     })

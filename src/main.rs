@@ -8,7 +8,11 @@ use clap::{Parser, Subcommand};
 use stet::{BuildOptions, CacheChoice, Error};
 
 #[derive(Parser)]
-#[command(name = "stet", version, about = "Run a Markdown experiment document and render its report")]
+#[command(
+    name = "stet",
+    version,
+    about = "Run a Markdown experiment document and render its report"
+)]
 struct Cli {
     #[command(subcommand)]
     command: Command,
@@ -95,7 +99,11 @@ fn run(command: Command) -> Result<ExitCode, Error> {
                 summary.reused,
                 summary.failed.len()
             );
-            Ok(if summary.failed.is_empty() { ExitCode::SUCCESS } else { ExitCode::from(1) })
+            Ok(if summary.failed.is_empty() {
+                ExitCode::SUCCESS
+            } else {
+                ExitCode::from(1)
+            })
         }
     }
 }
@@ -116,7 +124,11 @@ fn report_error(error: &Error) {
                     Err(_) => eprintln!("error: {diagnostic}"),
                 }
             }
-            eprintln!("{}: {} problem(s); nothing was written", errors.path, errors.problems.len());
+            eprintln!(
+                "{}: {} problem(s); nothing was written",
+                errors.path,
+                errors.problems.len()
+            );
         }
         other => eprintln!("error: {other}"),
     }

@@ -50,8 +50,14 @@ pub struct PartitionSummary {
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
 #[serde(rename_all = "snake_case")]
 pub enum SetMetrics {
-    Classification { loss: f64, metrics: ClassificationMetrics },
-    Regression { loss: f64, metrics: RegressionMetrics },
+    Classification {
+        loss: f64,
+        metrics: ClassificationMetrics,
+    },
+    Regression {
+        loss: f64,
+        metrics: RegressionMetrics,
+    },
 }
 
 impl SetMetrics {

@@ -5,9 +5,9 @@ use std::collections::HashMap;
 use std::path::{Path, PathBuf};
 use std::sync::Arc;
 
+use crate::document::problem::nearest;
 use crate::document::spec::parse_step;
 use crate::document::{Document, Problem, StepBlock, StepKind, StepSpec};
-use crate::document::problem::nearest;
 
 /// Bumped whenever the meaning of a cached result changes, so old entries miss.
 pub const CACHE_FORMAT_VERSION: u32 = 1;
@@ -64,16 +64,28 @@ pub fn plan(document: &Document, base_dir: &Path) -> Result<Plan, Vec<Problem>> 
     let mut problems = Vec::new();
     let mut parsed: Vec<(usize, &StepBlock, StepSpec)> = Vec::new();
     let mut seen: HashMap<&str, &StepBlock> = HashMap::new();
-    for (piece, block) in document.pieces.iter().enumerate().filter_map(|(i, piece)| match piece {
-        crate::document::Piece::Step(block) => Some((i, block)),
-        crate::document::Piece::Prose(_) => None,
-    }) {
+    for (piece, block) in document
+        .pieces
+        .iter()
+        .enumerate()
+        .filter_map(|(i, piece)| match piece {
+            crate::document::Piece::Step(block) => Some((i, block)),
+            crate::document::Piece::Prose(_) => None,
+        })
+    {
         if let Some(first) = seen.insert(&block.id, block) {
-            let (line, _) = crate::document::problem::line_and_column(&document.source, first.info_span.start);
-            problems.push(Problem::new(
-                block.info_span.clone(),
-                format!("a step named '{}' is already defined on line {line}", block.id),
-            ).with_help("give each step its own id"));
+            let (line, _) =
+                crate::document::problem::line_and_column(&document.source, first.info_span.start);
+            problems.push(
+                Problem::new(
+                    block.info_span.clone(),
+                    format!(
+                        "a step named '{}' is already defined on line {line}",
+                        block.id
+                    ),
+                )
+                .with_help("give each step its own id"),
+            );
             continue;
         }
         if let Some(spec) = parse_step(block, default_seed, &mut problems) {
@@ -81,8 +93,13 @@ pub fn plan(document: &Document, base_dir: &Path) -> Result<Plan, Vec<Problem>> 
         }
     }
 
-    let kinds: HashMap<&str, StepKind> = document.steps().map(|b| (b.id.as_str(), b.kind)).collect();
-    let index: HashMap<&str, usize> = parsed.iter().enumerate().map(|(i, (_, b, _))| (b.id.as_str(), i)).collect();
+    let kinds: HashMap<&str, StepKind> =
+        document.steps().map(|b| (b.id.as_str(), b.kind)).collect();
+    let index: HashMap<&str, usize> = parsed
+        .iter()
+        .enumerate()
+        .map(|(i, (_, b, _))| (b.id.as_str(), i))
+        .collect();
     let mut steps = Vec::new();
     for (piece, block, spec) in &parsed {
         let mut upstream = Vec::new();
@@ -91,7 +108,11 @@ pub fn plan(document: &Document, base_dir: &Path) -> Result<Plan, Vec<Problem>> 
                 None => problems.push(missing_reference(block, setting, id, &kinds)),
                 Some(kind) if *kind != wanted => problems.push(Problem::new(
                     setting_span(block, setting),
-                    format!("'{id}' is a {} step, but {setting} must name a {} step", kind.word(), wanted.word()),
+                    format!(
+                        "'{id}' is a {} step, but {setting} must name a {} step",
+                        kind.word(),
+                        wanted.word()
+                    ),
                 )),
                 // A referenced step that failed to parse already has its own problem.
                 Some(_) => upstream.extend(index.get(id).copied()),
@@ -113,14 +134,26 @@ pub fn plan(document: &Document, base_dir: &Path) -> Result<Plan, Vec<Problem>> 
     }
     let order = execution_order(&steps);
     for &i in &order {
-        let upstream_keys: Vec<Key> = steps[i].upstream.iter().map(|&u| steps[u].key.clone()).collect();
+        let upstream_keys: Vec<Key> = steps[i]
+            .upstream
+            .iter()
+            .map(|&u| steps[u].key.clone())
+            .collect();
         steps[i].key = step_key(&steps[i], &upstream_keys);
     }
     Ok(Plan { steps, order })
 }
 
-fn missing_reference(block: &StepBlock, setting: &str, id: &str, kinds: &HashMap<&str, StepKind>) -> Problem {
-    let problem = Problem::new(setting_span(block, setting), format!("no step is named '{id}'"));
+fn missing_reference(
+    block: &StepBlock,
+    setting: &str,
+    id: &str,
+    kinds: &HashMap<&str, StepKind>,
+) -> Problem {
+    let problem = Problem::new(
+        setting_span(block, setting),
+        format!("no step is named '{id}'"),
+    );
     match nearest(id, kinds.keys().copied()) {
         Some(suggestion) => problem.with_help(format!("did you mean '{suggestion}'?")),
         None => problem.with_help(format!(
@@ -135,7 +168,10 @@ fn setting_span(block: &StepBlock, setting: &str) -> std::ops::Range<usize> {
     let mut offset = block.yaml_offset;
     for line in block.yaml.split_inclusive('\n') {
         let trimmed = line.trim_start();
-        if trimmed.strip_prefix(setting).is_some_and(|rest| rest.trim_start().starts_with(':')) {
+        if trimmed
+            .strip_prefix(setting)
+            .is_some_and(|rest| rest.trim_start().starts_with(':'))
+        {
             let indent = line.len() - trimmed.len();
             return offset + indent..offset + line.trim_end().len();
         }
@@ -144,7 +180,12 @@ fn setting_span(block: &StepBlock, setting: &str) -> std::ops::Range<usize> {
     block.info_span.clone()
 }
 
-fn read_files(block: &StepBlock, spec: &StepSpec, base_dir: &Path, problems: &mut Vec<Problem>) -> Vec<InputFile> {
+fn read_files(
+    block: &StepBlock,
+    spec: &StepSpec,
+    base_dir: &Path,
+    problems: &mut Vec<Problem>,
+) -> Vec<InputFile> {
     let written = match spec {
         StepSpec::Data(data) => &data.file,
         StepSpec::Net(_) | StepSpec::Train(_) => return Vec::new(),
@@ -158,10 +199,13 @@ fn read_files(block: &StepBlock, spec: &StepSpec, base_dir: &Path, problems: &mu
             path,
         }],
         Err(error) => {
-            problems.push(Problem::new(
-                setting_span(block, "file"),
-                format!("cannot read '{}': {error}", path.display()),
-            ).with_help("the path is relative to the document's folder"));
+            problems.push(
+                Problem::new(
+                    setting_span(block, "file"),
+                    format!("cannot read '{}': {error}", path.display()),
+                )
+                .with_help("the path is relative to the document's folder"),
+            );
             Vec::new()
         }
     }

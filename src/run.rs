@@ -12,10 +12,12 @@ use serde::Serialize;
 
 use crate::cache::{Cache, EntryKind};
 use crate::data::{self, Prepared};
-use crate::document::spec::{NetSpec, TrainSpec};
 use crate::document::StepSpec;
+use crate::document::spec::{NetSpec, TrainSpec};
 use crate::fit::{fit, model_shape};
-use crate::outcome::{DataSummary, ModelShape, Outcome, PartitionSummary, RunResult, Seconds, TrainResult};
+use crate::outcome::{
+    DataSummary, ModelShape, Outcome, PartitionSummary, RunResult, Seconds, TrainResult,
+};
 use crate::plan::{CACHE_FORMAT_VERSION, Key, Plan, PlannedStep};
 
 /// Whether a step ran, was reused, or failed.
@@ -83,7 +85,10 @@ pub fn execute(plan: &Plan, cache: &Cache, options: RunOptions) -> Vec<StepRecor
     let mut trained_seconds: HashMap<usize, Seconds> = HashMap::new();
     for (step, partition, result) in fit_all(plan, cache, &mut prepared, tasks, options) {
         *trained_seconds.entry(step).or_default() += result.seconds;
-        let runs = &mut train_runs.get_mut(&step).expect("task of a planned train step").1;
+        let runs = &mut train_runs
+            .get_mut(&step)
+            .expect("task of a planned train step")
+            .1;
         runs[partition] = Some(result);
     }
     for (index, (shape, runs)) in train_runs {
@@ -91,13 +96,19 @@ pub fn execute(plan: &Plan, cache: &Cache, options: RunOptions) -> Vec<StepRecor
             Some(&seconds) => Status::Ran { seconds },
             None => Status::Reused,
         };
-        let runs = runs.into_iter().map(|run| run.expect("every run fitted or cached")).collect();
+        let runs = runs
+            .into_iter()
+            .map(|run| run.expect("every run fitted or cached"))
+            .collect();
         records[index] = Some(StepRecord {
             status,
             outcome: Some(Outcome::Train(TrainResult { shape, runs })),
         });
     }
-    records.into_iter().map(|r| r.expect("every step recorded")).collect()
+    records
+        .into_iter()
+        .map(|r| r.expect("every step recorded"))
+        .collect()
 }
 
 fn run_data_step(
@@ -138,7 +149,8 @@ fn prepare_data(step: &PlannedStep) -> Result<Prepared, String> {
         unreachable!("a data step has a data spec")
     };
     let file = &step.files[0];
-    let table = data::read_table(&file.bytes).map_err(|error| format!("{}: {error}", file.written))?;
+    let table =
+        data::read_table(&file.bytes).map_err(|error| format!("{}: {error}", file.written))?;
     data::prepare(&table, &spec.settings).map_err(|error| format!("{}: {error}", file.written))
 }
 
@@ -202,9 +214,17 @@ fn plan_train_step<'a>(
 ) -> Result<(ModelShape, Vec<Option<RunResult>>), String> {
     let step = &plan.steps[index];
     let (data_index, net_index) = (step.upstream[0], step.upstream[1]);
-    let summary = match records[data_index].as_ref().and_then(|r| r.outcome.as_ref()) {
+    let summary = match records[data_index]
+        .as_ref()
+        .and_then(|r| r.outcome.as_ref())
+    {
         Some(Outcome::Data(summary)) => summary,
-        _ => return Err(format!("not run: its data step '{}' failed", plan.steps[data_index].id)),
+        _ => {
+            return Err(format!(
+                "not run: its data step '{}' failed",
+                plan.steps[data_index].id
+            ));
+        }
     };
     let StepSpec::Net(net) = &plan.steps[net_index].spec else {
         unreachable!("references were checked when planning")
@@ -274,7 +294,13 @@ fn fit_all(
         tasks
             .par_iter()
             .map(|task| {
-                let result = fit(&prepared[&task.data], task.partition, &task.shape, task.net, task.train);
+                let result = fit(
+                    &prepared[&task.data],
+                    task.partition,
+                    &task.shape,
+                    task.net,
+                    task.train,
+                );
                 cache.store(&task.key, EntryKind::Run, &result);
                 (task.step, task.partition, result)
             })

@@ -14,8 +14,8 @@ use std::ops::Range;
 use pulldown_cmark::{CodeBlockKind, Event, Options, Parser, Tag, TagEnd};
 
 pub use front::FrontMatter;
-pub use problem::{DocumentErrors, Problem};
 use problem::nearest;
+pub use problem::{DocumentErrors, Problem};
 pub use spec::{StepKind, StepSpec};
 
 /// A parsed document: front matter and the pieces of its body in order.
@@ -121,7 +121,11 @@ struct OpenBlock {
     nested: bool,
 }
 
-fn find_step_blocks(source: &str, body_start: usize, problems: &mut Vec<Problem>) -> Vec<StepBlock> {
+fn find_step_blocks(
+    source: &str,
+    body_start: usize,
+    problems: &mut Vec<Problem>,
+) -> Vec<StepBlock> {
     let body = &source[body_start..];
     let mut blocks = Vec::new();
     let mut depth = 0usize;
@@ -182,8 +186,9 @@ fn step_block(source: &str, block: OpenBlock, problems: &mut Vec<Problem>) -> Op
     };
     let Some(id) = words.next() else {
         problems.push(
-            Problem::new(info_span, format!("the {kind_word} step has no id"))
-                .with_help(format!("write `yaml {kind_word} NAME` so later steps can refer to it")),
+            Problem::new(info_span, format!("the {kind_word} step has no id")).with_help(format!(
+                "write `yaml {kind_word} NAME` so later steps can refer to it"
+            )),
         );
         return None;
     };
@@ -208,7 +213,9 @@ fn step_block(source: &str, block: OpenBlock, problems: &mut Vec<Problem>) -> Op
         );
         return None;
     }
-    let yaml_offset = block.text_offset.unwrap_or_else(|| content_start(source, &block.span));
+    let yaml_offset = block
+        .text_offset
+        .unwrap_or_else(|| content_start(source, &block.span));
     Some(StepBlock {
         kind,
         id: id.to_string(),
@@ -270,7 +277,9 @@ mod tests {
     #[test]
     fn other_code_blocks_stay_in_the_prose() {
         let doc = parse(DOC).unwrap();
-        let Piece::Prose(prose) = &doc.pieces[2] else { panic!() };
+        let Piece::Prose(prose) = &doc.pieces[2] else {
+            panic!()
+        };
         assert!(prose.contains("print(1)"));
     }
 
@@ -286,7 +295,10 @@ mod tests {
     fn a_step_without_an_id_is_an_error() {
         let problems = parse("text\n\n```yaml data\nfile: x.csv\n```\n").unwrap_err();
         assert!(problems[0].message.contains("no id"));
-        assert_eq!(line_and_column("text\n\n```yaml data\n", problems[0].span.start), (3, 4));
+        assert_eq!(
+            line_and_column("text\n\n```yaml data\n", problems[0].span.start),
+            (3, 4)
+        );
     }
 
     #[test]
@@ -303,6 +315,9 @@ mod tests {
     #[test]
     fn a_step_inside_a_list_is_refused() {
         let problems = parse("- item\n\n  ```yaml data d\n  file: x.csv\n  ```\n").unwrap_err();
-        assert!(problems[0].message.contains("inside a list"), "{problems:?}");
+        assert!(
+            problems[0].message.contains("inside a list"),
+            "{problems:?}"
+        );
     }
 }

@@ -113,7 +113,10 @@ impl Diagnostic for ProblemDiagnostic {
     fn labels(&self) -> Option<Box<dyn Iterator<Item = LabeledSpan> + '_>> {
         let span = &self.problem.span;
         let length = span.end.saturating_sub(span.start).max(1);
-        let label = LabeledSpan::new_with_span(Some("here".into()), SourceSpan::new(span.start.into(), length));
+        let label = LabeledSpan::new_with_span(
+            Some("here".into()),
+            SourceSpan::new(span.start.into(), length),
+        );
         Some(Box::new(std::iter::once(label)))
     }
 

@@ -180,8 +180,19 @@ struct RawTrain {
     seed: Option<u64>,
 }
 const TRAIN_KEYS: &[&str] = &[
-    "data", "net", "loss", "optimizer", "learning_rate", "momentum", "batch", "epochs",
-    "target_loss", "patience", "l2", "shuffle", "seed",
+    "data",
+    "net",
+    "loss",
+    "optimizer",
+    "learning_rate",
+    "momentum",
+    "batch",
+    "epochs",
+    "target_loss",
+    "patience",
+    "l2",
+    "shuffle",
+    "seed",
 ];
 
 /// `batch` is a row count or the word `full`.
@@ -232,7 +243,11 @@ fn key_span(block: Block<'_>, key: &str) -> Option<std::ops::Range<usize>> {
 }
 
 /// Parses and validates one step's settings; `None` when a problem was recorded.
-pub fn parse_step(step: &StepBlock, default_seed: u64, problems: &mut Vec<Problem>) -> Option<StepSpec> {
+pub fn parse_step(
+    step: &StepBlock,
+    default_seed: u64,
+    problems: &mut Vec<Problem>,
+) -> Option<StepSpec> {
     let block = Block {
         text: &step.yaml,
         offset: step.yaml_offset,
@@ -282,15 +297,23 @@ fn validate_data(raw: RawData, default_seed: u64, check: &mut Checker<'_>) -> Da
         OneOrMany::One(name) => vec![name],
         OneOrMany::Many(names) => names,
     };
-    check.require(!target.is_empty(), "target", || "target must name at least one column".into());
-    check.require(!raw.file.trim().is_empty(), "file", || "file must name a CSV file".into());
+    check.require(!target.is_empty(), "target", || {
+        "target must name at least one column".into()
+    });
+    check.require(!raw.file.trim().is_empty(), "file", || {
+        "file must name a CSV file".into()
+    });
     let split = match (raw.holdout, raw.folds) {
         (Some(_), Some(_)) => {
-            check.require(false, "folds", || "set either holdout or folds, not both".into());
+            check.require(false, "folds", || {
+                "set either holdout or folds, not both".into()
+            });
             Split::Holdout(0.2)
         }
         (_, Some(folds)) => {
-            check.require(folds >= 2, "folds", || format!("folds must be at least 2, not {folds}"));
+            check.require(folds >= 2, "folds", || {
+                format!("folds must be at least 2, not {folds}")
+            });
             Split::Folds(folds)
         }
         (holdout, None) => {
@@ -338,9 +361,11 @@ fn validate_train(raw: RawTrain, default_seed: u64, check: &mut Checker<'_>) -> 
         OptimizerKind::Sgd => 0.01,
         OptimizerKind::Adam => 0.001,
     });
-    check.require(learning_rate > 0.0 && learning_rate.is_finite(), "learning_rate", || {
-        format!("learning_rate must be a positive number, not {learning_rate}")
-    });
+    check.require(
+        learning_rate > 0.0 && learning_rate.is_finite(),
+        "learning_rate",
+        || format!("learning_rate must be a positive number, not {learning_rate}"),
+    );
     let momentum = raw.momentum.unwrap_or(0.9);
     check.require((0.0..1.0).contains(&momentum), "momentum", || {
         format!("momentum must be at least 0 and below 1, not {momentum}")
@@ -370,10 +395,14 @@ fn validate_train(raw: RawTrain, default_seed: u64, check: &mut Checker<'_>) -> 
         });
     }
     if let Some(patience) = raw.patience {
-        check.require(patience > 0, "patience", || "patience must be at least 1 epoch".into());
+        check.require(patience > 0, "patience", || {
+            "patience must be at least 1 epoch".into()
+        });
     }
     let l2 = raw.l2.unwrap_or(0.0);
-    check.require(l2 >= 0.0 && l2.is_finite(), "l2", || format!("l2 must be 0 or more, not {l2}"));
+    check.require(l2 >= 0.0 && l2.is_finite(), "l2", || {
+        format!("l2 must be 0 or more, not {l2}")
+    });
     TrainSpec {
         data: raw.data,
         net: raw.net,

@@ -51,7 +51,9 @@ pub fn line_chart(series: &[Series], y_label: &str, log_scale: bool) -> String {
         .fold(1.0f64, f64::max);
     let (mut lo, mut hi) = values
         .iter()
-        .fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), &v| (lo.min(v), hi.max(v)));
+        .fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), &v| {
+            (lo.min(v), hi.max(v))
+        });
     if !lo.is_finite() {
         (lo, hi) = (1e-3, 1.0);
     }
@@ -63,10 +65,22 @@ pub fn line_chart(series: &[Series], y_label: &str, log_scale: bool) -> String {
     {
         let root = SVGBackend::with_string(&mut svg, (560, 300)).into_drawing_area();
         let drawn = if log_scale {
-            draw(&root, series, y_label, (1.0..x_max.max(2.0), (lo..hi).log_scale()), &finite)
+            draw(
+                &root,
+                series,
+                y_label,
+                (1.0..x_max.max(2.0), (lo..hi).log_scale()),
+                &finite,
+            )
         } else {
             let pad = (hi - lo) * 0.05;
-            draw(&root, series, y_label, (1.0..x_max.max(2.0), lo - pad..hi + pad), &finite)
+            draw(
+                &root,
+                series,
+                y_label,
+                (1.0..x_max.max(2.0), lo - pad..hi + pad),
+                &finite,
+            )
         };
         drawn.expect("drawing to a string cannot fail");
         root.present().expect("drawing to a string cannot fail");

@@ -40,7 +40,8 @@ impl Templates {
     pub fn built_in() -> Templates {
         let mut env = Environment::new();
         for (name, text) in BUILT_IN {
-            env.add_template(name, text).expect("built-in templates parse");
+            env.add_template(name, text)
+                .expect("built-in templates parse");
         }
         Templates { env }
     }
@@ -123,7 +124,10 @@ pub fn render(input: &ReportInput<'_>, templates: &Templates) -> Result<String, 
         document_hash: input.document_hash,
         pieces: pieces(input),
     };
-    templates.env.get_template("report.html")?.render(&view)
+    templates
+        .env
+        .get_template("report.html")?
+        .render(minijinja::value::Serde(&view))
 }
 
 /// The front matter's title, else the first heading's text, else the file name.

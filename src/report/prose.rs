@@ -32,6 +32,9 @@ mod tests {
     #[test]
     fn github_tables_render() {
         let html = render("| a | b |\n|---|---|\n| 1 | 2 |\n", false);
-        assert!(html.contains("<table>") && html.contains("<td>2</td>"), "{html}");
+        assert!(
+            html.contains("<table>") && html.contains("<td>2</td>"),
+            "{html}"
+        );
     }
 }

@@ -42,16 +42,12 @@ pub fn rows(spec: &StepSpec, yaml: &str) -> Vec<SettingRow> {
                 ),
                 row(
                     "task",
-                    settings.task.map_or("from the target column".into(), |task| word(&task)),
+                    settings
+                        .task
+                        .map_or("from the target column".into(), |task| word(&task)),
                 ),
-                row(
-                    "scale",
-                    word(&settings.scale),
-                ),
-                row(
-                    "missing",
-                    word(&settings.missing),
-                ),
+                row("scale", word(&settings.scale)),
+                row("missing", word(&settings.missing)),
             ];
             rows.push(match settings.split {
                 Split::Holdout(fraction) => row("holdout", fraction.to_string()),
@@ -65,25 +61,23 @@ pub fn rows(spec: &StepSpec, yaml: &str) -> Vec<SettingRow> {
                 "hidden",
                 format!(
                     "[{}]",
-                    net.hidden.iter().map(ToString::to_string).collect::<Vec<_>>().join(", ")
+                    net.hidden
+                        .iter()
+                        .map(ToString::to_string)
+                        .collect::<Vec<_>>()
+                        .join(", ")
                 ),
             ),
             row("activation", word(&net.activation)),
-            row(
-                "output",
-                word(&net.output),
-            ),
-            row(
-                "init",
-                word(&net.init),
-            ),
+            row("output", word(&net.output)),
+            row("init", word(&net.init)),
         ],
         StepSpec::Train(train) => {
-            let mut rows = vec![row("data", train.data.clone()), row("net", train.net.clone())];
-            rows.push(row(
-                "loss",
-                word(&train.loss),
-            ));
+            let mut rows = vec![
+                row("data", train.data.clone()),
+                row("net", train.net.clone()),
+            ];
+            rows.push(row("loss", word(&train.loss)));
             match &train.optimizer {
                 Optimizer::Sgd {
                     learning_rate,
@@ -131,4 +125,3 @@ fn written_keys(yaml: &str) -> HashSet<String> {
         Err(_) => HashSet::new(),
     }
 }
-

@@ -9,7 +9,12 @@ use crate::plan::Plan;
 use crate::run::{Status, StepRecord};
 
 /// The summary as a JSON value.
-pub fn summary(document_name: &str, document_hash: &str, plan: &Plan, records: &[StepRecord]) -> Value {
+pub fn summary(
+    document_name: &str,
+    document_hash: &str,
+    plan: &Plan,
+    records: &[StepRecord],
+) -> Value {
     let steps: Vec<Value> = plan
         .steps
         .iter()
@@ -63,7 +68,12 @@ fn train_fields(result: &TrainResult, object: &mut Map<String, Value>) {
 }
 
 fn stat_means(stats: &[MetricStat]) -> Value {
-    Value::Object(stats.iter().map(|s| (s.name.to_string(), number(s.mean))).collect())
+    Value::Object(
+        stats
+            .iter()
+            .map(|s| (s.name.to_string(), number(s.mean)))
+            .collect(),
+    )
 }
 
 fn stat_sds(stats: &[MetricStat]) -> Value {
@@ -89,9 +99,19 @@ fn fold(run: &RunResult) -> Value {
 }
 
 fn set(metrics: &SetMetrics) -> Value {
-    Value::Object(metrics.named().into_iter().map(|(k, v)| (k.to_string(), number(v))).collect())
+    Value::Object(
+        metrics
+            .named()
+            .into_iter()
+            .map(|(k, v)| (k.to_string(), number(v)))
+            .collect(),
+    )
 }
 
 fn number(value: f64) -> Value {
-    if value.is_finite() { json!(value) } else { Value::Null }
+    if value.is_finite() {
+        json!(value)
+    } else {
+        Value::Null
+    }
 }

@@ -50,8 +50,13 @@ pub fn data_view(summary: &DataSummary) -> DataView {
                 ),
             };
             let note = if column.constant {
-                let constant = "constant on the training rows: carries no information, left unscaled";
-                if note.is_empty() { constant.to_string() } else { format!("{note}; {constant}") }
+                let constant =
+                    "constant on the training rows: carries no information, left unscaled";
+                if note.is_empty() {
+                    constant.to_string()
+                } else {
+                    format!("{note}; {constant}")
+                }
             } else {
                 note
             };
@@ -70,7 +75,10 @@ pub fn data_view(summary: &DataSummary) -> DataView {
             first.test_rows
         )
     } else {
-        format!("{} training rows, {} held out", first.train_rows, first.test_rows)
+        format!(
+            "{} training rows, {} held out",
+            first.train_rows, first.test_rows
+        )
     };
     let classes = summary
         .classes
@@ -161,9 +169,14 @@ pub fn train_view(result: &TrainResult, classes: Option<&[String]>) -> TrainView
         })
         .collect::<Vec<_>>()
         .join(" → ");
-    let train_stats = result.metric_stats(RowSet::Train).expect("every run has training rows");
+    let train_stats = result
+        .metric_stats(RowSet::Train)
+        .expect("every run has training rows");
     let test_stats = result.metric_stats(RowSet::Test);
-    let metric_names = train_stats.iter().map(|stat| stat.name.replace('_', " ")).collect();
+    let metric_names = train_stats
+        .iter()
+        .map(|stat| stat.name.replace('_', " "))
+        .collect();
     let mut metric_rows = vec![MetricRow {
         rows: "training",
         values: stat_values(&train_stats),
@@ -227,7 +240,11 @@ fn fold_row(index: usize, run: &crate::outcome::RunResult) -> FoldRow {
         fold: index + 1,
         stop: stop_reason(run.fit.stop).to_string(),
         epochs: run.fit.epochs_run,
-        values: set.named().iter().map(|(_, value)| number(*value)).collect(),
+        values: set
+            .named()
+            .iter()
+            .map(|(_, value)| number(*value))
+            .collect(),
     }
 }
 
@@ -252,11 +269,21 @@ fn loss_chart(result: &TrainResult) -> String {
     let several = result.runs.len() > 1;
     let mut series = Vec::new();
     for (i, run) in result.runs.iter().enumerate() {
-        let suffix = if several { format!(" (fold {})", i + 1) } else { String::new() };
+        let suffix = if several {
+            format!(" (fold {})", i + 1)
+        } else {
+            String::new()
+        };
         let history = &run.fit.history;
         series.push(Series {
             label: format!("training{suffix}"),
-            points: chart::thin(history.iter().enumerate().map(|(e, l)| ((e + 1) as f64, l.train)).collect()),
+            points: chart::thin(
+                history
+                    .iter()
+                    .enumerate()
+                    .map(|(e, l)| ((e + 1) as f64, l.train))
+                    .collect(),
+            ),
             dashed: false,
         });
         let validation: Vec<(f64, f64)> = history
@@ -282,7 +309,11 @@ fn confusion_view(result: &TrainResult, labels: &[String]) -> Option<ConfusionVi
         .runs
         .iter()
         .filter_map(|run| {
-            let set = if held_out { run.test.as_ref() } else { Some(&run.train) };
+            let set = if held_out {
+                run.test.as_ref()
+            } else {
+                Some(&run.train)
+            };
             match set {
                 Some(SetMetrics::Classification { metrics, .. }) => Some(metrics),
                 _ => None,
@@ -310,7 +341,10 @@ fn confusion_view(result: &TrainResult, labels: &[String]) -> Option<ConfusionVi
                 cells: row
                     .iter()
                     .enumerate()
-                    .map(|(j, &count)| ConfusionCell { count, diagonal: i == j })
+                    .map(|(j, &count)| ConfusionCell {
+                        count,
+                        diagonal: i == j,
+                    })
                     .collect(),
                 precision: ratio(row[i], predicted_here),
                 recall: ratio(row[i], actual_here),
@@ -318,7 +352,11 @@ fn confusion_view(result: &TrainResult, labels: &[String]) -> Option<ConfusionVi
         })
         .collect();
     Some(ConfusionView {
-        rows_label: if held_out { "held-out rows" } else { "training rows" },
+        rows_label: if held_out {
+            "held-out rows"
+        } else {
+            "training rows"
+        },
         labels: labels.to_vec(),
         rows,
     })

@@ -1,0 +1,28 @@
+//! Writing a file so that readers see either the old file or the whole new one: the
+//! bytes go to a temporary file in the same folder, which is then renamed into place.
+//! An interrupted build therefore never leaves a torn report or cache entry.
+
+use std::io::Write;
+use std::path::Path;
+
+/// Writes `bytes` to `path` atomically, creating its folder if needed. The file is
+/// readable by others (0644 on Unix), since reports and shared caches are meant to be.
+pub fn write(path: &Path, bytes: &[u8]) -> std::io::Result<()> {
+    let dir = match path.parent() {
+        Some(dir) if !dir.as_os_str().is_empty() => dir,
+        _ => Path::new("."),
+    };
+    std::fs::create_dir_all(dir)?;
+    let mut builder = tempfile::Builder::new();
+    builder.prefix(".stet-tmp-");
+    #[cfg(unix)]
+    {
+        use std::os::unix::fs::PermissionsExt;
+        builder.permissions(std::fs::Permissions::from_mode(0o644));
+    }
+    let mut file = builder.tempfile_in(dir)?;
+    file.write_all(bytes)?;
+    file.as_file().sync_all()?;
+    file.persist(path).map_err(|error| error.error)?;
+    Ok(())
+}
