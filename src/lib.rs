@@ -8,14 +8,17 @@
 
 pub mod atomic;
 pub mod cache;
+pub mod prune;
 pub mod data;
 pub mod document;
 pub mod fit;
+pub mod manifest;
 pub mod nn;
 pub mod outcome;
 pub mod plan;
 pub mod report;
 pub mod run;
+pub mod freshness;
 
 use std::path::{Path, PathBuf};
 
@@ -141,6 +144,7 @@ pub fn build(options: &BuildOptions) -> Result<BuildSummary, Error> {
     let loaded = load(&options.document)?;
     let cache = open_cache(&options.cache, &options.document);
     let records = run::execute(&loaded.plan, &cache, RunOptions { jobs: options.jobs });
+    manifest::store(&cache, &options.document, &loaded.plan);
     let built_at = build_time();
     let html = report::render(
         &report::ReportInput {
@@ -171,6 +175,32 @@ pub fn build(options: &BuildOptions) -> Result<BuildSummary, Error> {
         &records,
         cache.take_warnings(),
     ))
+}
+
+/// `stet status`: what a build of the document would reuse and run, and why.
+pub fn status(document: &Path, cache: &CacheChoice) -> Result<Vec<freshness::StepStatus>, Error> {
+    let loaded = load(document)?;
+    let cache = open_cache(cache, document);
+    let previous = manifest::load(&cache, document);
+    Ok(freshness::status(&loaded.plan, &cache, &previous))
+}
+
+/// `stet clean`: removes the cache entries no named document uses; with no document,
+/// the whole cache. The cache is the one the first document (or the current folder)
+/// would use.
+pub fn clean(documents: &[PathBuf], cache: &CacheChoice) -> Result<prune::Freed, Error> {
+    let anchor = documents.first().cloned().unwrap_or_else(|| PathBuf::from("stet.md"));
+    let cache = open_cache(cache, &anchor);
+    let Some(dir) = cache.dir().map(Path::to_path_buf) else {
+        return Ok(prune::Freed::default());
+    };
+    let loaded = documents.iter().map(|path| load(path)).collect::<Result<Vec<_>, _>>()?;
+    let plans: Vec<&Plan> = loaded.iter().map(|l| &l.plan).collect();
+    let keep = (!documents.is_empty()).then(|| prune::used_entries(&plans, &cache));
+    prune::remove_unused(&dir, keep.as_ref()).map_err(|source| Error::Io {
+        context: format!("cleaning {}", dir.display()),
+        source,
+    })
 }
 
 fn summarise(

@@ -46,6 +46,20 @@ enum Command {
         #[arg(long)]
         allow_html: bool,
     },
+    /// List each step with its short key and whether a build would reuse or run it.
+    Status {
+        document: PathBuf,
+        /// The cache folder [default: $STET_CACHE, else .stet/ beside the document].
+        #[arg(long, value_name = "DIR")]
+        cache: Option<PathBuf>,
+    },
+    /// Remove cache entries that no named document uses (no document: the whole cache).
+    Clean {
+        documents: Vec<PathBuf>,
+        /// The cache folder [default: $STET_CACHE, else .stet/ beside the first document].
+        #[arg(long, value_name = "DIR")]
+        cache: Option<PathBuf>,
+    },
 }
 
 fn main() -> ExitCode {
@@ -75,11 +89,7 @@ fn run(command: Command) -> Result<ExitCode, Error> {
                 document,
                 output,
                 json,
-                cache: match (no_cache, cache) {
-                    (true, _) => CacheChoice::Off,
-                    (false, Some(dir)) => CacheChoice::Dir(dir),
-                    (false, None) => CacheChoice::Default,
-                },
+                cache: if no_cache { CacheChoice::Off } else { cache_choice(cache) },
                 jobs: jobs.unwrap_or_else(default_jobs),
                 templates,
                 allow_html,
@@ -105,7 +115,37 @@ fn run(command: Command) -> Result<ExitCode, Error> {
                 ExitCode::from(1)
             })
         }
+        Command::Status { document, cache } => {
+            for step in stet::status(&document, &cache_choice(cache))? {
+                let decision = match step.run_reason {
+                    None => "reuse".to_string(),
+                    Some(reason) => format!("run ({reason})"),
+                };
+                let runs = step
+                    .runs
+                    .map_or(String::new(), |(done, all)| format!("  {done}/{all} runs cached"));
+                println!(
+                    "{:<16} {:<6} {}  {decision}{runs}",
+                    step.id,
+                    step.kind.word(),
+                    step.short_key
+                );
+            }
+            Ok(ExitCode::SUCCESS)
+        }
+        Command::Clean { documents, cache } => {
+            let freed = stet::clean(&documents, &cache_choice(cache))?;
+            println!(
+                "removed {} cache entries, {} bytes freed",
+                freed.entries, freed.bytes
+            );
+            Ok(ExitCode::SUCCESS)
+        }
     }
+}
+
+fn cache_choice(dir: Option<PathBuf>) -> CacheChoice {
+    dir.map_or(CacheChoice::Default, CacheChoice::Dir)
 }
 
 fn default_jobs() -> usize {

@@ -6,7 +6,8 @@ use std::path::{Path, PathBuf};
 use std::sync::Arc;
 
 use crate::document::problem::nearest;
-use crate::document::spec::parse_step;
+use crate::data::Split;
+use crate::document::spec::{NetSpec, TrainSpec, parse_step};
 use crate::document::{Document, Problem, StepBlock, StepKind, StepSpec};
 
 /// Bumped whenever the meaning of a cached result changes, so old entries miss.
@@ -42,6 +43,8 @@ pub struct PlannedStep {
     pub upstream: Vec<usize>,
     pub files: Vec<InputFile>,
     pub key: Key,
+    /// A train step's run keys, one per partition of its data; empty for other kinds.
+    pub runs: Vec<Key>,
 }
 
 /// Every step of a document in document order, with an order to run them in.
@@ -127,6 +130,7 @@ pub fn plan(document: &Document, base_dir: &Path) -> Result<Plan, Vec<Problem>> 
             upstream,
             files,
             key: String::new(),
+            runs: Vec::new(),
         });
     }
     if !problems.is_empty() {
@@ -140,6 +144,7 @@ pub fn plan(document: &Document, base_dir: &Path) -> Result<Plan, Vec<Problem>> 
             .map(|&u| steps[u].key.clone())
             .collect();
         steps[i].key = step_key(&steps[i], &upstream_keys);
+        steps[i].runs = run_keys(&steps, i);
     }
     Ok(Plan { steps, order })
 }
@@ -224,6 +229,38 @@ fn execution_order(steps: &[PlannedStep]) -> Vec<usize> {
         order.push(ready);
     }
     order
+}
+
+/// The keys of a train step's runs: one per partition of the data it reads.
+fn run_keys(steps: &[PlannedStep], index: usize) -> Vec<Key> {
+    let StepSpec::Train(train) = &steps[index].spec else {
+        return Vec::new();
+    };
+    let data = &steps[steps[index].upstream[0]];
+    let (StepSpec::Data(data_spec), StepSpec::Net(net)) = (&data.spec, &steps[steps[index].upstream[1]].spec) else {
+        unreachable!("references were checked")
+    };
+    let partitions = match data_spec.settings.split {
+        Split::Holdout(_) => 1,
+        Split::Folds(folds) => folds,
+    };
+    (0..partitions).map(|partition| run_key(&data.key, net, train, partition)).collect()
+}
+
+/// A run's key depends on what it computes, not on step names, so identical runs in
+/// different steps share one entry.
+pub fn run_key(data_key: &str, net: &NetSpec, train: &TrainSpec, partition: usize) -> Key {
+    let settings = TrainSpec {
+        data: String::new(),
+        net: String::new(),
+        ..train.clone()
+    };
+    let mut hasher = blake3::Hasher::new();
+    hasher.update(&CACHE_FORMAT_VERSION.to_le_bytes());
+    hasher.update(b"run\0");
+    hasher.update(data_key.as_bytes());
+    hasher.update(&serde_json::to_vec(&(net, &settings, partition)).expect("specs serialise"));
+    hasher.finalize().to_hex().to_string()
 }
 
 /// BLAKE3 over the format version, the kind, the canonical settings, the upstream

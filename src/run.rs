@@ -18,7 +18,7 @@ use crate::fit::{fit, model_shape};
 use crate::outcome::{
     DataSummary, ModelShape, Outcome, PartitionSummary, RunResult, Seconds, TrainResult,
 };
-use crate::plan::{CACHE_FORMAT_VERSION, Key, Plan, PlannedStep};
+use crate::plan::{Key, Plan, PlannedStep};
 
 /// Whether a step ran, was reused, or failed.
 #[derive(Clone, Debug, PartialEq, Serialize)]
@@ -230,10 +230,12 @@ fn plan_train_step<'a>(
         unreachable!("references were checked when planning")
     };
     let shape = model_shape(summary, net, train)?;
-    let data_key = &plan.steps[data_index].key;
-    let runs = (0..summary.partitions.len())
-        .map(|partition| {
-            let key = run_key(data_key, net, train, partition);
+    let runs = step
+        .runs
+        .iter()
+        .enumerate()
+        .map(|(partition, key)| {
+            let key = key.clone();
             let cached = cache.load::<RunResult>(&key, EntryKind::Run);
             if cached.is_none() {
                 tasks.push(RunTask {
@@ -250,22 +252,6 @@ fn plan_train_step<'a>(
         })
         .collect();
     Ok((shape, runs))
-}
-
-/// A run's key depends on what it computes, not on step names, so identical runs in
-/// different steps share one entry.
-fn run_key(data_key: &str, net: &NetSpec, train: &TrainSpec, partition: usize) -> Key {
-    let settings = TrainSpec {
-        data: String::new(),
-        net: String::new(),
-        ..train.clone()
-    };
-    let mut hasher = blake3::Hasher::new();
-    hasher.update(&CACHE_FORMAT_VERSION.to_le_bytes());
-    hasher.update(b"run\0");
-    hasher.update(data_key.as_bytes());
-    hasher.update(&serde_json::to_vec(&(net, &settings, partition)).expect("specs serialise"));
-    hasher.finalize().to_hex().to_string()
 }
 
 /// Fits every queued run on a pool of `jobs` threads.

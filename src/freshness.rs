@@ -1,0 +1,65 @@
+//! Freshness, for `stet status`: for each step, whether a build would reuse it or run it, and why.
+
+use serde::Serialize;
+
+use crate::cache::{Cache, EntryKind};
+use crate::document::StepKind;
+use crate::manifest::{Manifest, StepInputs};
+use crate::plan::{Plan, PlannedStep, short_key};
+
+/// What a build would do with one step.
+#[derive(Clone, Debug, PartialEq, Serialize)]
+pub struct StepStatus {
+    pub id: String,
+    pub kind: StepKind,
+    pub short_key: String,
+    /// `None` when the result would be reused; otherwise why it would run.
+    pub run_reason: Option<&'static str>,
+    /// For train steps: (cached runs, all runs).
+    pub runs: Option<(usize, usize)>,
+}
+
+/// Whether each step's result is in the cache, and if not, what changed since the
+/// document was last built.
+pub fn status(plan: &Plan, cache: &Cache, previous: &Manifest) -> Vec<StepStatus> {
+    plan.steps
+        .iter()
+        .map(|step| {
+            let (cached, runs) = cached(step, cache);
+            StepStatus {
+                id: step.id.clone(),
+                kind: step.kind,
+                short_key: short_key(&step.key).to_string(),
+                run_reason: (!cached).then(|| reason(plan, step, previous)),
+                runs,
+            }
+        })
+        .collect()
+}
+
+fn cached(step: &PlannedStep, cache: &Cache) -> (bool, Option<(usize, usize)>) {
+    match step.kind {
+        StepKind::Data => (cache.contains(&step.key, EntryKind::DataSummary), None),
+        StepKind::Net => (cache.contains(&step.key, EntryKind::Net), None),
+        StepKind::Train => {
+            let done = step.runs.iter().filter(|key| cache.contains(key, EntryKind::Run)).count();
+            (done == step.runs.len(), Some((done, step.runs.len())))
+        }
+    }
+}
+
+fn reason(plan: &Plan, step: &PlannedStep, previous: &Manifest) -> &'static str {
+    let Some(before) = previous.steps.get(&step.id) else {
+        return "never run";
+    };
+    let now = StepInputs::of(plan, step);
+    if now.settings != before.settings {
+        "settings changed"
+    } else if now.files != before.files {
+        "file changed"
+    } else if now.upstream != before.upstream {
+        "upstream changed"
+    } else {
+        "not in the cache"
+    }
+}
