@@ -232,7 +232,7 @@ mod tests {
         let (l, c) = (labels(), classes(2));
         let folds = split_rows(Split::Folds(5), 40, strata(&l, &c), 11).unwrap();
         assert_eq!(folds.len(), 5);
-        let mut held_out = vec![0; 40];
+        let mut held_out = [0; 40];
         for f in &folds {
             for &r in &f.test {
                 held_out[r] += 1;
