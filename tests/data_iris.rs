@@ -75,6 +75,7 @@ fn five_folds_hold_each_row_out_once_with_ten_per_species() {
     for part in &p.partitions {
         assert_eq!(p.class_counts(&part.test_rows), vec![10, 10, 10]);
         assert_eq!(part.train_rows.len(), 120);
+        assert!(part.train_rows.is_sorted() && part.test_rows.is_sorted());
         for &r in &part.test_rows {
             times_held_out[r] += 1;
         }
