@@ -107,7 +107,7 @@ impl Encoding {
             });
         }
         let rows: Vec<usize> = (0..table.rows.len()).collect();
-        encode_rows(table, &self.columns, &positions, &rows, true)
+        encode_rows(table, &self.columns, &positions, &rows)
     }
 
     /// Whether each feature is a numeric column (true) or a one-hot indicator
@@ -155,14 +155,14 @@ pub fn fit(
     table: &Table,
     used: &UsedColumns,
     kept: &[usize],
-    task: Option<Task>,
+    requested: Option<Task>,
 ) -> Result<Encoded, DataError> {
     let columns: Vec<InputColumn> = used
         .inputs
         .iter()
         .map(|&c| describe_input(table, c, kept))
         .collect();
-    let x = encode_rows(table, &columns, &used.inputs, kept, false)?;
+    let x = encode_rows(table, &columns, &used.inputs, kept)?;
     let target_names: Vec<String> = used
         .targets
         .iter()
@@ -173,7 +173,7 @@ pub fn fit(
         kept.iter()
             .any(|&r| parse_number(cell(table, r, c)).is_none())
     });
-    let task = task.unwrap_or(if text_target {
+    let task = requested.unwrap_or(if text_target {
         Task::Classify
     } else {
         Task::Regress
@@ -186,7 +186,7 @@ pub fn fit(
                 return Err(DataError::ClassifyNeedsOneTarget {
                     count: target_names.len(),
                     targets: target_names,
-                    implied: text_target,
+                    implied: requested.is_none(),
                 });
             }
             let (classes, labels) = class_labels(table, used.targets[0], kept)?;
@@ -217,13 +217,12 @@ pub fn fit(
 }
 
 /// Encode the `rows` of `table`, reading input `columns[i]` from table column
-/// `positions[i]`. `check_missing` is for new rows, which were not filtered.
+/// `positions[i]`.
 fn encode_rows(
     table: &Table,
     columns: &[InputColumn],
     positions: &[usize],
     rows: &[usize],
-    check_missing: bool,
 ) -> Result<Array2<f64>, DataError> {
     let width = columns
         .iter()
@@ -237,7 +236,7 @@ fn encode_rows(
         let mut feature = 0;
         for (column, &pos) in columns.iter().zip(positions) {
             let value = cell(table, row, pos).trim();
-            if check_missing && is_missing(value) {
+            if is_missing(value) {
                 return Err(DataError::MissingInput {
                     line: table.line(row),
                     column: column.name.clone(),
@@ -547,6 +546,19 @@ mod tests {
                 ..
             }
         ));
+        // Said explicitly, the message must not claim the task was deduced.
+        let t = read_table(b"x,a,b\n1,1,2\n2,3,4\n").unwrap();
+        let err = fit(
+            &t,
+            &used(&t, &["x"], &["a", "b"]),
+            &all_rows(&t),
+            Some(Task::Classify),
+        )
+        .unwrap_err();
+        assert_eq!(
+            err.to_string(),
+            "classification predicts a single target column, but 2 were given (a, b)"
+        );
     }
 
     #[test]

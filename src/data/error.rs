@@ -251,8 +251,8 @@ pub enum DataError {
 
     /// Too few rows are left to fit and evaluate anything.
     #[error(
-        "only {rows} rows are left (of {read} read{}): at least {needed} are needed",
-        if *dropped > 0 { format!(", {dropped} dropped for missing values") } else { String::new() }
+        "too few rows: {rows} left of {read} read{}; at least {needed} are needed",
+        if *dropped > 0 { format!(" ({dropped} dropped for missing values)") } else { String::new() }
     )]
     TooFewRows {
         /// Rows left.

@@ -146,8 +146,13 @@ pub fn prepare(table: &Table, settings: &DataSettings) -> Result<Prepared, DataE
 /// Rows with no missing value in a used column; with `Missing::Error` the
 /// first other row is an error naming its line and column.
 fn kept_rows(table: &Table, used: &UsedColumns, missing: Missing) -> Result<Vec<usize>, DataError> {
+    // In file order, so the column named is the leftmost one a person would see.
+    let mut checked: Vec<usize> = used.all().collect();
+    checked.sort_unstable();
     let first_missing = |row: usize| {
-        used.all()
+        checked
+            .iter()
+            .copied()
             .find(|&c| is_missing(encode::cell(table, row, c)))
     };
     let (kept, with_missing): (Vec<usize>, Vec<usize>) =
@@ -211,6 +216,19 @@ mod tests {
     }
 
     #[test]
+    fn missing_error_names_the_leftmost_missing_column() {
+        let s = DataSettings {
+            inputs: Some(vec!["b".into(), "a".into()]),
+            ..settings("y")
+        };
+        let t = read_table(b"a,b,y\n1,p,0\nNA,,1\n").unwrap();
+        assert!(matches!(
+            prepare(&t, &s).unwrap_err(),
+            DataError::MissingValue { line: 3, column, more_rows: 0, .. } if column == "a"
+        ));
+    }
+
+    #[test]
     fn missing_drop_leaves_rows_out_and_counts_them() {
         let s = DataSettings {
             missing: Missing::Drop,
@@ -245,7 +263,7 @@ mod tests {
         let err = prepare(&t, &s).unwrap_err();
         assert_eq!(
             err.to_string(),
-            "only 1 rows are left (of 2 read, 1 dropped for missing values): at least 2 are needed"
+            "too few rows: 1 left of 2 read (1 dropped for missing values); at least 2 are needed"
         );
         let header_only = read_table(b"x,y\n").unwrap();
         assert!(matches!(

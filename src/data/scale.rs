@@ -1,5 +1,6 @@
-//! Rescaling numeric features so that they are of similar size, which helps
-//! gradient descent.
+//! Rescaling numeric features so that they are of similar size: common
+//! practice before gradient descent, so that no feature dominates the weight
+//! updates merely by its unit.
 //!
 //! A scaler is fitted on training rows only and then applied unchanged to test
 //! rows and new rows: fitting it on test rows would leak information about
