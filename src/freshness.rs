@@ -42,7 +42,11 @@ fn cached(step: &PlannedStep, cache: &Cache) -> (bool, Option<(usize, usize)>) {
         StepKind::Data => (cache.contains(&step.key, EntryKind::DataSummary), None),
         StepKind::Net => (cache.contains(&step.key, EntryKind::Net), None),
         StepKind::Train => {
-            let done = step.runs.iter().filter(|key| cache.contains(key, EntryKind::Run)).count();
+            let done = step
+                .runs
+                .iter()
+                .filter(|key| cache.contains(key, EntryKind::Run))
+                .count();
             (done == step.runs.len(), Some((done, step.runs.len())))
         }
     }

@@ -8,17 +8,17 @@
 
 pub mod atomic;
 pub mod cache;
-pub mod prune;
 pub mod data;
 pub mod document;
 pub mod fit;
+pub mod freshness;
 pub mod manifest;
 pub mod nn;
 pub mod outcome;
 pub mod plan;
+pub mod prune;
 pub mod report;
 pub mod run;
-pub mod freshness;
 
 use std::path::{Path, PathBuf};
 
@@ -189,12 +189,18 @@ pub fn status(document: &Path, cache: &CacheChoice) -> Result<Vec<freshness::Ste
 /// the whole cache. The cache is the one the first document (or the current folder)
 /// would use.
 pub fn clean(documents: &[PathBuf], cache: &CacheChoice) -> Result<prune::Freed, Error> {
-    let anchor = documents.first().cloned().unwrap_or_else(|| PathBuf::from("stet.md"));
+    let anchor = documents
+        .first()
+        .cloned()
+        .unwrap_or_else(|| PathBuf::from("stet.md"));
     let cache = open_cache(cache, &anchor);
     let Some(dir) = cache.dir().map(Path::to_path_buf) else {
         return Ok(prune::Freed::default());
     };
-    let loaded = documents.iter().map(|path| load(path)).collect::<Result<Vec<_>, _>>()?;
+    let loaded = documents
+        .iter()
+        .map(|path| load(path))
+        .collect::<Result<Vec<_>, _>>()?;
     let plans: Vec<&Plan> = loaded.iter().map(|l| &l.plan).collect();
     let keep = (!documents.is_empty()).then(|| prune::used_entries(&plans, &cache));
     prune::remove_unused(&dir, keep.as_ref()).map_err(|source| Error::Io {

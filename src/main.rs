@@ -89,7 +89,11 @@ fn run(command: Command) -> Result<ExitCode, Error> {
                 document,
                 output,
                 json,
-                cache: if no_cache { CacheChoice::Off } else { cache_choice(cache) },
+                cache: if no_cache {
+                    CacheChoice::Off
+                } else {
+                    cache_choice(cache)
+                },
                 jobs: jobs.unwrap_or_else(default_jobs),
                 templates,
                 allow_html,
@@ -121,9 +125,9 @@ fn run(command: Command) -> Result<ExitCode, Error> {
                     None => "reuse".to_string(),
                     Some(reason) => format!("run ({reason})"),
                 };
-                let runs = step
-                    .runs
-                    .map_or(String::new(), |(done, all)| format!("  {done}/{all} runs cached"));
+                let runs = step.runs.map_or(String::new(), |(done, all)| {
+                    format!("  {done}/{all} runs cached")
+                });
                 println!(
                     "{:<16} {:<6} {}  {decision}{runs}",
                     step.id,

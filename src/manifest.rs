@@ -24,8 +24,16 @@ impl StepInputs {
         StepInputs {
             key: step.key.clone(),
             settings: blake3::hash(&settings).to_hex().to_string(),
-            files: step.files.iter().map(|f| f.hash.to_hex().to_string()).collect(),
-            upstream: step.upstream.iter().map(|&u| plan.steps[u].key.clone()).collect(),
+            files: step
+                .files
+                .iter()
+                .map(|f| f.hash.to_hex().to_string())
+                .collect(),
+            upstream: step
+                .upstream
+                .iter()
+                .map(|&u| plan.steps[u].key.clone())
+                .collect(),
         }
     }
 }
@@ -37,9 +45,16 @@ pub struct Manifest {
 }
 
 fn path_for(cache: &Cache, document: &Path) -> Option<std::path::PathBuf> {
-    let canonical = document.canonicalize().unwrap_or_else(|_| document.to_path_buf());
+    let canonical = document
+        .canonicalize()
+        .unwrap_or_else(|_| document.to_path_buf());
     let name = blake3::hash(canonical.to_string_lossy().as_bytes()).to_hex();
-    Some(cache.dir()?.join("documents").join(format!("{}.json", &name[..32])))
+    Some(
+        cache
+            .dir()?
+            .join("documents")
+            .join(format!("{}.json", &name[..32])),
+    )
 }
 
 /// The manifest of a document's last build, if there was one.

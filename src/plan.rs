@@ -5,8 +5,8 @@ use std::collections::HashMap;
 use std::path::{Path, PathBuf};
 use std::sync::Arc;
 
-use crate::document::problem::nearest;
 use crate::data::Split;
+use crate::document::problem::nearest;
 use crate::document::spec::{NetSpec, TrainSpec, parse_step};
 use crate::document::{Document, Problem, StepBlock, StepKind, StepSpec};
 
@@ -237,14 +237,18 @@ fn run_keys(steps: &[PlannedStep], index: usize) -> Vec<Key> {
         return Vec::new();
     };
     let data = &steps[steps[index].upstream[0]];
-    let (StepSpec::Data(data_spec), StepSpec::Net(net)) = (&data.spec, &steps[steps[index].upstream[1]].spec) else {
+    let (StepSpec::Data(data_spec), StepSpec::Net(net)) =
+        (&data.spec, &steps[steps[index].upstream[1]].spec)
+    else {
         unreachable!("references were checked")
     };
     let partitions = match data_spec.settings.split {
         Split::Holdout(_) => 1,
         Split::Folds(folds) => folds,
     };
-    (0..partitions).map(|partition| run_key(&data.key, net, train, partition)).collect()
+    (0..partitions)
+        .map(|partition| run_key(&data.key, net, train, partition))
+        .collect()
 }
 
 /// A run's key depends on what it computes, not on step names, so identical runs in

@@ -24,8 +24,16 @@ pub fn used_entries(plans: &[&Plan], cache: &Cache) -> HashSet<PathBuf> {
                 StepKind::Net => &[EntryKind::Net],
                 StepKind::Train => &[],
             };
-            used.extend(kinds.iter().filter_map(|&kind| cache.entry_path(&step.key, kind)));
-            used.extend(step.runs.iter().filter_map(|key| cache.entry_path(key, EntryKind::Run)));
+            used.extend(
+                kinds
+                    .iter()
+                    .filter_map(|&kind| cache.entry_path(&step.key, kind)),
+            );
+            used.extend(
+                step.runs
+                    .iter()
+                    .filter_map(|key| cache.entry_path(key, EntryKind::Run)),
+            );
         }
     }
     used
