@@ -1,0 +1,123 @@
+//! Shared helpers for the integration tests: a fresh folder per test, the real binary,
+//! and the `--json` summary parsed.
+
+#![allow(dead_code)] // each test file uses its own subset
+
+use std::path::{Path, PathBuf};
+use std::process::{Command, Output};
+
+use serde_json::Value;
+
+/// The project root, where `experiments/`, `demo-data/` and `tests/data/` live.
+pub fn project() -> PathBuf {
+    PathBuf::from(env!("CARGO_MANIFEST_DIR"))
+}
+
+/// A temporary folder that holds copies of the demo data and documents, laid out as in
+/// the project so that relative paths keep working.
+pub struct Workspace {
+    pub dir: tempfile::TempDir,
+}
+
+impl Workspace {
+    pub fn new() -> Workspace {
+        let dir = tempfile::tempdir().expect("a temporary folder");
+        for folder in ["experiments", "demo-data"] {
+            std::fs::create_dir_all(dir.path().join(folder)).unwrap();
+        }
+        for name in [
+            "hives.csv",
+            "greenhouse.csv",
+            "hives-new.csv",
+            "greenhouse-new.csv",
+        ] {
+            std::fs::copy(
+                project().join("demo-data").join(name),
+                dir.path().join("demo-data").join(name),
+            )
+            .unwrap();
+        }
+        std::fs::copy(
+            project().join("tests/data/iris.csv"),
+            dir.path().join("iris.csv"),
+        )
+        .unwrap();
+        Workspace { dir }
+    }
+
+    pub fn path(&self, relative: &str) -> PathBuf {
+        self.dir.path().join(relative)
+    }
+
+    /// Writes a file into the workspace.
+    pub fn write(&self, relative: &str, text: &str) -> PathBuf {
+        let path = self.path(relative);
+        std::fs::create_dir_all(path.parent().unwrap()).unwrap();
+        std::fs::write(&path, text).unwrap();
+        path
+    }
+
+    /// Copies a demo document into the workspace's `experiments/`.
+    pub fn demo(&self, name: &str) -> PathBuf {
+        let target = self.path(&format!("experiments/{name}"));
+        std::fs::copy(project().join("experiments").join(name), &target).unwrap();
+        target
+    }
+
+    /// Runs `stet build DOC --json …` with extra arguments; returns the output and summary.
+    pub fn build(&self, document: &Path, extra: &[&str]) -> (Output, Option<Value>) {
+        let json = self.path("summary.json");
+        let _ = std::fs::remove_file(&json);
+        let mut args = vec!["build".to_string(), document.display().to_string()];
+        args.push("--json".into());
+        args.push(json.display().to_string());
+        args.extend(extra.iter().map(|s| s.to_string()));
+        let output = stet(&args, self.dir.path());
+        let summary = std::fs::read(&json)
+            .ok()
+            .map(|bytes| serde_json::from_slice(&bytes).unwrap());
+        (output, summary)
+    }
+
+    /// A build that must succeed; returns its summary.
+    pub fn build_ok(&self, document: &Path, extra: &[&str]) -> Value {
+        let (output, summary) = self.build(document, extra);
+        assert!(
+            output.status.success(),
+            "stet build failed: {}",
+            String::from_utf8_lossy(&output.stderr)
+        );
+        summary.expect("a JSON summary")
+    }
+}
+
+/// Runs the stet binary in `dir` with `args`, with `STET_CACHE` unset.
+pub fn stet(args: &[String], dir: &Path) -> Output {
+    Command::new(env!("CARGO_BIN_EXE_stet"))
+        .args(args)
+        .current_dir(dir)
+        .env_remove("STET_CACHE")
+        .output()
+        .expect("the stet binary runs")
+}
+
+/// The ids of the steps with a given status.
+pub fn ids_with_status(summary: &Value, status: &str) -> Vec<String> {
+    summary["steps"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .filter(|step| step["status"] == status)
+        .map(|step| step["id"].as_str().unwrap().to_string())
+        .collect()
+}
+
+/// A step's object in the summary.
+pub fn step<'a>(summary: &'a Value, id: &str) -> &'a Value {
+    summary["steps"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .find(|step| step["id"] == id)
+        .unwrap_or_else(|| panic!("no step {id}"))
+}
