@@ -1,0 +1,50 @@
+//! The demo documents build into complete reports, and rebuild to the same numbers.
+
+mod common;
+
+use common::{Workspace, ids_with_status};
+
+fn build_demo(name: &str, steps: usize) {
+    let ws = Workspace::new();
+    let doc = ws.demo(name);
+    let first = ws.build_ok(&doc, &["--no-cache"]);
+    let listed = first["steps"].as_array().unwrap();
+    assert_eq!(listed.len(), steps);
+    assert_eq!(ids_with_status(&first, "ran").len(), steps);
+
+    let html = std::fs::read_to_string(doc.with_extension("html")).unwrap();
+    assert_eq!(html.matches("<section class=\"step ").count(), steps);
+    let trains = listed.iter().filter(|s| s["kind"] == "train").count();
+    assert_eq!(html.matches("<svg").count(), trains, "one loss chart per train step");
+    assert!(html.contains("<table class=\"grid numeric metrics\">"));
+    assert!(html.contains("<style>") && !html.contains("<link "), "CSS is inline");
+    assert!(!html.contains("<script"), "the report needs no script");
+
+    let second = ws.build_ok(&doc, &["--no-cache"]);
+    for (a, b) in listed.iter().zip(second["steps"].as_array().unwrap()) {
+        assert_eq!(a["metrics"], b["metrics"], "{}", a["id"]);
+        assert_eq!(a["stop"], b["stop"], "{}", a["id"]);
+    }
+}
+
+#[test]
+fn the_hives_demo_builds_a_complete_report() {
+    build_demo("hives.md", 7);
+}
+
+#[test]
+fn the_greenhouse_demo_builds_a_complete_report() {
+    build_demo("greenhouse.md", 6);
+}
+
+#[test]
+fn the_hives_report_shows_a_confusion_matrix_with_class_labels() {
+    let ws = Workspace::new();
+    let doc = ws.demo("hives.md");
+    ws.build_ok(&doc, &[]);
+    let html = std::fs::read_to_string(doc.with_extension("html")).unwrap();
+    assert!(html.contains("<table class=\"grid numeric confusion\">"));
+    for label in ["healthy", "queenless", "swarming"] {
+        assert!(html.contains(&format!("<th>{label}</th>")), "{label}");
+    }
+}
