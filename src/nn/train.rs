@@ -330,3 +330,330 @@ fn stopped(
         best_epoch: monitor.and_then(|m| m.best_epoch),
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::nn::{Activation, Init, Layer};
+    use ndarray::{Array2, array};
+
+    fn sgd(learning_rate: f64, momentum: f64) -> Optimizer {
+        Optimizer::Sgd {
+            learning_rate,
+            momentum,
+        }
+    }
+
+    fn config(optimizer: Optimizer, batch: BatchSize, epochs: usize) -> TrainConfig {
+        TrainConfig {
+            loss: Loss::Mse,
+            optimizer,
+            batch,
+            epochs,
+            target_loss: None,
+            patience: None,
+            l2: 0.0,
+            shuffle: false,
+            seed: 0,
+            update_biases: true,
+        }
+    }
+
+    /// Seven rows of a smooth two-input function with one output.
+    fn data() -> (Array2<f64>, Array2<f64>) {
+        let x = Array2::from_shape_fn((7, 2), |(i, j)| ((i * 3 + j * 5) % 7) as f64 / 7.0 - 0.4);
+        let y = Array2::from_shape_fn((7, 1), |(i, _)| (x[[i, 0]] * 2.0 - x[[i, 1]]).sin());
+        (x, y)
+    }
+
+    fn small_net(seed: u64) -> Network {
+        Network::initialise(
+            &[2, 5, 1],
+            Activation::Tanh,
+            Activation::Linear,
+            Init::Xavier,
+            seed,
+        )
+    }
+
+    #[test]
+    fn epoch_loss_weights_batches_by_rows() {
+        // With a zero learning rate nothing moves, so the epoch loss must be the
+        // mean over all rows, not the mean of the three batch means (3, 3, 1 rows).
+        let (x, y) = data();
+        let net = small_net(1);
+        let out = train(
+            net.clone(),
+            x.view(),
+            y.view(),
+            None,
+            &config(sgd(0.0, 0.0), BatchSize::Rows(3), 2),
+        );
+        let expected = mean_loss(&net, x.view(), y.view(), Loss::Mse);
+        assert!((out.history[0].train - expected).abs() < 1e-15);
+        assert_eq!(out.history[0], out.history[1]);
+        assert_eq!(out.network, net);
+    }
+
+    #[test]
+    fn batch_losses_are_taken_before_each_update() {
+        // Two rows, one update per row: the epoch loss is the mean of row 1's loss
+        // at the initial weights and row 2's loss after the first update.
+        let (x, y) = data();
+        let (x2, y2) = (x.slice(s![..2, ..]), y.slice(s![..2, ..]));
+        let net = small_net(2);
+        let cfg = config(sgd(0.3, 0.0), BatchSize::Rows(1), 1);
+        let after_first = train(
+            net.clone(),
+            x2.slice(s![..1, ..]),
+            y2.slice(s![..1, ..]),
+            None,
+            &cfg,
+        )
+        .network;
+        let expected = (mean_loss(
+            &net,
+            x2.slice(s![..1, ..]),
+            y2.slice(s![..1, ..]),
+            Loss::Mse,
+        ) + mean_loss(
+            &after_first,
+            x2.slice(s![1.., ..]),
+            y2.slice(s![1.., ..]),
+            Loss::Mse,
+        )) / 2.0;
+        let out = train(net, x2, y2, None, &cfg);
+        assert!((out.history[0].train - expected).abs() < 1e-15);
+    }
+
+    #[test]
+    fn full_batch_is_rows_n_and_ignores_shuffle() {
+        let (x, y) = data();
+        let mut full = config(sgd(0.1, 0.9), BatchSize::Full, 5);
+        let a = train(small_net(3), x.view(), y.view(), None, &full);
+        full.batch = BatchSize::Rows(7);
+        let b = train(small_net(3), x.view(), y.view(), None, &full);
+        full.batch = BatchSize::Rows(100);
+        full.shuffle = true;
+        let c = train(small_net(3), x.view(), y.view(), None, &full);
+        assert_eq!(a, b);
+        assert_eq!(a, c);
+    }
+
+    #[test]
+    fn same_seed_same_outcome_other_seed_differs() {
+        let (x, y) = data();
+        let mut cfg = config(sgd(0.05, 0.5), BatchSize::Rows(2), 20);
+        cfg.shuffle = true;
+        cfg.seed = 9;
+        let validation = Some((x.view(), y.view()));
+        let a = train(small_net(4), x.view(), y.view(), validation, &cfg);
+        let b = train(small_net(4), x.view(), y.view(), validation, &cfg);
+        assert_eq!(a, b);
+        cfg.seed = 10;
+        let c = train(small_net(4), x.view(), y.view(), validation, &cfg);
+        assert_ne!(
+            a.network, c.network,
+            "another shuffle seed should give other weights"
+        );
+        cfg.shuffle = false;
+        let d = train(small_net(4), x.view(), y.view(), validation, &cfg);
+        assert_ne!(a.network, d.network, "shuffling should change the result");
+    }
+
+    #[test]
+    fn l2_adds_l2_times_weights_to_the_gradient() {
+        // One full-batch SGD step: w' = w − η (∂L/∂w + λ w); biases get no λ term.
+        let (x, y) = data();
+        let net = small_net(5);
+        let (eta, lambda) = (0.1, 0.03);
+        let mut cfg = config(sgd(eta, 0.0), BatchSize::Full, 1);
+        cfg.l2 = lambda;
+        let out = train(net.clone(), x.view(), y.view(), None, &cfg);
+        let grads = crate::nn::gradients(&net, x.view(), y.view(), Loss::Mse);
+        for ((before, after), g) in net.layers.iter().zip(&out.network.layers).zip(&grads) {
+            let expected_w = &before.weights - &((&g.weights + &(&before.weights * lambda)) * eta);
+            let expected_b = &before.biases - &(&g.biases * eta);
+            assert!(
+                (&after.weights - &expected_w)
+                    .iter()
+                    .all(|d| d.abs() < 1e-15)
+            );
+            assert!(
+                (&after.biases - &expected_b)
+                    .iter()
+                    .all(|d| d.abs() < 1e-15)
+            );
+        }
+        // The recorded loss excludes the penalty.
+        assert_eq!(
+            out.history[0].train,
+            mean_loss(&net, x.view(), y.view(), Loss::Mse)
+        );
+    }
+
+    #[test]
+    fn fixed_biases() {
+        let (x, y) = data();
+        let net = small_net(6);
+        let mut cfg = config(sgd(0.1, 0.9), BatchSize::Rows(2), 3);
+        cfg.update_biases = false;
+        let out = train(net.clone(), x.view(), y.view(), None, &cfg);
+        for (before, after) in net.layers.iter().zip(&out.network.layers) {
+            assert_eq!(before.biases, after.biases);
+            assert_ne!(before.weights, after.weights);
+        }
+    }
+
+    #[test]
+    fn epoch_limit() {
+        let (x, y) = data();
+        let out = train(
+            small_net(7),
+            x.view(),
+            y.view(),
+            None,
+            &config(sgd(0.05, 0.0), BatchSize::Rows(4), 12),
+        );
+        assert_eq!(
+            (out.stop, out.epochs_run, out.history.len(), out.best_epoch),
+            (StopReason::EpochLimit, 12, 12, None)
+        );
+        assert!(out.history.iter().all(|e| e.validation.is_none()));
+        let none = train(
+            small_net(7),
+            x.view(),
+            y.view(),
+            None,
+            &config(sgd(0.05, 0.0), BatchSize::Rows(4), 0),
+        );
+        assert_eq!(
+            (none.stop, none.epochs_run, none.history.len()),
+            (StopReason::EpochLimit, 0, 0)
+        );
+        assert_eq!(none.network, small_net(7));
+    }
+
+    #[test]
+    fn target_loss_stops_at_the_first_epoch_below_it() {
+        let (x, y) = data();
+        let mut cfg = config(sgd(0.1, 0.5), BatchSize::Full, 2000);
+        // Aim at a value the unconstrained run passes partway through.
+        let free = train(small_net(8), x.view(), y.view(), None, &cfg);
+        let target = free.history[50].train;
+        cfg.target_loss = Some(target);
+        let out = train(small_net(8), x.view(), y.view(), None, &cfg);
+        assert_eq!(out.stop, StopReason::TargetLoss);
+        let k = out.epochs_run;
+        assert!(out.history[k - 1].train <= target);
+        assert!(out.history[..k - 1].iter().all(|e| e.train > target));
+        assert_eq!(out.history[..], free.history[..k]);
+    }
+
+    #[test]
+    fn patience_on_a_flat_training_loss() {
+        // Nothing learns at rate 0: epoch 1 is the best and never strictly beaten.
+        let (x, y) = data();
+        let mut cfg = config(sgd(0.0, 0.0), BatchSize::Full, 100);
+        cfg.patience = Some(4);
+        let out = train(small_net(9), x.view(), y.view(), None, &cfg);
+        assert_eq!(
+            (out.stop, out.epochs_run, out.best_epoch),
+            (StopReason::NoImprovement, 5, Some(1))
+        );
+    }
+
+    #[test]
+    fn patience_returns_the_best_validation_weights() {
+        // A wide net fitted to eight rows while validated on rows of another
+        // function: the validation loss turns up and early stopping kicks in.
+        let x = Array2::from_shape_fn((8, 2), |(i, j)| (i as f64 * 0.37 + j as f64 * 0.81).sin());
+        let y = Array2::from_shape_fn((8, 1), |(i, _)| (3.0 * x[[i, 0]]).cos() * x[[i, 1]]);
+        let vx = Array2::from_shape_fn((8, 2), |(i, j)| {
+            (i as f64 * 0.53 + j as f64 * 0.29 + 0.2).cos()
+        });
+        let vy = Array2::from_shape_fn((8, 1), |(i, _)| vx[[i, 0]] - vx[[i, 1]]);
+        let net = Network::initialise(
+            &[2, 16, 1],
+            Activation::Tanh,
+            Activation::Linear,
+            Init::Xavier,
+            10,
+        );
+        let mut cfg = config(sgd(0.2, 0.9), BatchSize::Rows(3), 5000);
+        cfg.patience = Some(10);
+        let out = train(net, x.view(), y.view(), Some((vx.view(), vy.view())), &cfg);
+        assert_eq!(out.stop, StopReason::NoImprovement);
+        let best = out.best_epoch.expect("patience was set");
+        assert_eq!(out.epochs_run, best + 10);
+        let losses: Vec<f64> = out.history.iter().map(|e| e.validation.unwrap()).collect();
+        let lowest = losses.iter().copied().fold(f64::INFINITY, f64::min);
+        assert_eq!(losses[best - 1], lowest);
+        assert_eq!(
+            mean_loss(&out.network, vx.view(), vy.view(), Loss::Mse),
+            lowest
+        );
+    }
+
+    #[test]
+    fn divergence_is_reported_not_panicked() {
+        // y = 100 x with a far too large step: the linear fit overshoots further
+        // at every update until the loss overflows.
+        let x = Array2::from_shape_fn((10, 1), |(i, _)| i as f64);
+        let y = &x * 100.0;
+        let net = Network::from_layers(vec![Layer {
+            weights: array![[0.0]],
+            biases: array![0.0],
+            activation: Activation::Linear,
+        }]);
+        let out = train(
+            net,
+            x.view(),
+            y.view(),
+            None,
+            &config(sgd(10.0, 0.0), BatchSize::Full, 1000),
+        );
+        assert_eq!(out.stop, StopReason::Diverged);
+        // Each step multiplies the weight error by about η·mean(x²) = 285 and so the
+        // loss by about 8e4: it overflows f64 after some 60 epochs (63 here).
+        assert!(
+            (20..500).contains(&out.epochs_run),
+            "diverged at epoch {}",
+            out.epochs_run
+        );
+        assert_eq!(out.history.len(), out.epochs_run - 1);
+        assert!(out.history.iter().all(|e| e.train.is_finite()));
+        // The returned weights are those that gave the non-finite loss.
+        assert!(!mean_loss(&out.network, x.view(), y.view(), Loss::Mse).is_finite());
+    }
+
+    #[test]
+    #[should_panic(expected = "cannot follow")]
+    fn cross_entropy_needs_probabilities() {
+        let (x, y) = data();
+        let mut cfg = config(sgd(0.1, 0.0), BatchSize::Full, 1);
+        cfg.loss = Loss::CrossEntropy;
+        train(small_net(0), x.view(), y.view(), None, &cfg);
+    }
+
+    #[test]
+    fn config_serde_round_trip() {
+        let mut cfg = config(
+            Optimizer::Adam {
+                learning_rate: 0.001,
+                beta1: 0.9,
+                beta2: 0.999,
+                epsilon: 1e-8,
+            },
+            BatchSize::Rows(32),
+            10,
+        );
+        cfg.patience = Some(3);
+        let json = serde_json::to_string(&cfg).unwrap();
+        assert!(
+            json.contains("\"adam\"") && json.contains("\"rows\":32"),
+            "{json}"
+        );
+        assert_eq!(serde_json::from_str::<TrainConfig>(&json).unwrap(), cfg);
+    }
+}
