@@ -14,7 +14,8 @@
 //! * [`Init::Uniform`]: weights and biases from `U(−r, r)`, `r = 1 / √fan_in`.
 //!
 //! Xavier with uniform biases follows scikit-learn's MLP initialisation
-//! (which uses that bound, with a factor 2 inside the root for sigmoid).
+//! (its `_init_coef` uses that bound for weights and intercepts, with 2 in
+//! place of 6 for logistic layers).
 //! Draws come from a ChaCha8 generator seeded with `seed` on its own stream
 //! ([`INIT_STREAM`](super::INIT_STREAM)), layer by layer, weights in
 //! row-major order before biases, so the same seed gives the same network

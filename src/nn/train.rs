@@ -31,10 +31,14 @@
 //!    (`Some(0)` stops at the first epoch that does not improve, like `Some(1)`);
 //! 4. after `epochs` epochs the run ends with [`StopReason::EpochLimit`].
 //!
-//! Everything is sequential and seeded, so the same inputs give the same
-//! outcome bit for bit on a given machine. (Matrix products use
-//! `matrixmultiply`, which picks an AVX/FMA kernel at run time, so machines
-//! with different SIMD support may differ in the last bits.)
+//! Every reduction runs in a fixed order and all randomness is seeded, so
+//! the same inputs give the same outcome bit for bit. Matrix products use
+//! `matrixmultiply` (through ndarray), whose threads split the output matrix
+//! but never a dot product, so the thread count (`MATMUL_NUM_THREADS`,
+//! default: physical cores) does not change any result. It does pick an
+//! FMA/AVX kernel at run time, so machines with different SIMD support
+//! may differ in the last bits, as may platforms whose `exp`/`tanh`/`ln`
+//! differ.
 
 use ndarray::{Array2, ArrayView2, Zip, s};
 use rand::SeedableRng;
