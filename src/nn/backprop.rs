@@ -54,6 +54,8 @@ pub fn gradients(
     y: ArrayView2<f64>,
     loss: Loss,
 ) -> Vec<LayerGradient> {
+    assert!(x.nrows() > 0, "gradients need at least one row");
+    assert_eq!(x.nrows(), y.nrows(), "inputs and targets: row counts");
     let mut workspace = Workspace::new(network, x.nrows());
     workspace.forward(network, x);
     workspace.backward(network, x, y, loss);

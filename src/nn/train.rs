@@ -5,9 +5,9 @@
 //! stream ([`SHUFFLE_STREAM`](super::SHUFFLE_STREAM), distinct from the one
 //! used for initial weights). [`BatchSize::Rows`]`(k)` takes `k` consecutive
 //! rows of that order per update, the last batch holding what is left;
-//! [`BatchSize::Full`] makes one batch of every row (which is then not
-//! shuffled: the order of a single batch cannot change the update beyond
-//! rounding).
+//! [`BatchSize::Full`] makes one batch of every row. A single batch (`Full`,
+//! or `Rows(k)` with `k ≥` the row count) is not shuffled: its order cannot
+//! change the update beyond rounding.
 //!
 //! The epoch's training loss is the row-weighted mean of the batch losses,
 //! each computed in that batch's forward pass before its update, so it
@@ -133,9 +133,9 @@ pub struct TrainOutcome {
 /// optional validation data `(x, y)`.
 ///
 /// # Panics
-/// If `x` has no rows, the shapes do not fit the network, the loss does not
-/// [support](Loss::supports) the output activation, or the batch size is
-/// `Rows(0)`.
+/// If `x` or the validation inputs have no rows, the shapes do not fit the
+/// network, the loss does not [support](Loss::supports) the output
+/// activation, or the batch size is `Rows(0)`.
 pub fn train(
     network: Network,
     x: ArrayView2<f64>,
@@ -147,7 +147,6 @@ pub fn train(
     // built through `from_layers`.
     let mut network = Network::from_layers(network.layers);
     let n = x.nrows();
-    assert!(n > 0, "training needs at least one row");
     check_data(&network, x, y, "training");
     if let Some((vx, vy)) = validation {
         check_data(&network, vx, vy, "validation");
@@ -258,8 +257,8 @@ pub fn train(
 /// term.
 ///
 /// # Panics
-/// If the shapes do not fit the network or the loss does not
-/// [support](Loss::supports) the output activation.
+/// If `x` has no rows, the shapes do not fit the network, or the loss does
+/// not [support](Loss::supports) the output activation.
 pub fn mean_loss(network: &Network, x: ArrayView2<f64>, y: ArrayView2<f64>, loss: Loss) -> f64 {
     check_data(network, x, y, "evaluation");
     let output = network.layers[network.layers.len() - 1].activation;
@@ -267,6 +266,7 @@ pub fn mean_loss(network: &Network, x: ArrayView2<f64>, y: ArrayView2<f64>, loss
 }
 
 fn check_data(network: &Network, x: ArrayView2<f64>, y: ArrayView2<f64>, what: &str) {
+    assert!(x.nrows() > 0, "{what} data needs at least one row");
     assert_eq!(
         x.ncols(),
         network.input_size(),
