@@ -35,6 +35,6 @@ pub use train::{BatchSize, EpochLosses, StopReason, TrainConfig, TrainOutcome, m
 /// ChaCha8 stream used for initial weights. Initialisation and shuffling use
 /// different streams so that the same seed value given to both does not
 /// make them draw the same numbers.
-pub(crate) const INIT_STREAM: u64 = 1;
+pub const INIT_STREAM: u64 = 1;
 /// ChaCha8 stream used for the per-epoch row order.
-pub(crate) const SHUFFLE_STREAM: u64 = 2;
+pub const SHUFFLE_STREAM: u64 = 2;

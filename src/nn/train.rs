@@ -21,8 +21,8 @@
 //! After each epoch, in this order:
 //! 1. a non-finite batch loss (checked as each batch is seen, so the run stops
 //!    mid-epoch before updating with it), or a non-finite epoch or validation
-//!    loss, gives [`StopReason::Diverged`], returning the weights that
-//!    produced it;
+//!    loss, gives [`StopReason::Diverged`], returning the weights as they
+//!    were at that moment (for a batch, those that produced the bad loss);
 //! 2. a training loss at or below `target_loss` gives [`StopReason::TargetLoss`];
 //! 3. with `patience = Some(p)`, the validation loss (the training loss when
 //!    there is no validation data) is monitored, and after `p` consecutive
@@ -115,7 +115,8 @@ pub struct EpochLosses {
 pub struct TrainOutcome {
     /// The trained network: the last weights, except for
     /// [`StopReason::NoImprovement`] (the best epoch's) and
-    /// [`StopReason::Diverged`] (those that gave the non-finite loss).
+    /// [`StopReason::Diverged`] (the weights when the non-finite loss was
+    /// seen: for a batch loss, those that produced it).
     pub network: Network,
     /// One entry per completed epoch. All entries are finite: an epoch that
     /// diverged is not recorded, so then `history.len() == epochs_run − 1`.
