@@ -30,7 +30,10 @@ pub use metrics::{
 };
 pub use network::{Init, Layer, Network, NetworkError};
 pub use optimizer::Optimizer;
-pub use train::{BatchSize, EpochLosses, StopReason, TrainConfig, TrainOutcome, mean_loss, train};
+pub use train::{
+    BatchSize, EpochLosses, StopReason, TrainConfig, TrainOutcome, mean_loss, train,
+    train_with_progress,
+};
 
 /// ChaCha8 stream used for initial weights. Initialisation and shuffling use
 /// different streams so that the same seed value given to both does not

@@ -144,6 +144,22 @@ pub fn train(
     validation: Option<(ArrayView2<f64>, ArrayView2<f64>)>,
     config: &TrainConfig,
 ) -> TrainOutcome {
+    train_with_progress(network, x, y, validation, config, |_, _| {})
+}
+
+/// [`train`], calling `on_epoch(epoch, losses)` (1-based epoch) after each
+/// epoch that is recorded in the history, e.g. to drive a progress bar.
+///
+/// # Panics
+/// As [`train`].
+pub fn train_with_progress(
+    network: Network,
+    x: ArrayView2<f64>,
+    y: ArrayView2<f64>,
+    validation: Option<(ArrayView2<f64>, ArrayView2<f64>)>,
+    config: &TrainConfig,
+    mut on_epoch: impl FnMut(usize, &EpochLosses),
+) -> TrainOutcome {
     // Re-validate: the fields are public, so the network may not have been
     // built through `from_layers`.
     let mut network = Network::from_layers(network.layers);
@@ -228,10 +244,12 @@ pub fn train(
         if !train_loss.is_finite() || validation_loss.is_some_and(|v| !v.is_finite()) {
             return stopped(network, history, StopReason::Diverged, epoch, monitor);
         }
-        history.push(EpochLosses {
+        let losses = EpochLosses {
             train: train_loss,
             validation: validation_loss,
-        });
+        };
+        on_epoch(epoch, &losses);
+        history.push(losses);
         if config
             .target_loss
             .is_some_and(|target| train_loss <= target)
@@ -630,6 +648,25 @@ mod tests {
         assert!(out.history.iter().all(|e| e.train.is_finite()));
         // The returned weights are those that gave the non-finite loss.
         assert!(!mean_loss(&out.network, x.view(), y.view(), Loss::Mse).is_finite());
+    }
+
+    #[test]
+    fn progress_sees_every_recorded_epoch() {
+        let (x, y) = data();
+        let mut seen = Vec::new();
+        let cfg = config(sgd(0.05, 0.5), BatchSize::Rows(3), 6);
+        let out = train_with_progress(small_net(11), x.view(), y.view(), None, &cfg, |e, l| {
+            seen.push((e, *l))
+        });
+        let expected: Vec<_> = out
+            .history
+            .iter()
+            .copied()
+            .enumerate()
+            .map(|(i, l)| (i + 1, l))
+            .collect();
+        assert_eq!(seen, expected);
+        assert_eq!(seen.len(), 6);
     }
 
     #[test]
