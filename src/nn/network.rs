@@ -119,8 +119,8 @@ impl Layer {
     /// Computes this layer's activations for `input` into `out`, which must
     /// have shape `(input.nrows(), self.outputs())`. Allocates nothing.
     pub(crate) fn forward_into(&self, input: ArrayView2<f64>, mut out: ArrayViewMut2<f64>) {
-        // Bias first, then `out = 1·(input · W) + 1·out`: the product is
-        // formed before the bias is added, as in `input.dot(W) + b`.
+        // Bias first, then `out ← input · W + out` accumulates the product
+        // onto it in one pass, with no temporary matrix.
         out.assign(&self.biases);
         general_mat_mul(1.0, &input, &self.weights, 1.0, &mut out);
         self.activation.apply(out);
