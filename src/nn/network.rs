@@ -35,9 +35,9 @@ use super::activation::Activation;
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Hash, Serialize, Deserialize)]
 #[serde(rename_all = "snake_case")]
 pub enum Init {
-    /// Glorot/Xavier uniform, for sigmoid and tanh layers.
+    /// Glorot/Xavier uniform; suits sigmoid and tanh layers (common practice).
     Xavier,
-    /// He normal, for relu-like layers.
+    /// He normal; suits relu-like layers (common practice).
     He,
     /// `U(±1/√fan_in)`.
     Uniform,
