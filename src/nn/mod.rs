@@ -13,6 +13,31 @@
 //! * [`optimizer`]: SGD with momentum and Adam;
 //! * [`train`](mod@train): batching, shuffling and stopping;
 //! * [`metrics`]: classification and regression scores for reports.
+//!
+//! ```
+//! use ndarray::array;
+//! use stet::nn::{Activation, BatchSize, Init, Loss, Network, Optimizer, StopReason, TrainConfig, train};
+//!
+//! let x = array![[0.0, 0.0], [0.0, 1.0], [1.0, 0.0], [1.0, 1.0]];
+//! let y = array![[0.0], [1.0], [1.0], [0.0]];
+//! let network = Network::initialise(&[2, 3, 1], Activation::Sigmoid, Activation::Sigmoid, Init::Xavier, 1);
+//! let config = TrainConfig {
+//!     loss: Loss::Mse,
+//!     optimizer: Optimizer::Sgd { learning_rate: 0.5, momentum: 0.9 },
+//!     batch: BatchSize::Full,
+//!     epochs: 5_000,
+//!     target_loss: Some(0.01),
+//!     patience: None,
+//!     l2: 0.0,
+//!     shuffle: false,
+//!     seed: 0,
+//!     update_biases: true,
+//! };
+//! let outcome = train(network, x.view(), y.view(), None, &config);
+//! assert_eq!(outcome.stop, StopReason::TargetLoss);
+//! let predictions = outcome.network.predict(x.view());
+//! assert!(predictions[[1, 0]] > 0.5 && predictions[[3, 0]] < 0.5);
+//! ```
 
 pub mod activation;
 pub mod backprop;
