@@ -7,8 +7,8 @@
 //!
 //! * `δ_L` comes from [`Loss::output_delta`] (it already carries the `1/n`);
 //! * `∂L/∂W_l = a_{l−1}ᵀ · δ_l`, `∂L/∂b_l = Σ_rows δ_l`;
-//! * `δ_{l−1} = f'_{l−1}(δ_l · W_lᵀ)`, the derivative applied in place by
-//!   [`Activation::backprop`](super::Activation::backprop).
+//! * `δ_{l−1} = (δ_l · W_lᵀ) ⊙ f'_{l−1}(a_{l−1})`, the derivative applied
+//!   in place by [`Activation::backprop`](super::Activation::backprop).
 //!
 //! Matrix products go through ndarray's `general_mat_mul` into the
 //! preallocated buffers; bias sums run over rows in order, so results do not
@@ -54,6 +54,8 @@ pub fn gradients(
     y: ArrayView2<f64>,
     loss: Loss,
 ) -> Vec<LayerGradient> {
+    assert!(x.nrows() > 0, "gradients need at least one row");
+    assert_eq!(x.nrows(), y.nrows(), "inputs and targets: row counts");
     let mut workspace = Workspace::new(network, x.nrows());
     workspace.forward(network, x);
     workspace.backward(network, x, y, loss);

@@ -10,8 +10,10 @@
 //!   `L = −(1/n) Σ_rows Σ_outputs [t ln p + (1 − t) ln(1 − p)]`.
 //!
 //! In the loss *value* `p` is clipped to `[1e-15, 1 − 1e-15]` so a saturated
-//! output gives a large finite loss instead of infinity (the same clip as
-//! scikit-learn's `log_loss`); the gradient uses the unclipped outputs.
+//! output gives a large finite loss instead of infinity; the gradient uses
+//! the unclipped outputs. (scikit-learn 1.9 clips to machine epsilon
+//! instead, about 2.2e-16, so its values differ only for outputs within
+//! 1e-15 of 0 or 1.)
 //!
 //! The output layer's delta `∂L/∂z` is `(o − t)/n` for softmax with
 //! cross-entropy, sigmoid with cross-entropy and linear with squared error:

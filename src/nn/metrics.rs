@@ -163,7 +163,8 @@ mod tests {
             [0.2, 0.2, 0.6],
         ];
         let m = classification_metrics(targets.view(), outputs.view());
-        // Worked by hand: rows are true classes, columns predicted.
+        // Worked by hand (rows true classes, columns predicted); scikit-learn 1.9.1's
+        // confusion_matrix, precision_score and recall_score (average=None) agree.
         assert_eq!(
             m.confusion,
             vec![vec![1, 1, 0], vec![0, 2, 0], vec![1, 0, 1]]
@@ -191,7 +192,8 @@ mod tests {
         assert_eq!(m.accuracy, 0.5);
         assert_eq!(m.precision, vec![Some(0.5), None]);
         assert_eq!(m.recall, vec![Some(1.0), Some(0.0)]);
-        // Binary log-loss, by hand: −(ln 0.4 + ln 0.9 + ln 0.2 + ln 0.7)/4.
+        // Binary log-loss, by hand: −(ln 0.4 + ln 0.9 + ln 0.2 + ln 0.7)/4 (= 0.74694…,
+        // as scikit-learn 1.9.1's log_loss gives).
         let expected = -(0.4f64.ln() + 0.9f64.ln() + 0.2f64.ln() + 0.7f64.ln()) / 4.0;
         assert!((m.log_loss - expected).abs() < 1e-15);
     }
@@ -216,12 +218,14 @@ mod tests {
         assert!((m.mse - 6.25 / 6.0).abs() < 1e-15);
         assert!((m.mae - 0.75).abs() < 1e-15);
         // R²: column 1 SS_res 1.25, SS_tot 2 → 0.375; column 2 SS_res 5, SS_tot 32 → 0.84375;
-        // mean 0.609375, by hand (sklearn's r2_score with its default uniform_average agrees).
+        // mean 0.609375, by hand. scikit-learn 1.9.1's mean_squared_error, mean_absolute_error
+        // and r2_score (default uniform_average) give the same three numbers.
         assert!((m.r2 - 0.609375).abs() < 1e-15);
     }
 
     #[test]
     fn constant_targets() {
+        // scikit-learn 1.9.1: r2_score([2, 2], [2, 2]) = 1.0 and r2_score([2, 2], [2, 3]) = 0.0.
         let targets = array![[2.0], [2.0]];
         let perfect = regression_metrics(targets.view(), targets.view());
         assert_eq!((perfect.mse, perfect.mae, perfect.r2), (0.0, 0.0, 1.0));

@@ -13,6 +13,31 @@
 //! * [`optimizer`]: SGD with momentum and Adam;
 //! * [`train`](mod@train): batching, shuffling and stopping;
 //! * [`metrics`]: classification and regression scores for reports.
+//!
+//! ```
+//! use ndarray::array;
+//! use stet::nn::{Activation, BatchSize, Init, Loss, Network, Optimizer, StopReason, TrainConfig, train};
+//!
+//! let x = array![[0.0, 0.0], [0.0, 1.0], [1.0, 0.0], [1.0, 1.0]];
+//! let y = array![[0.0], [1.0], [1.0], [0.0]];
+//! let network = Network::initialise(&[2, 3, 1], Activation::Sigmoid, Activation::Sigmoid, Init::Xavier, 1);
+//! let config = TrainConfig {
+//!     loss: Loss::Mse,
+//!     optimizer: Optimizer::Sgd { learning_rate: 0.5, momentum: 0.9 },
+//!     batch: BatchSize::Full,
+//!     epochs: 5_000,
+//!     target_loss: Some(0.01),
+//!     patience: None,
+//!     l2: 0.0,
+//!     shuffle: false,
+//!     seed: 0,
+//!     update_biases: true,
+//! };
+//! let outcome = train(network, x.view(), y.view(), None, &config);
+//! assert_eq!(outcome.stop, StopReason::TargetLoss);
+//! let predictions = outcome.network.predict(x.view());
+//! assert!(predictions[[1, 0]] > 0.5 && predictions[[3, 0]] < 0.5);
+//! ```
 
 pub mod activation;
 pub mod backprop;
@@ -30,11 +55,14 @@ pub use metrics::{
 };
 pub use network::{Init, Layer, Network, NetworkError};
 pub use optimizer::Optimizer;
-pub use train::{BatchSize, EpochLosses, StopReason, TrainConfig, TrainOutcome, mean_loss, train};
+pub use train::{
+    BatchSize, EpochLosses, StopReason, TrainConfig, TrainOutcome, mean_loss, train,
+    train_with_progress,
+};
 
 /// ChaCha8 stream used for initial weights. Initialisation and shuffling use
 /// different streams so that the same seed value given to both does not
 /// make them draw the same numbers.
-pub(crate) const INIT_STREAM: u64 = 1;
+pub const INIT_STREAM: u64 = 1;
 /// ChaCha8 stream used for the per-epoch row order.
-pub(crate) const SHUFFLE_STREAM: u64 = 2;
+pub const SHUFFLE_STREAM: u64 = 2;

@@ -14,7 +14,8 @@
 //! * [`Init::Uniform`]: weights and biases from `U(−r, r)`, `r = 1 / √fan_in`.
 //!
 //! Xavier with uniform biases follows scikit-learn's MLP initialisation
-//! (which uses that bound, with a factor 2 inside the root for sigmoid).
+//! (its `_init_coef` uses that bound for weights and intercepts, with 2 in
+//! place of 6 for logistic layers).
 //! Draws come from a ChaCha8 generator seeded with `seed` on its own stream
 //! ([`INIT_STREAM`](super::INIT_STREAM)), layer by layer, weights in
 //! row-major order before biases, so the same seed gives the same network
@@ -34,9 +35,9 @@ use super::activation::Activation;
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Hash, Serialize, Deserialize)]
 #[serde(rename_all = "snake_case")]
 pub enum Init {
-    /// Glorot/Xavier uniform, for sigmoid and tanh layers.
+    /// Glorot/Xavier uniform; suits sigmoid and tanh layers (common practice).
     Xavier,
-    /// He normal, for relu-like layers.
+    /// He normal; suits relu-like layers (common practice).
     He,
     /// `U(±1/√fan_in)`.
     Uniform,
@@ -118,8 +119,8 @@ impl Layer {
     /// Computes this layer's activations for `input` into `out`, which must
     /// have shape `(input.nrows(), self.outputs())`. Allocates nothing.
     pub(crate) fn forward_into(&self, input: ArrayView2<f64>, mut out: ArrayViewMut2<f64>) {
-        // Bias first, then `out = 1·(input · W) + 1·out`: the product is
-        // formed before the bias is added, as in `input.dot(W) + b`.
+        // Bias first, then `out ← input · W + out` accumulates the product
+        // onto it in one pass, with no temporary matrix.
         out.assign(&self.biases);
         general_mat_mul(1.0, &input, &self.weights, 1.0, &mut out);
         self.activation.apply(out);

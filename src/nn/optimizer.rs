@@ -26,7 +26,7 @@ pub enum Optimizer {
     Sgd {
         /// Step size η.
         learning_rate: f64,
-        /// Momentum μ, usually in `[0, 1)`.
+        /// Momentum μ, in `[0, 1)`; 0.9 is common practice.
         momentum: f64,
     },
     /// Adam with bias correction. The paper's suggested defaults are

@@ -5,9 +5,9 @@
 //! stream ([`SHUFFLE_STREAM`](super::SHUFFLE_STREAM), distinct from the one
 //! used for initial weights). [`BatchSize::Rows`]`(k)` takes `k` consecutive
 //! rows of that order per update, the last batch holding what is left;
-//! [`BatchSize::Full`] makes one batch of every row (which is then not
-//! shuffled: the order of a single batch cannot change the update beyond
-//! rounding).
+//! [`BatchSize::Full`] makes one batch of every row. A single batch (`Full`,
+//! or `Rows(k)` with `k ≥` the row count) is not shuffled: its order cannot
+//! change the update beyond rounding.
 //!
 //! The epoch's training loss is the row-weighted mean of the batch losses,
 //! each computed in that batch's forward pass before its update, so it
@@ -21,8 +21,8 @@
 //! After each epoch, in this order:
 //! 1. a non-finite batch loss (checked as each batch is seen, so the run stops
 //!    mid-epoch before updating with it), or a non-finite epoch or validation
-//!    loss, gives [`StopReason::Diverged`], returning the weights that
-//!    produced it;
+//!    loss, gives [`StopReason::Diverged`], returning the weights as they
+//!    were at that moment (for a batch, those that produced the bad loss);
 //! 2. a training loss at or below `target_loss` gives [`StopReason::TargetLoss`];
 //! 3. with `patience = Some(p)`, the validation loss (the training loss when
 //!    there is no validation data) is monitored, and after `p` consecutive
@@ -31,10 +31,14 @@
 //!    (`Some(0)` stops at the first epoch that does not improve, like `Some(1)`);
 //! 4. after `epochs` epochs the run ends with [`StopReason::EpochLimit`].
 //!
-//! Everything is sequential and seeded, so the same inputs give the same
-//! outcome bit for bit on a given machine. (Matrix products use
-//! `matrixmultiply`, which picks an AVX/FMA kernel at run time, so machines
-//! with different SIMD support may differ in the last bits.)
+//! Every reduction runs in a fixed order and all randomness is seeded, so
+//! the same inputs give the same outcome bit for bit. Matrix products use
+//! `matrixmultiply` (through ndarray), whose threads split the output matrix
+//! but never a dot product, so the thread count (`MATMUL_NUM_THREADS`,
+//! default: physical cores) does not change any result. It does pick an
+//! FMA/AVX kernel at run time, so machines with different SIMD support
+//! may differ in the last bits, as may platforms whose `exp`/`tanh`/`ln`
+//! differ.
 
 use ndarray::{Array2, ArrayView2, Zip, s};
 use rand::SeedableRng;
@@ -111,7 +115,8 @@ pub struct EpochLosses {
 pub struct TrainOutcome {
     /// The trained network: the last weights, except for
     /// [`StopReason::NoImprovement`] (the best epoch's) and
-    /// [`StopReason::Diverged`] (those that gave the non-finite loss).
+    /// [`StopReason::Diverged`] (the weights when the non-finite loss was
+    /// seen: for a batch loss, those that produced it).
     pub network: Network,
     /// One entry per completed epoch. All entries are finite: an epoch that
     /// diverged is not recorded, so then `history.len() == epochs_run − 1`.
@@ -129,9 +134,9 @@ pub struct TrainOutcome {
 /// optional validation data `(x, y)`.
 ///
 /// # Panics
-/// If `x` has no rows, the shapes do not fit the network, the loss does not
-/// [support](Loss::supports) the output activation, or the batch size is
-/// `Rows(0)`.
+/// If `x` or the validation inputs have no rows, the shapes do not fit the
+/// network, the loss does not [support](Loss::supports) the output
+/// activation, or the batch size is `Rows(0)`.
 pub fn train(
     network: Network,
     x: ArrayView2<f64>,
@@ -139,11 +144,26 @@ pub fn train(
     validation: Option<(ArrayView2<f64>, ArrayView2<f64>)>,
     config: &TrainConfig,
 ) -> TrainOutcome {
+    train_with_progress(network, x, y, validation, config, |_, _| {})
+}
+
+/// [`train`], calling `on_epoch(epoch, losses)` (1-based epoch) after each
+/// epoch that is recorded in the history, e.g. to drive a progress bar.
+///
+/// # Panics
+/// As [`train`].
+pub fn train_with_progress(
+    network: Network,
+    x: ArrayView2<f64>,
+    y: ArrayView2<f64>,
+    validation: Option<(ArrayView2<f64>, ArrayView2<f64>)>,
+    config: &TrainConfig,
+    mut on_epoch: impl FnMut(usize, &EpochLosses),
+) -> TrainOutcome {
     // Re-validate: the fields are public, so the network may not have been
     // built through `from_layers`.
     let mut network = Network::from_layers(network.layers);
     let n = x.nrows();
-    assert!(n > 0, "training needs at least one row");
     check_data(&network, x, y, "training");
     if let Some((vx, vy)) = validation {
         check_data(&network, vx, vy, "validation");
@@ -224,10 +244,12 @@ pub fn train(
         if !train_loss.is_finite() || validation_loss.is_some_and(|v| !v.is_finite()) {
             return stopped(network, history, StopReason::Diverged, epoch, monitor);
         }
-        history.push(EpochLosses {
+        let losses = EpochLosses {
             train: train_loss,
             validation: validation_loss,
-        });
+        };
+        on_epoch(epoch, &losses);
+        history.push(losses);
         if config
             .target_loss
             .is_some_and(|target| train_loss <= target)
@@ -254,8 +276,8 @@ pub fn train(
 /// term.
 ///
 /// # Panics
-/// If the shapes do not fit the network or the loss does not
-/// [support](Loss::supports) the output activation.
+/// If `x` has no rows, the shapes do not fit the network, or the loss does
+/// not [support](Loss::supports) the output activation.
 pub fn mean_loss(network: &Network, x: ArrayView2<f64>, y: ArrayView2<f64>, loss: Loss) -> f64 {
     check_data(network, x, y, "evaluation");
     let output = network.layers[network.layers.len() - 1].activation;
@@ -263,6 +285,7 @@ pub fn mean_loss(network: &Network, x: ArrayView2<f64>, y: ArrayView2<f64>, loss
 }
 
 fn check_data(network: &Network, x: ArrayView2<f64>, y: ArrayView2<f64>, what: &str) {
+    assert!(x.nrows() > 0, "{what} data needs at least one row");
     assert_eq!(
         x.ncols(),
         network.input_size(),
@@ -328,5 +351,351 @@ fn stopped(
         stop,
         epochs_run,
         best_epoch: monitor.and_then(|m| m.best_epoch),
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::nn::{Activation, Init, Layer};
+    use ndarray::{Array2, array};
+
+    fn sgd(learning_rate: f64, momentum: f64) -> Optimizer {
+        Optimizer::Sgd {
+            learning_rate,
+            momentum,
+        }
+    }
+
+    fn config(optimizer: Optimizer, batch: BatchSize, epochs: usize) -> TrainConfig {
+        TrainConfig {
+            loss: Loss::Mse,
+            optimizer,
+            batch,
+            epochs,
+            target_loss: None,
+            patience: None,
+            l2: 0.0,
+            shuffle: false,
+            seed: 0,
+            update_biases: true,
+        }
+    }
+
+    /// Seven rows of a smooth two-input function with one output.
+    fn data() -> (Array2<f64>, Array2<f64>) {
+        let x = Array2::from_shape_fn((7, 2), |(i, j)| ((i * 3 + j * 5) % 7) as f64 / 7.0 - 0.4);
+        let y = Array2::from_shape_fn((7, 1), |(i, _)| (x[[i, 0]] * 2.0 - x[[i, 1]]).sin());
+        (x, y)
+    }
+
+    fn small_net(seed: u64) -> Network {
+        Network::initialise(
+            &[2, 5, 1],
+            Activation::Tanh,
+            Activation::Linear,
+            Init::Xavier,
+            seed,
+        )
+    }
+
+    #[test]
+    fn epoch_loss_weights_batches_by_rows() {
+        // With a zero learning rate nothing moves, so the epoch loss must be the
+        // mean over all rows, not the mean of the three batch means (3, 3, 1 rows).
+        let (x, y) = data();
+        let net = small_net(1);
+        let out = train(
+            net.clone(),
+            x.view(),
+            y.view(),
+            None,
+            &config(sgd(0.0, 0.0), BatchSize::Rows(3), 2),
+        );
+        let expected = mean_loss(&net, x.view(), y.view(), Loss::Mse);
+        assert!((out.history[0].train - expected).abs() < 1e-15);
+        assert_eq!(out.history[0], out.history[1]);
+        assert_eq!(out.network, net);
+    }
+
+    #[test]
+    fn batch_losses_are_taken_before_each_update() {
+        // Two rows, one update per row: the epoch loss is the mean of row 1's loss
+        // at the initial weights and row 2's loss after the first update.
+        let (x, y) = data();
+        let (x2, y2) = (x.slice(s![..2, ..]), y.slice(s![..2, ..]));
+        let net = small_net(2);
+        let cfg = config(sgd(0.3, 0.0), BatchSize::Rows(1), 1);
+        let after_first = train(
+            net.clone(),
+            x2.slice(s![..1, ..]),
+            y2.slice(s![..1, ..]),
+            None,
+            &cfg,
+        )
+        .network;
+        let expected = (mean_loss(
+            &net,
+            x2.slice(s![..1, ..]),
+            y2.slice(s![..1, ..]),
+            Loss::Mse,
+        ) + mean_loss(
+            &after_first,
+            x2.slice(s![1.., ..]),
+            y2.slice(s![1.., ..]),
+            Loss::Mse,
+        )) / 2.0;
+        let out = train(net, x2, y2, None, &cfg);
+        assert!((out.history[0].train - expected).abs() < 1e-15);
+    }
+
+    #[test]
+    fn full_batch_is_rows_n_and_ignores_shuffle() {
+        let (x, y) = data();
+        let mut full = config(sgd(0.1, 0.9), BatchSize::Full, 5);
+        let a = train(small_net(3), x.view(), y.view(), None, &full);
+        full.batch = BatchSize::Rows(7);
+        let b = train(small_net(3), x.view(), y.view(), None, &full);
+        full.batch = BatchSize::Rows(100);
+        full.shuffle = true;
+        let c = train(small_net(3), x.view(), y.view(), None, &full);
+        assert_eq!(a, b);
+        assert_eq!(a, c);
+    }
+
+    #[test]
+    fn same_seed_same_outcome_other_seed_differs() {
+        let (x, y) = data();
+        let mut cfg = config(sgd(0.05, 0.5), BatchSize::Rows(2), 20);
+        cfg.shuffle = true;
+        cfg.seed = 9;
+        let validation = Some((x.view(), y.view()));
+        let a = train(small_net(4), x.view(), y.view(), validation, &cfg);
+        let b = train(small_net(4), x.view(), y.view(), validation, &cfg);
+        assert_eq!(a, b);
+        cfg.seed = 10;
+        let c = train(small_net(4), x.view(), y.view(), validation, &cfg);
+        assert_ne!(
+            a.network, c.network,
+            "another shuffle seed should give other weights"
+        );
+        cfg.shuffle = false;
+        let d = train(small_net(4), x.view(), y.view(), validation, &cfg);
+        assert_ne!(a.network, d.network, "shuffling should change the result");
+    }
+
+    #[test]
+    fn l2_adds_l2_times_weights_to_the_gradient() {
+        // One full-batch SGD step: w' = w − η (∂L/∂w + λ w); biases get no λ term.
+        let (x, y) = data();
+        let net = small_net(5);
+        let (eta, lambda) = (0.1, 0.03);
+        let mut cfg = config(sgd(eta, 0.0), BatchSize::Full, 1);
+        cfg.l2 = lambda;
+        let out = train(net.clone(), x.view(), y.view(), None, &cfg);
+        let grads = crate::nn::gradients(&net, x.view(), y.view(), Loss::Mse);
+        for ((before, after), g) in net.layers.iter().zip(&out.network.layers).zip(&grads) {
+            let expected_w = &before.weights - &((&g.weights + &(&before.weights * lambda)) * eta);
+            let expected_b = &before.biases - &(&g.biases * eta);
+            assert!(
+                (&after.weights - &expected_w)
+                    .iter()
+                    .all(|d| d.abs() < 1e-15)
+            );
+            assert!(
+                (&after.biases - &expected_b)
+                    .iter()
+                    .all(|d| d.abs() < 1e-15)
+            );
+        }
+        // The recorded loss excludes the penalty.
+        assert_eq!(
+            out.history[0].train,
+            mean_loss(&net, x.view(), y.view(), Loss::Mse)
+        );
+    }
+
+    #[test]
+    fn fixed_biases() {
+        let (x, y) = data();
+        let net = small_net(6);
+        let mut cfg = config(sgd(0.1, 0.9), BatchSize::Rows(2), 3);
+        cfg.update_biases = false;
+        let out = train(net.clone(), x.view(), y.view(), None, &cfg);
+        for (before, after) in net.layers.iter().zip(&out.network.layers) {
+            assert_eq!(before.biases, after.biases);
+            assert_ne!(before.weights, after.weights);
+        }
+    }
+
+    #[test]
+    fn epoch_limit() {
+        let (x, y) = data();
+        let out = train(
+            small_net(7),
+            x.view(),
+            y.view(),
+            None,
+            &config(sgd(0.05, 0.0), BatchSize::Rows(4), 12),
+        );
+        assert_eq!(
+            (out.stop, out.epochs_run, out.history.len(), out.best_epoch),
+            (StopReason::EpochLimit, 12, 12, None)
+        );
+        assert!(out.history.iter().all(|e| e.validation.is_none()));
+        let none = train(
+            small_net(7),
+            x.view(),
+            y.view(),
+            None,
+            &config(sgd(0.05, 0.0), BatchSize::Rows(4), 0),
+        );
+        assert_eq!(
+            (none.stop, none.epochs_run, none.history.len()),
+            (StopReason::EpochLimit, 0, 0)
+        );
+        assert_eq!(none.network, small_net(7));
+    }
+
+    #[test]
+    fn target_loss_stops_at_the_first_epoch_below_it() {
+        let (x, y) = data();
+        let mut cfg = config(sgd(0.1, 0.5), BatchSize::Full, 2000);
+        // Aim at a value the unconstrained run passes partway through.
+        let free = train(small_net(8), x.view(), y.view(), None, &cfg);
+        let target = free.history[50].train;
+        cfg.target_loss = Some(target);
+        let out = train(small_net(8), x.view(), y.view(), None, &cfg);
+        assert_eq!(out.stop, StopReason::TargetLoss);
+        let k = out.epochs_run;
+        assert!(out.history[k - 1].train <= target);
+        assert!(out.history[..k - 1].iter().all(|e| e.train > target));
+        assert_eq!(out.history[..], free.history[..k]);
+    }
+
+    #[test]
+    fn patience_on_a_flat_training_loss() {
+        // Nothing learns at rate 0: epoch 1 is the best and never strictly beaten.
+        let (x, y) = data();
+        let mut cfg = config(sgd(0.0, 0.0), BatchSize::Full, 100);
+        cfg.patience = Some(4);
+        let out = train(small_net(9), x.view(), y.view(), None, &cfg);
+        assert_eq!(
+            (out.stop, out.epochs_run, out.best_epoch),
+            (StopReason::NoImprovement, 5, Some(1))
+        );
+    }
+
+    #[test]
+    fn patience_returns_the_best_validation_weights() {
+        // A wide net fitted to eight rows while validated on rows of another
+        // function: the validation loss turns up and early stopping kicks in.
+        let x = Array2::from_shape_fn((8, 2), |(i, j)| (i as f64 * 0.37 + j as f64 * 0.81).sin());
+        let y = Array2::from_shape_fn((8, 1), |(i, _)| (3.0 * x[[i, 0]]).cos() * x[[i, 1]]);
+        let vx = Array2::from_shape_fn((8, 2), |(i, j)| {
+            (i as f64 * 0.53 + j as f64 * 0.29 + 0.2).cos()
+        });
+        let vy = Array2::from_shape_fn((8, 1), |(i, _)| vx[[i, 0]] - vx[[i, 1]]);
+        let net = Network::initialise(
+            &[2, 16, 1],
+            Activation::Tanh,
+            Activation::Linear,
+            Init::Xavier,
+            10,
+        );
+        let mut cfg = config(sgd(0.2, 0.9), BatchSize::Rows(3), 5000);
+        cfg.patience = Some(10);
+        let out = train(net, x.view(), y.view(), Some((vx.view(), vy.view())), &cfg);
+        assert_eq!(out.stop, StopReason::NoImprovement);
+        let best = out.best_epoch.expect("patience was set");
+        assert_eq!(out.epochs_run, best + 10);
+        let losses: Vec<f64> = out.history.iter().map(|e| e.validation.unwrap()).collect();
+        let lowest = losses.iter().copied().fold(f64::INFINITY, f64::min);
+        assert_eq!(losses[best - 1], lowest);
+        assert_eq!(
+            mean_loss(&out.network, vx.view(), vy.view(), Loss::Mse),
+            lowest
+        );
+    }
+
+    #[test]
+    fn divergence_is_reported_not_panicked() {
+        // y = 100 x with a far too large step: the linear fit overshoots further
+        // at every update until the loss overflows.
+        let x = Array2::from_shape_fn((10, 1), |(i, _)| i as f64);
+        let y = &x * 100.0;
+        let net = Network::from_layers(vec![Layer {
+            weights: array![[0.0]],
+            biases: array![0.0],
+            activation: Activation::Linear,
+        }]);
+        let out = train(
+            net,
+            x.view(),
+            y.view(),
+            None,
+            &config(sgd(10.0, 0.0), BatchSize::Full, 1000),
+        );
+        assert_eq!(out.stop, StopReason::Diverged);
+        // Each step multiplies the weight error by about η·mean(x²) = 285 and so the
+        // loss by about 8e4: it overflows f64 after some 60 epochs (63 here).
+        assert!(
+            (20..500).contains(&out.epochs_run),
+            "diverged at epoch {}",
+            out.epochs_run
+        );
+        assert_eq!(out.history.len(), out.epochs_run - 1);
+        assert!(out.history.iter().all(|e| e.train.is_finite()));
+        // The returned weights are those that gave the non-finite loss.
+        assert!(!mean_loss(&out.network, x.view(), y.view(), Loss::Mse).is_finite());
+    }
+
+    #[test]
+    fn progress_sees_every_recorded_epoch() {
+        let (x, y) = data();
+        let mut seen = Vec::new();
+        let cfg = config(sgd(0.05, 0.5), BatchSize::Rows(3), 6);
+        let out = train_with_progress(small_net(11), x.view(), y.view(), None, &cfg, |e, l| {
+            seen.push((e, *l))
+        });
+        let expected: Vec<_> = out
+            .history
+            .iter()
+            .copied()
+            .enumerate()
+            .map(|(i, l)| (i + 1, l))
+            .collect();
+        assert_eq!(seen, expected);
+        assert_eq!(seen.len(), 6);
+    }
+
+    #[test]
+    #[should_panic(expected = "cannot follow")]
+    fn cross_entropy_needs_probabilities() {
+        let (x, y) = data();
+        let mut cfg = config(sgd(0.1, 0.0), BatchSize::Full, 1);
+        cfg.loss = Loss::CrossEntropy;
+        train(small_net(0), x.view(), y.view(), None, &cfg);
+    }
+
+    #[test]
+    fn config_serde_round_trip() {
+        let mut cfg = config(
+            Optimizer::Adam {
+                learning_rate: 0.001,
+                beta1: 0.9,
+                beta2: 0.999,
+                epsilon: 1e-8,
+            },
+            BatchSize::Rows(32),
+            10,
+        );
+        cfg.patience = Some(3);
+        let json = serde_json::to_string(&cfg).unwrap();
+        assert!(
+            json.contains("\"adam\"") && json.contains("\"rows\":32"),
+            "{json}"
+        );
+        assert_eq!(serde_json::from_str::<TrainConfig>(&json).unwrap(), cfg);
     }
 }
