@@ -260,6 +260,11 @@ fn assert_agree(ours: &[f64], theirs: &[f64], what: &str) -> f64 {
 #[test]
 fn weights_match_scikit_learn_after_three_epochs() {
     let Some(python) = std::env::var_os("STET_PYTHON") else {
+        // CI sets STET_REQUIRE_PYTHON so that this check can never be skipped there.
+        assert!(
+            std::env::var_os("STET_REQUIRE_PYTHON").is_none(),
+            "STET_REQUIRE_PYTHON is set but STET_PYTHON is not"
+        );
         eprintln!(
             "skipping the scikit-learn comparison: STET_PYTHON is not set \
              (set it to a Python with numpy and scikit-learn to run it)"
