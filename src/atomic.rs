@@ -21,8 +21,11 @@ pub fn write(path: &Path, bytes: &[u8]) -> std::io::Result<()> {
         builder.permissions(std::fs::Permissions::from_mode(0o644));
     }
     let mut file = builder.tempfile_in(dir)?;
+    // No fsync: the rename alone is atomic against a killed process, which is the
+    // failure that matters here; a torn cache entry after a power cut fails its
+    // checksum and is recomputed, and a report can be rebuilt. An fsync per file would
+    // cost more than a whole no-op rebuild.
     file.write_all(bytes)?;
-    file.as_file().sync_all()?;
     file.persist(path).map_err(|error| error.error)?;
     Ok(())
 }

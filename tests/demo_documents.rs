@@ -15,9 +15,16 @@ fn build_demo(name: &str, steps: usize) {
     let html = std::fs::read_to_string(doc.with_extension("html")).unwrap();
     assert_eq!(html.matches("<section class=\"step ").count(), steps);
     let trains = listed.iter().filter(|s| s["kind"] == "train").count();
-    assert_eq!(html.matches("<svg").count(), trains, "one loss chart per train step");
+    assert_eq!(
+        html.matches("<svg").count(),
+        trains,
+        "one loss chart per train step"
+    );
     assert!(html.contains("<table class=\"grid numeric metrics\">"));
-    assert!(html.contains("<style>") && !html.contains("<link "), "CSS is inline");
+    assert!(
+        html.contains("<style>") && !html.contains("<link "),
+        "CSS is inline"
+    );
     assert!(!html.contains("<script"), "the report needs no script");
 
     let second = ws.build_ok(&doc, &["--no-cache"]);

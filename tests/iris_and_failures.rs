@@ -36,7 +36,9 @@ fn a_four_eight_three_network_reaches_093_held_out_accuracy_on_iris() {
     let ws = Workspace::new();
     let doc = ws.write("iris.md", IRIS);
     let summary = ws.build_ok(&doc, &[]);
-    let accuracy = step(&summary, "fit")["metrics"]["test"]["accuracy"].as_f64().unwrap();
+    let accuracy = step(&summary, "fit")["metrics"]["test"]["accuracy"]
+        .as_f64()
+        .unwrap();
     assert!(accuracy >= 0.93, "held-out accuracy {accuracy}");
 }
 
@@ -54,7 +56,12 @@ fn a_failing_step_shows_in_place_and_independent_steps_still_run() {
     let summary = summary.unwrap();
     assert_eq!(step(&summary, "fit")["status"], "ran");
     assert_eq!(step(&summary, "broken")["status"], "failed");
-    assert!(step(&summary, "broken")["error"].as_str().unwrap().contains("colour"));
+    assert!(
+        step(&summary, "broken")["error"]
+            .as_str()
+            .unwrap()
+            .contains("colour")
+    );
     assert_eq!(step(&summary, "on_broken")["status"], "failed");
     let html = std::fs::read_to_string(ws.path("mixed.html")).unwrap();
     assert!(html.contains("This step failed."));

@@ -21,7 +21,7 @@ const COLOURS: [RGBColor; 6] = [
 ];
 
 /// Most points a line keeps; longer histories are thinned evenly (the last point kept).
-const MAX_POINTS: usize = 400;
+const MAX_POINTS: usize = 240;
 
 /// Thins a history to at most `MAX_POINTS` points, keeping the first and last.
 pub fn thin(points: Vec<(f64, f64)>) -> Vec<(f64, f64)> {
@@ -108,7 +108,8 @@ where
         .build_cartesian_2d(ranges.0, ranges.1)?;
     chart
         .configure_mesh()
-        .light_line_style(RGBColor(0xe4, 0xe4, 0xe4))
+        .max_light_lines(2)
+        .light_line_style(RGBColor(0xee, 0xee, 0xee))
         .bold_line_style(RGBColor(0xcc, 0xcc, 0xcc))
         .x_desc("epoch")
         .y_desc(y_label)
