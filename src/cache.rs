@@ -20,8 +20,12 @@ pub enum EntryKind {
     DataSummary,
     /// A data step's prepared matrices, loaded only when a run must train.
     Prepared,
-    /// A net step's record that it was declared with these settings.
-    Net,
+    /// A record that a step with nothing to compute (net, compare) was built.
+    Marker,
+    /// A predict step's predictions.
+    Predict,
+    /// An export step's JSON.
+    Export,
     /// One trained network on one partition.
     Run,
 }
@@ -31,7 +35,9 @@ impl EntryKind {
         match self {
             EntryKind::DataSummary => "data",
             EntryKind::Prepared => "prepared",
-            EntryKind::Net => "net",
+            EntryKind::Marker => "marker",
+            EntryKind::Predict => "predict",
+            EntryKind::Export => "export",
             EntryKind::Run => "run",
         }
     }

@@ -2,7 +2,7 @@
 
 use serde::Serialize;
 
-use crate::cache::{Cache, EntryKind};
+use crate::cache::Cache;
 use crate::document::StepKind;
 use crate::manifest::{Manifest, StepInputs};
 use crate::plan::{Plan, PlannedStep, short_key};
@@ -38,18 +38,14 @@ pub fn status(plan: &Plan, cache: &Cache, previous: &Manifest) -> Vec<StepStatus
 }
 
 fn cached(step: &PlannedStep, cache: &Cache) -> (bool, Option<(usize, usize)>) {
-    match step.kind {
-        StepKind::Data => (cache.contains(&step.key, EntryKind::DataSummary), None),
-        StepKind::Net => (cache.contains(&step.key, EntryKind::Net), None),
-        StepKind::Train => {
-            let done = step
-                .runs
-                .iter()
-                .filter(|key| cache.contains(key, EntryKind::Run))
-                .count();
-            (done == step.runs.len(), Some((done, step.runs.len())))
-        }
-    }
+    let entries = step.result_entries();
+    let present = entries
+        .iter()
+        .filter(|(key, kind)| cache.contains(key, *kind))
+        .count();
+    let runs =
+        matches!(step.kind, StepKind::Train | StepKind::Sweep).then_some((present, entries.len()));
+    (present == entries.len(), runs)
 }
 
 fn reason(plan: &Plan, step: &PlannedStep, previous: &Manifest) -> &'static str {

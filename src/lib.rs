@@ -19,6 +19,7 @@ pub mod plan;
 pub mod prune;
 pub mod report;
 pub mod run;
+pub mod use_model;
 
 use std::path::{Path, PathBuf};
 
@@ -143,7 +144,19 @@ pub fn build(options: &BuildOptions) -> Result<BuildSummary, Error> {
     };
     let loaded = load(&options.document)?;
     let cache = open_cache(&options.cache, &options.document);
-    let records = run::execute(&loaded.plan, &cache, RunOptions { jobs: options.jobs });
+    let progress =
+        indicatif::ProgressBar::with_draw_target(None, indicatif::ProgressDrawTarget::stderr())
+            .with_style(
+                indicatif::ProgressStyle::with_template(
+                    "training {bar:30} {pos}/{len} runs, {elapsed}",
+                )
+                .expect("a valid progress template"),
+            );
+    let run_options = RunOptions {
+        jobs: options.jobs,
+        progress: Some(progress),
+    };
+    let records = run::execute(&loaded.plan, &cache, &run_options);
     manifest::store(&cache, &options.document, &loaded.plan);
     let built_at = build_time();
     let html = report::render(
@@ -163,6 +176,10 @@ pub fn build(options: &BuildOptions) -> Result<BuildSummary, Error> {
         .output
         .clone()
         .unwrap_or_else(|| options.document.with_extension("html"));
+    let base_dir = options.document.parent().unwrap_or(Path::new("."));
+    for (path, bytes) in model_files(&loaded.plan, &records, base_dir) {
+        write_output(&path, &bytes)?;
+    }
     write_output(&report_path, html.as_bytes())?;
     if let Some(json_path) = &options.json {
         let summary = report::summary::summary(&loaded.name, &loaded.hash, &loaded.plan, &records);
@@ -232,6 +249,26 @@ fn summarise(
             .collect(),
         warnings,
     }
+}
+
+/// The files predict and export steps asked for (`write`), relative to the document.
+fn model_files(plan: &Plan, records: &[StepRecord], base_dir: &Path) -> Vec<(PathBuf, Vec<u8>)> {
+    use document::StepSpec;
+    use outcome::Outcome;
+    plan.steps
+        .iter()
+        .zip(records)
+        .filter_map(|(step, record)| match (&step.spec, &record.outcome) {
+            (StepSpec::Predict(spec), Some(Outcome::Predict(result))) => spec
+                .write
+                .as_ref()
+                .map(|write| (base_dir.join(write), result.csv.clone().into_bytes())),
+            (StepSpec::Export(spec), Some(Outcome::Export(result))) => {
+                Some((base_dir.join(&spec.write), result.json.clone().into_bytes()))
+            }
+            _ => None,
+        })
+        .collect()
 }
 
 /// Writes a result file atomically so an interrupted build never leaves it torn.

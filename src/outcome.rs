@@ -4,6 +4,7 @@
 use serde::{Deserialize, Serialize};
 
 use crate::data::{InputColumn, Scale, Task};
+use crate::document::spec::MetricName;
 use crate::nn::{Activation, ClassificationMetrics, Loss, RegressionMetrics, TrainOutcome};
 
 /// Wall-clock seconds.
@@ -100,11 +101,52 @@ pub struct ModelShape {
     pub hints: Vec<String>,
 }
 
-/// A train step's result: one run per partition.
+/// One fit's result: a network per seed and partition, all with the same settings.
+/// A train step has one fit; a sweep has one per combination.
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
-pub struct TrainResult {
+pub struct FitResult {
+    /// A sweep's varied settings and their values (empty for a train step).
+    pub settings: Vec<(String, String)>,
     pub shape: ModelShape,
     pub runs: Vec<RunResult>,
+}
+
+/// A sweep's result: its fits in grid order and their ranking.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct SweepResult {
+    pub fits: Vec<FitResult>,
+    pub rank_by: MetricName,
+    /// Which rows the ranking metric is measured on.
+    pub rank_rows: RowSet,
+    /// Indices into `fits`, best first.
+    pub ranking: Vec<usize>,
+}
+
+impl SweepResult {
+    /// The best-ranked fit.
+    pub fn best(&self) -> &FitResult {
+        &self.fits[self.ranking[0]]
+    }
+}
+
+/// A predict step's result: one row of outputs per input row.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct PredictResult {
+    /// File line of each predicted row.
+    pub lines: Vec<u64>,
+    /// The predicted class label, or the predicted values as text.
+    pub predicted: Vec<String>,
+    /// Names of the output columns (class probabilities or target values).
+    pub output_names: Vec<String>,
+    pub outputs: Vec<Vec<f64>>,
+    /// The new rows with the predictions appended, as CSV.
+    pub csv: String,
+}
+
+/// An export step's result: the model as JSON text.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct ExportResult {
+    pub json: String,
 }
 
 /// A step's result.
@@ -113,7 +155,12 @@ pub struct TrainResult {
 pub enum Outcome {
     Data(DataSummary),
     Net,
-    Train(TrainResult),
+    Train(FitResult),
+    Sweep(SweepResult),
+    /// A comparison is drawn from its runs' results when the report is rendered.
+    Compare,
+    Predict(PredictResult),
+    Export(ExportResult),
 }
 
 /// A metric over a train step's runs: the mean and, with several runs, the sample
@@ -126,37 +173,76 @@ pub struct MetricStat {
 }
 
 /// Which rows metrics are measured on.
-#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize)]
 pub enum RowSet {
     Train,
     Test,
 }
 
-impl TrainResult {
+impl FitResult {
     /// Each headline metric on `rows`, over all runs; `None` when there are no such rows.
     pub fn metric_stats(&self, rows: RowSet) -> Option<Vec<MetricStat>> {
-        let sets: Vec<&SetMetrics> = self
-            .runs
-            .iter()
-            .map(|run| match rows {
-                RowSet::Train => Some(&run.train),
-                RowSet::Test => run.test.as_ref(),
-            })
-            .collect::<Option<_>>()?;
-        let named: Vec<Vec<(&'static str, f64)>> = sets.iter().map(|set| set.named()).collect();
-        let first = named.first()?;
-        Some(
-            first
-                .iter()
-                .enumerate()
-                .map(|(i, (name, _))| {
-                    let values: Vec<f64> = named.iter().map(|set| set[i].1).collect();
-                    let (mean, sd) = mean_and_sd(&values);
-                    MetricStat { name, mean, sd }
-                })
-                .collect(),
-        )
+        metric_stats(self.runs.iter(), rows)
     }
+
+    /// One metric's statistics by name; `None` when the rows or the metric are absent.
+    pub fn metric(&self, name: MetricName, rows: RowSet) -> Option<MetricStat> {
+        self.metric_stats(rows)?
+            .into_iter()
+            .find(|stat| stat.name == name.key())
+    }
+
+    /// Held-out rows when every run has them, else training rows.
+    pub fn report_rows(&self) -> RowSet {
+        if self.runs.iter().all(|run| run.test.is_some()) {
+            RowSet::Test
+        } else {
+            RowSet::Train
+        }
+    }
+}
+
+/// Ranks fits by a metric's mean, best first; fits without a finite value go last.
+pub fn rank(fits: &[FitResult], metric: MetricName, rows: RowSet) -> Vec<usize> {
+    let value = |fit: &FitResult| {
+        fit.metric(metric, rows)
+            .map(|stat| stat.mean)
+            .filter(|mean| mean.is_finite())
+    };
+    let mut order: Vec<usize> = (0..fits.len()).collect();
+    order.sort_by(|&a, &b| match (value(&fits[a]), value(&fits[b])) {
+        (Some(x), Some(y)) if metric.higher_is_better() => y.total_cmp(&x),
+        (Some(x), Some(y)) => x.total_cmp(&y),
+        (Some(_), None) => std::cmp::Ordering::Less,
+        (None, Some(_)) => std::cmp::Ordering::Greater,
+        (None, None) => std::cmp::Ordering::Equal,
+    });
+    order
+}
+
+/// Each headline metric over some runs; `None` when a run lacks the rows.
+fn metric_stats<'a>(
+    runs: impl Iterator<Item = &'a RunResult>,
+    rows: RowSet,
+) -> Option<Vec<MetricStat>> {
+    let named: Vec<Vec<(&'static str, f64)>> = runs
+        .map(|run| match rows {
+            RowSet::Train => Some(run.train.named()),
+            RowSet::Test => run.test.as_ref().map(SetMetrics::named),
+        })
+        .collect::<Option<_>>()?;
+    let first = named.first()?;
+    Some(
+        first
+            .iter()
+            .enumerate()
+            .map(|(i, (name, _))| {
+                let values: Vec<f64> = named.iter().map(|set| set[i].1).collect();
+                let (mean, sd) = mean_and_sd(&values);
+                MetricStat { name, mean, sd }
+            })
+            .collect(),
+    )
 }
 
 /// Mean and sample standard deviation; no deviation for a single value.

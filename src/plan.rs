@@ -5,8 +5,10 @@ use std::collections::HashMap;
 use std::path::{Path, PathBuf};
 use std::sync::Arc;
 
+use crate::cache::EntryKind;
 use crate::data::Split;
 use crate::document::problem::nearest;
+use crate::document::spec::sweep::{value_text, variant};
 use crate::document::spec::{NetSpec, TrainSpec, parse_step};
 use crate::document::{Document, Problem, StepBlock, StepKind, StepSpec};
 
@@ -39,12 +41,54 @@ pub struct PlannedStep {
     pub spec: StepSpec,
     /// Index of the step's block among the document's pieces.
     pub piece: usize,
-    /// Indices (into `Plan::steps`) of the steps this one reads.
+    /// Indices (into `Plan::steps`) of the steps this one reads, in reference order.
     pub upstream: Vec<usize>,
     pub files: Vec<InputFile>,
     pub key: Key,
-    /// A train step's run keys, one per partition of its data; empty for other kinds.
-    pub runs: Vec<Key>,
+    /// The networks a train step (one) or a sweep (one per combination) fits.
+    pub fits: Vec<FitPlan>,
+}
+
+/// One setting of net and train values, fitted once per seed and partition.
+#[derive(Clone, Debug)]
+pub struct FitPlan {
+    /// The varied settings and their values as text (empty for a train step).
+    pub settings: Vec<(String, String)>,
+    /// Index of the data step the runs read.
+    pub data: usize,
+    pub net: NetSpec,
+    pub train: TrainSpec,
+    pub runs: Vec<RunPlan>,
+}
+
+/// One network to fit: a seed on one partition.
+#[derive(Clone, Debug)]
+pub struct RunPlan {
+    pub key: Key,
+    pub partition: usize,
+    pub seed: u64,
+}
+
+impl PlannedStep {
+    /// The cache entries that hold this step's result: all present means a build
+    /// reuses it. (A data step also keeps its prepared matrices, loaded only to train.)
+    pub fn result_entries(&self) -> Vec<(&str, EntryKind)> {
+        match self.kind {
+            StepKind::Data => vec![(self.key.as_str(), EntryKind::DataSummary)],
+            StepKind::Net | StepKind::Compare => vec![(self.key.as_str(), EntryKind::Marker)],
+            StepKind::Train | StepKind::Sweep => self
+                .fits
+                .iter()
+                .flat_map(|fit| {
+                    fit.runs
+                        .iter()
+                        .map(|run| (run.key.as_str(), EntryKind::Run))
+                })
+                .collect(),
+            StepKind::Predict => vec![(self.key.as_str(), EntryKind::Predict)],
+            StepKind::Export => vec![(self.key.as_str(), EntryKind::Export)],
+        }
+    }
 }
 
 /// Every step of a document in document order, with an order to run them in.
@@ -106,15 +150,21 @@ pub fn plan(document: &Document, base_dir: &Path) -> Result<Plan, Vec<Problem>> 
     let mut steps = Vec::new();
     for (piece, block, spec) in &parsed {
         let mut upstream = Vec::new();
-        for (id, wanted, setting) in spec.references() {
+        for reference in spec.references() {
+            let (id, setting) = (reference.id, reference.setting);
             match kinds.get(id) {
                 None => problems.push(missing_reference(block, setting, id, &kinds)),
-                Some(kind) if *kind != wanted => problems.push(Problem::new(
+                Some(kind) if !reference.kinds.contains(kind) => problems.push(Problem::new(
                     setting_span(block, setting),
                     format!(
                         "'{id}' is a {} step, but {setting} must name a {} step",
                         kind.word(),
-                        wanted.word()
+                        reference
+                            .kinds
+                            .iter()
+                            .map(|k| k.word())
+                            .collect::<Vec<_>>()
+                            .join(" or ")
                     ),
                 )),
                 // A referenced step that failed to parse already has its own problem.
@@ -130,7 +180,7 @@ pub fn plan(document: &Document, base_dir: &Path) -> Result<Plan, Vec<Problem>> 
             upstream,
             files,
             key: String::new(),
-            runs: Vec::new(),
+            fits: Vec::new(),
         });
     }
     if !problems.is_empty() {
@@ -144,7 +194,13 @@ pub fn plan(document: &Document, base_dir: &Path) -> Result<Plan, Vec<Problem>> 
             .map(|&u| steps[u].key.clone())
             .collect();
         steps[i].key = step_key(&steps[i], &upstream_keys);
-        steps[i].runs = run_keys(&steps, i);
+    }
+    let blocks: Vec<&StepBlock> = parsed.iter().map(|(_, block, _)| *block).collect();
+    for i in 0..steps.len() {
+        steps[i].fits = fits(&steps, &blocks, i, default_seed, &mut problems);
+    }
+    if !problems.is_empty() {
+        return Err(problems);
     }
     Ok(Plan { steps, order })
 }
@@ -193,7 +249,8 @@ fn read_files(
 ) -> Vec<InputFile> {
     let written = match spec {
         StepSpec::Data(data) => &data.file,
-        StepSpec::Net(_) | StepSpec::Train(_) => return Vec::new(),
+        StepSpec::Predict(predict) => &predict.file,
+        _ => return Vec::new(),
     };
     let path = base_dir.join(written);
     match std::fs::read(&path) {
@@ -231,24 +288,96 @@ fn execution_order(steps: &[PlannedStep]) -> Vec<usize> {
     order
 }
 
-/// The keys of a train step's runs: one per partition of the data it reads.
-fn run_keys(steps: &[PlannedStep], index: usize) -> Vec<Key> {
-    let StepSpec::Train(train) = &steps[index].spec else {
-        return Vec::new();
-    };
-    let data = &steps[steps[index].upstream[0]];
-    let (StepSpec::Data(data_spec), StepSpec::Net(net)) =
-        (&data.spec, &steps[steps[index].upstream[1]].spec)
-    else {
+/// The fits of a train step (its own settings) or a sweep (one per combination, each
+/// checked as if its values were written in the base train and net steps).
+fn fits(
+    steps: &[PlannedStep],
+    blocks: &[&StepBlock],
+    index: usize,
+    default_seed: u64,
+    problems: &mut Vec<Problem>,
+) -> Vec<FitPlan> {
+    let step = &steps[index];
+    match &step.spec {
+        StepSpec::Train(train) => {
+            let StepSpec::Net(net) = &steps[step.upstream[1]].spec else {
+                unreachable!("references were checked")
+            };
+            vec![fit_plan(
+                steps,
+                step.upstream[0],
+                Vec::new(),
+                net.clone(),
+                train.clone(),
+                1,
+            )]
+        }
+        StepSpec::Sweep(sweep) => {
+            let base = step.upstream[0];
+            let (data, net) = (steps[base].upstream[0], steps[base].upstream[1]);
+            let span = setting_span(blocks[index], "vary");
+            sweep
+                .combinations()
+                .iter()
+                .filter_map(|combination| {
+                    let (net, train) = variant(
+                        blocks[base],
+                        blocks[net],
+                        combination,
+                        default_seed,
+                        span.clone(),
+                        problems,
+                    )?;
+                    let settings = combination
+                        .iter()
+                        .map(|(name, value)| (name.clone(), value_text(value)))
+                        .collect();
+                    Some(fit_plan(steps, data, settings, net, train, sweep.repeat))
+                })
+                .collect()
+        }
+        _ => Vec::new(),
+    }
+}
+
+fn fit_plan(
+    steps: &[PlannedStep],
+    data: usize,
+    settings: Vec<(String, String)>,
+    net: NetSpec,
+    train: TrainSpec,
+    repeat: usize,
+) -> FitPlan {
+    let StepSpec::Data(data_spec) = &steps[data].spec else {
         unreachable!("references were checked")
     };
     let partitions = match data_spec.settings.split {
         Split::Holdout(_) => 1,
         Split::Folds(folds) => folds,
     };
-    (0..partitions)
-        .map(|partition| run_key(&data.key, net, train, partition))
-        .collect()
+    let mut runs = Vec::new();
+    for r in 0..repeat as u64 {
+        // The first repeat is the train step's own seed, so it shares the train's entry.
+        let seed = train.seed.wrapping_add(r);
+        let seeded = TrainSpec {
+            seed,
+            ..train.clone()
+        };
+        for partition in 0..partitions {
+            runs.push(RunPlan {
+                key: run_key(&steps[data].key, &net, &seeded, partition),
+                partition,
+                seed,
+            });
+        }
+    }
+    FitPlan {
+        settings,
+        data,
+        net,
+        train,
+        runs,
+    }
 }
 
 /// A run's key depends on what it computes, not on step names, so identical runs in

@@ -19,21 +19,15 @@ pub fn used_entries(plans: &[&Plan], cache: &Cache) -> HashSet<PathBuf> {
     let mut used = HashSet::new();
     for plan in plans {
         for step in &plan.steps {
-            let kinds: &[EntryKind] = match step.kind {
-                StepKind::Data => &[EntryKind::DataSummary, EntryKind::Prepared],
-                StepKind::Net => &[EntryKind::Net],
-                StepKind::Train => &[],
-            };
+            let entries = step.result_entries();
             used.extend(
-                kinds
+                entries
                     .iter()
-                    .filter_map(|&kind| cache.entry_path(&step.key, kind)),
+                    .filter_map(|(key, kind)| cache.entry_path(key, *kind)),
             );
-            used.extend(
-                step.runs
-                    .iter()
-                    .filter_map(|key| cache.entry_path(key, EntryKind::Run)),
-            );
+            if step.kind == StepKind::Data {
+                used.extend(cache.entry_path(&step.key, EntryKind::Prepared));
+            }
         }
     }
     used

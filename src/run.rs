@@ -1,7 +1,8 @@
 //! Executes a plan: each step's result is loaded from the cache when its key is
-//! there, computed otherwise. Training runs (one per partition of each train step) are
-//! independent, so all uncached runs are gathered and fitted in parallel; each is
-//! deterministic, so the results are the same for any number of jobs.
+//! there, computed otherwise. Training runs (every seed and partition of every train
+//! step and sweep combination) are independent, so all uncached runs are gathered and
+//! fitted in parallel; each is deterministic, so the results are the same for any
+//! number of jobs. Steps that use trained models run after the training.
 
 use std::collections::HashMap;
 use std::sync::Arc;
@@ -11,14 +12,16 @@ use rayon::prelude::*;
 use serde::Serialize;
 
 use crate::cache::{Cache, EntryKind};
-use crate::data::{self, Prepared};
+use crate::data::{self, Prepared, Task};
 use crate::document::StepSpec;
-use crate::document::spec::{NetSpec, TrainSpec};
+use crate::document::spec::MetricName;
 use crate::fit::{fit, model_shape};
 use crate::outcome::{
-    DataSummary, ModelShape, Outcome, PartitionSummary, RunResult, Seconds, TrainResult,
+    DataSummary, FitResult, ModelShape, Outcome, PartitionSummary, RunResult, Seconds, SweepResult,
+    rank,
 };
 use crate::plan::{Key, Plan, PlannedStep};
+use crate::use_model;
 
 /// Whether a step ran, was reused, or failed.
 #[derive(Clone, Debug, PartialEq, Serialize)]
@@ -36,79 +39,135 @@ pub struct StepRecord {
     pub outcome: Option<Outcome>,
 }
 
+impl StepRecord {
+    fn failed(error: String) -> StepRecord {
+        StepRecord {
+            status: Status::Failed { error },
+            outcome: None,
+        }
+    }
+}
+
 /// What a build may use.
-#[derive(Clone, Copy, Debug)]
+#[derive(Clone, Debug)]
 pub struct RunOptions {
     /// Threads for training runs.
     pub jobs: usize,
+    /// Shown while runs train; hidden when stderr is not a terminal.
+    pub progress: Option<indicatif::ProgressBar>,
 }
 
-/// One network to fit: a train step's settings on one partition of its data.
+/// One network to fit.
 struct RunTask<'a> {
     step: usize,
-    partition: usize,
-    key: Key,
+    fit: usize,
+    run: usize,
+    key: &'a Key,
     data: usize,
+    partition: usize,
     shape: ModelShape,
-    net: &'a NetSpec,
-    train: &'a TrainSpec,
+    net: &'a crate::document::spec::NetSpec,
+    train: crate::document::spec::TrainSpec,
+}
+
+/// A train or sweep step waiting for its runs.
+struct PendingFits {
+    shapes: Vec<ModelShape>,
+    runs: Vec<Vec<Option<RunResult>>>,
 }
 
 /// Runs every step of the plan, reusing what the cache holds.
-pub fn execute(plan: &Plan, cache: &Cache, options: RunOptions) -> Vec<StepRecord> {
+pub fn execute(plan: &Plan, cache: &Cache, options: &RunOptions) -> Vec<StepRecord> {
     let mut records: Vec<Option<StepRecord>> = vec![None; plan.steps.len()];
     let mut prepared: HashMap<usize, Arc<Prepared>> = HashMap::new();
-    let mut tasks = Vec::new();
-    let mut train_runs: HashMap<usize, (ModelShape, Vec<Option<RunResult>>)> = HashMap::new();
+    let mut pending: HashMap<usize, PendingFits> = HashMap::new();
 
     for &index in &plan.order {
         let step = &plan.steps[index];
         let record = match &step.spec {
             StepSpec::Data(_) => run_data_step(step, cache, &mut prepared, index),
-            StepSpec::Net(_) => run_net_step(step, cache),
-            StepSpec::Train(train) => {
-                match plan_train_step(plan, index, train, &records, cache, &mut tasks) {
-                    Ok((shape, runs)) => {
-                        train_runs.insert(index, (shape, runs));
-                        continue;
-                    }
-                    Err(error) => StepRecord {
-                        status: Status::Failed { error },
-                        outcome: None,
-                    },
+            StepSpec::Net(_) => marker_step(step, cache),
+            StepSpec::Train(_) | StepSpec::Sweep(_) => match plan_fits(plan, step, &records, cache)
+            {
+                Ok(fits) => {
+                    pending.insert(index, fits);
+                    continue;
                 }
-            }
+                Err(error) => StepRecord::failed(error),
+            },
+            // These read trained models, so they wait for the training below.
+            StepSpec::Compare(_) | StepSpec::Predict(_) | StepSpec::Export(_) => continue,
         };
         records[index] = Some(record);
     }
 
-    let mut trained_seconds: HashMap<usize, Seconds> = HashMap::new();
-    for (step, partition, result) in fit_all(plan, cache, &mut prepared, tasks, options) {
-        *trained_seconds.entry(step).or_default() += result.seconds;
-        let runs = &mut train_runs
-            .get_mut(&step)
-            .expect("task of a planned train step")
-            .1;
-        runs[partition] = Some(result);
+    let mut tasks = Vec::new();
+    for (&index, fits) in &pending {
+        let step = &plan.steps[index];
+        for (f, fit_plan) in step.fits.iter().enumerate() {
+            for (r, run) in fit_plan.runs.iter().enumerate() {
+                if fits.runs[f][r].is_none() {
+                    tasks.push(RunTask {
+                        step: index,
+                        fit: f,
+                        run: r,
+                        key: &run.key,
+                        data: fit_plan.data,
+                        partition: run.partition,
+                        shape: fits.shapes[f].clone(),
+                        net: &fit_plan.net,
+                        train: crate::document::spec::TrainSpec {
+                            seed: run.seed,
+                            ..fit_plan.train.clone()
+                        },
+                    });
+                }
+            }
+        }
     }
-    for (index, (shape, runs)) in train_runs {
+    tasks.sort_by_key(|task| (task.step, task.fit, task.run));
+    let mut trained_seconds: HashMap<usize, Seconds> = HashMap::new();
+    for (task, result) in fit_all(plan, cache, &mut prepared, &tasks, options) {
+        *trained_seconds.entry(task.step).or_default() += result.seconds;
+        pending.get_mut(&task.step).expect("a pending step").runs[task.fit][task.run] =
+            Some(result);
+    }
+    for (index, fits) in pending {
         let status = match trained_seconds.get(&index) {
             Some(&seconds) => Status::Ran { seconds },
             None => Status::Reused,
         };
-        let runs = runs
-            .into_iter()
-            .map(|run| run.expect("every run fitted or cached"))
-            .collect();
-        records[index] = Some(StepRecord {
-            status,
-            outcome: Some(Outcome::Train(TrainResult { shape, runs })),
-        });
+        records[index] = Some(assemble(&plan.steps[index], fits, status, &records, plan));
+    }
+
+    for &index in &plan.order {
+        let step = &plan.steps[index];
+        let record = match &step.spec {
+            StepSpec::Compare(_) => match step.upstream.iter().find(|&&u| failed(&records[u])) {
+                Some(&u) => StepRecord::failed(format!("not run: '{}' failed", plan.steps[u].id)),
+                None => marker_step(step, cache),
+            },
+            StepSpec::Predict(_) | StepSpec::Export(_) => {
+                use_model_step(plan, step, &records, cache, &mut prepared)
+            }
+            _ => continue,
+        };
+        records[index] = Some(record);
     }
     records
         .into_iter()
         .map(|r| r.expect("every step recorded"))
         .collect()
+}
+
+fn failed(record: &Option<StepRecord>) -> bool {
+    !matches!(
+        record,
+        Some(StepRecord {
+            outcome: Some(_),
+            ..
+        })
+    )
 }
 
 fn run_data_step(
@@ -137,10 +196,7 @@ fn run_data_step(
                 outcome: Some(Outcome::Data(summary)),
             }
         }
-        Err(error) => StepRecord {
-            status: Status::Failed { error },
-            outcome: None,
-        },
+        Err(error) => StepRecord::failed(error),
     }
 }
 
@@ -154,11 +210,42 @@ fn prepare_data(step: &PlannedStep) -> Result<Prepared, String> {
     data::prepare(&table, &spec.settings).map_err(|error| format!("{}: {error}", file.written))
 }
 
+/// A data step's prepared matrices: from this build, the cache, or prepared again.
+fn prepared_for(
+    plan: &Plan,
+    data: usize,
+    cache: &Cache,
+    prepared: &mut HashMap<usize, Arc<Prepared>>,
+) -> Result<Arc<Prepared>, String> {
+    if let Some(ready) = prepared.get(&data) {
+        return Ok(ready.clone());
+    }
+    let step = &plan.steps[data];
+    let ready = match cache.load::<Prepared>(&step.key, EntryKind::Prepared) {
+        Some(ready) => ready,
+        None => {
+            let ready = prepare_data(step)?;
+            cache.store(&step.key, EntryKind::Prepared, &ready);
+            ready
+        }
+    };
+    let ready = Arc::new(ready);
+    prepared.insert(data, ready.clone());
+    Ok(ready)
+}
+
 fn summarise(step: &PlannedStep, prepared: &Prepared) -> DataSummary {
     let StepSpec::Data(spec) = &step.spec else {
         unreachable!("a data step has a data spec")
     };
     let encoding = &prepared.encoding;
+    let counts = |rows: &[usize]| {
+        if prepared.labels.is_some() {
+            prepared.class_counts(rows)
+        } else {
+            Vec::new()
+        }
+    };
     DataSummary {
         file: spec.file.clone(),
         task: encoding.task,
@@ -175,108 +262,106 @@ fn summarise(step: &PlannedStep, prepared: &Prepared) -> DataSummary {
             .map(|partition| PartitionSummary {
                 train_rows: partition.train_rows.len(),
                 test_rows: partition.test_rows.len(),
-                train_classes: class_counts(prepared, &partition.train_rows),
-                test_classes: class_counts(prepared, &partition.test_rows),
+                train_classes: counts(&partition.train_rows),
+                test_classes: counts(&partition.test_rows),
             })
             .collect(),
     }
 }
 
-fn class_counts(prepared: &Prepared, rows: &[usize]) -> Vec<usize> {
-    if prepared.labels.is_some() {
-        prepared.class_counts(rows)
-    } else {
-        Vec::new()
-    }
-}
-
-fn run_net_step(step: &PlannedStep, cache: &Cache) -> StepRecord {
-    let status = if cache.load::<()>(&step.key, EntryKind::Net).is_some() {
+/// A step with nothing to compute beyond its settings (net, compare): its entry only
+/// records that these settings were built, so it reports as reused next time.
+fn marker_step(step: &PlannedStep, cache: &Cache) -> StepRecord {
+    let outcome = match step.spec {
+        StepSpec::Compare(_) => Outcome::Compare,
+        _ => Outcome::Net,
+    };
+    let status = if cache.load::<()>(&step.key, EntryKind::Marker).is_some() {
         Status::Reused
     } else {
-        cache.store(&step.key, EntryKind::Net, &());
+        cache.store(&step.key, EntryKind::Marker, &());
         Status::Ran { seconds: 0.0 }
     };
     StepRecord {
         status,
-        outcome: Some(Outcome::Net),
+        outcome: Some(outcome),
     }
 }
 
-/// Works out a train step's shape and which of its runs are cached; queues the rest.
-fn plan_train_step<'a>(
-    plan: &'a Plan,
-    index: usize,
-    train: &'a TrainSpec,
+fn data_summary<'a>(
+    plan: &Plan,
+    records: &'a [Option<StepRecord>],
+    data: usize,
+) -> Result<&'a DataSummary, String> {
+    match records[data].as_ref().and_then(|r| r.outcome.as_ref()) {
+        Some(Outcome::Data(summary)) => Ok(summary),
+        _ => Err(format!(
+            "not run: its data step '{}' failed",
+            plan.steps[data].id
+        )),
+    }
+}
+
+/// Works out each fit's shape and which of its runs are cached.
+fn plan_fits(
+    plan: &Plan,
+    step: &PlannedStep,
     records: &[Option<StepRecord>],
     cache: &Cache,
-    tasks: &mut Vec<RunTask<'a>>,
-) -> Result<(ModelShape, Vec<Option<RunResult>>), String> {
-    let step = &plan.steps[index];
-    let (data_index, net_index) = (step.upstream[0], step.upstream[1]);
-    let summary = match records[data_index]
-        .as_ref()
-        .and_then(|r| r.outcome.as_ref())
-    {
-        Some(Outcome::Data(summary)) => summary,
-        _ => {
-            return Err(format!(
-                "not run: its data step '{}' failed",
-                plan.steps[data_index].id
-            ));
-        }
-    };
-    let StepSpec::Net(net) = &plan.steps[net_index].spec else {
-        unreachable!("references were checked when planning")
-    };
-    let shape = model_shape(summary, net, train)?;
-    let runs = step
-        .runs
-        .iter()
-        .enumerate()
-        .map(|(partition, key)| {
-            let key = key.clone();
-            let cached = cache.load::<RunResult>(&key, EntryKind::Run);
-            if cached.is_none() {
-                tasks.push(RunTask {
-                    step: index,
-                    partition,
-                    key,
-                    data: data_index,
-                    shape: shape.clone(),
-                    net,
-                    train,
-                });
+) -> Result<PendingFits, String> {
+    let mut shapes = Vec::new();
+    let mut runs = Vec::new();
+    for fit_plan in &step.fits {
+        let summary = data_summary(plan, records, fit_plan.data)?;
+        let shape = model_shape(summary, &fit_plan.net, &fit_plan.train).map_err(|error| {
+            if fit_plan.settings.is_empty() {
+                error
+            } else {
+                format!("with {}: {error}", describe(&fit_plan.settings))
             }
-            cached
-        })
-        .collect();
-    Ok((shape, runs))
+        })?;
+        shapes.push(shape);
+        runs.push(
+            fit_plan
+                .runs
+                .iter()
+                .map(|run| cache.load::<RunResult>(&run.key, EntryKind::Run))
+                .collect(),
+        );
+    }
+    Ok(PendingFits { shapes, runs })
+}
+
+/// `learning_rate = 0.1, activation = relu`.
+pub fn describe(settings: &[(String, String)]) -> String {
+    settings
+        .iter()
+        .map(|(name, value)| format!("{name} = {value}"))
+        .collect::<Vec<_>>()
+        .join(", ")
 }
 
 /// Fits every queued run on a pool of `jobs` threads.
-fn fit_all(
+fn fit_all<'t, 'a>(
     plan: &Plan,
     cache: &Cache,
     prepared: &mut HashMap<usize, Arc<Prepared>>,
-    tasks: Vec<RunTask<'_>>,
-    options: RunOptions,
-) -> Vec<(usize, usize, RunResult)> {
-    for task in &tasks {
-        if !prepared.contains_key(&task.data) {
-            let step = &plan.steps[task.data];
-            let ready = cache
-                .load::<Prepared>(&step.key, EntryKind::Prepared)
-                .or_else(|| prepare_data(step).ok())
-                .expect("a data step that succeeded once prepares again");
-            prepared.insert(task.data, Arc::new(ready));
-        }
+    tasks: &'t [RunTask<'a>],
+    options: &RunOptions,
+) -> Vec<(&'t RunTask<'a>, RunResult)> {
+    for task in tasks {
+        // A data step that succeeded in this build prepares again from the same bytes.
+        prepared_for(plan, task.data, cache, prepared)
+            .expect("a data step that succeeded prepares again");
+    }
+    if let Some(bar) = &options.progress {
+        bar.set_length(tasks.len() as u64);
     }
     let pool = rayon::ThreadPoolBuilder::new()
         .num_threads(options.jobs.max(1))
         .build()
         .expect("a thread pool");
-    pool.install(|| {
+    let results = pool.install(|| {
         tasks
             .par_iter()
             .map(|task| {
@@ -285,11 +370,133 @@ fn fit_all(
                     task.partition,
                     &task.shape,
                     task.net,
-                    task.train,
+                    &task.train,
                 );
-                cache.store(&task.key, EntryKind::Run, &result);
-                (task.step, task.partition, result)
+                cache.store(task.key, EntryKind::Run, &result);
+                if let Some(bar) = &options.progress {
+                    bar.inc(1);
+                }
+                (task, result)
             })
             .collect()
-    })
+    });
+    if let Some(bar) = &options.progress {
+        bar.finish_and_clear();
+    }
+    results
+}
+
+/// A train step's or sweep's record from its fitted and reused runs.
+fn assemble(
+    step: &PlannedStep,
+    fits: PendingFits,
+    status: Status,
+    records: &[Option<StepRecord>],
+    plan: &Plan,
+) -> StepRecord {
+    let results: Vec<FitResult> = step
+        .fits
+        .iter()
+        .zip(fits.shapes)
+        .zip(fits.runs)
+        .map(|((fit_plan, shape), runs)| FitResult {
+            settings: fit_plan.settings.clone(),
+            shape,
+            runs: runs
+                .into_iter()
+                .map(|run| run.expect("every run fitted or cached"))
+                .collect(),
+        })
+        .collect();
+    let outcome = match &step.spec {
+        StepSpec::Sweep(sweep) => {
+            let task = match data_summary(plan, records, step.fits[0].data) {
+                Ok(summary) => summary.task,
+                Err(error) => return StepRecord::failed(error),
+            };
+            let rank_by = sweep.rank_by.unwrap_or(match task {
+                Task::Classify => MetricName::Accuracy,
+                Task::Regress => MetricName::Loss,
+            });
+            let rank_rows = results[0].report_rows();
+            if results[0].metric(rank_by, rank_rows).is_none() {
+                return StepRecord::failed(format!(
+                    "rank_by {} is not a metric of this {} task",
+                    rank_by.key(),
+                    crate::document::spec::word(&task)
+                ));
+            }
+            let ranking = rank(&results, rank_by, rank_rows);
+            Outcome::Sweep(SweepResult {
+                fits: results,
+                rank_by,
+                rank_rows,
+                ranking,
+            })
+        }
+        _ => Outcome::Train(
+            results
+                .into_iter()
+                .next()
+                .expect("a train step has one fit"),
+        ),
+    };
+    StepRecord {
+        status,
+        outcome: Some(outcome),
+    }
+}
+
+/// A predict or export step: loads its result by key, or computes it from the model's
+/// network and its data step's encoding and scaling.
+fn use_model_step(
+    plan: &Plan,
+    step: &PlannedStep,
+    records: &[Option<StepRecord>],
+    cache: &Cache,
+    prepared: &mut HashMap<usize, Arc<Prepared>>,
+) -> StepRecord {
+    let kind = match step.spec {
+        StepSpec::Predict(_) => EntryKind::Predict,
+        _ => EntryKind::Export,
+    };
+    if let Some(outcome) = cache.load::<Outcome>(&step.key, kind) {
+        return StepRecord {
+            status: Status::Reused,
+            outcome: Some(outcome),
+        };
+    }
+    let model_index = step.upstream[0];
+    let model = match records[model_index]
+        .as_ref()
+        .and_then(|r| r.outcome.as_ref())
+    {
+        Some(Outcome::Train(fit)) => fit,
+        _ => {
+            return StepRecord::failed(format!(
+                "not run: its model '{}' failed",
+                plan.steps[model_index].id
+            ));
+        }
+    };
+    let started = Instant::now();
+    let data = plan.steps[model_index].upstream[0];
+    let computed = prepared_for(plan, data, cache, prepared).and_then(|ready| match &step.spec {
+        StepSpec::Predict(_) => {
+            use_model::predict(model, &ready, &step.files[0]).map(Outcome::Predict)
+        }
+        _ => use_model::export(model, &ready).map(Outcome::Export),
+    });
+    match computed {
+        Ok(outcome) => {
+            cache.store(&step.key, kind, &outcome);
+            StepRecord {
+                status: Status::Ran {
+                    seconds: started.elapsed().as_secs_f64(),
+                },
+                outcome: Some(outcome),
+            }
+        }
+        Err(error) => StepRecord::failed(error),
+    }
 }

@@ -7,6 +7,7 @@ use serde::Serialize;
 
 use crate::data::Split;
 use crate::document::StepSpec;
+use crate::document::spec::sweep::value_text;
 use crate::document::spec::word;
 use crate::nn::{BatchSize, Optimizer};
 
@@ -111,6 +112,52 @@ pub fn rows(spec: &StepSpec, yaml: &str) -> Vec<SettingRow> {
             rows.push(row("seed", train.seed.to_string()));
             rows
         }
+        StepSpec::Sweep(sweep) => {
+            let mut rows = vec![row("from", sweep.from.clone())];
+            for (name, values) in &sweep.vary {
+                let values: Vec<String> = values.iter().map(value_text).collect();
+                rows.push(SettingRow {
+                    name: "vary",
+                    value: format!("{name}: [{}]", values.join(", ")),
+                    default: false,
+                });
+            }
+            rows.push(row("repeat", sweep.repeat.to_string()));
+            rows.push(row(
+                "rank_by",
+                sweep
+                    .rank_by
+                    .map_or("accuracy or loss, held out".into(), |m| m.key().to_string()),
+            ));
+            rows
+        }
+        StepSpec::Compare(compare) => vec![
+            row("runs", compare.runs.join(", ")),
+            row(
+                "metrics",
+                compare
+                    .metrics
+                    .as_ref()
+                    .map_or("from the task".into(), |metrics| {
+                        metrics
+                            .iter()
+                            .map(|m| m.key())
+                            .collect::<Vec<_>>()
+                            .join(", ")
+                    }),
+            ),
+            row("chart", word(&compare.chart)),
+            row("log_scale", compare.log_scale.to_string()),
+        ],
+        StepSpec::Predict(predict) => vec![
+            row("model", predict.model.clone()),
+            row("file", predict.file.clone()),
+            row("write", predict.write.clone().unwrap_or_else(|| "—".into())),
+        ],
+        StepSpec::Export(export) => vec![
+            row("model", export.model.clone()),
+            row("write", export.write.clone()),
+        ],
     }
 }
 

@@ -4,7 +4,7 @@
 use serde_json::{Map, Value, json};
 
 use super::format::stop_code;
-use crate::outcome::{MetricStat, Outcome, RowSet, RunResult, SetMetrics, TrainResult};
+use crate::outcome::{FitResult, MetricStat, Outcome, RowSet, RunResult, SetMetrics};
 use crate::plan::Plan;
 use crate::run::{Status, StepRecord};
 
@@ -46,7 +46,7 @@ pub fn summary(
     json!({"document": document_name, "hash": document_hash, "steps": steps})
 }
 
-fn train_fields(result: &TrainResult, object: &mut Map<String, Value>) {
+fn train_fields(result: &FitResult, object: &mut Map<String, Value>) {
     let mut metrics = Map::new();
     let mut sd = Map::new();
     for (name, rows) in [("train", RowSet::Train), ("test", RowSet::Test)] {

@@ -7,7 +7,7 @@ use super::chart::{self, Series};
 use super::format::{mean_sd, number, seconds, stop_reason};
 use crate::document::spec::word;
 use crate::nn::ClassificationMetrics;
-use crate::outcome::{DataSummary, MetricStat, RowSet, SetMetrics, TrainResult};
+use crate::outcome::{DataSummary, FitResult, MetricStat, RowSet, SetMetrics};
 
 /// What a data step's card shows.
 #[derive(Serialize)]
@@ -155,7 +155,7 @@ pub struct ConfusionCell {
     pub diagonal: bool,
 }
 
-pub fn train_view(result: &TrainResult, classes: Option<&[String]>) -> TrainView {
+pub fn train_view(result: &FitResult, classes: Option<&[String]>) -> TrainView {
     let shape = &result.shape;
     let last = shape.sizes.len() - 1;
     let layers = shape
@@ -248,7 +248,7 @@ fn fold_row(index: usize, run: &crate::outcome::RunResult) -> FoldRow {
     }
 }
 
-fn stop_counts(result: &TrainResult) -> String {
+fn stop_counts(result: &FitResult) -> String {
     let mut counts: Vec<(&str, usize)> = Vec::new();
     for run in &result.runs {
         let reason = stop_reason(run.fit.stop);
@@ -265,7 +265,7 @@ fn stop_counts(result: &TrainResult) -> String {
 }
 
 /// Training and validation loss per epoch; with folds, one pair of lines per fold.
-fn loss_chart(result: &TrainResult) -> String {
+fn loss_chart(result: &FitResult) -> String {
     let several = result.runs.len() > 1;
     let mut series = Vec::new();
     for (i, run) in result.runs.iter().enumerate() {
@@ -303,7 +303,7 @@ fn loss_chart(result: &TrainResult) -> String {
 }
 
 /// The confusion matrix summed over runs, on held-out rows when there are any.
-fn confusion_view(result: &TrainResult, labels: &[String]) -> Option<ConfusionView> {
+fn confusion_view(result: &FitResult, labels: &[String]) -> Option<ConfusionView> {
     let held_out = result.runs.iter().all(|run| run.test.is_some());
     let matrices: Vec<&ClassificationMetrics> = result
         .runs

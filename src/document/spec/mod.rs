@@ -3,6 +3,10 @@
 //! module sees raw YAML. A validated spec serialises canonically (fixed field order),
 //! which is what enters a step's cache key.
 
+pub mod compare;
+pub mod model_use;
+pub mod sweep;
+
 use serde::{Deserialize, Deserializer, Serialize};
 
 use super::StepBlock;
@@ -10,6 +14,9 @@ use super::problem::Problem;
 use super::yaml::{self, Block};
 use crate::data::{DataSettings, Missing, Scale, Split, Task};
 use crate::nn::{Activation, BatchSize, Init, Optimizer};
+pub use compare::{ChartChoice, CompareSpec};
+pub use model_use::{ExportSpec, PredictSpec};
+pub use sweep::{MetricName, SweepSpec};
 
 /// The kinds of step a document can declare.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Hash, Serialize, Deserialize)]
@@ -18,10 +25,22 @@ pub enum StepKind {
     Data,
     Net,
     Train,
+    Sweep,
+    Compare,
+    Predict,
+    Export,
 }
 
 impl StepKind {
-    pub const ALL: [StepKind; 3] = [StepKind::Data, StepKind::Net, StepKind::Train];
+    pub const ALL: [StepKind; 7] = [
+        StepKind::Data,
+        StepKind::Net,
+        StepKind::Train,
+        StepKind::Sweep,
+        StepKind::Compare,
+        StepKind::Predict,
+        StepKind::Export,
+    ];
 
     /// The word used in the info string and in summaries.
     pub fn word(self) -> &'static str {
@@ -29,6 +48,10 @@ impl StepKind {
             StepKind::Data => "data",
             StepKind::Net => "net",
             StepKind::Train => "train",
+            StepKind::Sweep => "sweep",
+            StepKind::Compare => "compare",
+            StepKind::Predict => "predict",
+            StepKind::Export => "export",
         }
     }
 
@@ -52,6 +75,10 @@ pub enum StepSpec {
     Data(DataSpec),
     Net(NetSpec),
     Train(TrainSpec),
+    Sweep(SweepSpec),
+    Compare(CompareSpec),
+    Predict(PredictSpec),
+    Export(ExportSpec),
 }
 
 /// `data`: which CSV file to read and how to prepare it.
@@ -107,15 +134,36 @@ pub struct TrainSpec {
     pub seed: u64,
 }
 
+fn reference<'a>(id: &'a str, setting: &'static str, kinds: &'static [StepKind]) -> Reference<'a> {
+    Reference { id, setting, kinds }
+}
+
+/// A step id that a step reads, the setting that names it, and the kinds it may be.
+pub struct Reference<'a> {
+    pub id: &'a str,
+    pub setting: &'static str,
+    pub kinds: &'static [StepKind],
+}
+
 impl StepSpec {
-    /// The ids of the steps this one reads, with the kind each must have.
-    pub fn references(&self) -> Vec<(&str, StepKind, &'static str)> {
+    /// The steps this one reads, in the order its upstream results are used.
+    pub fn references(&self) -> Vec<Reference<'_>> {
         match self {
             StepSpec::Data(_) | StepSpec::Net(_) => Vec::new(),
             StepSpec::Train(train) => vec![
-                (train.data.as_str(), StepKind::Data, "data"),
-                (train.net.as_str(), StepKind::Net, "net"),
+                reference(&train.data, "data", &[StepKind::Data]),
+                reference(&train.net, "net", &[StepKind::Net]),
             ],
+            StepSpec::Sweep(sweep) => vec![reference(&sweep.from, "from", &[StepKind::Train])],
+            StepSpec::Compare(compare) => compare
+                .runs
+                .iter()
+                .map(|id| reference(id, "runs", &[StepKind::Train, StepKind::Sweep]))
+                .collect(),
+            StepSpec::Predict(predict) => {
+                vec![reference(&predict.model, "model", &[StepKind::Train])]
+            }
+            StepSpec::Export(export) => vec![reference(&export.model, "model", &[StepKind::Train])],
         }
     }
 }
@@ -146,13 +194,13 @@ enum OneOrMany {
 
 #[derive(Deserialize)]
 #[serde(deny_unknown_fields)]
-struct RawNet {
+pub(crate) struct RawNet {
     hidden: Option<Vec<usize>>,
     activation: Option<Activation>,
     output: Option<OutputChoice>,
     init: Option<Init>,
 }
-const NET_KEYS: &[&str] = &["hidden", "activation", "output", "init"];
+pub(crate) const NET_KEYS: &[&str] = &["hidden", "activation", "output", "init"];
 
 #[derive(Clone, Copy, Deserialize)]
 #[serde(rename_all = "snake_case")]
@@ -163,7 +211,7 @@ enum OptimizerKind {
 
 #[derive(Deserialize)]
 #[serde(deny_unknown_fields)]
-struct RawTrain {
+pub(crate) struct RawTrain {
     data: String,
     net: String,
     loss: Option<LossChoice>,
@@ -179,7 +227,7 @@ struct RawTrain {
     shuffle: Option<bool>,
     seed: Option<u64>,
 }
-const TRAIN_KEYS: &[&str] = &[
+pub(crate) const TRAIN_KEYS: &[&str] = &[
     "data",
     "net",
     "loss",
@@ -213,23 +261,31 @@ fn batch_size<'de, D: Deserializer<'de>>(deserializer: D) -> Result<Option<Batch
 }
 
 /// Checks of one block's values, each reported at the line of its key.
-struct Checker<'a> {
-    block: Block<'a>,
-    fallback: std::ops::Range<usize>,
-    problems: &'a mut Vec<Problem>,
+pub(crate) struct Checker<'a> {
+    /// The block as written, to find a key's line; `None` for settings made by a sweep.
+    pub block: Option<Block<'a>>,
+    /// Where a problem points when its key's line is not found.
+    pub fallback: std::ops::Range<usize>,
+    /// Put before each message (a sweep says which combination it was checking).
+    pub prefix: String,
+    pub problems: &'a mut Vec<Problem>,
 }
 
 impl Checker<'_> {
-    fn require(&mut self, ok: bool, key: &str, message: impl FnOnce() -> String) {
+    pub fn require(&mut self, ok: bool, key: &str, message: impl FnOnce() -> String) {
         if !ok {
-            let span = key_span(self.block, key).unwrap_or(self.fallback.clone());
-            self.problems.push(Problem::new(span, message()));
+            let span = self
+                .block
+                .and_then(|block| key_span(block, key))
+                .unwrap_or(self.fallback.clone());
+            let message = format!("{}{}", self.prefix, message());
+            self.problems.push(Problem::new(span, message));
         }
     }
 }
 
 /// The byte span of the line where `key:` is set in a block.
-fn key_span(block: Block<'_>, key: &str) -> Option<std::ops::Range<usize>> {
+pub(crate) fn key_span(block: Block<'_>, key: &str) -> Option<std::ops::Range<usize>> {
     let mut offset = block.offset;
     for line in block.text.split_inclusive('\n') {
         let trimmed = line.trim_start();
@@ -254,8 +310,9 @@ pub fn parse_step(
     };
     let before = problems.len();
     let mut check = Checker {
-        block,
+        block: Some(block),
         fallback: step.info_span.clone(),
+        prefix: String::new(),
         problems,
     };
     let spec = match step.kind {
@@ -270,6 +327,37 @@ pub fn parse_step(
         StepKind::Train => {
             let raw: RawTrain = deserialize(block, TRAIN_KEYS, &step.info_span, check.problems)?;
             StepSpec::Train(validate_train(raw, default_seed, &mut check))
+        }
+        StepKind::Sweep => {
+            let raw = deserialize(block, sweep::SWEEP_KEYS, &step.info_span, check.problems)?;
+            StepSpec::Sweep(sweep::validate_sweep(raw, &mut check))
+        }
+        StepKind::Compare => {
+            let raw = deserialize(
+                block,
+                compare::COMPARE_KEYS,
+                &step.info_span,
+                check.problems,
+            )?;
+            StepSpec::Compare(compare::validate_compare(raw, &mut check))
+        }
+        StepKind::Predict => {
+            let raw = deserialize(
+                block,
+                model_use::PREDICT_KEYS,
+                &step.info_span,
+                check.problems,
+            )?;
+            StepSpec::Predict(model_use::validate_predict(raw, &mut check))
+        }
+        StepKind::Export => {
+            let raw = deserialize(
+                block,
+                model_use::EXPORT_KEYS,
+                &step.info_span,
+                check.problems,
+            )?;
+            StepSpec::Export(model_use::validate_export(raw, &mut check))
         }
     };
     (problems.len() == before).then_some(spec)
@@ -338,7 +426,7 @@ fn validate_data(raw: RawData, default_seed: u64, check: &mut Checker<'_>) -> Da
     }
 }
 
-fn validate_net(raw: RawNet, check: &mut Checker<'_>) -> NetSpec {
+pub(crate) fn validate_net(raw: RawNet, check: &mut Checker<'_>) -> NetSpec {
     let hidden = raw.hidden.unwrap_or_else(|| vec![8]);
     check.require(hidden.iter().all(|&width| width > 0), "hidden", || {
         "every hidden layer needs at least one unit; use `hidden: []` for no hidden layer".into()
@@ -355,7 +443,11 @@ fn validate_net(raw: RawNet, check: &mut Checker<'_>) -> NetSpec {
     }
 }
 
-fn validate_train(raw: RawTrain, default_seed: u64, check: &mut Checker<'_>) -> TrainSpec {
+pub(crate) fn validate_train(
+    raw: RawTrain,
+    default_seed: u64,
+    check: &mut Checker<'_>,
+) -> TrainSpec {
     let kind = raw.optimizer.unwrap_or(OptimizerKind::Sgd);
     let learning_rate = raw.learning_rate.unwrap_or(match kind {
         OptimizerKind::Sgd => 0.01,

@@ -1,0 +1,66 @@
+//! `predict` and `export` settings: using a trained model on new rows or elsewhere.
+
+use serde::{Deserialize, Serialize};
+
+use super::Checker;
+
+#[derive(Deserialize)]
+#[serde(deny_unknown_fields)]
+pub(super) struct RawPredict {
+    model: String,
+    file: String,
+    write: Option<String>,
+}
+pub(super) const PREDICT_KEYS: &[&str] = &["model", "file", "write"];
+
+/// `predict`: a trained model applied to the rows of a CSV file.
+#[derive(Clone, Debug, PartialEq, Serialize)]
+pub struct PredictSpec {
+    pub model: String,
+    /// The CSV of new rows, relative to the document's folder.
+    pub file: String,
+    /// Where to save the predictions as CSV, relative to the document's folder.
+    pub write: Option<String>,
+}
+
+pub(super) fn validate_predict(raw: RawPredict, check: &mut Checker<'_>) -> PredictSpec {
+    check.require(!raw.file.trim().is_empty(), "file", || {
+        "file must name a CSV file".into()
+    });
+    if let Some(write) = &raw.write {
+        check.require(!write.trim().is_empty(), "write", || {
+            "write must name a file".into()
+        });
+    }
+    PredictSpec {
+        model: raw.model,
+        file: raw.file,
+        write: raw.write,
+    }
+}
+
+#[derive(Deserialize)]
+#[serde(deny_unknown_fields)]
+pub(super) struct RawExport {
+    model: String,
+    write: String,
+}
+pub(super) const EXPORT_KEYS: &[&str] = &["model", "write"];
+
+/// `export`: a trained model written as JSON for use from other programs.
+#[derive(Clone, Debug, PartialEq, Serialize)]
+pub struct ExportSpec {
+    pub model: String,
+    /// The JSON file to write, relative to the document's folder.
+    pub write: String,
+}
+
+pub(super) fn validate_export(raw: RawExport, check: &mut Checker<'_>) -> ExportSpec {
+    check.require(!raw.write.trim().is_empty(), "write", || {
+        "write must name a file".into()
+    });
+    ExportSpec {
+        model: raw.model,
+        write: raw.write,
+    }
+}

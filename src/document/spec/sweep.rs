@@ -1,0 +1,229 @@
+//! `sweep` settings, and the expansion of a sweep into validated train settings, one
+//! per combination of its varied values.
+
+use serde::{Deserialize, Serialize};
+use serde_yaml::{Mapping, Value};
+
+use super::{
+    Checker, NET_KEYS, NetSpec, RawNet, RawTrain, TRAIN_KEYS, TrainSpec, validate_net,
+    validate_train,
+};
+use crate::document::StepBlock;
+use crate::document::problem::{Problem, nearest};
+
+/// A metric a sweep can rank by or a compare step can show.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Hash, Serialize, Deserialize)]
+#[serde(rename_all = "snake_case")]
+pub enum MetricName {
+    Loss,
+    Accuracy,
+    LogLoss,
+    Mse,
+    Mae,
+    R2,
+}
+
+impl MetricName {
+    /// The name used in summaries and the metric tables.
+    pub fn key(self) -> &'static str {
+        match self {
+            MetricName::Loss => "loss",
+            MetricName::Accuracy => "accuracy",
+            MetricName::LogLoss => "log_loss",
+            MetricName::Mse => "mse",
+            MetricName::Mae => "mae",
+            MetricName::R2 => "r2",
+        }
+    }
+
+    /// Whether a larger value is better (accuracy, R²) or worse (the losses and errors).
+    pub fn higher_is_better(self) -> bool {
+        matches!(self, MetricName::Accuracy | MetricName::R2)
+    }
+}
+
+#[derive(Deserialize)]
+#[serde(deny_unknown_fields)]
+pub(super) struct RawSweep {
+    from: String,
+    vary: Mapping,
+    repeat: Option<usize>,
+    rank_by: Option<MetricName>,
+}
+pub(super) const SWEEP_KEYS: &[&str] = &["from", "vary", "repeat", "rank_by"];
+
+/// `sweep`: a train step run once per combination of the varied settings.
+#[derive(Clone, Debug, PartialEq, Serialize)]
+pub struct SweepSpec {
+    pub from: String,
+    /// Setting name → the values to try, in the order written.
+    pub vary: Vec<(String, Vec<Value>)>,
+    /// Seeds per combination: the train step's seed, then the next ones.
+    pub repeat: usize,
+    /// `None`: held-out accuracy to classify, held-out loss to regress.
+    pub rank_by: Option<MetricName>,
+}
+
+/// Settings a sweep cannot vary: they choose which steps a run reads.
+const FIXED: &[&str] = &["data", "net"];
+
+pub(super) fn validate_sweep(raw: RawSweep, check: &mut Checker<'_>) -> SweepSpec {
+    let mut vary = Vec::new();
+    for (key, values) in raw.vary {
+        let Some(name) = key.as_str().map(str::to_string) else {
+            check.require(false, "vary", || {
+                "vary maps setting names to lists of values".into()
+            });
+            continue;
+        };
+        let known = TRAIN_KEYS.iter().chain(NET_KEYS).any(|k| *k == name);
+        if !known || FIXED.contains(&name.as_str()) {
+            let suggestion = nearest(
+                &name,
+                TRAIN_KEYS
+                    .iter()
+                    .chain(NET_KEYS)
+                    .copied()
+                    .filter(|k| !FIXED.contains(k)),
+            )
+            .map_or(String::new(), |s| format!(" (did you mean '{s}'?)"));
+            check.require(false, "vary", || {
+                format!("a sweep can vary train and net settings other than data and net, not '{name}'{suggestion}")
+            });
+            continue;
+        }
+        match values {
+            Value::Sequence(values) if !values.is_empty() => vary.push((name, values)),
+            _ => check.require(false, "vary", || {
+                format!("vary: {name} needs a non-empty list of values")
+            }),
+        }
+    }
+    check.require(!vary.is_empty(), "vary", || {
+        "vary names no setting to vary".into()
+    });
+    let repeat = raw.repeat.unwrap_or(1);
+    check.require(repeat >= 1, "repeat", || "repeat must be at least 1".into());
+    SweepSpec {
+        from: raw.from,
+        vary,
+        repeat,
+        rank_by: raw.rank_by,
+    }
+}
+
+impl SweepSpec {
+    /// Every combination of the varied values, the first setting varying slowest.
+    pub fn combinations(&self) -> Vec<Vec<(String, Value)>> {
+        let mut grid: Vec<Vec<(String, Value)>> = vec![Vec::new()];
+        for (name, values) in &self.vary {
+            grid = grid
+                .into_iter()
+                .flat_map(|prefix| {
+                    values.iter().map(move |value| {
+                        let mut combination = prefix.clone();
+                        combination.push((name.clone(), value.clone()));
+                        combination
+                    })
+                })
+                .collect();
+        }
+        grid
+    }
+}
+
+/// A value as the report shows it.
+pub fn value_text(value: &Value) -> String {
+    match value {
+        Value::String(text) => text.clone(),
+        other => serde_yaml::to_string(other)
+            .map(|text| text.trim_end().replace('\n', " "))
+            .unwrap_or_default(),
+    }
+}
+
+/// The train and net settings of one combination: the base steps' YAML with the varied
+/// values put in, validated as if written there. Problems point at `span` (the sweep's
+/// `vary` line) and name the combination.
+pub fn variant(
+    train: &StepBlock,
+    net: &StepBlock,
+    combination: &[(String, Value)],
+    default_seed: u64,
+    span: std::ops::Range<usize>,
+    problems: &mut Vec<Problem>,
+) -> Option<(NetSpec, TrainSpec)> {
+    let mut train_map = mapping(&train.yaml);
+    let mut net_map = mapping(&net.yaml);
+    for (name, value) in combination {
+        let target = if TRAIN_KEYS.contains(&name.as_str()) {
+            &mut train_map
+        } else {
+            &mut net_map
+        };
+        target.insert(Value::String(name.clone()), value.clone());
+    }
+    let described = combination
+        .iter()
+        .map(|(name, value)| format!("{name} = {}", value_text(value)))
+        .collect::<Vec<_>>()
+        .join(", ");
+    let before = problems.len();
+    let mut check = Checker {
+        block: None,
+        fallback: span.clone(),
+        prefix: format!("with {described}: "),
+        problems,
+    };
+    let raw_train: Result<RawTrain, _> = serde_yaml::from_value(Value::Mapping(train_map));
+    let raw_net: Result<RawNet, _> = serde_yaml::from_value(Value::Mapping(net_map));
+    let (raw_train, raw_net) = match (raw_train, raw_net) {
+        (Ok(t), Ok(n)) => (t, n),
+        (Err(error), _) | (_, Err(error)) => {
+            let message = error.to_string();
+            let message = message
+                .split(" at line ")
+                .next()
+                .unwrap_or(&message)
+                .to_string();
+            check.require(false, "vary", || message);
+            return None;
+        }
+    };
+    let net_spec = validate_net(raw_net, &mut check);
+    let train_spec = validate_train(raw_train, default_seed, &mut check);
+    (problems.len() == before).then_some((net_spec, train_spec))
+}
+
+fn mapping(yaml: &str) -> Mapping {
+    serde_yaml::from_str(yaml).unwrap_or_default()
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn combinations_form_a_grid_with_the_first_setting_slowest() {
+        let spec = SweepSpec {
+            from: "base".into(),
+            vary: vec![
+                (
+                    "learning_rate".into(),
+                    vec![Value::from(0.1), Value::from(0.2), Value::from(0.3)],
+                ),
+                (
+                    "activation".into(),
+                    vec![Value::from("tanh"), Value::from("relu")],
+                ),
+            ],
+            repeat: 1,
+            rank_by: None,
+        };
+        let grid = spec.combinations();
+        assert_eq!(grid.len(), 6);
+        assert_eq!(value_text(&grid[0][0].1), "0.1");
+        assert_eq!(value_text(&grid[1][1].1), "relu");
+        assert_eq!(value_text(&grid[2][0].1), "0.2");
+    }
+}
