@@ -37,13 +37,25 @@ pub enum Status {
 pub struct StepRecord {
     pub status: Status,
     pub outcome: Option<Outcome>,
+    /// For train steps and sweeps: how many runs of each fit trained in this build
+    /// (the rest were reused).
+    pub trained: Vec<usize>,
 }
 
 impl StepRecord {
+    fn new(status: Status, outcome: Outcome) -> StepRecord {
+        StepRecord {
+            status,
+            outcome: Some(outcome),
+            trained: Vec::new(),
+        }
+    }
+
     fn failed(error: String) -> StepRecord {
         StepRecord {
             status: Status::Failed { error },
             outcome: None,
+            trained: Vec::new(),
         }
     }
 }
@@ -74,6 +86,8 @@ struct RunTask<'a> {
 struct PendingFits {
     shapes: Vec<ModelShape>,
     runs: Vec<Vec<Option<RunResult>>>,
+    /// Per fit, how many runs were not in the cache.
+    trained: Vec<usize>,
 }
 
 /// Runs every step of the plan, reusing what the cache holds.
@@ -177,10 +191,7 @@ fn run_data_step(
     index: usize,
 ) -> StepRecord {
     if let Some(summary) = cache.load::<DataSummary>(&step.key, EntryKind::DataSummary) {
-        return StepRecord {
-            status: Status::Reused,
-            outcome: Some(Outcome::Data(summary)),
-        };
+        return StepRecord::new(Status::Reused, Outcome::Data(summary));
     }
     let started = Instant::now();
     match prepare_data(step) {
@@ -189,12 +200,12 @@ fn run_data_step(
             cache.store(&step.key, EntryKind::Prepared, &ready);
             cache.store(&step.key, EntryKind::DataSummary, &summary);
             prepared.insert(index, Arc::new(ready));
-            StepRecord {
-                status: Status::Ran {
+            StepRecord::new(
+                Status::Ran {
                     seconds: started.elapsed().as_secs_f64(),
                 },
-                outcome: Some(Outcome::Data(summary)),
-            }
+                Outcome::Data(summary),
+            )
         }
         Err(error) => StepRecord::failed(error),
     }
@@ -282,10 +293,7 @@ fn marker_step(step: &PlannedStep, cache: &Cache) -> StepRecord {
         cache.store(&step.key, EntryKind::Marker, &());
         Status::Ran { seconds: 0.0 }
     };
-    StepRecord {
-        status,
-        outcome: Some(outcome),
-    }
+    StepRecord::new(status, outcome)
 }
 
 fn data_summary<'a>(
@@ -329,7 +337,15 @@ fn plan_fits(
                 .collect(),
         );
     }
-    Ok(PendingFits { shapes, runs })
+    let trained = runs
+        .iter()
+        .map(|fit: &Vec<Option<RunResult>>| fit.iter().filter(|run| run.is_none()).count())
+        .collect();
+    Ok(PendingFits {
+        shapes,
+        runs,
+        trained,
+    })
 }
 
 /// `learning_rate = 0.1, activation = relu`.
@@ -394,6 +410,7 @@ fn assemble(
     records: &[Option<StepRecord>],
     plan: &Plan,
 ) -> StepRecord {
+    let trained = fits.trained;
     let results: Vec<FitResult> = step
         .fits
         .iter()
@@ -442,8 +459,8 @@ fn assemble(
         ),
     };
     StepRecord {
-        status,
-        outcome: Some(outcome),
+        trained,
+        ..StepRecord::new(status, outcome)
     }
 }
 
@@ -461,10 +478,7 @@ fn use_model_step(
         _ => EntryKind::Export,
     };
     if let Some(outcome) = cache.load::<Outcome>(&step.key, kind) {
-        return StepRecord {
-            status: Status::Reused,
-            outcome: Some(outcome),
-        };
+        return StepRecord::new(Status::Reused, outcome);
     }
     let model_index = step.upstream[0];
     let model = match records[model_index]
@@ -490,12 +504,12 @@ fn use_model_step(
     match computed {
         Ok(outcome) => {
             cache.store(&step.key, kind, &outcome);
-            StepRecord {
-                status: Status::Ran {
+            StepRecord::new(
+                Status::Ran {
                     seconds: started.elapsed().as_secs_f64(),
                 },
-                outcome: Some(outcome),
-            }
+                outcome,
+            )
         }
         Err(error) => StepRecord::failed(error),
     }

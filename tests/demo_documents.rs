@@ -4,7 +4,9 @@ mod common;
 
 use common::{Workspace, ids_with_status};
 
-fn build_demo(name: &str, steps: usize) {
+/// Builds a demo twice without the cache; `charts` is how many SVG charts it draws (one
+/// per train step and compare step, one or two per sweep).
+fn build_demo(name: &str, steps: usize, charts: usize) {
     let ws = Workspace::new();
     let doc = ws.demo(name);
     let first = ws.build_ok(&doc, &["--no-cache"]);
@@ -14,12 +16,7 @@ fn build_demo(name: &str, steps: usize) {
 
     let html = std::fs::read_to_string(doc.with_extension("html")).unwrap();
     assert_eq!(html.matches("<section class=\"step ").count(), steps);
-    let trains = listed.iter().filter(|s| s["kind"] == "train").count();
-    assert_eq!(
-        html.matches("<svg").count(),
-        trains,
-        "one loss chart per train step"
-    );
+    assert_eq!(html.matches("<svg").count(), charts);
     assert!(html.contains("<table class=\"grid numeric metrics\">"));
     assert!(
         html.contains("<style>") && !html.contains("<link "),
@@ -31,17 +28,23 @@ fn build_demo(name: &str, steps: usize) {
     for (a, b) in listed.iter().zip(second["steps"].as_array().unwrap()) {
         assert_eq!(a["metrics"], b["metrics"], "{}", a["id"]);
         assert_eq!(a["stop"], b["stop"], "{}", a["id"]);
+        assert_eq!(a["runs"], b["runs"], "{}", a["id"]);
+    }
+    for kind in ["sweep", "compare", "predict"] {
+        assert!(listed.iter().any(|s| s["kind"] == kind), "the demo uses a {kind} step");
     }
 }
 
 #[test]
 fn the_hives_demo_builds_a_complete_report() {
-    build_demo("hives.md", 7);
+    // 4 trains, a sweep with its loss and learning-rate charts, a compare.
+    build_demo("hives.md", 11, 7);
 }
 
 #[test]
 fn the_greenhouse_demo_builds_a_complete_report() {
-    build_demo("greenhouse.md", 6);
+    // 4 trains, a sweep over non-numeric settings (one chart), a compare.
+    build_demo("greenhouse.md", 11, 6);
 }
 
 #[test]

@@ -37,51 +37,149 @@ pub fn thin(points: Vec<(f64, f64)>) -> Vec<(f64, f64)> {
     kept
 }
 
-/// Draws the series against epochs; `log_scale` puts the values on a log axis.
-/// Non-finite values (a diverged run) are left out of the line.
-pub fn line_chart(series: &[Series], y_label: &str, log_scale: bool) -> String {
-    let finite = |&(_, y): &(f64, f64)| y.is_finite() && (!log_scale || y > 0.0);
-    let values: Vec<f64> = series
+/// Axis labels and scales of a line chart.
+pub struct Axes<'a> {
+    pub x_label: &'a str,
+    pub y_label: &'a str,
+    /// Logarithmic x axis: values are plotted as log10 and labelled as themselves.
+    pub log_x: bool,
+    pub log_y: bool,
+}
+
+impl Axes<'_> {
+    /// Epochs against loss.
+    pub fn loss(log_y: bool) -> Axes<'static> {
+        Axes {
+            x_label: "epoch",
+            y_label: "loss",
+            log_x: false,
+            log_y,
+        }
+    }
+}
+
+/// Draws the series; non-finite values (a diverged run), and values that a log axis
+/// cannot show, are left out of the lines.
+pub fn line_chart(series: &[Series], axes: &Axes<'_>) -> String {
+    let log_y = axes.log_y;
+    let finite = |&(x, y): &(f64, f64)| {
+        y.is_finite() && x.is_finite() && (!log_y || y > 0.0) && (!axes.log_x || x > 0.0)
+    };
+    let transform = |(x, y): (f64, f64)| if axes.log_x { (x.log10(), y) } else { (x, y) };
+    let lines: Vec<Series> = series
         .iter()
-        .flat_map(|s| s.points.iter().filter(|p| finite(p)).map(|p| p.1))
+        .map(|line| Series {
+            label: line.label.clone(),
+            points: line
+                .points
+                .iter()
+                .copied()
+                .filter(finite)
+                .map(transform)
+                .collect(),
+            dashed: line.dashed,
+        })
         .collect();
-    let x_max = series
-        .iter()
-        .flat_map(|s| s.points.last().map(|p| p.0))
-        .fold(1.0f64, f64::max);
-    let (mut lo, mut hi) = values
-        .iter()
-        .fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), &v| {
-            (lo.min(v), hi.max(v))
-        });
-    if !lo.is_finite() {
-        (lo, hi) = (1e-3, 1.0);
-    }
-    if hi <= lo {
-        hi = lo * 1.5 + 1e-9;
-        lo = if log_scale { lo / 1.5 } else { lo - 1e-9 };
-    }
+    let points = || lines.iter().flat_map(|line| line.points.iter().copied());
+    let (x_lo, x_hi) = padded(points().map(|p| p.0), false, (1.0, 2.0));
+    let (y_lo, y_hi) = padded(points().map(|p| p.1), log_y, (1e-3, 1.0));
+    let x_format = |x: &f64| {
+        if axes.log_x {
+            format_tick(10f64.powf(*x))
+        } else {
+            format_tick(*x)
+        }
+    };
     let mut svg = String::new();
     {
         let root = SVGBackend::with_string(&mut svg, (560, 300)).into_drawing_area();
-        let drawn = if log_scale {
+        let drawn = if log_y {
             draw(
                 &root,
-                series,
-                y_label,
-                (1.0..x_max.max(2.0), (lo..hi).log_scale()),
-                &finite,
+                &lines,
+                axes,
+                (x_lo..x_hi, (y_lo..y_hi).log_scale()),
+                &x_format,
             )
         } else {
-            let pad = (hi - lo) * 0.05;
-            draw(
-                &root,
-                series,
-                y_label,
-                (1.0..x_max.max(2.0), lo - pad..hi + pad),
-                &finite,
-            )
+            draw(&root, &lines, axes, (x_lo..x_hi, y_lo..y_hi), &x_format)
         };
+        drawn.expect("drawing to a string cannot fail");
+        root.present().expect("drawing to a string cannot fail");
+    }
+    svg
+}
+
+/// The range of some values with a little room around it; `fallback` when empty.
+fn padded(values: impl Iterator<Item = f64>, log: bool, fallback: (f64, f64)) -> (f64, f64) {
+    let (lo, hi) = values.fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), v| {
+        (lo.min(v), hi.max(v))
+    });
+    if !lo.is_finite() {
+        return fallback;
+    }
+    if log {
+        if hi <= lo {
+            (lo / 1.5, hi * 1.5)
+        } else {
+            (lo, hi)
+        }
+    } else {
+        let pad = if hi > lo {
+            (hi - lo) * 0.05
+        } else {
+            lo.abs().max(1e-9) * 0.1
+        };
+        (lo - pad, hi + pad)
+    }
+}
+
+/// A bar per label, for a metric across runs.
+pub fn bar_chart(bars: &[(String, f64)], y_label: &str) -> String {
+    let values: Vec<f64> = bars.iter().map(|b| b.1).filter(|v| v.is_finite()).collect();
+    let top = values.iter().fold(0.0f64, |a, &b| a.max(b));
+    let bottom = values.iter().fold(0.0f64, |a, &b| a.min(b));
+    let (lo, hi) = (bottom * 1.1, if top > 0.0 { top * 1.1 } else { 1.0 });
+    let labels: Vec<String> = bars.iter().map(|b| b.0.clone()).collect();
+    let mut svg = String::new();
+    {
+        let root = SVGBackend::with_string(&mut svg, (560, 300)).into_drawing_area();
+        let drawn = (|| -> Result<(), Box<dyn std::error::Error + '_>> {
+            let mut chart = ChartBuilder::on(&root)
+                .margin(10)
+                .x_label_area_size(34)
+                .y_label_area_size(62)
+                .build_cartesian_2d(-0.5..(bars.len() as f64 - 0.5), lo..hi)?;
+            chart
+                .configure_mesh()
+                .disable_x_mesh()
+                .max_light_lines(2)
+                .light_line_style(RGBColor(0xee, 0xee, 0xee))
+                .bold_line_style(RGBColor(0xcc, 0xcc, 0xcc))
+                .x_labels(bars.len().max(1))
+                .x_label_formatter(&|x| {
+                    let i = x.round();
+                    if (x - i).abs() < 1e-6 && i >= 0.0 {
+                        labels.get(i as usize).cloned().unwrap_or_default()
+                    } else {
+                        String::new()
+                    }
+                })
+                .y_desc(y_label)
+                .y_label_formatter(&|y| format_tick(*y))
+                .label_style(("sans-serif", 12))
+                .draw()?;
+            chart.draw_series(
+                bars.iter()
+                    .enumerate()
+                    .filter(|(_, b)| b.1.is_finite())
+                    .map(|(i, b)| {
+                        let x = i as f64;
+                        Rectangle::new([(x - 0.35, 0.0), (x + 0.35, b.1)], COLOURS[0].filled())
+                    }),
+            )?;
+            Ok(())
+        })();
         drawn.expect("drawing to a string cannot fail");
         root.present().expect("drawing to a string cannot fail");
     }
@@ -93,9 +191,9 @@ type Area<'a> = DrawingArea<SVGBackend<'a>, plotters::coord::Shift>;
 fn draw<'a, Y>(
     root: &Area<'a>,
     series: &[Series],
-    y_label: &str,
+    axes: &Axes<'_>,
     ranges: (std::ops::Range<f64>, Y),
-    finite: &dyn Fn(&(f64, f64)) -> bool,
+    x_format: &dyn Fn(&f64) -> String,
 ) -> Result<(), Box<dyn std::error::Error + 'a>>
 where
     Y: plotters::coord::ranged1d::AsRangedCoord<Value = f64>,
@@ -111,16 +209,16 @@ where
         .max_light_lines(2)
         .light_line_style(RGBColor(0xee, 0xee, 0xee))
         .bold_line_style(RGBColor(0xcc, 0xcc, 0xcc))
-        .x_desc("epoch")
-        .y_desc(y_label)
-        .x_label_formatter(&|x| format!("{x:.0}"))
+        .x_desc(axes.x_label)
+        .y_desc(axes.y_label)
+        .x_label_formatter(x_format)
         .y_label_formatter(&|y| format_tick(*y))
         .label_style(("sans-serif", 12))
         .draw()?;
     for (i, line) in series.iter().enumerate() {
         let colour = COLOURS[i % COLOURS.len()];
         let style = ShapeStyle::from(colour).stroke_width(2);
-        let points: Vec<(f64, f64)> = line.points.iter().copied().filter(|p| finite(p)).collect();
+        let points = line.points.clone();
         let legend_style = style;
         if line.dashed {
             chart
@@ -164,7 +262,7 @@ mod tests {
             points: (1..=50).map(|e| (e as f64, 1.0 / e as f64)).collect(),
             dashed: false,
         }];
-        let svg = line_chart(&series, "loss", true);
+        let svg = line_chart(&series, &Axes::loss(true));
         assert!(svg.starts_with("<svg"), "{}", &svg[..60]);
         assert!(svg.contains("training") && svg.contains("epoch"));
     }
@@ -176,7 +274,7 @@ mod tests {
             points: vec![(1.0, 0.5), (2.0, f64::INFINITY), (3.0, f64::NAN)],
             dashed: false,
         }];
-        assert!(line_chart(&series, "loss", true).contains("<svg"));
+        assert!(line_chart(&series, &Axes::loss(true)).contains("<svg"));
     }
 
     #[test]

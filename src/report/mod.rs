@@ -3,7 +3,9 @@
 //! Renderers return strings; only the command layer writes files.
 
 pub mod chart;
+pub mod compare_view;
 pub mod format;
+pub mod model_view;
 pub mod prose;
 pub mod settings;
 pub mod summary;
@@ -19,7 +21,9 @@ use crate::document::{Document, Piece, StepSpec};
 use crate::outcome::Outcome;
 use crate::plan::{Plan, short_key};
 use crate::run::{Status, StepRecord};
+use compare_view::{CompareView, Compared, SweepView, compare_view, sweep_view};
 use format::seconds;
+use model_view::{ExportView, PredictView, export_view, predict_view};
 use settings::SettingRow;
 use view::{DataView, TrainView, data_view, train_view};
 
@@ -109,6 +113,12 @@ struct StepView {
     yaml: String,
     data: Option<DataView>,
     train: Option<TrainView>,
+    sweep: Option<SweepView>,
+    compare: Option<CompareView>,
+    predict: Option<PredictView>,
+    export: Option<ExportView>,
+    /// Where a predict or export step wrote its file.
+    wrote: Option<String>,
 }
 
 /// Renders the report to a string.
@@ -239,7 +249,11 @@ fn step_view(input: &ReportInput<'_>, index: usize, yaml: &str, beside_html: Str
         Status::Failed { error } => ("failed", "failed".to_string(), Some(error.clone())),
     };
     let classes = match &step.spec {
-        StepSpec::Train(_) => match input.records[step.upstream[0]].outcome.as_ref() {
+        StepSpec::Train(train) => match input
+            .plan
+            .index_of(&train.data)
+            .and_then(|d| input.records[d].outcome.as_ref())
+        {
             Some(Outcome::Data(summary)) => summary.classes.clone(),
             _ => None,
         },
@@ -263,7 +277,60 @@ fn step_view(input: &ReportInput<'_>, index: usize, yaml: &str, beside_html: Str
             Some(Outcome::Train(result)) => Some(train_view(result, classes.as_deref())),
             _ => None,
         },
+        sweep: match &record.outcome {
+            Some(Outcome::Sweep(result)) => Some(sweep_view(result)),
+            _ => None,
+        },
+        compare: match (&step.spec, &record.outcome) {
+            (StepSpec::Compare(spec), Some(Outcome::Compare)) => {
+                Some(compare_view(spec, &compared(input, step)))
+            }
+            _ => None,
+        },
+        predict: match &record.outcome {
+            Some(Outcome::Predict(result)) => Some(predict_view(result)),
+            _ => None,
+        },
+        export: match &record.outcome {
+            Some(Outcome::Export(result)) => Some(export_view(result)),
+            _ => None,
+        },
+        wrote: match (&step.spec, &record.outcome) {
+            (StepSpec::Predict(spec), Some(_)) => spec.write.clone(),
+            (StepSpec::Export(spec), Some(_)) => Some(spec.write.clone()),
+            _ => None,
+        },
     }
+}
+
+/// The fits a compare step lists: a train step's own, a sweep's best combination.
+fn compared<'a>(
+    input: &'a ReportInput<'_>,
+    step: &'a crate::plan::PlannedStep,
+) -> Vec<Compared<'a>> {
+    step.upstream
+        .iter()
+        .filter_map(|&u| {
+            let id = input.plan.steps[u].id.as_str();
+            match input.records[u].outcome.as_ref()? {
+                Outcome::Train(fit) => Some(Compared {
+                    id,
+                    what: "train".into(),
+                    fit,
+                }),
+                Outcome::Sweep(sweep) => Some(Compared {
+                    id,
+                    what: format!(
+                        "best of {} combinations: {}",
+                        sweep.fits.len(),
+                        crate::run::describe(&sweep.best().settings)
+                    ),
+                    fit: sweep.best(),
+                }),
+                _ => None,
+            }
+        })
+        .collect()
 }
 
 #[cfg(test)]

@@ -37,8 +37,43 @@ pub fn summary(
                 }
             }
             object.insert("key".into(), json!(step.key));
-            if let Some(Outcome::Train(result)) = &record.outcome {
-                train_fields(result, &mut object);
+            match &record.outcome {
+                Some(Outcome::Train(result)) => {
+                    object.insert(
+                        "runs_trained".into(),
+                        json!(record.trained.iter().sum::<usize>()),
+                    );
+                    train_fields(result, &mut object);
+                }
+                Some(Outcome::Sweep(sweep)) => {
+                    object.insert(
+                        "runs_trained".into(),
+                        json!(record.trained.iter().sum::<usize>()),
+                    );
+                    object.insert("rank_by".into(), json!(sweep.rank_by.key()));
+                    object.insert("best".into(), settings(&sweep.best().settings));
+                    let runs = sweep
+                        .fits
+                        .iter()
+                        .zip(&record.trained)
+                        .map(|(fit, &trained)| {
+                            let mut run = Map::new();
+                            run.insert("settings".into(), settings(&fit.settings));
+                            run.insert(
+                                "status".into(),
+                                json!(if trained > 0 { "ran" } else { "reused" }),
+                            );
+                            run.insert("runs_trained".into(), json!(trained));
+                            train_fields(fit, &mut run);
+                            Value::Object(run)
+                        })
+                        .collect();
+                    object.insert("runs".into(), Value::Array(runs));
+                }
+                Some(Outcome::Predict(predict)) => {
+                    object.insert("rows".into(), json!(predict.lines.len()));
+                }
+                _ => {}
             }
             Value::Object(object)
         })
@@ -65,6 +100,16 @@ fn train_fields(result: &FitResult, object: &mut Map<String, Value>) {
         let folds = result.runs.iter().map(fold).collect();
         object.insert("folds".into(), Value::Array(folds));
     }
+}
+
+/// A sweep combination's settings as an object of the values as written.
+fn settings(settings: &[(String, String)]) -> Value {
+    Value::Object(
+        settings
+            .iter()
+            .map(|(k, v)| (k.clone(), json!(v)))
+            .collect(),
+    )
 }
 
 fn stat_means(stats: &[MetricStat]) -> Value {

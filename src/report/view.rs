@@ -299,7 +299,7 @@ fn loss_chart(result: &FitResult) -> String {
             });
         }
     }
-    chart::line_chart(&series, "loss", true)
+    chart::line_chart(&series, &chart::Axes::loss(true))
 }
 
 /// The confusion matrix summed over runs, on held-out rows when there are any.
@@ -368,4 +368,36 @@ fn ratio(part: usize, whole: usize) -> String {
     } else {
         number(part as f64 / whole as f64)
     }
+}
+
+/// The mean loss per epoch over runs (each epoch over the runs that reached it), thinned
+/// for drawing; the validation loss when `validation`, else the training loss.
+pub fn mean_curve(runs: &[crate::outcome::RunResult], validation: bool) -> Vec<(f64, f64)> {
+    let longest = runs
+        .iter()
+        .map(|run| run.fit.history.len())
+        .max()
+        .unwrap_or(0);
+    let points = (0..longest)
+        .filter_map(|epoch| {
+            let values: Vec<f64> = runs
+                .iter()
+                .filter_map(|run| run.fit.history.get(epoch))
+                .filter_map(|losses| {
+                    if validation {
+                        losses.validation
+                    } else {
+                        Some(losses.train)
+                    }
+                })
+                .collect();
+            (!values.is_empty()).then(|| {
+                (
+                    (epoch + 1) as f64,
+                    values.iter().sum::<f64>() / values.len() as f64,
+                )
+            })
+        })
+        .collect();
+    chart::thin(points)
 }

@@ -132,13 +132,25 @@ impl SweepSpec {
     }
 }
 
-/// A value as the report shows it.
+/// A value as the report shows it, in YAML's flow style (`[12, 6]`, `relu`, `0.01`).
 pub fn value_text(value: &Value) -> String {
     match value {
+        Value::Null => "null".into(),
+        Value::Bool(b) => b.to_string(),
+        Value::Number(n) => n.to_string(),
         Value::String(text) => text.clone(),
-        other => serde_yaml::to_string(other)
-            .map(|text| text.trim_end().replace('\n', " "))
-            .unwrap_or_default(),
+        Value::Sequence(items) => format!(
+            "[{}]",
+            items.iter().map(value_text).collect::<Vec<_>>().join(", ")
+        ),
+        Value::Mapping(map) => format!(
+            "{{{}}}",
+            map.iter()
+                .map(|(k, v)| format!("{}: {}", value_text(k), value_text(v)))
+                .collect::<Vec<_>>()
+                .join(", ")
+        ),
+        Value::Tagged(tagged) => value_text(&tagged.value),
     }
 }
 
@@ -225,5 +237,7 @@ mod tests {
         assert_eq!(value_text(&grid[0][0].1), "0.1");
         assert_eq!(value_text(&grid[1][1].1), "relu");
         assert_eq!(value_text(&grid[2][0].1), "0.2");
+        let widths: Value = serde_yaml::from_str("[12, 6]").unwrap();
+        assert_eq!(value_text(&widths), "[12, 6]");
     }
 }

@@ -1,0 +1,327 @@
+//! Views of the steps that set fits side by side: a sweep's ranked combinations and a
+//! compare step's table and overlaid chart.
+
+use serde::Serialize;
+
+use super::chart::{self, Axes, Series};
+use super::format::{mean_sd, number, stop_reason};
+use super::view::mean_curve;
+use crate::document::spec::{ChartChoice, CompareSpec, MetricName};
+use crate::outcome::{FitResult, MetricStat, RowSet, SetMetrics, SweepResult};
+use crate::run::describe;
+
+/// Lines a chart of several fits draws at most, so that it stays legible.
+const MAX_LINES: usize = 8;
+
+/// A sweep's card.
+#[derive(Serialize)]
+pub struct SweepView {
+    pub setting_names: Vec<String>,
+    pub metric_names: Vec<String>,
+    pub rows_label: &'static str,
+    pub rank_by: String,
+    pub rows: Vec<SweepRow>,
+    pub runs_per_combination: usize,
+    pub loss_chart: String,
+    pub loss_chart_note: String,
+    /// The ranking metric against a numeric setting, when one was varied.
+    pub setting_chart: Option<String>,
+    pub setting_chart_note: String,
+}
+
+#[derive(Serialize)]
+pub struct SweepRow {
+    pub rank: usize,
+    pub best: bool,
+    pub settings: Vec<String>,
+    pub values: Vec<String>,
+    pub stop: String,
+}
+
+fn stat_text(stat: &MetricStat) -> String {
+    match stat.sd {
+        Some(sd) => mean_sd(stat.mean, sd),
+        None => number(stat.mean),
+    }
+}
+
+fn rows_label(rows: RowSet) -> &'static str {
+    match rows {
+        RowSet::Test => "held out",
+        RowSet::Train => "training",
+    }
+}
+
+/// The stop reasons of a fit's runs: one reason, or each with its count.
+fn stops(fit: &FitResult) -> String {
+    let mut counts: Vec<(&str, usize)> = Vec::new();
+    for run in &fit.runs {
+        let reason = stop_reason(run.fit.stop);
+        match counts.iter_mut().find(|(r, _)| *r == reason) {
+            Some((_, count)) => *count += 1,
+            None => counts.push((reason, 1)),
+        }
+    }
+    match counts.as_slice() {
+        [(reason, _)] => reason.to_string(),
+        _ => counts
+            .iter()
+            .map(|(r, c)| format!("{r} ({c})"))
+            .collect::<Vec<_>>()
+            .join(", "),
+    }
+}
+
+pub fn sweep_view(result: &SweepResult) -> SweepView {
+    let first = &result.fits[0];
+    let stats_names: Vec<&'static str> = first
+        .metric_stats(result.rank_rows)
+        .map(|stats| stats.iter().map(|s| s.name).collect())
+        .unwrap_or_default();
+    let rows = result
+        .ranking
+        .iter()
+        .enumerate()
+        .map(|(rank, &i)| {
+            let fit = &result.fits[i];
+            SweepRow {
+                rank: rank + 1,
+                best: rank == 0,
+                settings: fit
+                    .settings
+                    .iter()
+                    .map(|(_, value)| value.clone())
+                    .collect(),
+                values: fit
+                    .metric_stats(result.rank_rows)
+                    .map(|stats| stats.iter().map(stat_text).collect())
+                    .unwrap_or_default(),
+                stop: stops(fit),
+            }
+        })
+        .collect();
+    let shown: Vec<&FitResult> = result
+        .ranking
+        .iter()
+        .take(MAX_LINES)
+        .map(|&i| &result.fits[i])
+        .collect();
+    let series: Vec<Series> = shown
+        .iter()
+        .map(|fit| Series {
+            label: describe(&fit.settings),
+            points: mean_curve(&fit.runs, false),
+            dashed: false,
+        })
+        .collect();
+    let loss_chart_note = if result.fits.len() > MAX_LINES {
+        format!(
+            "Mean training loss per epoch of the {MAX_LINES} best-ranked combinations, log scale."
+        )
+    } else {
+        "Mean training loss per epoch of each combination, log scale.".to_string()
+    };
+    let (setting_chart, setting_chart_note) = setting_chart(result);
+    SweepView {
+        setting_names: first
+            .settings
+            .iter()
+            .map(|(name, _)| name.clone())
+            .collect(),
+        metric_names: stats_names.iter().map(|n| n.replace('_', " ")).collect(),
+        rows_label: rows_label(result.rank_rows),
+        rank_by: result.rank_by.key().replace('_', " "),
+        rows,
+        runs_per_combination: first.runs.len(),
+        loss_chart: chart::line_chart(&series, &Axes::loss(true)),
+        loss_chart_note,
+        setting_chart,
+        setting_chart_note,
+    }
+}
+
+/// The ranking metric against the first varied setting whose values are all numbers,
+/// averaged over the other settings' values; a log axis when the values span a
+/// factor of 20 or more (learning rates usually do).
+fn setting_chart(result: &SweepResult) -> (Option<String>, String) {
+    let names: Vec<&String> = result.fits[0]
+        .settings
+        .iter()
+        .map(|(name, _)| name)
+        .collect();
+    for (position, name) in names.iter().enumerate() {
+        let mut points: Vec<(f64, Vec<f64>)> = Vec::new();
+        let numeric = result
+            .fits
+            .iter()
+            .all(|fit| fit.settings[position].1.parse::<f64>().is_ok());
+        if !numeric {
+            continue;
+        }
+        for fit in &result.fits {
+            let x: f64 = fit.settings[position].1.parse().expect("checked numeric");
+            let Some(stat) = fit.metric(result.rank_by, result.rank_rows) else {
+                continue;
+            };
+            match points.iter_mut().find(|(px, _)| *px == x) {
+                Some((_, values)) => values.push(stat.mean),
+                None => points.push((x, vec![stat.mean])),
+            }
+        }
+        if points.len() < 2 {
+            continue;
+        }
+        points.sort_by(|a, b| a.0.total_cmp(&b.0));
+        let line: Vec<(f64, f64)> = points
+            .iter()
+            .map(|(x, values)| (*x, values.iter().sum::<f64>() / values.len() as f64))
+            .collect();
+        let (lo, hi) = (line[0].0, line[line.len() - 1].0);
+        let log_x = lo > 0.0 && hi / lo >= 20.0;
+        let metric = result.rank_by.key().replace('_', " ");
+        let svg = chart::line_chart(
+            &[Series {
+                label: metric.clone(),
+                points: line,
+                dashed: false,
+            }],
+            &Axes {
+                x_label: name,
+                y_label: &metric,
+                log_x,
+                log_y: false,
+            },
+        );
+        let note = format!(
+            "{} on the {} rows against {name}{}{}.",
+            capitalise(&metric),
+            rows_label(result.rank_rows),
+            if names.len() > 1 {
+                ", averaged over the other settings"
+            } else {
+                ""
+            },
+            if log_x { " (log axis)" } else { "" }
+        );
+        return (Some(svg), note);
+    }
+    (None, String::new())
+}
+
+fn capitalise(text: &str) -> String {
+    let mut chars = text.chars();
+    chars
+        .next()
+        .map_or(String::new(), |c| c.to_uppercase().chain(chars).collect())
+}
+
+/// A compare step's card.
+#[derive(Serialize)]
+pub struct CompareView {
+    pub metric_names: Vec<String>,
+    pub rows: Vec<CompareRow>,
+    pub chart: Option<String>,
+    pub chart_note: String,
+}
+
+#[derive(Serialize)]
+pub struct CompareRow {
+    pub id: String,
+    pub what: String,
+    pub rows_label: &'static str,
+    pub values: Vec<String>,
+}
+
+/// One entry of a comparison: an id and the fit it stands for.
+pub struct Compared<'a> {
+    pub id: &'a str,
+    /// For a sweep, which combination (its best) is shown.
+    pub what: String,
+    pub fit: &'a FitResult,
+}
+
+/// The default columns: what a practitioner reads first for the task.
+fn default_metrics(fit: &FitResult) -> Vec<MetricName> {
+    match fit.runs.first().map(|run| &run.train) {
+        Some(SetMetrics::Classification { .. }) => vec![MetricName::Loss, MetricName::Accuracy],
+        _ => vec![MetricName::Loss, MetricName::Mae, MetricName::R2],
+    }
+}
+
+pub fn compare_view(spec: &CompareSpec, entries: &[Compared<'_>]) -> CompareView {
+    let metrics = spec.metrics.clone().unwrap_or_else(|| {
+        entries
+            .first()
+            .map_or(Vec::new(), |e| default_metrics(e.fit))
+    });
+    let rows = entries
+        .iter()
+        .map(|entry| {
+            let rows = entry.fit.report_rows();
+            CompareRow {
+                id: entry.id.to_string(),
+                what: entry.what.clone(),
+                rows_label: rows_label(rows),
+                values: metrics
+                    .iter()
+                    .map(|&metric| {
+                        entry
+                            .fit
+                            .metric(metric, rows)
+                            .map_or("—".into(), |stat| stat_text(&stat))
+                    })
+                    .collect(),
+            }
+        })
+        .collect();
+    let (chart, chart_note) = match spec.chart {
+        ChartChoice::None => (None, String::new()),
+        ChartChoice::Loss => {
+            let series: Vec<Series> = entries
+                .iter()
+                .take(MAX_LINES)
+                .map(|entry| Series {
+                    label: entry.id.to_string(),
+                    points: mean_curve(&entry.fit.runs, false),
+                    dashed: false,
+                })
+                .collect();
+            let scale = if spec.log_scale {
+                "log scale"
+            } else {
+                "linear scale"
+            };
+            (
+                Some(chart::line_chart(&series, &Axes::loss(spec.log_scale))),
+                format!("Mean training loss per epoch of each run, {scale}."),
+            )
+        }
+        ChartChoice::Metric => {
+            let metric = metrics.first().copied().unwrap_or(MetricName::Loss);
+            let bars: Vec<(String, f64)> = entries
+                .iter()
+                .map(|entry| {
+                    let value = entry
+                        .fit
+                        .metric(metric, entry.fit.report_rows())
+                        .map_or(f64::NAN, |s| s.mean);
+                    (entry.id.to_string(), value)
+                })
+                .collect();
+            let name = metric.key().replace('_', " ");
+            (
+                Some(chart::bar_chart(&bars, &name)),
+                format!(
+                    "{} of each run (held-out rows where there are any).",
+                    capitalise(&name)
+                ),
+            )
+        }
+    };
+    CompareView {
+        metric_names: metrics.iter().map(|m| m.key().replace('_', " ")).collect(),
+        rows,
+        chart,
+        chart_note,
+    }
+}

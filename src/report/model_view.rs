@@ -1,0 +1,62 @@
+//! Views of the steps that use a trained model: predictions and the export.
+
+use serde::Serialize;
+
+use super::format::number;
+use crate::outcome::{ExportResult, PredictResult};
+
+/// Rows a predict card shows; the written CSV has them all.
+const SHOWN_ROWS: usize = 50;
+
+#[derive(Serialize)]
+pub struct PredictView {
+    pub output_names: Vec<String>,
+    pub rows: Vec<PredictRow>,
+    pub total: usize,
+    pub shown: usize,
+}
+
+#[derive(Serialize)]
+pub struct PredictRow {
+    pub line: u64,
+    pub predicted: String,
+    pub values: Vec<String>,
+}
+
+pub fn predict_view(result: &PredictResult) -> PredictView {
+    let rows: Vec<PredictRow> = result
+        .lines
+        .iter()
+        .zip(&result.predicted)
+        .zip(&result.outputs)
+        .take(SHOWN_ROWS)
+        .map(|((line, predicted), values)| PredictRow {
+            line: *line,
+            predicted: predicted.clone(),
+            values: values.iter().map(|v| number(*v)).collect(),
+        })
+        .collect();
+    PredictView {
+        output_names: result.output_names.clone(),
+        shown: rows.len(),
+        rows,
+        total: result.lines.len(),
+    }
+}
+
+#[derive(Serialize)]
+pub struct ExportView {
+    pub bytes: usize,
+    pub layers: usize,
+}
+
+pub fn export_view(result: &ExportResult) -> ExportView {
+    let layers = serde_json::from_str::<serde_json::Value>(&result.json)
+        .ok()
+        .and_then(|doc| doc["layers"].as_array().map(Vec::len))
+        .unwrap_or(0);
+    ExportView {
+        bytes: result.json.len(),
+        layers,
+    }
+}
