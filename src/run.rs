@@ -86,7 +86,7 @@ struct RunTask<'a> {
 struct PendingFits {
     shapes: Vec<ModelShape>,
     runs: Vec<Vec<Option<RunResult>>>,
-    /// Per fit, how many runs were not in the cache.
+    /// Per fit, how many runs this step trained in this build.
     trained: Vec<usize>,
 }
 
@@ -139,12 +139,23 @@ pub fn execute(plan: &Plan, cache: &Cache, options: &RunOptions) -> Vec<StepReco
             }
         }
     }
-    tasks.sort_by_key(|task| (task.step, task.fit, task.run));
+    // Document order, so that a run two steps share is credited to the first of them.
+    tasks.sort_by_key(|task| (plan.steps[task.step].piece, task.fit, task.run));
+    let mut owners: HashMap<&Key, usize> = HashMap::new();
+    let unique: Vec<usize> = (0..tasks.len())
+        .filter(|&i| *owners.entry(tasks[i].key).or_insert(i) == i)
+        .collect();
+    let fitted: HashMap<&Key, RunResult> =
+        fit_all(plan, cache, &mut prepared, &tasks, &unique, options);
     let mut trained_seconds: HashMap<usize, Seconds> = HashMap::new();
-    for (task, result) in fit_all(plan, cache, &mut prepared, &tasks, options) {
-        *trained_seconds.entry(task.step).or_default() += result.seconds;
-        pending.get_mut(&task.step).expect("a pending step").runs[task.fit][task.run] =
-            Some(result);
+    for (i, task) in tasks.iter().enumerate() {
+        let result = fitted[task.key].clone();
+        let fits = pending.get_mut(&task.step).expect("a pending step");
+        if owners[task.key] == i {
+            *trained_seconds.entry(task.step).or_default() += result.seconds;
+            fits.trained[task.fit] += 1;
+        }
+        fits.runs[task.fit][task.run] = Some(result);
     }
     for (index, fits) in pending {
         let status = match trained_seconds.get(&index) {
@@ -337,10 +348,7 @@ fn plan_fits(
                 .collect(),
         );
     }
-    let trained = runs
-        .iter()
-        .map(|fit: &Vec<Option<RunResult>>| fit.iter().filter(|run| run.is_none()).count())
-        .collect();
+    let trained = vec![0; runs.len()];
     Ok(PendingFits {
         shapes,
         runs,
@@ -357,30 +365,32 @@ pub fn describe(settings: &[(String, String)]) -> String {
         .join(", ")
 }
 
-/// Fits every queued run on a pool of `jobs` threads.
-fn fit_all<'t, 'a>(
+/// Fits the queued runs `unique` picks (one per key) on a pool of `jobs` threads.
+fn fit_all<'t>(
     plan: &Plan,
     cache: &Cache,
     prepared: &mut HashMap<usize, Arc<Prepared>>,
-    tasks: &'t [RunTask<'a>],
+    tasks: &'t [RunTask<'_>],
+    unique: &[usize],
     options: &RunOptions,
-) -> Vec<(&'t RunTask<'a>, RunResult)> {
+) -> HashMap<&'t Key, RunResult> {
     for task in tasks {
         // A data step that succeeded in this build prepares again from the same bytes.
         prepared_for(plan, task.data, cache, prepared)
             .expect("a data step that succeeded prepares again");
     }
     if let Some(bar) = &options.progress {
-        bar.set_length(tasks.len() as u64);
+        bar.set_length(unique.len() as u64);
     }
     let pool = rayon::ThreadPoolBuilder::new()
         .num_threads(options.jobs.max(1))
         .build()
         .expect("a thread pool");
     let results = pool.install(|| {
-        tasks
+        unique
             .par_iter()
-            .map(|task| {
+            .map(|&i| {
+                let task = &tasks[i];
                 let result = fit(
                     &prepared[&task.data],
                     task.partition,
@@ -392,7 +402,7 @@ fn fit_all<'t, 'a>(
                 if let Some(bar) = &options.progress {
                     bar.inc(1);
                 }
-                (task, result)
+                (task.key, result)
             })
             .collect()
     });

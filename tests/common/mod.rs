@@ -121,3 +121,17 @@ pub fn step<'a>(summary: &'a Value, id: &str) -> &'a Value {
         .find(|step| step["id"] == id)
         .unwrap_or_else(|| panic!("no step {id}"))
 }
+
+/// A summary value with every `seconds` field removed, to compare two builds' numbers.
+pub fn without_seconds(value: &Value) -> Value {
+    match value {
+        Value::Object(map) => Value::Object(
+            map.iter()
+                .filter(|(key, _)| key.as_str() != "seconds")
+                .map(|(key, v)| (key.clone(), without_seconds(v)))
+                .collect(),
+        ),
+        Value::Array(items) => Value::Array(items.iter().map(without_seconds).collect()),
+        other => other.clone(),
+    }
+}
