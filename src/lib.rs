@@ -8,6 +8,7 @@
 
 pub mod atomic;
 pub mod cache;
+pub mod confine;
 pub mod data;
 pub mod document;
 pub mod fit;
@@ -49,6 +50,8 @@ pub struct BuildOptions {
     pub jobs: usize,
     pub templates: Option<PathBuf>,
     pub allow_html: bool,
+    /// Where the document may read and write, and the resource limits.
+    pub plan: plan::PlanOptions,
 }
 
 /// Why a command could not be carried out (exit code 2).
@@ -87,7 +90,7 @@ pub struct Loaded {
 }
 
 /// Reads, parses and plans a document; every problem found is reported together.
-pub fn load(path: &Path) -> Result<Loaded, Error> {
+pub fn load(path: &Path, options: &plan::PlanOptions) -> Result<Loaded, Error> {
     let bytes = std::fs::read(path).map_err(|source| Error::Io {
         context: format!("reading {}", path.display()),
         source,
@@ -112,7 +115,7 @@ pub fn load(path: &Path) -> Result<Loaded, Error> {
         Error::Document(DocumentErrors::for_file(path, source.clone(), problems))
     })?;
     let base_dir = path.parent().unwrap_or(Path::new("."));
-    let plan = plan::plan(&document, base_dir).map_err(|problems| {
+    let plan = plan::plan(&document, base_dir, options).map_err(|problems| {
         Error::Document(DocumentErrors::for_file(path, source.clone(), problems))
     })?;
     Ok(Loaded {
@@ -142,7 +145,7 @@ pub fn build(options: &BuildOptions) -> Result<BuildSummary, Error> {
         Some(dir) => report::Templates::with_overrides(dir).map_err(Error::Usage)?,
         None => report::Templates::built_in(),
     };
-    let loaded = load(&options.document)?;
+    let loaded = load(&options.document, &options.plan)?;
     let cache = open_cache(&options.cache, &options.document);
     let progress =
         indicatif::ProgressBar::with_draw_target(None, indicatif::ProgressDrawTarget::stderr())
@@ -195,8 +198,12 @@ pub fn build(options: &BuildOptions) -> Result<BuildSummary, Error> {
 }
 
 /// `stet status`: what a build of the document would reuse and run, and why.
-pub fn status(document: &Path, cache: &CacheChoice) -> Result<Vec<freshness::StepStatus>, Error> {
-    let loaded = load(document)?;
+pub fn status(
+    document: &Path,
+    cache: &CacheChoice,
+    options: &plan::PlanOptions,
+) -> Result<Vec<freshness::StepStatus>, Error> {
+    let loaded = load(document, options)?;
     let cache = open_cache(cache, document);
     let previous = manifest::load(&cache, document);
     Ok(freshness::status(&loaded.plan, &cache, &previous))
@@ -205,7 +212,11 @@ pub fn status(document: &Path, cache: &CacheChoice) -> Result<Vec<freshness::Ste
 /// `stet clean`: removes the cache entries no named document uses; with no document,
 /// the whole cache. The cache is the one the first document (or the current folder)
 /// would use.
-pub fn clean(documents: &[PathBuf], cache: &CacheChoice) -> Result<prune::Freed, Error> {
+pub fn clean(
+    documents: &[PathBuf],
+    cache: &CacheChoice,
+    options: &plan::PlanOptions,
+) -> Result<prune::Freed, Error> {
     let anchor = documents
         .first()
         .cloned()
@@ -216,7 +227,7 @@ pub fn clean(documents: &[PathBuf], cache: &CacheChoice) -> Result<prune::Freed,
     };
     let loaded = documents
         .iter()
-        .map(|path| load(path))
+        .map(|path| load(path, options))
         .collect::<Result<Vec<_>, _>>()?;
     let plans: Vec<&Plan> = loaded.iter().map(|l| &l.plan).collect();
     let keep = (!documents.is_empty()).then(|| prune::used_entries(&plans, &cache));

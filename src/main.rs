@@ -5,6 +5,7 @@ use std::path::PathBuf;
 use std::process::ExitCode;
 
 use clap::{Parser, Subcommand};
+use stet::plan::{Limits, PlanOptions};
 use stet::{BuildOptions, CacheChoice, Error};
 
 #[derive(Parser)]
@@ -16,6 +17,36 @@ use stet::{BuildOptions, CacheChoice, Error};
 struct Cli {
     #[command(subcommand)]
     command: Command,
+}
+
+/// What a document may touch; shared by every command that reads documents.
+#[derive(clap::Args)]
+struct DocumentFlags {
+    /// Let the document read and write files outside its project folder.
+    #[arg(long)]
+    allow_outside: bool,
+    /// Widest hidden layer a document may declare.
+    #[arg(long, value_name = "UNITS", default_value_t = Limits::default().max_layer_width)]
+    max_layer_width: usize,
+    /// Most training runs one sweep may ask for.
+    #[arg(long, value_name = "RUNS", default_value_t = Limits::default().max_sweep_runs)]
+    max_sweep_runs: usize,
+    /// Largest file a step may read, in MiB.
+    #[arg(long, value_name = "MIB", default_value_t = Limits::default().max_file_bytes >> 20)]
+    max_file_mb: u64,
+}
+
+impl DocumentFlags {
+    fn options(&self) -> PlanOptions {
+        PlanOptions {
+            allow_outside: self.allow_outside,
+            limits: Limits {
+                max_layer_width: self.max_layer_width,
+                max_sweep_runs: self.max_sweep_runs,
+                max_file_bytes: self.max_file_mb << 20,
+            },
+        }
+    }
 }
 
 #[derive(Subcommand)]
@@ -45,6 +76,8 @@ enum Command {
         /// Render raw HTML in the document's prose instead of showing it as text.
         #[arg(long)]
         allow_html: bool,
+        #[command(flatten)]
+        flags: DocumentFlags,
     },
     /// List each step with its short key and whether a build would reuse or run it.
     Status {
@@ -52,6 +85,8 @@ enum Command {
         /// The cache folder [default: $STET_CACHE, else .stet/ beside the document].
         #[arg(long, value_name = "DIR")]
         cache: Option<PathBuf>,
+        #[command(flatten)]
+        flags: DocumentFlags,
     },
     /// Remove cache entries that no named document uses (no document: the whole cache).
     Clean {
@@ -59,6 +94,8 @@ enum Command {
         /// The cache folder [default: $STET_CACHE, else .stet/ beside the first document].
         #[arg(long, value_name = "DIR")]
         cache: Option<PathBuf>,
+        #[command(flatten)]
+        flags: DocumentFlags,
     },
 }
 
@@ -84,6 +121,7 @@ fn run(command: Command) -> Result<ExitCode, Error> {
             jobs,
             templates,
             allow_html,
+            flags,
         } => {
             let options = BuildOptions {
                 document,
@@ -97,6 +135,7 @@ fn run(command: Command) -> Result<ExitCode, Error> {
                 jobs: jobs.unwrap_or_else(default_jobs),
                 templates,
                 allow_html,
+                plan: flags.options(),
             };
             let summary = stet::build(&options)?;
             for warning in &summary.warnings {
@@ -119,8 +158,12 @@ fn run(command: Command) -> Result<ExitCode, Error> {
                 ExitCode::from(1)
             })
         }
-        Command::Status { document, cache } => {
-            for step in stet::status(&document, &cache_choice(cache))? {
+        Command::Status {
+            document,
+            cache,
+            flags,
+        } => {
+            for step in stet::status(&document, &cache_choice(cache), &flags.options())? {
                 let decision = match step.run_reason {
                     None => "reuse".to_string(),
                     Some(reason) => format!("run ({reason})"),
@@ -137,8 +180,12 @@ fn run(command: Command) -> Result<ExitCode, Error> {
             }
             Ok(ExitCode::SUCCESS)
         }
-        Command::Clean { documents, cache } => {
-            let freed = stet::clean(&documents, &cache_choice(cache))?;
+        Command::Clean {
+            documents,
+            cache,
+            flags,
+        } => {
+            let freed = stet::clean(&documents, &cache_choice(cache), &flags.options())?;
             println!(
                 "removed {} cache entries, {} bytes freed",
                 freed.entries, freed.bytes

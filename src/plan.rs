@@ -6,6 +6,7 @@ use std::path::{Path, PathBuf};
 use std::sync::Arc;
 
 use crate::cache::EntryKind;
+use crate::confine;
 use crate::data::Split;
 use crate::document::problem::nearest;
 use crate::document::spec::sweep::{value_text, variant};
@@ -105,10 +106,52 @@ impl Plan {
     }
 }
 
+/// Bounds against documents that would exhaust memory or time; each is a flag.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub struct Limits {
+    /// Widest hidden layer allowed.
+    pub max_layer_width: usize,
+    /// Most training runs one sweep may ask for (combinations × seeds × folds).
+    pub max_sweep_runs: usize,
+    /// Largest file a step may read, in bytes.
+    pub max_file_bytes: u64,
+}
+
+impl Default for Limits {
+    fn default() -> Limits {
+        Limits {
+            max_layer_width: 4096,
+            max_sweep_runs: 2000,
+            max_file_bytes: 1 << 30,
+        }
+    }
+}
+
+/// What a plan may touch.
+#[derive(Clone, Debug, Default)]
+pub struct PlanOptions {
+    /// Let data paths and written files leave the document's project (`--allow-outside`).
+    pub allow_outside: bool,
+    pub limits: Limits,
+}
+
+/// Where a document may read and write: its folder and its project.
+struct Place<'a> {
+    base_dir: &'a Path,
+    /// `None` when `--allow-outside` lifts the confinement.
+    root: Option<PathBuf>,
+    limits: Limits,
+}
+
 /// Builds the plan of a parsed document whose data paths are relative to `base_dir`.
-pub fn plan(document: &Document, base_dir: &Path) -> Result<Plan, Vec<Problem>> {
+pub fn plan(document: &Document, base_dir: &Path, options: &PlanOptions) -> Result<Plan, Vec<Problem>> {
     let default_seed = document.front.seed.unwrap_or(0);
     let mut problems = Vec::new();
+    let place = Place {
+        base_dir,
+        root: (!options.allow_outside).then(|| confine::project_root(base_dir)),
+        limits: options.limits,
+    };
     let mut parsed: Vec<(usize, &StepBlock, StepSpec)> = Vec::new();
     let mut seen: HashMap<&str, &StepBlock> = HashMap::new();
     for (piece, block) in document
@@ -171,7 +214,11 @@ pub fn plan(document: &Document, base_dir: &Path) -> Result<Plan, Vec<Problem>> 
                 Some(_) => upstream.extend(index.get(id).copied()),
             }
         }
-        let files = read_files(block, spec, base_dir, &mut problems);
+        let files = read_files(block, spec, &place, &mut problems);
+        check_writes(block, spec, &place, &mut problems);
+        if let StepSpec::Net(net) = spec {
+            check_widths(block, &net.hidden, options.limits, "", &mut problems);
+        }
         steps.push(PlannedStep {
             id: block.id.clone(),
             kind: block.kind,
@@ -198,6 +245,7 @@ pub fn plan(document: &Document, base_dir: &Path) -> Result<Plan, Vec<Problem>> 
     let blocks: Vec<&StepBlock> = parsed.iter().map(|(_, block, _)| *block).collect();
     for i in 0..steps.len() {
         steps[i].fits = fits(&steps, &blocks, i, default_seed, &mut problems);
+        check_sweep_size(blocks[i], &steps[i], options.limits, &mut problems);
     }
     if !problems.is_empty() {
         return Err(problems);
@@ -241,18 +289,33 @@ fn setting_span(block: &StepBlock, setting: &str) -> std::ops::Range<usize> {
     block.info_span.clone()
 }
 
-fn read_files(
-    block: &StepBlock,
-    spec: &StepSpec,
-    base_dir: &Path,
-    problems: &mut Vec<Problem>,
-) -> Vec<InputFile> {
+fn read_files(block: &StepBlock, spec: &StepSpec, place: &Place<'_>, problems: &mut Vec<Problem>) -> Vec<InputFile> {
     let written = match spec {
         StepSpec::Data(data) => &data.file,
         StepSpec::Predict(predict) => &predict.file,
         _ => return Vec::new(),
     };
-    let path = base_dir.join(written);
+    let path = place.base_dir.join(written);
+    let span = setting_span(block, "file");
+    if let Some(root) = &place.root {
+        if !confine::is_inside(&path, root) {
+            problems.push(
+                Problem::new(span, format!("'{written}' is outside this document's project ({})", root.display()))
+                    .with_help("a document reads only files under its project folder; pass --allow-outside if you trust it"),
+            );
+            return Vec::new();
+        }
+    }
+    let limit = place.limits.max_file_bytes;
+    if let Ok(metadata) = std::fs::metadata(&path) {
+        if metadata.len() > limit {
+            problems.push(
+                Problem::new(span, format!("'{written}' is {} bytes, over the limit of {limit}", metadata.len()))
+                    .with_help("raise the limit with --max-file-mb"),
+            );
+            return Vec::new();
+        }
+    }
     match std::fs::read(&path) {
         Ok(bytes) => vec![InputFile {
             written: written.clone(),
@@ -262,14 +325,73 @@ fn read_files(
         }],
         Err(error) => {
             problems.push(
-                Problem::new(
-                    setting_span(block, "file"),
-                    format!("cannot read '{}': {error}", path.display()),
-                )
-                .with_help("the path is relative to the document's folder"),
+                Problem::new(span, format!("cannot read '{}': {error}", path.display()))
+                    .with_help("the path is relative to the document's folder"),
             );
             Vec::new()
         }
+    }
+}
+
+/// A file that predict or export will write must stay inside the project too.
+fn check_writes(block: &StepBlock, spec: &StepSpec, place: &Place<'_>, problems: &mut Vec<Problem>) {
+    let written = match spec {
+        StepSpec::Predict(predict) => predict.write.as_ref(),
+        StepSpec::Export(export) => Some(&export.write),
+        _ => None,
+    };
+    if let (Some(written), Some(root)) = (written, &place.root) {
+        if !confine::is_writable_inside(&place.base_dir.join(written), root) {
+            problems.push(
+                Problem::new(
+                    setting_span(block, "write"),
+                    format!("'{written}' is outside this document's project ({})", root.display()),
+                )
+                .with_help("a document writes only under its project folder; pass --allow-outside if you trust it"),
+            );
+        }
+    }
+}
+
+fn check_widths(block: &StepBlock, hidden: &[usize], limits: Limits, prefix: &str, problems: &mut Vec<Problem>) {
+    if let Some(&width) = hidden.iter().find(|&&w| w > limits.max_layer_width) {
+        let setting = if prefix.is_empty() { "hidden" } else { "vary" };
+        problems.push(
+            Problem::new(
+                setting_span(block, setting),
+                format!(
+                    "{prefix}a hidden layer of {width} units is wider than the limit of {}",
+                    limits.max_layer_width
+                ),
+            )
+            .with_help("raise the limit with --max-layer-width"),
+        );
+    }
+}
+
+/// A sweep's size and its combinations' widths, against the limits.
+fn check_sweep_size(block: &StepBlock, step: &PlannedStep, limits: Limits, problems: &mut Vec<Problem>) {
+    if step.kind != StepKind::Sweep {
+        return;
+    }
+    let runs: usize = step.fits.iter().map(|fit| fit.runs.len()).sum();
+    if runs > limits.max_sweep_runs {
+        problems.push(
+            Problem::new(
+                setting_span(block, "vary"),
+                format!(
+                    "this sweep asks for {runs} training runs ({} combinations), over the limit of {}",
+                    step.fits.len(),
+                    limits.max_sweep_runs
+                ),
+            )
+            .with_help("raise the limit with --max-sweep-runs"),
+        );
+        return;
+    }
+    for fit in &step.fits {
+        let prefix = format!("with {}: ", crate::run::describe(&fit.settings));
+        check_widths(block, &fit.net.hidden, limits, &prefix, problems);
     }
 }
 

@@ -42,6 +42,8 @@ impl Workspace {
             dir.path().join("iris.csv"),
         )
         .unwrap();
+        // The workspace is one project, as the repository is, so `../demo-data` is inside.
+        std::fs::write(dir.path().join(".stet-project"), "").unwrap();
         Workspace { dir }
     }
 
