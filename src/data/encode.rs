@@ -161,7 +161,7 @@ pub fn fit(
         .inputs
         .iter()
         .map(|&c| describe_input(table, c, kept))
-        .collect();
+        .collect::<Result<_, _>>()?;
     let x = encode_rows(table, &columns, &used.inputs, kept)?;
     let target_names: Vec<String> = used
         .targets
@@ -272,10 +272,32 @@ fn encode_rows(
     Ok(x)
 }
 
-/// Decide the kind of input column `col` from the kept rows.
-fn describe_input(table: &Table, col: usize, kept: &[usize]) -> InputColumn {
+/// Share of number cells above which an input column is taken to be numeric with a
+/// stray bad cell (a typo, a unit written in), rather than a text column to one-hot.
+const MOSTLY_NUMERIC: f64 = 0.8;
+
+/// Decide the kind of input column `col` from the kept rows. A column that is mostly
+/// numbers with a few text cells is an error naming the first such cell: one-hot
+/// encoding it would silently turn a measurement into hundreds of categories.
+fn describe_input(table: &Table, col: usize, kept: &[usize]) -> Result<InputColumn, DataError> {
     let values: Vec<&str> = kept.iter().map(|&r| cell(table, r, col).trim()).collect();
     let numbers: Option<Vec<f64>> = values.iter().map(|v| parse_number(v)).collect();
+    if numbers.is_none() {
+        let numeric = values.iter().filter(|v| parse_number(v).is_some()).count();
+        if numeric as f64 >= MOSTLY_NUMERIC * values.len() as f64 {
+            let (row, value) = kept
+                .iter()
+                .zip(&values)
+                .find(|(_, v)| parse_number(v).is_none())
+                .expect("some cell is not a number");
+            return Err(DataError::NotNumeric {
+                line: table.line(*row),
+                column: table.headers[col].clone(),
+                value: value.to_string(),
+                reason: "because the rest of the column is numbers",
+            });
+        }
+    }
     let (kind, constant) = match numbers {
         Some(numbers) => {
             // Compare as numbers, so "1" and "1.0" count as the same value.
@@ -288,11 +310,11 @@ fn describe_input(table: &Table, col: usize, kept: &[usize]) -> InputColumn {
             (ColumnKind::Categorical { categories }, constant)
         }
     };
-    InputColumn {
+    Ok(InputColumn {
         name: table.headers[col].clone(),
         kind,
         constant,
-    }
+    })
 }
 
 /// Numeric targets for regression; a text cell is an error naming its line.
@@ -374,6 +396,30 @@ pub fn cell(table: &Table, row: usize, col: usize) -> &str {
 
 #[cfg(test)]
 mod tests {
+    #[test]
+    fn a_stray_text_cell_in_a_numeric_column_names_its_line_and_column() {
+        let mut csv = String::from("temp_c,status\n");
+        for i in 0..9 {
+            csv.push_str(&format!("{}.5,{}\n", 30 + i, if i % 2 == 0 { "a" } else { "b" }));
+        }
+        csv.push_str("35x,b\n");
+        let table = super::super::read_table(csv.as_bytes()).unwrap();
+        let settings = super::super::DataSettings {
+            inputs: None,
+            target: vec!["status".into()],
+            task: None,
+            scale: super::super::Scale::Standard,
+            missing: super::super::Missing::Error,
+            split: super::super::Split::Holdout(0.2),
+            seed: 1,
+        };
+        let error = super::super::prepare(&table, &settings).unwrap_err().to_string();
+        assert_eq!(
+            error,
+            "line 11, column `temp_c`: expected a number because the rest of the column is numbers, found `35x`"
+        );
+    }
+
     use super::*;
     use crate::data::columns;
     use crate::data::table::read_table;
