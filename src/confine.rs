@@ -8,10 +8,16 @@ use std::path::{Component, Path, PathBuf};
 
 /// The folder a document's data paths must stay inside.
 pub fn project_root(document_dir: &Path) -> PathBuf {
-    let start = document_dir.canonicalize().unwrap_or_else(|_| document_dir.to_path_buf());
+    let start = document_dir
+        .canonicalize()
+        .unwrap_or_else(|_| document_dir.to_path_buf());
     start
         .ancestors()
-        .find(|dir| [".stet-project", ".git", ".hg", ".svn"].iter().any(|marker| dir.join(marker).exists()))
+        .find(|dir| {
+            [".stet-project", ".git", ".hg", ".svn"]
+                .iter()
+                .any(|marker| dir.join(marker).exists())
+        })
         .unwrap_or(&start)
         .to_path_buf()
 }
@@ -40,8 +46,15 @@ pub fn is_writable_inside(path: &Path, root: &Path) -> bool {
             _ => return false,
         }
     }
-    let rest_is_plain = rest.iter().all(|part| Path::new(part).components().all(|c| matches!(c, Component::Normal(_))));
-    rest_is_plain && existing.canonicalize().is_ok_and(|real| real.starts_with(root))
+    let rest_is_plain = rest.iter().all(|part| {
+        Path::new(part)
+            .components()
+            .all(|c| matches!(c, Component::Normal(_)))
+    });
+    rest_is_plain
+        && existing
+            .canonicalize()
+            .is_ok_and(|real| real.starts_with(root))
 }
 
 #[cfg(test)]

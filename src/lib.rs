@@ -111,13 +111,20 @@ pub fn load(path: &Path, options: &plan::PlanOptions) -> Result<Loaded, Error> {
         }
     };
     let hash = blake3::hash(source.as_bytes()).to_hex().to_string();
-    let document = document::parse(&source).map_err(|problems| {
-        Error::Document(DocumentErrors::for_file(path, source.clone(), problems))
-    })?;
+    let (document, mut problems) = document::parse(&source);
     let base_dir = path.parent().unwrap_or(Path::new("."));
-    let plan = plan::plan(&document, base_dir, options).map_err(|problems| {
-        Error::Document(DocumentErrors::for_file(path, source.clone(), problems))
-    })?;
+    let planned = document
+        .as_ref()
+        .map(|document| plan::plan(document, base_dir, options));
+    if let Some(Err(more)) = &planned {
+        problems.extend(more.iter().cloned());
+    }
+    let (Some(document), Some(Ok(plan)), true) = (document, planned, problems.is_empty()) else {
+        problems.sort_by_key(|problem| problem.span.start);
+        return Err(Error::Document(DocumentErrors::for_file(
+            path, source, problems,
+        )));
+    };
     Ok(Loaded {
         name,
         document,

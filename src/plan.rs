@@ -144,7 +144,11 @@ struct Place<'a> {
 }
 
 /// Builds the plan of a parsed document whose data paths are relative to `base_dir`.
-pub fn plan(document: &Document, base_dir: &Path, options: &PlanOptions) -> Result<Plan, Vec<Problem>> {
+pub fn plan(
+    document: &Document,
+    base_dir: &Path,
+    options: &PlanOptions,
+) -> Result<Plan, Vec<Problem>> {
     let default_seed = document.front.seed.unwrap_or(0);
     let mut problems = Vec::new();
     let place = Place {
@@ -196,6 +200,8 @@ pub fn plan(document: &Document, base_dir: &Path, options: &PlanOptions) -> Resu
         for reference in spec.references() {
             let (id, setting) = (reference.id, reference.setting);
             match kinds.get(id) {
+                // A block whose info string was unreadable already has its problem.
+                None if document.unreadable_ids.iter().any(|u| u == id) => {}
                 None => problems.push(missing_reference(block, setting, id, &kinds)),
                 Some(kind) if !reference.kinds.contains(kind) => problems.push(Problem::new(
                     setting_span(block, setting),
@@ -289,7 +295,12 @@ fn setting_span(block: &StepBlock, setting: &str) -> std::ops::Range<usize> {
     block.info_span.clone()
 }
 
-fn read_files(block: &StepBlock, spec: &StepSpec, place: &Place<'_>, problems: &mut Vec<Problem>) -> Vec<InputFile> {
+fn read_files(
+    block: &StepBlock,
+    spec: &StepSpec,
+    place: &Place<'_>,
+    problems: &mut Vec<Problem>,
+) -> Vec<InputFile> {
     let written = match spec {
         StepSpec::Data(data) => &data.file,
         StepSpec::Predict(predict) => &predict.file,
@@ -310,8 +321,14 @@ fn read_files(block: &StepBlock, spec: &StepSpec, place: &Place<'_>, problems: &
     if let Ok(metadata) = std::fs::metadata(&path) {
         if metadata.len() > limit {
             problems.push(
-                Problem::new(span, format!("'{written}' is {} bytes, over the limit of {limit}", metadata.len()))
-                    .with_help("raise the limit with --max-file-mb"),
+                Problem::new(
+                    span,
+                    format!(
+                        "'{written}' is {} bytes, over the limit of {limit}",
+                        metadata.len()
+                    ),
+                )
+                .with_help("raise the limit with --max-file-mb"),
             );
             return Vec::new();
         }
@@ -334,7 +351,12 @@ fn read_files(block: &StepBlock, spec: &StepSpec, place: &Place<'_>, problems: &
 }
 
 /// A file that predict or export will write must stay inside the project too.
-fn check_writes(block: &StepBlock, spec: &StepSpec, place: &Place<'_>, problems: &mut Vec<Problem>) {
+fn check_writes(
+    block: &StepBlock,
+    spec: &StepSpec,
+    place: &Place<'_>,
+    problems: &mut Vec<Problem>,
+) {
     let written = match spec {
         StepSpec::Predict(predict) => predict.write.as_ref(),
         StepSpec::Export(export) => Some(&export.write),
@@ -353,7 +375,13 @@ fn check_writes(block: &StepBlock, spec: &StepSpec, place: &Place<'_>, problems:
     }
 }
 
-fn check_widths(block: &StepBlock, hidden: &[usize], limits: Limits, prefix: &str, problems: &mut Vec<Problem>) {
+fn check_widths(
+    block: &StepBlock,
+    hidden: &[usize],
+    limits: Limits,
+    prefix: &str,
+    problems: &mut Vec<Problem>,
+) {
     if let Some(&width) = hidden.iter().find(|&&w| w > limits.max_layer_width) {
         let setting = if prefix.is_empty() { "hidden" } else { "vary" };
         problems.push(
@@ -370,7 +398,12 @@ fn check_widths(block: &StepBlock, hidden: &[usize], limits: Limits, prefix: &st
 }
 
 /// A sweep's size and its combinations' widths, against the limits.
-fn check_sweep_size(block: &StepBlock, step: &PlannedStep, limits: Limits, problems: &mut Vec<Problem>) {
+fn check_sweep_size(
+    block: &StepBlock,
+    step: &PlannedStep,
+    limits: Limits,
+    problems: &mut Vec<Problem>,
+) {
     if step.kind != StepKind::Sweep {
         return;
     }

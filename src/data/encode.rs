@@ -400,7 +400,11 @@ mod tests {
     fn a_stray_text_cell_in_a_numeric_column_names_its_line_and_column() {
         let mut csv = String::from("temp_c,status\n");
         for i in 0..9 {
-            csv.push_str(&format!("{}.5,{}\n", 30 + i, if i % 2 == 0 { "a" } else { "b" }));
+            csv.push_str(&format!(
+                "{}.5,{}\n",
+                30 + i,
+                if i % 2 == 0 { "a" } else { "b" }
+            ));
         }
         csv.push_str("35x,b\n");
         let table = super::super::read_table(csv.as_bytes()).unwrap();
@@ -413,7 +417,9 @@ mod tests {
             split: super::super::Split::Holdout(0.2),
             seed: 1,
         };
-        let error = super::super::prepare(&table, &settings).unwrap_err().to_string();
+        let error = super::super::prepare(&table, &settings)
+            .unwrap_err()
+            .to_string();
         assert_eq!(
             error,
             "line 11, column `temp_c`: expected a number because the rest of the column is numbers, found `35x`"

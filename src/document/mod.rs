@@ -24,6 +24,9 @@ pub struct Document {
     pub source: String,
     pub front: FrontMatter,
     pub pieces: Vec<Piece>,
+    /// Ids of step blocks whose info string had a problem: references to them are not
+    /// reported again.
+    pub unreadable_ids: Vec<String>,
 }
 
 /// A run of prose, or one step.
@@ -66,19 +69,23 @@ pub fn markdown_options() -> Options {
 }
 
 /// Splits a document into front matter, prose and step blocks. Every problem found is
-/// collected rather than stopping at the first.
-pub fn parse(source: &str) -> Result<Document, Vec<Problem>> {
+/// collected rather than stopping at the first; the document is still returned (without
+/// the blocks that could not be read) so that its steps can be checked too. Only an
+/// empty document gives none.
+pub fn parse(source: &str) -> (Option<Document>, Vec<Problem>) {
     let mut problems = Vec::new();
     if source.trim().is_empty() {
-        return Err(vec![Problem::new(
+        let problem = Problem::new(
             0..0,
             "the document is empty: expected Markdown prose and at least one step block such as ```yaml data NAME",
-        )]);
+        );
+        return (None, vec![problem]);
     }
     let front_split = front::split(source);
     let front = front::parse(front_split.yaml, &mut problems);
     let body_start = front_split.body_start;
-    let blocks = find_step_blocks(source, body_start, &mut problems);
+    let mut unreadable_ids = Vec::new();
+    let blocks = find_step_blocks(source, body_start, &mut problems, &mut unreadable_ids);
 
     let mut pieces = Vec::new();
     let mut cursor = body_start;
@@ -95,15 +102,13 @@ pub fn parse(source: &str) -> Result<Document, Vec<Problem>> {
             "the document has no steps: expected at least one fenced block with an info string like `yaml data NAME`",
         ));
     }
-    if problems.is_empty() {
-        Ok(Document {
-            source: source.to_string(),
-            front,
-            pieces,
-        })
-    } else {
-        Err(problems)
-    }
+    let document = Document {
+        source: source.to_string(),
+        front,
+        pieces,
+        unreadable_ids,
+    };
+    (Some(document), problems)
 }
 
 fn push_prose(pieces: &mut Vec<Piece>, text: &str) {
@@ -125,6 +130,7 @@ fn find_step_blocks(
     source: &str,
     body_start: usize,
     problems: &mut Vec<Problem>,
+    unreadable_ids: &mut Vec<String>,
 ) -> Vec<StepBlock> {
     let body = &source[body_start..];
     let mut blocks = Vec::new();
@@ -151,8 +157,12 @@ fn find_step_blocks(
             Event::End(TagEnd::CodeBlock) => {
                 depth -= 1;
                 if let Some(block) = open.take() {
-                    if let Some(step) = step_block(source, block, problems) {
-                        blocks.push(step);
+                    let id = block.info.split_whitespace().nth(2).map(str::to_string);
+                    let before = problems.len();
+                    match step_block(source, block, problems) {
+                        Some(step) => blocks.push(step),
+                        None if problems.len() > before => unreadable_ids.extend(id),
+                        None => {}
                     }
                 }
             }
@@ -255,9 +265,15 @@ mod tests {
 
     const DOC: &str = "---\ntitle: Test\n---\n# Intro\n\nSome prose.\n\n```yaml data hives\nfile: hives.csv\ntarget: status\n```\n\nMore prose.\n\n```python\nprint(1)\n```\n\n```yaml net small\nhidden: [4]\n```\n";
 
+    fn parsed(source: &str) -> Document {
+        let (document, problems) = parse(source);
+        assert!(problems.is_empty(), "{problems:?}");
+        document.unwrap()
+    }
+
     #[test]
     fn steps_and_prose_come_out_in_order() {
-        let doc = parse(DOC).unwrap();
+        let doc = parsed(DOC);
         let kinds: Vec<&str> = doc
             .pieces
             .iter()
@@ -276,7 +292,7 @@ mod tests {
 
     #[test]
     fn other_code_blocks_stay_in_the_prose() {
-        let doc = parse(DOC).unwrap();
+        let doc = parsed(DOC);
         let Piece::Prose(prose) = &doc.pieces[2] else {
             panic!()
         };
@@ -285,7 +301,7 @@ mod tests {
 
     #[test]
     fn a_misspelt_kind_suggests_the_nearest() {
-        let problems = parse("```yaml trian base\nepochs: 3\n```\n").unwrap_err();
+        let problems = parse("```yaml trian base\nepochs: 3\n```\n").1;
         assert_eq!(problems.len(), 1);
         assert!(problems[0].message.contains("'trian' is not a step kind"));
         assert_eq!(problems[0].help.as_deref(), Some("did you mean 'train'?"));
@@ -293,7 +309,7 @@ mod tests {
 
     #[test]
     fn a_step_without_an_id_is_an_error() {
-        let problems = parse("text\n\n```yaml data\nfile: x.csv\n```\n").unwrap_err();
+        let problems = parse("text\n\n```yaml data\nfile: x.csv\n```\n").1;
         assert!(problems[0].message.contains("no id"));
         assert_eq!(
             line_and_column("text\n\n```yaml data\n", problems[0].span.start),
@@ -303,18 +319,20 @@ mod tests {
 
     #[test]
     fn plain_yaml_blocks_are_not_steps() {
-        let problems = parse("```yaml\na: 1\n```\n").unwrap_err();
+        let problems = parse("```yaml\na: 1\n```\n").1;
         assert!(problems[0].message.contains("no steps"));
     }
 
     #[test]
     fn an_empty_document_is_an_error() {
-        assert!(parse("  \n").unwrap_err()[0].message.contains("empty"));
+        let (document, problems) = parse("  \n");
+        assert!(document.is_none());
+        assert!(problems[0].message.contains("empty"));
     }
 
     #[test]
     fn a_step_inside_a_list_is_refused() {
-        let problems = parse("- item\n\n  ```yaml data d\n  file: x.csv\n  ```\n").unwrap_err();
+        let problems = parse("- item\n\n  ```yaml data d\n  file: x.csv\n  ```\n").1;
         assert!(
             problems[0].message.contains("inside a list"),
             "{problems:?}"
