@@ -10,6 +10,7 @@ pub mod atomic;
 pub mod cache;
 pub mod confine;
 pub mod data;
+pub mod dispatch;
 pub mod document;
 pub mod fit;
 pub mod freshness;
@@ -20,6 +21,7 @@ pub mod plan;
 pub mod prune;
 pub mod report;
 pub mod run;
+pub mod shard;
 pub mod use_model;
 
 use std::path::{Path, PathBuf};
@@ -202,6 +204,103 @@ pub fn build(options: &BuildOptions) -> Result<BuildSummary, Error> {
         &records,
         cache.take_warnings(),
     ))
+}
+
+/// `stet build --shard K/N`: trains one share of the document's uncached runs into the
+/// cache and renders nothing; what a cluster task runs.
+pub fn build_share(
+    options: &BuildOptions,
+    share: shard::Share,
+) -> Result<run::ShareSummary, Error> {
+    let loaded = load(&options.document, &options.plan)?;
+    let cache = open_cache(&options.cache, &options.document);
+    if cache.dir().is_none() {
+        return Err(Error::Usage("--shard needs a cache to train into".into()));
+    }
+    let run_options = RunOptions {
+        jobs: options.jobs,
+        progress: None,
+    };
+    Ok(run::execute_share(
+        &loaded.plan,
+        &cache,
+        &run_options,
+        share,
+    ))
+}
+
+/// What `stet dispatch` did.
+#[derive(Debug)]
+pub struct Dispatched {
+    pub job: String,
+    pub script: PathBuf,
+    /// With `--wait`: the final build, or how many runs are still missing.
+    pub finished: Option<Result<BuildSummary, usize>>,
+}
+
+/// `stet dispatch`: prepares the document's data into the cache, submits a job array
+/// of `tasks` shares, and with `wait` waits for it and builds the report (which then
+/// trains nothing) — unless a task failed and left runs uncached.
+pub fn dispatch(
+    options: &BuildOptions,
+    tasks: usize,
+    wait: bool,
+    sbatch_options: &[String],
+) -> Result<Dispatched, Error> {
+    if tasks == 0 {
+        return Err(Error::Usage("--tasks must be at least 1".into()));
+    }
+    let loaded = load(&options.document, &options.plan)?;
+    let cache = open_cache(&options.cache, &options.document);
+    let Some(dir) = cache.dir() else {
+        return Err(Error::Usage("dispatch needs a shared cache folder".into()));
+    };
+    let io = |context: String| move |source| Error::Io { context, source };
+    std::fs::create_dir_all(dir).map_err(io(format!("creating {}", dir.display())))?;
+    let cache_dir = dir
+        .canonicalize()
+        .map_err(io(format!("resolving {}", dir.display())))?;
+    let document = options
+        .document
+        .canonicalize()
+        .map_err(io(format!("resolving {}", options.document.display())))?;
+    if let Some((id, error)) = run::prepare_only(&loaded.plan, &cache).into_iter().next() {
+        return Err(Error::Usage(format!(
+            "step '{id}' failed before any training: {error}"
+        )));
+    }
+    let request = dispatch::DispatchRequest {
+        document: &document,
+        cache_dir: &cache_dir,
+        tasks,
+        sbatch_options,
+        plan: &options.plan,
+    };
+    let (job, script) = dispatch::submit(&request).map_err(Error::Usage)?;
+    if !wait {
+        return Ok(Dispatched {
+            job,
+            script,
+            finished: None,
+        });
+    }
+    eprintln!("submitted job {job} ({tasks} tasks); waiting for it");
+    dispatch::wait_for(&job).map_err(Error::Usage)?;
+    let previous = manifest::load(&cache, &options.document);
+    let missing: usize = freshness::status(&loaded.plan, &cache, &previous)
+        .iter()
+        .filter_map(|step| step.runs.map(|(done, all)| all - done))
+        .sum();
+    let finished = if missing > 0 {
+        Err(missing)
+    } else {
+        Ok(build(options)?)
+    };
+    Ok(Dispatched {
+        job,
+        script,
+        finished: Some(finished),
+    })
 }
 
 /// `stet status`: what a build of the document would reuse and run, and why.

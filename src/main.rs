@@ -6,6 +6,7 @@ use std::process::ExitCode;
 
 use clap::{Parser, Subcommand};
 use stet::plan::{Limits, PlanOptions};
+use stet::shard::Share;
 use stet::{BuildOptions, CacheChoice, Error};
 
 #[derive(Parser)]
@@ -76,8 +77,30 @@ enum Command {
         /// Render raw HTML in the document's prose instead of showing it as text.
         #[arg(long)]
         allow_html: bool,
+        /// Train only share K of N of the uncached runs into the cache and render no
+        /// report (what each task of `stet dispatch` runs).
+        #[arg(long, value_name = "K/N")]
+        shard: Option<Share>,
         #[command(flatten)]
         flags: DocumentFlags,
+    },
+    /// Spread the document's uncached runs over a Slurm job array sharing one cache.
+    Dispatch {
+        document: PathBuf,
+        /// How many array tasks to split the runs into.
+        #[arg(long, value_name = "N")]
+        tasks: usize,
+        /// The shared cache folder [default: $STET_CACHE, else .stet/ beside the document].
+        #[arg(long, value_name = "DIR")]
+        cache: Option<PathBuf>,
+        /// Wait for the job, then build the report.
+        #[arg(long)]
+        wait: bool,
+        #[command(flatten)]
+        flags: DocumentFlags,
+        /// Options passed to sbatch (after `--`), e.g. -- --partition=short --time=1:00:00 --cpus-per-task=4
+        #[arg(last = true, value_name = "SBATCH-OPTIONS")]
+        sbatch: Vec<String>,
     },
     /// List each step with its short key and whether a build would reuse or run it.
     Status {
@@ -121,6 +144,7 @@ fn run(command: Command) -> Result<ExitCode, Error> {
             jobs,
             templates,
             allow_html,
+            shard,
             flags,
         } => {
             let options = BuildOptions {
@@ -137,25 +161,53 @@ fn run(command: Command) -> Result<ExitCode, Error> {
                 allow_html,
                 plan: flags.options(),
             };
-            let summary = stet::build(&options)?;
-            for warning in &summary.warnings {
-                eprintln!("warning: {warning}");
+            if let Some(share) = shard {
+                let done = stet::build_share(&options, share)?;
+                for (id, error) in &done.failed {
+                    eprintln!("step '{id}' failed: {error}");
+                }
+                println!(
+                    "share {share}: trained {} runs; {} of the document's runs were uncached when it started",
+                    done.trained, done.uncached
+                );
+                return Ok(if done.failed.is_empty() {
+                    ExitCode::SUCCESS
+                } else {
+                    ExitCode::from(1)
+                });
             }
-            for (id, error) in &summary.failed {
-                eprintln!("step '{id}' failed: {error}");
-            }
-            eprintln!(
-                "{}: {} steps, {} ran, {} reused, {} failed",
-                summary.report.display(),
-                summary.steps,
-                summary.ran,
-                summary.reused,
-                summary.failed.len()
-            );
-            Ok(if summary.failed.is_empty() {
-                ExitCode::SUCCESS
-            } else {
-                ExitCode::from(1)
+            Ok(report_build(&stet::build(&options)?))
+        }
+        Command::Dispatch {
+            document,
+            tasks,
+            cache,
+            wait,
+            flags,
+            sbatch,
+        } => {
+            let options = BuildOptions {
+                document,
+                output: None,
+                json: None,
+                cache: cache_choice(cache),
+                jobs: default_jobs(),
+                templates: None,
+                allow_html: false,
+                plan: flags.options(),
+            };
+            let dispatched = stet::dispatch(&options, tasks, wait, &sbatch)?;
+            println!("{}", dispatched.job);
+            eprintln!("job script: {}", dispatched.script.display());
+            Ok(match dispatched.finished {
+                None => ExitCode::SUCCESS,
+                Some(Ok(summary)) => report_build(&summary),
+                Some(Err(missing)) => {
+                    eprintln!(
+                        "{missing} runs are still not in the cache: a task failed (its log is beside the job script); dispatch again to run only those"
+                    );
+                    ExitCode::from(1)
+                }
             })
         }
         Command::Status {
@@ -163,7 +215,8 @@ fn run(command: Command) -> Result<ExitCode, Error> {
             cache,
             flags,
         } => {
-            for step in stet::status(&document, &cache_choice(cache), &flags.options())? {
+            let steps = stet::status(&document, &cache_choice(cache), &flags.options())?;
+            for step in &steps {
                 let decision = match step.run_reason {
                     None => "reuse".to_string(),
                     Some(reason) => format!("run ({reason})"),
@@ -172,12 +225,17 @@ fn run(command: Command) -> Result<ExitCode, Error> {
                     format!("  {done}/{all} runs cached")
                 });
                 println!(
-                    "{:<16} {:<6} {}  {decision}{runs}",
+                    "{:<16} {:<7} {}  {decision}{runs}",
                     step.id,
                     step.kind.word(),
                     step.short_key
                 );
             }
+            let (done, all) = steps
+                .iter()
+                .filter_map(|step| step.runs)
+                .fold((0, 0), |(d, a), (done, all)| (d + done, a + all));
+            println!("training runs: {done} cached, {} to train", all - done);
             Ok(ExitCode::SUCCESS)
         }
         Command::Clean {
@@ -192,6 +250,29 @@ fn run(command: Command) -> Result<ExitCode, Error> {
             );
             Ok(ExitCode::SUCCESS)
         }
+    }
+}
+
+/// Prints what a finished build did; exit code 1 when a step failed.
+fn report_build(summary: &stet::BuildSummary) -> ExitCode {
+    for warning in &summary.warnings {
+        eprintln!("warning: {warning}");
+    }
+    for (id, error) in &summary.failed {
+        eprintln!("step '{id}' failed: {error}");
+    }
+    eprintln!(
+        "{}: {} steps, {} ran, {} reused, {} failed",
+        summary.report.display(),
+        summary.steps,
+        summary.ran,
+        summary.reused,
+        summary.failed.len()
+    );
+    if summary.failed.is_empty() {
+        ExitCode::SUCCESS
+    } else {
+        ExitCode::from(1)
     }
 }
 

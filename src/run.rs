@@ -21,6 +21,7 @@ use crate::outcome::{
     rank,
 };
 use crate::plan::{Key, Plan, PlannedStep};
+use crate::shard::Share;
 use crate::use_model;
 
 /// Whether a step ran, was reused, or failed.
@@ -90,12 +91,18 @@ struct PendingFits {
     trained: Vec<usize>,
 }
 
-/// Runs every step of the plan, reusing what the cache holds.
-pub fn execute(plan: &Plan, cache: &Cache, options: &RunOptions) -> Vec<StepRecord> {
+/// The state after the steps that need no training: their records, the prepared data,
+/// and each train step's and sweep's fits with their cached runs.
+struct Stage {
+    records: Vec<Option<StepRecord>>,
+    prepared: HashMap<usize, Arc<Prepared>>,
+    pending: HashMap<usize, PendingFits>,
+}
+
+fn stage(plan: &Plan, cache: &Cache) -> Stage {
     let mut records: Vec<Option<StepRecord>> = vec![None; plan.steps.len()];
     let mut prepared: HashMap<usize, Arc<Prepared>> = HashMap::new();
     let mut pending: HashMap<usize, PendingFits> = HashMap::new();
-
     for &index in &plan.order {
         let step = &plan.steps[index];
         let record = match &step.spec {
@@ -109,14 +116,23 @@ pub fn execute(plan: &Plan, cache: &Cache, options: &RunOptions) -> Vec<StepReco
                 }
                 Err(error) => StepRecord::failed(error),
             },
-            // These read trained models, so they wait for the training below.
+            // These read trained models, so they wait for the training.
             StepSpec::Compare(_) | StepSpec::Predict(_) | StepSpec::Export(_) => continue,
         };
         records[index] = Some(record);
     }
+    Stage {
+        records,
+        prepared,
+        pending,
+    }
+}
 
+/// Every run not in the cache, in document order, so that a run two steps share is
+/// credited to the first of them.
+fn queued_runs<'a>(plan: &'a Plan, pending: &HashMap<usize, PendingFits>) -> Vec<RunTask<'a>> {
     let mut tasks = Vec::new();
-    for (&index, fits) in &pending {
+    for (&index, fits) in pending {
         let step = &plan.steps[index];
         for (f, fit_plan) in step.fits.iter().enumerate() {
             for (r, run) in fit_plan.runs.iter().enumerate() {
@@ -139,14 +155,31 @@ pub fn execute(plan: &Plan, cache: &Cache, options: &RunOptions) -> Vec<StepReco
             }
         }
     }
-    // Document order, so that a run two steps share is credited to the first of them.
     tasks.sort_by_key(|task| (plan.steps[task.step].piece, task.fit, task.run));
-    let mut owners: HashMap<&Key, usize> = HashMap::new();
-    let unique: Vec<usize> = (0..tasks.len())
-        .filter(|&i| *owners.entry(tasks[i].key).or_insert(i) == i)
-        .collect();
-    let fitted: HashMap<&Key, RunResult> =
-        fit_all(plan, cache, &mut prepared, &tasks, &unique, options);
+    tasks
+}
+
+/// For each run key, the first task that needs it.
+fn owners<'k>(tasks: &[RunTask<'k>]) -> HashMap<&'k Key, usize> {
+    let mut owners = HashMap::new();
+    for (i, task) in tasks.iter().enumerate() {
+        owners.entry(task.key).or_insert(i);
+    }
+    owners
+}
+
+/// Runs every step of the plan, reusing what the cache holds.
+pub fn execute(plan: &Plan, cache: &Cache, options: &RunOptions) -> Vec<StepRecord> {
+    let Stage {
+        mut records,
+        mut prepared,
+        mut pending,
+    } = stage(plan, cache);
+    let tasks = queued_runs(plan, &pending);
+    let owners = owners(&tasks);
+    let mut unique: Vec<usize> = owners.values().copied().collect();
+    unique.sort_unstable();
+    let fitted = fit_all(plan, cache, &mut prepared, &tasks, &unique, options);
     let mut trained_seconds: HashMap<usize, Seconds> = HashMap::new();
     for (i, task) in tasks.iter().enumerate() {
         let result = fitted[task.key].clone();
@@ -363,6 +396,80 @@ pub fn describe(settings: &[(String, String)]) -> String {
         .map(|(name, value)| format!("{name} = {value}"))
         .collect::<Vec<_>>()
         .join(", ")
+}
+
+/// Runs the steps that need no training (data preparation above all) into the cache,
+/// so that cluster tasks load prepared data instead of each preparing it; returns the
+/// steps that failed.
+pub fn prepare_only(plan: &Plan, cache: &Cache) -> Vec<(String, String)> {
+    failures(plan, &stage(plan, cache).records)
+}
+
+fn failures(plan: &Plan, records: &[Option<StepRecord>]) -> Vec<(String, String)> {
+    plan.steps
+        .iter()
+        .zip(records)
+        .filter_map(|(step, record)| match record {
+            Some(StepRecord {
+                status: Status::Failed { error },
+                ..
+            }) => Some((step.id.clone(), error.clone())),
+            _ => None,
+        })
+        .collect()
+}
+
+/// What one share of a sharded build did.
+#[derive(Clone, Debug, PartialEq, Eq)]
+pub struct ShareSummary {
+    /// Runs not in the cache when the share started, over the whole document.
+    pub uncached: usize,
+    /// Runs this share trained (and stored).
+    pub trained: usize,
+    /// Steps that failed before training (a data step that cannot be read, say).
+    pub failed: Vec<(String, String)>,
+}
+
+/// Trains the uncached runs of share `share` into the cache. Shares are cut from all of
+/// the document's runs sorted by key, so every task agrees on them without talking to
+/// the others, whenever it starts.
+pub fn execute_share(
+    plan: &Plan,
+    cache: &Cache,
+    options: &RunOptions,
+    share: Share,
+) -> ShareSummary {
+    let Stage {
+        records,
+        mut prepared,
+        pending,
+    } = stage(plan, cache);
+    let tasks = queued_runs(plan, &pending);
+    let owners = owners(&tasks);
+    // Shares are cut from every run of the document, cached or not, so that a task that
+    // starts after another has finished still agrees on the split.
+    let keys: Vec<&Key> = plan
+        .steps
+        .iter()
+        .flat_map(|step| {
+            step.fits
+                .iter()
+                .flat_map(|fit| fit.runs.iter().map(|run| &run.key))
+        })
+        .collect::<std::collections::BTreeSet<_>>()
+        .into_iter()
+        .collect();
+    let mut mine: Vec<usize> = share
+        .pick(keys.len())
+        .filter_map(|i| owners.get(keys[i]).copied())
+        .collect();
+    mine.sort_unstable();
+    fit_all(plan, cache, &mut prepared, &tasks, &mine, options);
+    ShareSummary {
+        uncached: owners.len(),
+        trained: mine.len(),
+        failed: failures(plan, &records),
+    }
 }
 
 /// Fits the queued runs `unique` picks (one per key) on a pool of `jobs` threads.
