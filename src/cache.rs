@@ -123,12 +123,12 @@ impl Cache {
         let Some(path) = self.entry_path(key, kind) else {
             return;
         };
-        if let Err(error) = crate::atomic::write(&path, &encode(value)) {
-            if !self.write_failed.swap(true, Ordering::Relaxed) {
-                self.warn(format!(
-                    "cannot write to the cache ({error}); continuing without caching"
-                ));
-            }
+        if let Err(error) = crate::atomic::write(&path, &encode(value))
+            && !self.write_failed.swap(true, Ordering::Relaxed)
+        {
+            self.warn(format!(
+                "cannot write to the cache ({error}); continuing without caching"
+            ));
         }
     }
 }

@@ -308,30 +308,30 @@ fn read_files(
     };
     let path = place.base_dir.join(written);
     let span = setting_span(block, "file");
-    if let Some(root) = &place.root {
-        if !confine::is_inside(&path, root) {
-            problems.push(
+    if let Some(root) = &place.root
+        && !confine::is_inside(&path, root)
+    {
+        problems.push(
                 Problem::new(span, format!("'{written}' is outside this document's project ({})", root.display()))
                     .with_help("a document reads only files under its project folder; pass --allow-outside if you trust it"),
             );
-            return Vec::new();
-        }
+        return Vec::new();
     }
     let limit = place.limits.max_file_bytes;
-    if let Ok(metadata) = std::fs::metadata(&path) {
-        if metadata.len() > limit {
-            problems.push(
-                Problem::new(
-                    span,
-                    format!(
-                        "'{written}' is {} bytes, over the limit of {limit}",
-                        metadata.len()
-                    ),
-                )
-                .with_help("raise the limit with --max-file-mb"),
-            );
-            return Vec::new();
-        }
+    if let Ok(metadata) = std::fs::metadata(&path)
+        && metadata.len() > limit
+    {
+        problems.push(
+            Problem::new(
+                span,
+                format!(
+                    "'{written}' is {} bytes, over the limit of {limit}",
+                    metadata.len()
+                ),
+            )
+            .with_help("raise the limit with --max-file-mb"),
+        );
+        return Vec::new();
     }
     match std::fs::read(&path) {
         Ok(bytes) => vec![InputFile {
@@ -362,16 +362,16 @@ fn check_writes(
         StepSpec::Export(export) => Some(&export.write),
         _ => None,
     };
-    if let (Some(written), Some(root)) = (written, &place.root) {
-        if !confine::is_writable_inside(&place.base_dir.join(written), root) {
-            problems.push(
+    if let (Some(written), Some(root)) = (written, &place.root)
+        && !confine::is_writable_inside(&place.base_dir.join(written), root)
+    {
+        problems.push(
                 Problem::new(
                     setting_span(block, "write"),
                     format!("'{written}' is outside this document's project ({})", root.display()),
                 )
                 .with_help("a document writes only under its project folder; pass --allow-outside if you trust it"),
             );
-        }
     }
 }
 
