@@ -30,12 +30,16 @@ pub fn deserialize<T: DeserializeOwned>(
 }
 
 fn problem_from(error: &serde_yaml::Error, block: Block<'_>, known: &[&str]) -> Problem {
+    let block_end = block.offset + block.text.len();
     let start = block.offset + error.location().map_or(0, |location| location.index());
     let line_end = block.text[start - block.offset..]
         .find('\n')
-        .map_or(block.offset + block.text.len(), |i| start + i);
+        .map_or(block_end, |i| start + i);
+    // An error at the block's very end (an unclosed fence at the end of the file) gets
+    // an empty span there: one byte more would point past the end of the document.
+    let end = line_end.max(start + 1).min(block_end);
     let message = plain_message(error);
-    let problem = Problem::new(start..line_end.max(start + 1), message.clone());
+    let problem = Problem::new(start..end, message.clone());
     match unknown_key(&message) {
         Some(key) => match nearest(key, known.iter().copied()) {
             Some(suggestion) => problem.with_help(format!("did you mean '{suggestion}'?")),
@@ -60,4 +64,44 @@ fn plain_message(error: &serde_yaml::Error) -> String {
 fn unknown_key(message: &str) -> Option<&str> {
     let rest = message.strip_prefix("unknown setting `")?;
     rest.split('`').next()
+}
+
+#[cfg(test)]
+mod tests {
+    use serde::Deserialize;
+
+    use super::*;
+
+    #[derive(Debug, Deserialize)]
+    #[serde(deny_unknown_fields)]
+    #[allow(dead_code)] // only whether it deserialises matters
+    struct Settings {
+        data: Option<String>,
+    }
+
+    fn problem_of(text: &str, offset: usize) -> Problem {
+        let mut problems = Vec::new();
+        let parsed: Option<Settings> =
+            deserialize(Block { text, offset }, &["data"], &mut problems);
+        assert!(parsed.is_none());
+        assert_eq!(problems.len(), 1);
+        problems.remove(0)
+    }
+
+    // Found by the `document` fuzz target: an unclosed fence at the end of the file
+    // whose YAML breaks on its last byte gave a span one byte past the document.
+    #[test]
+    fn an_error_on_the_last_byte_stays_inside_the_block() {
+        let text = "data:\nn`";
+        let problem = problem_of(text, 20);
+        assert!(problem.span.end <= 20 + text.len(), "{problem:?}");
+        assert!(problem.span.start <= problem.span.end, "{problem:?}");
+    }
+
+    #[test]
+    fn an_error_marks_the_rest_of_its_line() {
+        let problem = problem_of("dta: x\n", 3);
+        assert_eq!(problem.span, 3..9);
+        assert_eq!(problem.help.as_deref(), Some("did you mean 'data'?"));
+    }
 }
