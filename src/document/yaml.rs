@@ -49,16 +49,35 @@ fn problem_from(error: &serde_yaml::Error, block: Block<'_>, known: &[&str]) -> 
     }
 }
 
-/// serde_yaml appends " at line L column C" to its messages; the diagnostic already
-/// says where, in document coordinates, so drop the block-relative position.
+/// serde_yaml writes " at line L column C" into its messages, at the end and, for
+/// scanner errors, also mid-sentence ("… at line 3 column 1, while scanning a simple
+/// key at line 2 column 1"). The diagnostic already says where, in document
+/// coordinates, so every block-relative position is dropped.
 fn plain_message(error: &serde_yaml::Error) -> String {
-    let text = error.to_string();
-    let text = match text.rfind(" at line ") {
-        Some(i) => text[..i].to_string(),
-        None => text,
-    };
+    let text = drop_positions(&error.to_string());
     let text = text.replace("unknown field", "unknown setting");
     text.replacen("missing field", "missing setting", 1)
+}
+
+/// `text` without its " at line L column C" fragments.
+fn drop_positions(text: &str) -> String {
+    let digits = |s: &str| s.len() - s.trim_start_matches(|c: char| c.is_ascii_digit()).len();
+    let mut kept = String::with_capacity(text.len());
+    let mut rest = text;
+    while let Some(i) = rest.find(" at line ") {
+        kept.push_str(&rest[..i]);
+        let after = &rest[i + " at line ".len()..];
+        let line = digits(after);
+        match after[line..].strip_prefix(" column ") {
+            Some(tail) if line > 0 && digits(tail) > 0 => rest = &tail[digits(tail)..],
+            _ => {
+                kept.push_str(" at line ");
+                rest = after;
+            }
+        }
+    }
+    kept.push_str(rest);
+    kept
 }
 
 fn unknown_key(message: &str) -> Option<&str> {
@@ -96,6 +115,19 @@ mod tests {
         let problem = problem_of(text, 20);
         assert!(problem.span.end <= 20 + text.len(), "{problem:?}");
         assert!(problem.span.start <= problem.span.end, "{problem:?}");
+    }
+
+    #[test]
+    fn messages_carry_no_block_relative_positions() {
+        let problem = problem_of("data:\nn`", 40);
+        assert_eq!(
+            problem.message,
+            "could not find expected ':', while scanning a simple key"
+        );
+        assert_eq!(
+            drop_positions("bad at line 2 column 7 at line x, at line 3 column 1"),
+            "bad at line x,"
+        );
     }
 
     #[test]
