@@ -112,11 +112,17 @@ impl Diagnostic for ProblemDiagnostic {
 
     fn labels(&self) -> Option<Box<dyn Iterator<Item = LabeledSpan> + '_>> {
         let span = &self.problem.span;
-        let length = span.end.saturating_sub(span.start).max(1);
-        let label = LabeledSpan::new_with_span(
-            Some("here".into()),
-            SourceSpan::new(span.start.into(), length),
-        );
+        // miette draws no marker at the very end of the source, where an unclosed
+        // block or a missing step is found, so such a problem marks the last character.
+        let source = self.source.inner();
+        let start = if span.start < source.len() {
+            span.start
+        } else {
+            source.char_indices().next_back().map_or(0, |(i, _)| i)
+        };
+        let length = span.end.saturating_sub(start).max(1);
+        let label =
+            LabeledSpan::new_with_span(Some("here".into()), SourceSpan::new(start.into(), length));
         Some(Box::new(std::iter::once(label)))
     }
 
@@ -148,6 +154,34 @@ mod tests {
         assert_eq!(line_and_column(source, 0), (1, 1));
         assert_eq!(line_and_column(source, 4), (2, 2));
         assert_eq!(line_and_column(source, source.len()), (3, 2));
+    }
+
+    fn rendered(source: &str, span: Range<usize>) -> String {
+        let errors = DocumentErrors {
+            path: "doc.md".into(),
+            source: source.into(),
+            problems: vec![Problem::new(span, "wrong")],
+        };
+        let handler =
+            miette::GraphicalReportHandler::new_themed(miette::GraphicalTheme::unicode_nocolor());
+        let mut out = String::new();
+        handler
+            .render_report(&mut out, &errors.diagnostics()[0])
+            .unwrap();
+        out
+    }
+
+    // Seen while fuzzing: a problem at the end of the document (an unclosed block
+    // whose YAML fails on its last byte, a document of front matter only) was drawn
+    // with no marker at all.
+    #[test]
+    fn a_problem_at_the_end_of_the_source_is_still_marked() {
+        for source in ["ab\ncd", "---\ntitle: x\n---\n", "ab\ncé"] {
+            let out = rendered(source, source.len()..source.len());
+            assert!(out.contains("here"), "{source:?}:\n{out}");
+        }
+        let out = rendered("ab\ncd", 1..1);
+        assert!(out.contains(" 1 │ ab\n   ·  ┬\n"), "{out}");
     }
 
     #[test]

@@ -30,12 +30,16 @@ pub fn deserialize<T: DeserializeOwned>(
 }
 
 fn problem_from(error: &serde_yaml::Error, block: Block<'_>, known: &[&str]) -> Problem {
+    let block_end = block.offset + block.text.len();
     let start = block.offset + error.location().map_or(0, |location| location.index());
     let line_end = block.text[start - block.offset..]
         .find('\n')
-        .map_or(block.offset + block.text.len(), |i| start + i);
+        .map_or(block_end, |i| start + i);
+    // An error at the block's very end (an unclosed fence at the end of the file) gets
+    // an empty span there: one byte more would point past the end of the document.
+    let end = line_end.max(start + 1).min(block_end);
     let message = plain_message(error);
-    let problem = Problem::new(start..line_end.max(start + 1), message.clone());
+    let problem = Problem::new(start..end, message.clone());
     match unknown_key(&message) {
         Some(key) => match nearest(key, known.iter().copied()) {
             Some(suggestion) => problem.with_help(format!("did you mean '{suggestion}'?")),
@@ -45,19 +49,90 @@ fn problem_from(error: &serde_yaml::Error, block: Block<'_>, known: &[&str]) -> 
     }
 }
 
-/// serde_yaml appends " at line L column C" to its messages; the diagnostic already
-/// says where, in document coordinates, so drop the block-relative position.
+/// serde_yaml writes " at line L column C" into its messages, at the end and, for
+/// scanner errors, also mid-sentence ("… at line 3 column 1, while scanning a simple
+/// key at line 2 column 1"). The diagnostic already says where, in document
+/// coordinates, so every block-relative position is dropped.
 fn plain_message(error: &serde_yaml::Error) -> String {
-    let text = error.to_string();
-    let text = match text.rfind(" at line ") {
-        Some(i) => text[..i].to_string(),
-        None => text,
-    };
+    let text = drop_positions(&error.to_string());
     let text = text.replace("unknown field", "unknown setting");
     text.replacen("missing field", "missing setting", 1)
+}
+
+/// `text` without its " at line L column C" fragments.
+fn drop_positions(text: &str) -> String {
+    let digits = |s: &str| s.len() - s.trim_start_matches(|c: char| c.is_ascii_digit()).len();
+    let mut kept = String::with_capacity(text.len());
+    let mut rest = text;
+    while let Some(i) = rest.find(" at line ") {
+        kept.push_str(&rest[..i]);
+        let after = &rest[i + " at line ".len()..];
+        let line = digits(after);
+        match after[line..].strip_prefix(" column ") {
+            Some(tail) if line > 0 && digits(tail) > 0 => rest = &tail[digits(tail)..],
+            _ => {
+                kept.push_str(" at line ");
+                rest = after;
+            }
+        }
+    }
+    kept.push_str(rest);
+    kept
 }
 
 fn unknown_key(message: &str) -> Option<&str> {
     let rest = message.strip_prefix("unknown setting `")?;
     rest.split('`').next()
+}
+
+#[cfg(test)]
+mod tests {
+    use serde::Deserialize;
+
+    use super::*;
+
+    #[derive(Debug, Deserialize)]
+    #[serde(deny_unknown_fields)]
+    #[allow(dead_code)] // only whether it deserialises matters
+    struct Settings {
+        data: Option<String>,
+    }
+
+    fn problem_of(text: &str, offset: usize) -> Problem {
+        let mut problems = Vec::new();
+        let parsed: Option<Settings> =
+            deserialize(Block { text, offset }, &["data"], &mut problems);
+        assert!(parsed.is_none());
+        assert_eq!(problems.len(), 1);
+        problems.remove(0)
+    }
+
+    // Found by the `document` fuzz target: an unclosed fence at the end of the file
+    // whose YAML breaks on its last byte gave a span one byte past the document.
+    #[test]
+    fn an_error_on_the_last_byte_stays_inside_the_block() {
+        let text = "data:\nn`";
+        let end = 20 + text.len();
+        assert_eq!(problem_of(text, 20).span, end..end);
+    }
+
+    #[test]
+    fn messages_carry_no_block_relative_positions() {
+        let problem = problem_of("data:\nn`", 40);
+        assert_eq!(
+            problem.message,
+            "could not find expected ':', while scanning a simple key"
+        );
+        assert_eq!(
+            drop_positions("bad at line 2 column 7 at line x, at line 3 column 1"),
+            "bad at line x,"
+        );
+    }
+
+    #[test]
+    fn an_error_marks_the_rest_of_its_line() {
+        let problem = problem_of("dta: x\n", 3);
+        assert_eq!(problem.span, 3..9);
+        assert_eq!(problem.help.as_deref(), Some("did you mean 'data'?"));
+    }
 }
