@@ -6,7 +6,7 @@
 
 mod common;
 
-use common::{Workspace, ids_with_status, stet, without_seconds};
+use common::{Workspace, ids_with_status, numbers_only, stet};
 
 const SWEEP: &str = r#"# Dispatch check
 
@@ -111,8 +111,8 @@ fn a_dispatched_sweep_matches_one_machine_and_redispatch_fills_only_the_gaps() {
         "the final build trains nothing"
     );
     let single = ws.build_ok(&doc, &["--no-cache", "--jobs", "1"]);
-    let a = serde_json::to_string(&numbers(&assembled["steps"])).unwrap();
-    let b = serde_json::to_string(&numbers(&single["steps"])).unwrap();
+    let a = serde_json::to_string(&numbers_only(&assembled["steps"])).unwrap();
+    let b = serde_json::to_string(&numbers_only(&single["steps"])).unwrap();
     assert!(a == b, "dispatched numbers differ from one machine's");
 
     // Lose three runs' work, as if their task had died, and dispatch again.
@@ -128,22 +128,6 @@ fn a_dispatched_sweep_matches_one_machine_and_redispatch_fills_only_the_gaps() {
     assert_eq!(trained_by_job(&ws.path("cache"), &second), 3);
     let again = ws.build_ok(&doc, &["--cache", "cache"]);
     assert!(ids_with_status(&again, "ran").is_empty());
-}
-
-/// A summary without what differs between building and reusing: status, times, counts.
-fn numbers(value: &serde_json::Value) -> serde_json::Value {
-    match without_seconds(value) {
-        serde_json::Value::Object(map) => serde_json::Value::Object(
-            map.into_iter()
-                .filter(|(key, _)| key != "status" && key != "runs_trained")
-                .map(|(key, v)| (key, numbers(&v)))
-                .collect(),
-        ),
-        serde_json::Value::Array(items) => {
-            serde_json::Value::Array(items.iter().map(numbers).collect())
-        }
-        other => other,
-    }
 }
 
 fn walk(dir: &std::path::Path) -> Vec<std::path::PathBuf> {

@@ -137,3 +137,18 @@ pub fn without_seconds(value: &Value) -> Value {
         other => other.clone(),
     }
 }
+
+/// A summary's steps without what differs between building and reusing a result
+/// (status, times, counts of runs trained): the numbers two builds must agree on.
+pub fn numbers_only(value: &Value) -> Value {
+    match value {
+        Value::Object(map) => Value::Object(
+            map.iter()
+                .filter(|(key, _)| !matches!(key.as_str(), "status" | "seconds" | "runs_trained"))
+                .map(|(key, v)| (key.clone(), numbers_only(v)))
+                .collect(),
+        ),
+        Value::Array(items) => Value::Array(items.iter().map(numbers_only).collect()),
+        other => other.clone(),
+    }
+}
