@@ -81,3 +81,23 @@ fn an_unusable_document_exits_2_names_the_line_and_writes_nothing() {
     assert!(stderr.contains("did you mean 'momentum'?"), "{stderr}");
     assert_eq!(std::fs::read(ws.path("iris.html")).unwrap(), report_before);
 }
+
+#[test]
+fn an_exploding_learning_rate_ends_in_diverged_with_its_epoch() {
+    let ws = Workspace::new();
+    let exploding = IRIS
+        .replace("learning_rate: 0.05", "learning_rate: 100000000")
+        .replace("activation: tanh", "activation: relu");
+    let doc = ws.write("boom.md", &exploding);
+    let summary = ws.build_ok(&doc, &[]);
+    let fit = step(&summary, "fit");
+    assert_eq!(
+        fit["status"], "ran",
+        "divergence is a result, not a failure"
+    );
+    assert_eq!(fit["stop"]["reason"], "diverged");
+    let epoch = fit["stop"]["epoch"].as_u64().unwrap();
+    assert!((1..300).contains(&epoch), "stopped at epoch {epoch}");
+    let html = std::fs::read_to_string(ws.path("boom.html")).unwrap();
+    assert!(html.contains("stopped: diverged"));
+}
