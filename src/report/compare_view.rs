@@ -4,10 +4,9 @@
 use serde::Serialize;
 
 use super::chart::{self, Axes, Series};
-use super::format::{mean_sd, number, stop_reason};
-use super::view::mean_curve;
+use super::view::{mean_curve, stat_text, stop_counts};
 use crate::document::spec::{ChartChoice, CompareSpec, MetricName};
-use crate::outcome::{FitResult, MetricStat, RowSet, SetMetrics, SweepResult};
+use crate::outcome::{FitResult, RowSet, SetMetrics, SweepResult};
 use crate::run::describe;
 
 /// Lines a chart of several fits draws at most, so that it stays legible.
@@ -38,37 +37,10 @@ pub struct SweepRow {
     pub stop: String,
 }
 
-fn stat_text(stat: &MetricStat) -> String {
-    match stat.sd {
-        Some(sd) => mean_sd(stat.mean, sd),
-        None => number(stat.mean),
-    }
-}
-
 fn rows_label(rows: RowSet) -> &'static str {
     match rows {
         RowSet::Test => "held out",
         RowSet::Train => "training",
-    }
-}
-
-/// The stop reasons of a fit's runs: one reason, or each with its count.
-fn stops(fit: &FitResult) -> String {
-    let mut counts: Vec<(&str, usize)> = Vec::new();
-    for run in &fit.runs {
-        let reason = stop_reason(run.fit.stop);
-        match counts.iter_mut().find(|(r, _)| *r == reason) {
-            Some((_, count)) => *count += 1,
-            None => counts.push((reason, 1)),
-        }
-    }
-    match counts.as_slice() {
-        [(reason, _)] => reason.to_string(),
-        _ => counts
-            .iter()
-            .map(|(r, c)| format!("{r} ({c})"))
-            .collect::<Vec<_>>()
-            .join(", "),
     }
 }
 
@@ -96,7 +68,7 @@ pub fn sweep_view(result: &SweepResult) -> SweepView {
                     .metric_stats(result.rank_rows)
                     .map(|stats| stats.iter().map(stat_text).collect())
                     .unwrap_or_default(),
-                stop: stops(fit),
+                stop: stop_counts(fit),
             }
         })
         .collect();

@@ -197,11 +197,7 @@ pub fn train_view(result: &FitResult, classes: Option<&[String]>) -> TrainView {
             .map(|(i, run)| fold_row(i, run))
             .collect()
     };
-    let stop = if single {
-        stop_reason(runs[0].fit.stop).to_string()
-    } else {
-        stop_counts(result)
-    };
+    let stop = stop_counts(result);
     let epochs = if single {
         runs[0].fit.epochs_run.to_string()
     } else {
@@ -224,13 +220,15 @@ pub fn train_view(result: &FitResult, classes: Option<&[String]>) -> TrainView {
 }
 
 fn stat_values(stats: &[MetricStat]) -> Vec<String> {
-    stats
-        .iter()
-        .map(|stat| match stat.sd {
-            Some(sd) => mean_sd(stat.mean, sd),
-            None => number(stat.mean),
-        })
-        .collect()
+    stats.iter().map(stat_text).collect()
+}
+
+/// A metric as `mean ± sd` over several runs, or its value for one.
+pub fn stat_text(stat: &MetricStat) -> String {
+    match stat.sd {
+        Some(sd) => mean_sd(stat.mean, sd),
+        None => number(stat.mean),
+    }
 }
 
 /// A fold's row in the per-fold table: its held-out metrics.
@@ -248,7 +246,8 @@ fn fold_row(index: usize, run: &crate::outcome::RunResult) -> FoldRow {
     }
 }
 
-fn stop_counts(result: &FitResult) -> String {
+/// The stop reasons of a fit's runs: one reason, or each with its count.
+pub fn stop_counts(result: &FitResult) -> String {
     let mut counts: Vec<(&str, usize)> = Vec::new();
     for run in &result.runs {
         let reason = stop_reason(run.fit.stop);
@@ -257,11 +256,14 @@ fn stop_counts(result: &FitResult) -> String {
             None => counts.push((reason, 1)),
         }
     }
-    counts
-        .iter()
-        .map(|(reason, count)| format!("{reason} ({count})"))
-        .collect::<Vec<_>>()
-        .join(", ")
+    match counts.as_slice() {
+        [(reason, _)] => reason.to_string(),
+        _ => counts
+            .iter()
+            .map(|(reason, count)| format!("{reason} ({count})"))
+            .collect::<Vec<_>>()
+            .join(", "),
+    }
 }
 
 /// Training and validation loss per epoch; with folds, one pair of lines per fold.
