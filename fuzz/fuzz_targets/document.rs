@@ -5,7 +5,8 @@
 //! which reports invalid UTF-8 as a problem of its own. Every problem is then turned
 //! into what a person sees: its line and column, the one-line form, and the miette
 //! diagnostic drawn by the graphical handler. Nothing may panic, and every span must
-//! lie inside the source, or the diagnostic would mark the wrong text (or none).
+//! lie inside the source and its marker must be drawn, or the diagnostic would mark
+//! the wrong text (or none).
 //!
 //! Spans of the parser and planner must also fall on character boundaries. The
 //! invalid-UTF-8 problem is exempt: `stet::load` marks one byte of the U+FFFD that
@@ -102,5 +103,10 @@ fn show(source: String, problems: Vec<Problem>, on_char_boundaries: bool) {
         handler
             .render_report(&mut out, &diagnostic)
             .expect("a diagnostic renders");
+        // miette silently leaves out a label it cannot place; every problem must be marked.
+        assert!(
+            errors.source.is_empty() || out.contains("here"),
+            "no marker drawn for {diagnostic:?}:\n{out}"
+        );
     }
 }
