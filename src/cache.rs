@@ -126,8 +126,12 @@ impl Cache {
         if let Err(error) = crate::atomic::write(&path, &encode(value))
             && !self.write_failed.swap(true, Ordering::Relaxed)
         {
+            let dir = self
+                .dir
+                .as_deref()
+                .map_or(String::new(), |d| d.display().to_string());
             self.warn(format!(
-                "cannot write to the cache ({error}); continuing without caching"
+                "cannot write to the cache in {dir} ({error}); continuing without caching"
             ));
         }
     }

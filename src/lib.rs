@@ -103,8 +103,12 @@ pub fn load(path: &Path, options: &plan::PlanOptions) -> Result<Loaded, Error> {
         Err(error) => {
             let at = error.utf8_error().valid_up_to();
             let text = String::from_utf8_lossy(error.as_bytes()).into_owned();
-            let problem = Problem::new(at..at + 1, "the document is not valid UTF-8 text")
-                .with_help("save the file as UTF-8");
+            // The bad bytes read as U+FFFD in the text shown, three bytes long.
+            let problem = Problem::new(
+                at..at + '\u{FFFD}'.len_utf8(),
+                "the document is not valid UTF-8 text",
+            )
+            .with_help("save the file as UTF-8");
             return Err(Error::Document(DocumentErrors::for_file(
                 path,
                 text,

@@ -1,34 +1,25 @@
 //! Fuzz target `document`: any bytes as an experiment document.
 //!
-//! UTF-8 input is parsed and planned against an empty folder, so every data file is
-//! missing and must come back as a `Problem`. Other bytes go through `stet::load`,
-//! which reports invalid UTF-8 as a problem of its own. Every problem is then turned
+//! The bytes are written to a file in an empty folder and loaded (`stet::load`: UTF-8
+//! check, parse, plan), so every data file is missing and must come back as a
+//! `Problem`, as must invalid UTF-8. Every problem is then turned
 //! into what a person sees: its line and column, the one-line form, and the miette
 //! diagnostic drawn by the graphical handler. Nothing may panic, and every span must
 //! lie inside the source and its marker must be drawn, or the diagnostic would mark
 //! the wrong text (or none).
-//!
-//! Spans of the parser and planner must also fall on character boundaries. The
-//! invalid-UTF-8 problem is exempt: `stet::load` marks one byte of the U+FFFD that
-//! replaces the bad bytes, which miette draws correctly all the same.
+//! Spans must also fall on character boundaries.
 
 #![no_main]
 
-use std::path::{Path, PathBuf};
+use std::path::PathBuf;
 use std::sync::OnceLock;
 
 use libfuzzer_sys::fuzz_target;
 use stet::document::problem::line_and_column;
 use stet::document::{DocumentErrors, Problem};
+use stet::plan::PlanOptions;
 
-/// An empty folder for plans to look for data files in, made once per process.
-fn empty_dir() -> &'static Path {
-    static DIR: OnceLock<tempfile::TempDir> = OnceLock::new();
-    DIR.get_or_init(|| tempfile::tempdir().expect("a temporary folder"))
-        .path()
-}
-
-/// Where non-UTF-8 input is written for `stet::load`, in a folder of its own.
+/// Where the input is written for `stet::load`, in a folder of its own.
 fn load_path() -> &'static PathBuf {
     static PATH: OnceLock<(tempfile::TempDir, PathBuf)> = OnceLock::new();
     &PATH
@@ -41,40 +32,23 @@ fn load_path() -> &'static PathBuf {
 }
 
 fuzz_target!(|bytes: &[u8]| {
-    match std::str::from_utf8(bytes) {
-        Ok(source) => {
-            let problems = match stet::document::parse(source) {
-                Ok(document) => match stet::plan::plan(&document, empty_dir()) {
-                    Ok(plan) => {
-                        // Only a document without data steps can plan here.
-                        assert!(
-                            document
-                                .steps()
-                                .all(|s| s.kind != stet::document::StepKind::Data),
-                            "a data step planned with its file missing"
-                        );
-                        assert_eq!(plan.steps.len(), document.steps().count());
-                        return;
-                    }
-                    Err(problems) => problems,
-                },
-                Err(problems) => problems,
-            };
-            show(source.to_string(), problems, true);
+    std::fs::write(load_path(), bytes).expect("writing the document");
+    match stet::load(load_path(), &PlanOptions::default()) {
+        Ok(loaded) => {
+            // Only a document without data steps can plan here: no data file exists.
+            assert!(
+                loaded.document.steps().all(|s| s.kind != stet::document::StepKind::Data),
+                "a data step planned with its file missing"
+            );
+            assert_eq!(loaded.plan.steps.len(), loaded.document.steps().count());
         }
-        Err(_) => {
-            std::fs::write(load_path(), bytes).expect("writing the document");
-            match stet::load(load_path()) {
-                Err(stet::Error::Document(errors)) => show(errors.source, errors.problems, false),
-                Err(other) => panic!("non-UTF-8 input gave {other}"),
-                Ok(_) => panic!("non-UTF-8 input loaded"),
-            }
-        }
+        Err(stet::Error::Document(errors)) => show(errors.source, errors.problems),
+        Err(other) => panic!("a document gave a non-document error: {other}"),
     }
 });
 
 /// Renders every problem as the command line would, checking its span first.
-fn show(source: String, problems: Vec<Problem>, on_char_boundaries: bool) {
+fn show(source: String, problems: Vec<Problem>) {
     assert!(!problems.is_empty(), "an error with no problems");
     for problem in &problems {
         let span = &problem.span;
@@ -84,8 +58,7 @@ fn show(source: String, problems: Vec<Problem>, on_char_boundaries: bool) {
             source.len()
         );
         assert!(
-            !on_char_boundaries
-                || (source.is_char_boundary(span.start) && source.is_char_boundary(span.end)),
+            source.is_char_boundary(span.start) && source.is_char_boundary(span.end),
             "span {span:?} splits a character: {problem:?}"
         );
         let (line, column) = line_and_column(&source, span.start);
