@@ -42,6 +42,8 @@ def main():
         work = pathlib.Path(scratch)
         shutil.copytree(ROOT / "demo-data", work / "demo-data")
         (work / "experiments").mkdir()
+        # One project, as in the repository, so the document may read ../demo-data.
+        (work / ".stet-project").write_text("")
         document = work / "experiments" / pathlib.Path(args.document).name
         cache = work / "cache"
         build = [str(stet), "build", str(document), "--cache", str(cache)]
