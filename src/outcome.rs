@@ -132,6 +132,8 @@ impl SweepResult {
 /// A predict step's result: one row of outputs per input row.
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
 pub struct PredictResult {
+    /// Whether `predicted` holds class labels (classification) rather than values.
+    pub labelled: bool,
     /// File line of each predicted row.
     pub lines: Vec<u64>,
     /// The predicted class label, or the predicted values as text.

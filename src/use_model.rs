@@ -107,6 +107,7 @@ pub fn predict(
         .expect("CSV of UTF-8 cells");
 
     Ok(PredictResult {
+        labelled: encoding.classes.is_some(),
         lines: table.lines.clone(),
         predicted,
         output_names,

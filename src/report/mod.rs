@@ -315,7 +315,7 @@ fn compared<'a>(
             match input.records[u].outcome.as_ref()? {
                 Outcome::Train(fit) => Some(Compared {
                     id,
-                    what: "train".into(),
+                    what: String::new(),
                     fit,
                 }),
                 Outcome::Sweep(sweep) => Some(Compared {

@@ -10,6 +10,8 @@ const SHOWN_ROWS: usize = 50;
 
 #[derive(Serialize)]
 pub struct PredictView {
+    /// Whether rows have a predicted class label (classification) besides the values.
+    pub labelled: bool,
     pub output_names: Vec<String>,
     pub rows: Vec<PredictRow>,
     pub total: usize,
@@ -37,6 +39,7 @@ pub fn predict_view(result: &PredictResult) -> PredictView {
         })
         .collect();
     PredictView {
+        labelled: result.labelled,
         output_names: result.output_names.clone(),
         shown: rows.len(),
         rows,
