@@ -97,6 +97,23 @@ impl Activation {
     /// Turns `grad`, holding `∂L/∂a` for this layer's outputs `a`, into
     /// `∂L/∂z` in place (the chain rule through the activation).
     pub fn backprop(self, a: ArrayView2<f64>, mut grad: ArrayViewMut2<f64>) {
+        assert_eq!(a.dim(), grad.dim(), "activations and gradient shapes");
+        if let (Some(a), Some(g)) = (a.as_slice(), grad.as_slice_mut())
+            && self.valid_for_hidden()
+        {
+            // Contiguous buffers (as in training): one flat loop that the
+            // compiler vectorises.
+            match self {
+                Activation::Sigmoid => zip_slices(g, a, |g, a| *g *= a * (1.0 - a)),
+                Activation::Tanh => zip_slices(g, a, |g, a| *g *= 1.0 - a * a),
+                Activation::Relu => zip_slices(g, a, |g, a| *g = if a <= 0.0 { 0.0 } else { *g }),
+                Activation::LeakyRelu => {
+                    zip_slices(g, a, |g, a| *g *= if a <= 0.0 { LEAKY_SLOPE } else { 1.0 })
+                }
+                Activation::Linear | Activation::Softmax => {}
+            }
+            return;
+        }
         let zip = Zip::from(&mut grad).and(&a);
         match self {
             Activation::Sigmoid => zip.for_each(|g, &a| *g *= a * (1.0 - a)),
@@ -122,6 +139,12 @@ impl Activation {
                 }),
         }
     }
+}
+
+/// `f(g[i], a[i])` for every `i`, inlined so that the loop vectorises.
+#[inline(always)]
+fn zip_slices(g: &mut [f64], a: &[f64], f: impl Fn(&mut f64, f64)) {
+    g.iter_mut().zip(a).for_each(|(g, &a)| f(g, a));
 }
 
 /// Logistic function, evaluated so that `e^x` is only taken of `x ≤ 0` and

@@ -112,6 +112,8 @@ struct Shape {
 
 #[cfg(target_arch = "x86_64")]
 mod x86 {
+    use std::cell::RefCell;
+
     use super::{KC, Shape};
 
     /// Rows of `C` per tile: with [`COLS`] this keeps 4 × 2 vectors of
@@ -119,6 +121,15 @@ mod x86 {
     const ROWS: usize = 4;
     /// Columns of `C` per full-width tile.
     const COLS: usize = 8;
+    /// Columns per vector; a last group of fewer columns is computed from a
+    /// zero-padded copy of those columns of `B`, so that narrow layers (three
+    /// classes, say) still run four lanes at a time.
+    const LANES: usize = 4;
+
+    thread_local! {
+        /// The padded copy of `B`'s last columns, reused between products.
+        static TAIL: RefCell<Vec<f64>> = const { RefCell::new(Vec::new()) };
+    }
 
     /// The direct product. Tiles of `C` are visited in any order (each entry
     /// is independent); within an entry the chain over `k` is sequential.
@@ -128,50 +139,91 @@ mod x86 {
     /// offsets described in [`super::gemm`].
     #[target_feature(enable = "avx2,fma")]
     pub(super) unsafe fn direct(s: &Shape, a: *const f64, b: *const f64, c: *mut f64) {
-        let mut i = 0;
-        while i < s.m {
-            let rows = (s.m - i).min(ROWS);
-            let mut j = 0;
-            while j < s.n {
-                let cols = s.n - j;
-                // SAFETY (all calls): the tile lies inside C, as required by `direct`.
-                unsafe {
-                    j += match (rows, cols) {
-                        (ROWS, COLS..) => tile::<ROWS, COLS>(s, a, b, c, i, j),
-                        (ROWS, 4..) => tile::<ROWS, 4>(s, a, b, c, i, j),
-                        (ROWS, _) => tile::<ROWS, 1>(s, a, b, c, i, j),
-                        (_, COLS..) => tile::<1, COLS>(s, a, b, c, i, j),
-                        (_, 4..) => tile::<1, 4>(s, a, b, c, i, j),
-                        _ => tile::<1, 1>(s, a, b, c, i, j),
-                    };
+        let full = s.n - s.n % LANES;
+        TAIL.with_borrow_mut(|tail| {
+            if full < s.n {
+                tail.clear();
+                tail.resize(s.k * LANES, 0.0);
+                for (p, padded) in tail.chunks_exact_mut(LANES).enumerate() {
+                    for (q, v) in padded.iter_mut().take(s.n - full).enumerate() {
+                        // SAFETY: p < k and full + q < n.
+                        *v = unsafe { *b.add(p * s.ldb + full + q) };
+                    }
                 }
             }
-            i += if rows == ROWS { ROWS } else { 1 };
-        }
+            let mut i = 0;
+            while i < s.m {
+                // SAFETY (all tiles): rows i.. and the columns named lie inside
+                // A, B (or the padded copy) and C.
+                unsafe {
+                    if s.m - i >= ROWS {
+                        row_tiles::<ROWS>(s, a, b, c, i, full, tail);
+                        i += ROWS;
+                    } else {
+                        row_tiles::<1>(s, a, b, c, i, full, tail);
+                        i += 1;
+                    }
+                }
+            }
+        });
     }
 
-    /// Computes the `R × W` block of `C` at `(i, j)`; returns `W`.
+    /// All tiles of rows `i..i + R` of `C`.
     ///
     /// # Safety
-    /// As [`direct`], with `i + R ≤ m` and `j + W ≤ n`.
+    /// As [`direct`], with `i + R ≤ m`; `tail` holds the padded last columns
+    /// when `full < n`.
     #[inline(always)]
-    unsafe fn tile<const R: usize, const W: usize>(
+    unsafe fn row_tiles<const R: usize>(
         s: &Shape,
         a: *const f64,
         b: *const f64,
         c: *mut f64,
         i: usize,
-        j: usize,
-    ) -> usize {
+        full: usize,
+        tail: &[f64],
+    ) {
+        let a = unsafe { a.add(i * s.rsa) };
+        let c = unsafe { c.add(i * s.ldc) };
+        let mut j = 0;
+        unsafe {
+            while j + COLS <= full {
+                tile::<R, COLS>(s, a, b.add(j), s.ldb, c.add(j), COLS);
+                j += COLS;
+            }
+            if j < full {
+                tile::<R, LANES>(s, a, b.add(j), s.ldb, c.add(j), LANES);
+            }
+            if full < s.n {
+                tile::<R, LANES>(s, a, tail.as_ptr(), LANES, c.add(full), s.n - full);
+            }
+        }
+    }
+
+    /// Computes an `R × W` block of `C` from the rows of `A` at `a`, the
+    /// columns of `B` at `b` (row stride `ldb`), and writes its first `cols`
+    /// columns to `c`.
+    ///
+    /// # Safety
+    /// As [`direct`]: `R` rows of `A` and `C`, `k` rows of `W` values of `B`
+    /// and `cols` values of each row of `C` are in bounds.
+    #[inline(always)]
+    unsafe fn tile<const R: usize, const W: usize>(
+        s: &Shape,
+        a: *const f64,
+        b: *const f64,
+        ldb: usize,
+        c: *mut f64,
+        cols: usize,
+    ) {
         let mut start = 0;
         while start < s.k {
             let end = (start + KC).min(s.k);
             let mut acc = [[0.0f64; W]; R];
             for p in start..end {
-                // SAFETY: p < k and j + W ≤ n, i + R ≤ m (callers' contract).
-                let row = unsafe { &*b.add(p * s.ldb + j).cast::<[f64; W]>() };
+                let row = unsafe { &*b.add(p * ldb).cast::<[f64; W]>() };
                 for (r, acc) in acc.iter_mut().enumerate() {
-                    let x = unsafe { *a.add((i + r) * s.rsa + p * s.csa) };
+                    let x = unsafe { *a.add(r * s.rsa + p * s.csa) };
                     for (acc, &y) in acc.iter_mut().zip(row) {
                         *acc = x.mul_add(y, *acc);
                     }
@@ -182,15 +234,21 @@ mod x86 {
             // also turns a −0 sum into +0).
             let add = s.accumulate || start > 0;
             for (r, acc) in acc.iter().enumerate() {
-                // SAFETY: the row segment lies inside C.
-                let out = unsafe { &mut *c.add((i + r) * s.ldc + j).cast::<[f64; W]>() };
-                for (out, &v) in out.iter_mut().zip(acc) {
-                    *out = v + if add { *out } else { 0.0 };
+                let out = unsafe { c.add(r * s.ldc) };
+                if cols == W {
+                    let out = unsafe { &mut *out.cast::<[f64; W]>() };
+                    for (out, &v) in out.iter_mut().zip(acc) {
+                        *out = v + if add { *out } else { 0.0 };
+                    }
+                } else {
+                    for (q, &v) in acc.iter().enumerate().take(cols) {
+                        let out = unsafe { &mut *out.add(q) };
+                        *out = v + if add { *out } else { 0.0 };
+                    }
                 }
             }
             start = end;
         }
-        W
     }
 }
 
