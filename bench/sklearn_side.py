@@ -3,7 +3,7 @@
 Usage:
   sklearn_side.py fit CASE.json      time MLPClassifier.fit on the case's .npy data
   sklearn_side.py whole CASE.json    a whole process: import, read the CSV, fit
-  sklearn_side.py peak               float64 and float32 matmul GFLOP/s of numpy
+  sklearn_side.py peak               float64 matmul GFLOP/s of numpy
 
 CASE.json is written by compare.py. `fit` and `peak` print one JSON object on
 stdout; `whole` prints nothing (its parent times the process). compare.py runs
@@ -61,8 +61,7 @@ def blas_kernels():
 def fit(case):
     from sklearn.metrics import log_loss
 
-    dtype = np.float32 if case["precision"] == "f32" else np.float64
-    x = np.load(case["npy_x"]).astype(dtype, copy=False)
+    x = np.load(case["npy_x"])
     y = np.load(case["npy_y"])
     net = model(case)
     with warnings.catch_warnings():
@@ -95,23 +94,19 @@ def whole(case):
 
 
 def peak():
-    """Best of several large square products, per precision: the BLAS peak on
-    the cores this process may use."""
+    """Best of several large square float64 products: the BLAS peak on the
+    cores this process may use."""
     n = 2048
     rng = np.random.default_rng(0)
-    out = {}
-    for name, dtype in (("f64", np.float64), ("f32", np.float32)):
-        a = rng.random((n, n)).astype(dtype)
-        b = rng.random((n, n)).astype(dtype)
+    a = rng.random((n, n))
+    b = rng.random((n, n))
+    a @ b
+    times = []
+    for _ in range(5):
+        started = time.perf_counter()
         a @ b
-        times = []
-        for _ in range(5):
-            started = time.perf_counter()
-            a @ b
-            times.append(time.perf_counter() - started)
-        out[name] = 2 * n**3 / min(times) / 1e9
-    out["blas"] = blas_kernels()
-    print(json.dumps(out))
+        times.append(time.perf_counter() - started)
+    print(json.dumps({"f64": 2 * n**3 / min(times) / 1e9, "blas": blas_kernels()}))
 
 
 def main():
