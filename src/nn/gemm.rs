@@ -142,12 +142,18 @@ mod x86 {
         let full = s.n - s.n % LANES;
         TAIL.with_borrow_mut(|tail| {
             if full < s.n {
-                tail.clear();
-                tail.resize(s.k * LANES, 0.0);
-                for (p, padded) in tail.chunks_exact_mut(LANES).enumerate() {
-                    for (q, v) in padded.iter_mut().take(s.n - full).enumerate() {
-                        // SAFETY: p < k and full + q < n.
-                        *v = unsafe { *b.add(p * s.ldb + full + q) };
+                // Every lane is written below, so the buffer needs no clearing.
+                if tail.len() < s.k * LANES {
+                    tail.resize(s.k * LANES, 0.0);
+                }
+                for (p, padded) in tail.chunks_exact_mut(LANES).take(s.k).enumerate() {
+                    for (q, v) in padded.iter_mut().enumerate() {
+                        *v = if full + q < s.n {
+                            // SAFETY: p < k and full + q < n.
+                            unsafe { *b.add(p * s.ldb + full + q) }
+                        } else {
+                            0.0
+                        };
                     }
                 }
             }

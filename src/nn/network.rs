@@ -122,7 +122,14 @@ impl Layer {
     pub(crate) fn forward_into(&self, input: ArrayView2<f64>, mut out: ArrayViewMut2<f64>) {
         // Bias first, then `out ← input · W + out` accumulates the product
         // onto it in one pass, with no temporary matrix.
-        out.assign(&self.biases);
+        match (out.as_slice_mut(), self.biases.as_slice()) {
+            // Row by row from the slice: ndarray's broadcasting assignment
+            // costs more than the copy itself for narrow layers.
+            (Some(values), Some(biases)) if !biases.is_empty() => values
+                .chunks_exact_mut(biases.len())
+                .for_each(|row| row.copy_from_slice(biases)),
+            _ => out.assign(&self.biases),
+        }
         gemm(input, self.weights.view(), true, out.view_mut());
         self.activation.apply(out);
     }
