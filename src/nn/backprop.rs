@@ -10,12 +10,13 @@
 //! * `δ_{l−1} = (δ_l · W_lᵀ) ⊙ f'_{l−1}(a_{l−1})`, the derivative applied
 //!   in place by [`Activation::backprop`](super::Activation::backprop).
 //!
-//! Matrix products go through ndarray's `general_mat_mul` into the
-//! preallocated buffers; bias sums run over rows in order, so results do not
-//! depend on threads.
+//! Matrix products go through [`gemm`](super::gemm) into the preallocated
+//! buffers; bias sums run over rows in order, so results do not depend on
+//! threads.
 
-use ndarray::{Array1, Array2, ArrayView2, linalg::general_mat_mul, s};
+use ndarray::{Array1, Array2, ArrayView2, s};
 
+use super::gemm::{self, gemm};
 use super::loss::Loss;
 use super::network::Network;
 
@@ -69,6 +70,10 @@ pub(crate) struct Workspace {
     activations: Vec<Array2<f64>>,
     deltas: Vec<Array2<f64>>,
     pub(crate) gradients: Vec<LayerGradient>,
+    /// `W_lᵀ` in row-major order for the products `δ_l · W_lᵀ` that take the
+    /// direct kernel, which reads its right operand by rows; refreshed each
+    /// batch. Entry 0 is unused (no delta goes below the first layer).
+    transposed: Vec<Array2<f64>>,
 }
 
 impl Workspace {
@@ -84,6 +89,11 @@ impl Workspace {
             activations: buffers(),
             deltas: buffers(),
             gradients: LayerGradient::zeros_like(network),
+            transposed: network
+                .layers
+                .iter()
+                .map(|l| Array2::zeros((l.outputs(), l.inputs())))
+                .collect(),
         }
     }
 
@@ -129,16 +139,36 @@ impl Workspace {
                 self.activations[l - 1].slice(s![..n, ..])
             };
             let gradient = &mut self.gradients[l];
-            general_mat_mul(1.0, &input.t(), &delta, 0.0, &mut gradient.weights);
-            gradient.biases.fill(0.0);
-            for row in delta.rows() {
-                gradient.biases += &row;
-            }
+            gemm(input.t(), delta, false, gradient.weights.view_mut());
+            sum_rows(delta, &mut gradient.biases);
             if l > 0 {
                 let mut below = lower[l - 1].slice_mut(s![..n, ..]);
-                general_mat_mul(1.0, &delta, &network.layers[l].weights.t(), 0.0, &mut below);
+                let weights = &network.layers[l].weights;
+                let (inputs, outputs) = weights.dim();
+                if gemm::direct(n, outputs, inputs) {
+                    let transposed = &mut self.transposed[l];
+                    transposed.assign(&weights.t());
+                    gemm(delta, transposed.view(), false, below.view_mut());
+                } else {
+                    gemm(delta, weights.t(), false, below.view_mut());
+                }
                 network.layers[l - 1].activation.backprop(input, below);
             }
+        }
+    }
+}
+
+/// `sums ← Σ_rows delta`, adding the rows in order (the same sums, bit for
+/// bit, as adding whole rows to a zero vector one after another).
+fn sum_rows(delta: ArrayView2<f64>, sums: &mut Array1<f64>) {
+    sums.fill(0.0);
+    let sums = sums
+        .as_slice_mut()
+        .expect("gradient vectors are contiguous");
+    for row in delta.rows() {
+        match row.as_slice() {
+            Some(row) => sums.iter_mut().zip(row).for_each(|(s, &d)| *s += d),
+            None => sums.iter_mut().zip(row).for_each(|(s, &d)| *s += d),
         }
     }
 }

@@ -65,12 +65,26 @@ impl Loss {
         targets: ArrayView2<f64>,
     ) -> f64 {
         self.check(output, outputs, targets);
+        // A zero target contributes nothing to a categorical cross-entropy,
+        // so its logarithm is not taken (one-hot rows: one logarithm per row
+        // instead of one per class). Skipping it leaves every sum unchanged: the
+        // term would be +0. A NaN output is still seen, since softmax spreads a
+        // NaN to its whole row. Binary cross-entropy skips the term whose
+        // weight is zero in the same way.
         let per_element: fn(f64, f64) -> f64 = match (self, output) {
             (Loss::Mse, _) => |o, t| 0.5 * (o - t) * (o - t),
-            (Loss::CrossEntropy, Activation::Softmax) => |p, t| -t * clip(p).ln(),
+            (Loss::CrossEntropy, Activation::Softmax) => |p, t| {
+                if t == 0.0 { 0.0 } else { -t * clip(p).ln() }
+            },
             (Loss::CrossEntropy, _) => |p, t| {
                 let p = clip(p);
-                -(t * p.ln() + (1.0 - t) * (1.0 - p).ln())
+                if t == 0.0 {
+                    -(1.0 - p).ln()
+                } else if t == 1.0 {
+                    -p.ln()
+                } else {
+                    -(t * p.ln() + (1.0 - t) * (1.0 - p).ln())
+                }
             },
         };
         outputs

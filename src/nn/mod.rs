@@ -41,11 +41,13 @@
 
 pub mod activation;
 pub mod backprop;
+mod gemm;
 pub mod loss;
 pub mod metrics;
 pub mod network;
 pub mod optimizer;
 pub mod train;
+mod vector;
 
 pub use activation::Activation;
 pub use backprop::{LayerGradient, gradients};

@@ -23,13 +23,14 @@
 //! rather than through a `rand` distribution so that a change in `rand`'s
 //! sampling code cannot silently change every initial network.
 
-use ndarray::{Array1, Array2, ArrayView2, ArrayViewMut2, linalg::general_mat_mul};
+use ndarray::{Array1, Array2, ArrayView2, ArrayViewMut2};
 use rand::{Rng, SeedableRng};
 use rand_chacha::ChaCha8Rng;
 use serde::{Deserialize, Serialize};
 use thiserror::Error;
 
 use super::activation::Activation;
+use super::gemm::gemm;
 
 /// How initial weights are drawn; see the module documentation.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Hash, Serialize, Deserialize)]
@@ -121,8 +122,15 @@ impl Layer {
     pub(crate) fn forward_into(&self, input: ArrayView2<f64>, mut out: ArrayViewMut2<f64>) {
         // Bias first, then `out ← input · W + out` accumulates the product
         // onto it in one pass, with no temporary matrix.
-        out.assign(&self.biases);
-        general_mat_mul(1.0, &input, &self.weights, 1.0, &mut out);
+        match (out.as_slice_mut(), self.biases.as_slice()) {
+            // Row by row from the slice: ndarray's broadcasting assignment
+            // costs more than the copy itself for narrow layers.
+            (Some(values), Some(biases)) if !biases.is_empty() => values
+                .chunks_exact_mut(biases.len())
+                .for_each(|row| row.copy_from_slice(biases)),
+            _ => out.assign(&self.biases),
+        }
+        gemm(input, self.weights.view(), true, out.view_mut());
         self.activation.apply(out);
     }
 }

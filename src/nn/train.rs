@@ -32,13 +32,14 @@
 //! 4. after `epochs` epochs the run ends with [`StopReason::EpochLimit`].
 //!
 //! Every reduction runs in a fixed order and all randomness is seeded, so
-//! the same inputs give the same outcome bit for bit. Matrix products use
-//! `matrixmultiply` (through ndarray), whose threads split the output matrix
-//! but never a dot product, so the thread count (`MATMUL_NUM_THREADS`,
-//! default: physical cores) does not change any result. It does pick an
-//! FMA/AVX kernel at run time, so machines with different SIMD support
-//! may differ in the last bits, as may platforms whose `exp`/`tanh`/`ln`
-//! differ.
+//! the same inputs give the same outcome bit for bit. Large matrix products
+//! use `matrixmultiply` (through ndarray), whose threads split the output
+//! matrix but never a dot product, so the thread count (`MATMUL_NUM_THREADS`,
+//! default: physical cores) does not change any result; small ones use a
+//! direct kernel with the same rounding (see the `gemm` module). It does pick
+//! an FMA/AVX kernel at run time, so machines with different SIMD support may
+//! differ in the last bits, as may platforms whose `tanh`/`ln` differ (the
+//! `exp` of sigmoid and softmax is stet's own and the same everywhere).
 
 use ndarray::{Array2, ArrayView2, Zip, s};
 use rand::SeedableRng;

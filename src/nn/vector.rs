@@ -1,0 +1,133 @@
+//! Element-wise maps over contiguous buffers that the compiler can turn into
+//! SIMD loops, and an exponential written for them.
+//!
+//! The platform's `exp` is an opaque call per element, so a loop around it
+//! runs one value at a time; [`exp`] here is branch-free arithmetic that
+//! vectorises, which makes sigmoid and softmax layers several times faster.
+//! It uses only IEEE additions and multiplications (no fused multiply–add,
+//! whose availability differs between processors), so its results are the
+//! same bit for bit on every machine and at every vector width: training no
+//! longer depends on the C library's `exp` the way it did.
+
+/// `e^x`, within about one unit in the last place of the exact value;
+/// `+∞` above about 709.78, `0` below about −745.1, NaN for NaN.
+///
+/// Method: `x = k·ln 2 + r` with `k` the nearest integer to `x / ln 2` and
+/// `|r| ≤ ln 2 / 2`, then `e^x = 2^k · e^r` with `e^r` from its Taylor series
+/// to degree 13 (the first omitted term is below `4·10⁻¹⁸` relative). `k·ln 2`
+/// is taken in two parts, the first with trailing zero bits so that its
+/// product with `k` is exact (Cody & Waite, 1980; the constants are
+/// fdlibm's). `2^k` is applied as two factors so that results near overflow
+/// and in the subnormal range are rounded once, correctly.
+#[inline(always)]
+pub fn exp(x: f64) -> f64 {
+    // ln 2 = LN2_HI + LN2_LO, the first with its low 32 bits zero.
+    const LN2_HI: f64 = f64::from_bits(0x3FE6_2E42_FEE0_0000);
+    const LN2_LO: f64 = f64::from_bits(0x3DEA_39EF_3579_3C76);
+    // 1.5 · 2⁵²: adding it rounds to an integer held in the low mantissa bits.
+    const SHIFT: f64 = 6_755_399_441_055_744.0;
+    // Past these e^x is 0 or +∞ in f64; clamping keeps k in range.
+    let x = x.clamp(-746.0, 710.0);
+    let shifted = x * std::f64::consts::LOG2_E + SHIFT;
+    let k = shifted - SHIFT;
+    let r = (x - k * LN2_HI) - k * LN2_LO;
+    // e^r = 1 + (r + r²·t) with t = Σ_{i=2..13} rⁱ⁻²/i!. Adding the two
+    // largest terms last keeps the rounding error near half an ulp; t is
+    // evaluated by Estrin's scheme (pairs, then pairs of pairs), whose
+    // dependency chains are a third as long as Horner's: a vectorised loop
+    // over many values is bound by their latency.
+    let c = |i: u32| 1.0 / (1..=i).map(f64::from).product::<f64>();
+    let r2 = r * r;
+    let r4 = r2 * r2;
+    let pair = |i: u32| c(i) + c(i + 1) * r;
+    let quad = |i: u32| pair(i) + pair(i + 2) * r2;
+    let t = quad(2) + (quad(6) + quad(10) * r4) * r4;
+    let p = 1.0 + (r + r2 * t);
+    // The integer k sits in the low bits of `shifted`; split it in halves
+    // k = k1 + k2 and build 2^k1, 2^k2 from the exponent field.
+    let ki = shifted.to_bits().wrapping_sub(SHIFT.to_bits()) as i64;
+    let k1 = ki >> 1;
+    let k2 = ki - k1;
+    let scale = |k: i64| f64::from_bits(((k + 1023) as u64) << 52);
+    p * scale(k1) * scale(k2)
+}
+
+/// `values[i] ← f(values[i])` for every element, vectorised with AVX2 where
+/// the processor has it. `f` must be pure arithmetic for that to pay; the
+/// results do not depend on which path runs.
+#[inline]
+pub fn map(values: &mut [f64], f: impl Fn(f64) -> f64) {
+    #[cfg(target_arch = "x86_64")]
+    if std::arch::is_x86_feature_detected!("avx2") {
+        // SAFETY: AVX2 was detected.
+        unsafe { map_avx2(values, f) };
+        return;
+    }
+    values.iter_mut().for_each(|v| *v = f(*v));
+}
+
+#[cfg(target_arch = "x86_64")]
+#[target_feature(enable = "avx2")]
+fn map_avx2(values: &mut [f64], f: impl Fn(f64) -> f64) {
+    values.iter_mut().for_each(|v| *v = f(*v));
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// Distance in units in the last place between two finite doubles.
+    fn ulps(a: f64, b: f64) -> u64 {
+        let key = |v: f64| {
+            let bits = v.to_bits() as i64;
+            if bits < 0 { i64::MIN - bits } else { bits }
+        };
+        key(a).abs_diff(key(b))
+    }
+
+    /// Against the platform's `exp` (itself within about half an ulp) over the
+    /// whole finite range, densely where sigmoid and softmax use it.
+    #[test]
+    fn exp_is_within_one_ulp_of_the_platform() {
+        let mut worst = (0, 0.0);
+        let mut check = |x: f64| {
+            let (ours, reference) = (exp(x), x.exp());
+            let d = ulps(ours, reference);
+            if d > worst.0 {
+                worst = (d, x);
+            }
+        };
+        for i in 0..200_000 {
+            check(-40.0 + 50.0 * i as f64 / 200_000.0);
+        }
+        for i in 0..20_000 {
+            check(-745.0 + 1454.0 * i as f64 / 20_000.0);
+        }
+        assert!(worst.0 <= 1, "{} ulps at {}", worst.0, worst.1);
+    }
+
+    #[test]
+    fn exp_edges() {
+        assert_eq!(exp(0.0), 1.0);
+        assert_eq!(exp(-0.0), 1.0);
+        assert!(ulps(exp(1.0), std::f64::consts::E) <= 1);
+        assert_eq!(exp(710.0), f64::INFINITY);
+        assert_eq!(exp(f64::INFINITY), f64::INFINITY);
+        assert_eq!(exp(-746.0), 0.0);
+        assert_eq!(exp(f64::NEG_INFINITY), 0.0);
+        assert!(exp(f64::NAN).is_nan());
+        // Largest finite and smallest subnormal results.
+        assert!(exp(709.78).is_finite());
+        let tiny = exp(-744.4);
+        assert!(tiny > 0.0 && tiny < f64::MIN_POSITIVE, "{tiny}");
+        assert_eq!(ulps(exp(-700.0), (-700.0f64).exp()), 0);
+    }
+
+    #[test]
+    fn map_matches_the_scalar_loop() {
+        let mut values: Vec<f64> = (0..1003).map(|i| (i as f64 - 500.0) / 7.0).collect();
+        let expected: Vec<f64> = values.iter().map(|&v| exp(-v.abs())).collect();
+        map(&mut values, |v| exp(-v.abs()));
+        assert_eq!(values, expected);
+    }
+}
