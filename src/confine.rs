@@ -8,6 +8,12 @@ use std::path::{Component, Path, PathBuf};
 
 /// The folder a document's data paths must stay inside.
 pub fn project_root(document_dir: &Path) -> PathBuf {
+    // A document named without a folder ("doc.md") has the empty path as its parent.
+    let document_dir = if document_dir.as_os_str().is_empty() {
+        Path::new(".")
+    } else {
+        document_dir
+    };
     let start = document_dir
         .canonicalize()
         .unwrap_or_else(|_| document_dir.to_path_buf());
@@ -77,6 +83,12 @@ mod tests {
         let docs = dir.path().join("docs");
         std::fs::create_dir_all(&docs).unwrap();
         assert_eq!(project_root(&docs), docs.canonicalize().unwrap());
+    }
+
+    #[test]
+    fn a_document_named_without_a_folder_is_rooted_in_the_current_one() {
+        let root = project_root(Path::new(""));
+        assert!(root.is_absolute(), "{}", root.display());
     }
 
     #[test]

@@ -42,3 +42,22 @@ fn script_in_a_class_label_a_column_name_and_a_setting_is_escaped() {
         "data is escaped even then"
     );
 }
+
+#[test]
+fn a_document_named_from_its_own_folder_is_still_confined() {
+    let ws = Workspace::new();
+    let outside = tempfile::tempdir().unwrap();
+    let secret = outside.path().join("secret.csv");
+    std::fs::write(&secret, "password,x\nhunter2,1\n").unwrap();
+    ws.write(
+        "doc.md",
+        &format!(
+            "```yaml data d\nfile: {}\ntarget: x\n```\n",
+            secret.display()
+        ),
+    );
+    let output = common::stet(&["build".into(), "doc.md".into()], ws.dir.path());
+    assert_eq!(output.status.code(), Some(2));
+    assert!(String::from_utf8_lossy(&output.stderr).contains("outside this document's project"));
+    assert!(!ws.path("doc.html").exists());
+}
