@@ -15,21 +15,11 @@ fn assert_close(got: f64, expected: f64, tolerance: f64, what: &str) {
 }
 
 fn sgd_config(learning_rate: f64, momentum: f64, batch: BatchSize, epochs: usize) -> TrainConfig {
-    TrainConfig {
-        loss: Loss::Mse,
-        optimizer: Optimizer::Sgd {
-            learning_rate,
-            momentum,
-        },
-        batch,
-        epochs,
-        target_loss: None,
-        patience: None,
-        l2: 0.0,
-        shuffle: false,
-        seed: 0,
-        update_biases: true,
-    }
+    let optimizer = Optimizer::Sgd {
+        learning_rate,
+        momentum,
+    };
+    TrainConfig::plain(Loss::Mse, optimizer, batch, epochs)
 }
 
 /// Matt Mazur, "A Step by Step Backpropagation Example" (2015): a 2-2-2

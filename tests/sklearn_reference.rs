@@ -315,18 +315,12 @@ fn weights_match_scikit_learn_after_three_epochs() {
 
     for ((case, (network, x, y, loss)), result) in cases.iter().zip(prepared).zip(&results) {
         assert_eq!(result["name"], case.name);
-        let config = TrainConfig {
+        let config = TrainConfig::plain(
             loss,
-            optimizer: case.optimizer.clone(),
-            batch: BatchSize::Rows(case.batch),
-            epochs: EPOCHS,
-            target_loss: None,
-            patience: None,
-            l2: 0.0,
-            shuffle: false,
-            seed: 0,
-            update_biases: true,
-        };
+            case.optimizer.clone(),
+            BatchSize::Rows(case.batch),
+            EPOCHS,
+        );
         let trained = train(network.clone(), x.view(), y.view(), None, &config).network;
         let mut moved: f64 = 0.0;
         for (l, ((ours, start), (coefs, intercepts))) in trained

@@ -102,6 +102,25 @@ pub struct TrainConfig {
     pub update_biases: bool,
 }
 
+impl TrainConfig {
+    /// Plain gradient descent as the reference checks run it: rows in order, no
+    /// stopping rule but the epoch count, no L2, biases updated.
+    pub fn plain(loss: Loss, optimizer: Optimizer, batch: BatchSize, epochs: usize) -> TrainConfig {
+        TrainConfig {
+            loss,
+            optimizer,
+            batch,
+            epochs,
+            target_loss: None,
+            patience: None,
+            l2: 0.0,
+            shuffle: false,
+            seed: 0,
+            update_biases: true,
+        }
+    }
+}
+
 /// Losses recorded after one epoch.
 #[derive(Clone, Copy, Debug, PartialEq, Serialize, Deserialize)]
 pub struct EpochLosses {
@@ -369,18 +388,7 @@ mod tests {
     }
 
     fn config(optimizer: Optimizer, batch: BatchSize, epochs: usize) -> TrainConfig {
-        TrainConfig {
-            loss: Loss::Mse,
-            optimizer,
-            batch,
-            epochs,
-            target_loss: None,
-            patience: None,
-            l2: 0.0,
-            shuffle: false,
-            seed: 0,
-            update_biases: true,
-        }
+        TrainConfig::plain(Loss::Mse, optimizer, batch, epochs)
     }
 
     /// Seven rows of a smooth two-input function with one output.
