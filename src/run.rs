@@ -481,9 +481,9 @@ fn fit_all<'t>(
     unique: &[usize],
     options: &RunOptions,
 ) -> HashMap<&'t Key, RunResult> {
-    for task in tasks {
+    for &i in unique {
         // A data step that succeeded in this build prepares again from the same bytes.
-        prepared_for(plan, task.data, cache, prepared)
+        prepared_for(plan, tasks[i].data, cache, prepared)
             .expect("a data step that succeeded prepares again");
     }
     if let Some(bar) = &options.progress {
