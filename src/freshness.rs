@@ -2,7 +2,7 @@
 
 use serde::Serialize;
 
-use crate::cache::Cache;
+use crate::cache::{Cache, EntryKind};
 use crate::document::StepKind;
 use crate::manifest::{Manifest, StepInputs};
 use crate::plan::{Plan, PlannedStep, short_key};
@@ -35,6 +35,25 @@ pub fn status(plan: &Plan, cache: &Cache, previous: &Manifest) -> Vec<StepStatus
             }
         })
         .collect()
+}
+
+/// Training runs over the whole document, each counted once however many steps share
+/// it: (cached, all).
+pub fn run_totals(plan: &Plan, cache: &Cache) -> (usize, usize) {
+    let keys: std::collections::BTreeSet<&str> = plan
+        .steps
+        .iter()
+        .flat_map(|step| {
+            step.fits
+                .iter()
+                .flat_map(|fit| fit.runs.iter().map(|run| run.key.as_str()))
+        })
+        .collect();
+    let cached = keys
+        .iter()
+        .filter(|key| cache.contains(key, EntryKind::Run))
+        .count();
+    (cached, keys.len())
 }
 
 fn cached(step: &PlannedStep, cache: &Cache) -> (bool, Option<(usize, usize)>) {

@@ -290,11 +290,8 @@ pub fn dispatch(
     }
     eprintln!("submitted job {job} ({tasks} tasks); waiting for it");
     dispatch::wait_for(&job).map_err(Error::Usage)?;
-    let previous = manifest::load(&cache, &options.document);
-    let missing: usize = freshness::status(&loaded.plan, &cache, &previous)
-        .iter()
-        .filter_map(|step| step.runs.map(|(done, all)| all - done))
-        .sum();
+    let (cached, all) = freshness::run_totals(&loaded.plan, &cache);
+    let missing = all - cached;
     let finished = if missing > 0 {
         Err(missing)
     } else {
@@ -312,11 +309,22 @@ pub fn status(
     document: &Path,
     cache: &CacheChoice,
     options: &plan::PlanOptions,
-) -> Result<Vec<freshness::StepStatus>, Error> {
+) -> Result<StatusReport, Error> {
     let loaded = load(document, options)?;
     let cache = open_cache(cache, document);
     let previous = manifest::load(&cache, document);
-    Ok(freshness::status(&loaded.plan, &cache, &previous))
+    Ok(StatusReport {
+        steps: freshness::status(&loaded.plan, &cache, &previous),
+        runs: freshness::run_totals(&loaded.plan, &cache),
+    })
+}
+
+/// What `stet status` prints.
+#[derive(Debug)]
+pub struct StatusReport {
+    pub steps: Vec<freshness::StepStatus>,
+    /// Training runs of the whole document, each once: (cached, all).
+    pub runs: (usize, usize),
 }
 
 /// `stet clean`: removes the cache entries no named document uses; with no document,

@@ -215,8 +215,8 @@ fn run(command: Command) -> Result<ExitCode, Error> {
             cache,
             flags,
         } => {
-            let steps = stet::status(&document, &cache_choice(cache), &flags.options())?;
-            for step in &steps {
+            let report = stet::status(&document, &cache_choice(cache), &flags.options())?;
+            for step in &report.steps {
                 let decision = match step.run_reason {
                     None => "reuse".to_string(),
                     Some(reason) => format!("run ({reason})"),
@@ -231,10 +231,7 @@ fn run(command: Command) -> Result<ExitCode, Error> {
                     step.short_key
                 );
             }
-            let (done, all) = steps
-                .iter()
-                .filter_map(|step| step.runs)
-                .fold((0, 0), |(d, a), (done, all)| (d + done, a + all));
+            let (done, all) = report.runs;
             println!("training runs: {done} cached, {} to train", all - done);
             Ok(ExitCode::SUCCESS)
         }
