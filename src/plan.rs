@@ -10,7 +10,7 @@ use crate::confine;
 use crate::data::Split;
 use crate::document::problem::nearest;
 use crate::document::spec::sweep::{value_text, variant};
-use crate::document::spec::{NetSpec, TrainSpec, parse_step};
+use crate::document::spec::{NetSpec, TrainSpec, key_span, parse_step};
 use crate::document::{Document, Problem, StepBlock, StepKind, StepSpec};
 
 /// Bumped whenever the meaning of a cached result changes, so old entries miss.
@@ -280,19 +280,7 @@ fn missing_reference(
 
 /// The span of `setting:` in the block, or its info string.
 fn setting_span(block: &StepBlock, setting: &str) -> std::ops::Range<usize> {
-    let mut offset = block.yaml_offset;
-    for line in block.yaml.split_inclusive('\n') {
-        let trimmed = line.trim_start();
-        if trimmed
-            .strip_prefix(setting)
-            .is_some_and(|rest| rest.trim_start().starts_with(':'))
-        {
-            let indent = line.len() - trimmed.len();
-            return offset + indent..offset + line.trim_end().len();
-        }
-        offset += line.len();
-    }
-    block.info_span.clone()
+    key_span(block.yaml_block(), setting).unwrap_or_else(|| block.info_span.clone())
 }
 
 fn read_files(

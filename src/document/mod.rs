@@ -51,6 +51,16 @@ pub struct StepBlock {
     pub span: Range<usize>,
 }
 
+impl StepBlock {
+    /// The block's YAML with its place in the document, for position-aware parsing.
+    pub fn yaml_block(&self) -> yaml::Block<'_> {
+        yaml::Block {
+            text: &self.yaml,
+            offset: self.yaml_offset,
+        }
+    }
+}
+
 impl Document {
     pub fn steps(&self) -> impl Iterator<Item = &StepBlock> {
         self.pieces.iter().filter_map(|piece| match piece {

@@ -289,7 +289,10 @@ pub(crate) fn key_span(block: Block<'_>, key: &str) -> Option<std::ops::Range<us
     let mut offset = block.offset;
     for line in block.text.split_inclusive('\n') {
         let trimmed = line.trim_start();
-        if trimmed.starts_with(key) && trimmed[key.len()..].trim_start().starts_with(':') {
+        if trimmed
+            .strip_prefix(key)
+            .is_some_and(|rest| rest.trim_start().starts_with(':'))
+        {
             let indent = line.len() - trimmed.len();
             return Some(offset + indent..offset + line.trim_end().len());
         }
@@ -304,10 +307,7 @@ pub fn parse_step(
     default_seed: u64,
     problems: &mut Vec<Problem>,
 ) -> Option<StepSpec> {
-    let block = Block {
-        text: &step.yaml,
-        offset: step.yaml_offset,
-    };
+    let block = step.yaml_block();
     let before = problems.len();
     let mut check = Checker {
         block: Some(block),
