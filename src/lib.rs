@@ -29,7 +29,7 @@ use std::path::{Path, PathBuf};
 use cache::Cache;
 use document::{Document, DocumentErrors, Problem};
 use plan::Plan;
-use run::{RunOptions, Status, StepRecord};
+use run::{RunOptions, StepRecord};
 
 /// Where the cache lives.
 #[derive(Clone, Debug)]
@@ -361,21 +361,13 @@ fn summarise(
     records: &[StepRecord],
     warnings: Vec<String>,
 ) -> BuildSummary {
-    let count = |wanted: fn(&Status) -> bool| records.iter().filter(|r| wanted(&r.status)).count();
+    let tally = run::tally(records);
     BuildSummary {
         report,
         steps: records.len(),
-        ran: count(|s| matches!(s, Status::Ran { .. })),
-        reused: count(|s| matches!(s, Status::Reused)),
-        failed: plan
-            .steps
-            .iter()
-            .zip(records)
-            .filter_map(|(step, record)| match &record.status {
-                Status::Failed { error } => Some((step.id.clone(), error.clone())),
-                _ => None,
-            })
-            .collect(),
+        ran: tally.ran,
+        reused: tally.reused,
+        failed: run::failures(plan, records.iter().map(Some)),
         warnings,
     }
 }

@@ -402,10 +402,15 @@ pub fn describe(settings: &[(String, String)]) -> String {
 /// so that cluster tasks load prepared data instead of each preparing it; returns the
 /// steps that failed.
 pub fn prepare_only(plan: &Plan, cache: &Cache) -> Vec<(String, String)> {
-    failures(plan, &stage(plan, cache).records)
+    failures(plan, stage(plan, cache).records.iter().map(Option::as_ref))
 }
 
-fn failures(plan: &Plan, records: &[Option<StepRecord>]) -> Vec<(String, String)> {
+/// The id and error of every failed step; `records` are in plan order, `None` for a
+/// step not yet run.
+pub fn failures<'a>(
+    plan: &Plan,
+    records: impl IntoIterator<Item = Option<&'a StepRecord>>,
+) -> Vec<(String, String)> {
     plan.steps
         .iter()
         .zip(records)
@@ -417,6 +422,31 @@ fn failures(plan: &Plan, records: &[Option<StepRecord>]) -> Vec<(String, String)
             _ => None,
         })
         .collect()
+}
+
+/// How many steps ran, were reused or failed, and the seconds spent training.
+#[derive(Clone, Copy, Debug, Default, PartialEq)]
+pub struct Tally {
+    pub ran: usize,
+    pub reused: usize,
+    pub failed: usize,
+    pub training: Seconds,
+}
+
+pub fn tally(records: &[StepRecord]) -> Tally {
+    records.iter().fold(Tally::default(), |mut tally, record| {
+        match &record.status {
+            Status::Ran { seconds } => {
+                tally.ran += 1;
+                if matches!(record.outcome, Some(Outcome::Train(_) | Outcome::Sweep(_))) {
+                    tally.training += seconds;
+                }
+            }
+            Status::Reused => tally.reused += 1,
+            Status::Failed { .. } => tally.failed += 1,
+        }
+        tally
+    })
 }
 
 /// What one share of a sharded build did.
@@ -468,7 +498,7 @@ pub fn execute_share(
     ShareSummary {
         uncached: owners.len(),
         trained: mine.len(),
-        failed: failures(plan, &records),
+        failed: failures(plan, records.iter().map(Option::as_ref)),
     }
 }
 

@@ -162,23 +162,19 @@ fn title(input: &ReportInput<'_>) -> String {
     input.document_name.to_string()
 }
 
+/// Steps, how many ran and were reused (and failed), and the time spent training.
 fn run_summary(records: &[StepRecord]) -> String {
-    let count = |wanted: fn(&Status) -> bool| records.iter().filter(|r| wanted(&r.status)).count();
-    let ran = count(|s| matches!(s, Status::Ran { .. }));
-    let reused = count(|s| matches!(s, Status::Reused));
-    let failed = count(|s| matches!(s, Status::Failed { .. }));
-    let training: f64 = records
-        .iter()
-        .filter_map(|record| match (&record.status, &record.outcome) {
-            (Status::Ran { seconds }, Some(Outcome::Train(_))) => Some(*seconds),
-            _ => None,
-        })
-        .sum();
-    let mut summary = format!("{} steps · {ran} ran · {reused} reused", records.len());
-    if failed > 0 {
-        summary.push_str(&format!(" · {failed} failed"));
+    let tally = crate::run::tally(records);
+    let mut summary = format!(
+        "{} steps · {} ran · {} reused",
+        records.len(),
+        tally.ran,
+        tally.reused
+    );
+    if tally.failed > 0 {
+        summary.push_str(&format!(" · {} failed", tally.failed));
     }
-    summary.push_str(&format!(" · training {}", seconds(training)));
+    summary.push_str(&format!(" · training {}", seconds(tally.training)));
     summary
 }
 
