@@ -62,6 +62,15 @@ pub struct FitPlan {
     pub runs: Vec<RunPlan>,
 }
 
+/// A fit's varied settings as text: `learning_rate = 0.1, activation = relu`.
+pub fn describe(settings: &[(String, String)]) -> String {
+    settings
+        .iter()
+        .map(|(name, value)| format!("{name} = {value}"))
+        .collect::<Vec<_>>()
+        .join(", ")
+}
+
 /// One network to fit: a seed on one partition.
 #[derive(Clone, Debug)]
 pub struct RunPlan {
@@ -411,7 +420,7 @@ fn check_sweep_size(
         return;
     }
     for fit in &step.fits {
-        let prefix = format!("with {}: ", crate::run::describe(&fit.settings));
+        let prefix = format!("with {}: ", describe(&fit.settings));
         check_widths(block, &fit.net.hidden, limits, &prefix, problems);
     }
 }

@@ -20,7 +20,7 @@ use crate::outcome::{
     DataSummary, FitResult, ModelShape, Outcome, PartitionSummary, RunResult, Seconds, SweepResult,
     rank,
 };
-use crate::plan::{Key, Plan, PlannedStep};
+use crate::plan::{Key, Plan, PlannedStep, describe};
 use crate::shard::Share;
 use crate::use_model;
 
@@ -387,15 +387,6 @@ fn plan_fits(
         runs,
         trained,
     })
-}
-
-/// `learning_rate = 0.1, activation = relu`.
-pub fn describe(settings: &[(String, String)]) -> String {
-    settings
-        .iter()
-        .map(|(name, value)| format!("{name} = {value}"))
-        .collect::<Vec<_>>()
-        .join(", ")
 }
 
 /// Runs the steps that need no training (data preparation above all) into the cache,

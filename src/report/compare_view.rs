@@ -7,7 +7,7 @@ use super::chart::{self, Axes, Series};
 use super::view::{mean_curve, stat_text, stop_counts};
 use crate::document::spec::{ChartChoice, CompareSpec, MetricName};
 use crate::outcome::{FitResult, RowSet, SetMetrics, SweepResult};
-use crate::run::describe;
+use crate::plan::describe;
 
 /// Lines a chart of several fits draws at most, so that it stays legible.
 const MAX_LINES: usize = 8;

@@ -319,7 +319,7 @@ fn compared<'a>(
                     what: format!(
                         "best of {} combinations: {}",
                         sweep.fits.len(),
-                        crate::run::describe(&sweep.best().settings)
+                        crate::plan::describe(&sweep.best().settings)
                     ),
                     fit: sweep.best(),
                 }),
