@@ -9,7 +9,8 @@ use crate::cache::EntryKind;
 use crate::confine;
 use crate::data::Split;
 use crate::document::problem::nearest;
-use crate::document::spec::sweep::{value_text, variant};
+pub use crate::document::spec::sweep::describe;
+use crate::document::spec::sweep::{settings_text, variant};
 use crate::document::spec::{NetSpec, TrainSpec, key_span, parse_step};
 use crate::document::{Document, Problem, StepBlock, StepKind, StepSpec};
 
@@ -60,15 +61,6 @@ pub struct FitPlan {
     pub net: NetSpec,
     pub train: TrainSpec,
     pub runs: Vec<RunPlan>,
-}
-
-/// A fit's varied settings as text: `learning_rate = 0.1, activation = relu`.
-pub fn describe(settings: &[(String, String)]) -> String {
-    settings
-        .iter()
-        .map(|(name, value)| format!("{name} = {value}"))
-        .collect::<Vec<_>>()
-        .join(", ")
 }
 
 /// One network to fit: a seed on one partition.
@@ -480,10 +472,7 @@ fn fits(
                         span.clone(),
                         problems,
                     )?;
-                    let settings = combination
-                        .iter()
-                        .map(|(name, value)| (name.clone(), value_text(value)))
-                        .collect();
+                    let settings = settings_text(combination);
                     Some(fit_plan(steps, data, settings, net, train, sweep.repeat))
                 })
                 .collect()

@@ -154,6 +154,23 @@ pub fn value_text(value: &Value) -> String {
     }
 }
 
+/// A fit's varied settings as text: `learning_rate = 0.1, activation = relu`.
+pub fn describe(settings: &[(String, String)]) -> String {
+    settings
+        .iter()
+        .map(|(name, value)| format!("{name} = {value}"))
+        .collect::<Vec<_>>()
+        .join(", ")
+}
+
+/// A combination's values as the report shows them.
+pub fn settings_text(combination: &[(String, Value)]) -> Vec<(String, String)> {
+    combination
+        .iter()
+        .map(|(name, value)| (name.clone(), value_text(value)))
+        .collect()
+}
+
 /// The train and net settings of one combination: the base steps' YAML with the varied
 /// values put in, validated as if written there. Problems point at `span` (the sweep's
 /// `vary` line) and name the combination.
@@ -175,11 +192,7 @@ pub fn variant(
         };
         target.insert(Value::String(name.clone()), value.clone());
     }
-    let described = combination
-        .iter()
-        .map(|(name, value)| format!("{name} = {}", value_text(value)))
-        .collect::<Vec<_>>()
-        .join(", ");
+    let described = describe(&settings_text(combination));
     let before = problems.len();
     let mut check = Checker {
         block: None,
