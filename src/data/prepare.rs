@@ -73,10 +73,16 @@ impl Prepared {
     pub fn split(&self, partition: usize) -> SplitData {
         let p = &self.partitions[partition];
         let pick = |m: &Array2<f64>, rows: &[usize]| m.select(Axis(0), rows);
+        // Scaled where they were copied to, so no third copy of the inputs is made.
+        let scaled = |rows: &[usize]| {
+            let mut x = pick(&self.x, rows);
+            p.scaler.apply_in_place(x.view_mut());
+            x
+        };
         SplitData {
-            x_train: p.scaler.apply(pick(&self.x, &p.train_rows).view()),
+            x_train: scaled(&p.train_rows),
             y_train: pick(&self.y, &p.train_rows),
-            x_test: p.scaler.apply(pick(&self.x, &p.test_rows).view()),
+            x_test: scaled(&p.test_rows),
             y_test: pick(&self.y, &p.test_rows),
         }
     }

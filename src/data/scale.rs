@@ -6,7 +6,7 @@
 //! rows and new rows: fitting it on test rows would leak information about
 //! them into training.
 
-use ndarray::{Array2, ArrayView1, ArrayView2, Axis};
+use ndarray::{Array2, ArrayView1, ArrayView2, ArrayViewMut2, Axis};
 use serde::{Deserialize, Serialize};
 
 use super::settings::Scale;
@@ -106,17 +106,25 @@ impl Scaler {
     /// # Panics
     /// If `x` does not have as many columns as the scaler was fitted on.
     pub fn apply(&self, x: ArrayView2<f64>) -> Array2<f64> {
+        let mut out = x.to_owned();
+        self.apply_in_place(out.view_mut());
+        out
+    }
+
+    /// Apply the fitted map to the rows of `x`, overwriting them.
+    ///
+    /// # Panics
+    /// If `x` does not have as many columns as the scaler was fitted on.
+    pub fn apply_in_place(&self, mut x: ArrayViewMut2<f64>) {
         assert_eq!(
             x.ncols(),
             self.offset.len(),
             "the scaler was fitted on a different number of features"
         );
-        let mut out = x.to_owned();
-        for (j, mut column) in out.axis_iter_mut(Axis(1)).enumerate() {
+        for (j, mut column) in x.axis_iter_mut(Axis(1)).enumerate() {
             let (o, d) = (self.offset[j], self.divisor[j]);
             column.mapv_inplace(|v| (v - o) / d);
         }
-        out
     }
 }
 
