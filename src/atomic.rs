@@ -2,12 +2,22 @@
 //! bytes go to a temporary file in the same folder, which is then renamed into place.
 //! An interrupted build therefore never leaves a torn report or cache entry.
 
+use std::fs::File;
 use std::io::Write;
 use std::path::Path;
 
 /// Writes `bytes` to `path` atomically, creating its folder if needed. The file is
 /// readable by others (0644 on Unix), since reports and shared caches are meant to be.
 pub fn write(path: &Path, bytes: &[u8]) -> std::io::Result<()> {
+    write_with(path, |file| file.write_all(bytes))
+}
+
+/// Like [`write`], with the contents written by `fill` into the temporary file, so
+/// that a large file need not be assembled in memory first.
+pub fn write_with(
+    path: &Path,
+    fill: impl FnOnce(&mut File) -> std::io::Result<()>,
+) -> std::io::Result<()> {
     let dir = match path.parent() {
         Some(dir) if !dir.as_os_str().is_empty() => dir,
         _ => Path::new("."),
@@ -25,7 +35,7 @@ pub fn write(path: &Path, bytes: &[u8]) -> std::io::Result<()> {
     // failure that matters here; a torn cache entry after a power cut fails its
     // checksum and is recomputed, and a report can be rebuilt. An fsync per file would
     // cost more than a whole no-op rebuild.
-    file.write_all(bytes)?;
+    fill(file.as_file_mut())?;
     file.persist(path).map_err(|error| error.error)?;
     Ok(())
 }

@@ -4,11 +4,14 @@
 //! writers (several builds, several machines on a shared file system) need no lock.
 
 use std::fs;
+use std::io::{self, BufReader, BufWriter, Read, Seek, SeekFrom, Write};
 use std::path::{Path, PathBuf};
 use std::sync::atomic::{AtomicBool, Ordering};
 
 use serde::Serialize;
 use serde::de::DeserializeOwned;
+
+use crate::input_file::Hashed;
 
 const MAGIC: &[u8; 8] = b"stet\0ent";
 const HEADER_LEN: usize = MAGIC.len() + 32;
@@ -104,8 +107,8 @@ impl Cache {
     /// or does not decode, which is then removed with a warning.
     pub fn load<T: DeserializeOwned>(&self, key: &str, kind: EntryKind) -> Option<T> {
         let path = self.entry_path(key, kind)?;
-        let bytes = fs::read(&path).ok()?;
-        match decode(&bytes) {
+        let file = fs::File::open(&path).ok()?;
+        match decode(file) {
             Some(value) => Some(value),
             None => {
                 self.warn(format!(
@@ -123,7 +126,7 @@ impl Cache {
         let Some(path) = self.entry_path(key, kind) else {
             return;
         };
-        if let Err(error) = crate::atomic::write(&path, &encode(value))
+        if let Err(error) = crate::atomic::write_with(&path, |file| encode(value, file))
             && !self.write_failed.swap(true, Ordering::Relaxed)
         {
             let dir = self
@@ -137,24 +140,72 @@ impl Cache {
     }
 }
 
-fn encode<T: Serialize>(value: &T) -> Vec<u8> {
-    let payload = postcard::to_stdvec(value).expect("results serialise");
-    let mut bytes = Vec::with_capacity(HEADER_LEN + payload.len());
-    bytes.extend_from_slice(MAGIC);
-    bytes.extend_from_slice(blake3::hash(&payload).as_bytes());
-    bytes.extend_from_slice(&payload);
-    bytes
+/// Bytes moved between an entry's file and its value at a time.
+const BUFFER: usize = 1 << 16;
+
+/// Writes `magic ‖ checksum ‖ payload` as a stream: the payload goes through the
+/// hasher into the file, then the checksum is written into the space left for it.
+fn encode<T: Serialize>(value: &T, file: &mut fs::File) -> io::Result<()> {
+    file.write_all(MAGIC)?;
+    file.write_all(&[0; 32])?;
+    // Buffered above the hasher, so it hashes large blocks, not each small write.
+    let mut writer = BufWriter::with_capacity(BUFFER, HashingWriter::new(&mut *file));
+    postcard::to_io(value, &mut writer).map_err(io::Error::other)?;
+    let checksum = writer.into_inner().map_err(|e| e.into_error())?.finish();
+    file.seek(SeekFrom::Start(MAGIC.len() as u64))?;
+    file.write_all(checksum.as_bytes())
 }
 
-fn decode<T: DeserializeOwned>(bytes: &[u8]) -> Option<T> {
-    if bytes.len() < HEADER_LEN || &bytes[..MAGIC.len()] != MAGIC {
+/// Reads an entry as a stream, hashing it on the way; the value is kept only if every
+/// byte after the header matches the checksum.
+fn decode<T: DeserializeOwned>(mut file: fs::File) -> Option<T> {
+    let mut header = [0; HEADER_LEN];
+    file.read_exact(&mut header).ok()?;
+    let (magic, checksum) = header.split_at(MAGIC.len());
+    if magic != MAGIC {
         return None;
     }
-    let (checksum, payload) = bytes[MAGIC.len()..].split_at(32);
-    if blake3::hash(payload).as_bytes() != checksum {
-        return None;
+    let length = file.metadata().ok()?.len();
+    // Scratch for decoding text, which postcard needs as long as the longest string;
+    // the entry's length bounds that. Its pages stay untouched (and take no memory)
+    // beyond the longest string actually read.
+    let mut scratch = vec![0; usize::try_from(length).ok()?];
+    let reader = BufReader::with_capacity(BUFFER, Hashed::new(file));
+    let (value, (mut reader, _)) = postcard::from_io::<T, _>((reader, &mut scratch)).ok()?;
+    // Bytes after the value are covered by the checksum too.
+    io::copy(&mut reader, &mut io::sink()).ok()?;
+    (reader.get_ref().finish().as_bytes() == checksum).then_some(value)
+}
+
+/// A writer that hashes every byte it passes on.
+struct HashingWriter<W> {
+    inner: W,
+    hasher: blake3::Hasher,
+}
+
+impl<W: Write> HashingWriter<W> {
+    fn new(inner: W) -> Self {
+        HashingWriter {
+            inner,
+            hasher: blake3::Hasher::new(),
+        }
     }
-    postcard::from_bytes(payload).ok()
+
+    fn finish(&self) -> blake3::Hash {
+        self.hasher.finalize()
+    }
+}
+
+impl<W: Write> Write for HashingWriter<W> {
+    fn write(&mut self, buf: &[u8]) -> io::Result<usize> {
+        let n = self.inner.write(buf)?;
+        self.hasher.update(&buf[..n]);
+        Ok(n)
+    }
+
+    fn flush(&mut self) -> io::Result<()> {
+        self.inner.flush()
+    }
 }
 
 #[cfg(test)]
@@ -206,5 +257,44 @@ mod tests {
         let cache = Cache::disabled();
         cache.store(KEY, EntryKind::Run, &1u32);
         assert_eq!(cache.load::<u32>(KEY, EntryKind::Run), None);
+    }
+
+    /// The layout the module documents, built in memory: what `store` must write.
+    fn layout<T: Serialize>(value: &T) -> Vec<u8> {
+        let payload = postcard::to_stdvec(value).unwrap();
+        [
+            MAGIC.as_slice(),
+            blake3::hash(&payload).as_bytes(),
+            &payload,
+        ]
+        .concat()
+    }
+
+    #[test]
+    fn a_streamed_entry_has_the_documented_layout_and_long_text_round_trips() {
+        let dir = tempfile::tempdir().unwrap();
+        let cache = Cache::at(dir.path().to_path_buf());
+        // Longer than the stream buffer, in one string and in many numbers.
+        let value = (
+            "é".repeat(3 * BUFFER),
+            (0..40_000).map(f64::from).collect::<Vec<_>>(),
+        );
+        cache.store(KEY, EntryKind::Export, &value);
+        let path = cache.entry_path(KEY, EntryKind::Export).unwrap();
+        assert_eq!(fs::read(&path).unwrap(), layout(&value));
+        assert_eq!(cache.load(KEY, EntryKind::Export), Some(value));
+    }
+
+    #[test]
+    fn bytes_after_the_value_fail_the_check() {
+        let dir = tempfile::tempdir().unwrap();
+        let cache = Cache::at(dir.path().to_path_buf());
+        cache.store(KEY, EntryKind::Run, &vec![1.5f64, 2.5]);
+        let path = cache.entry_path(KEY, EntryKind::Run).unwrap();
+        let mut bytes = fs::read(&path).unwrap();
+        bytes.push(0);
+        fs::write(&path, bytes).unwrap();
+        assert_eq!(cache.load::<Vec<f64>>(KEY, EntryKind::Run), None);
+        assert!(!path.exists());
     }
 }

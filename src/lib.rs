@@ -14,6 +14,7 @@ pub mod dispatch;
 pub mod document;
 pub mod fit;
 pub mod freshness;
+pub mod input_file;
 pub mod manifest;
 pub mod nn;
 pub mod outcome;

@@ -1,9 +1,8 @@
 //! The step graph: parsed specs, references resolved, execution order, file inputs
-//! read and hashed, and each step's cache key.
+//! hashed, and each step's cache key.
 
 use std::collections::HashMap;
 use std::path::{Path, PathBuf};
-use std::sync::Arc;
 
 use crate::cache::EntryKind;
 use crate::confine;
@@ -13,6 +12,7 @@ pub use crate::document::spec::sweep::describe;
 use crate::document::spec::sweep::{settings_text, variant};
 use crate::document::spec::{NetSpec, TrainSpec, key_span, parse_step};
 use crate::document::{Document, Problem, StepBlock, StepKind, StepSpec};
+use crate::input_file::InputFile;
 
 /// Bumped whenever the meaning of a cached result changes, so old entries miss.
 pub const CACHE_FORMAT_VERSION: u32 = 1;
@@ -23,16 +23,6 @@ pub type Key = String;
 /// The first 10 hex digits of a key, as shown in reports and `stet status`.
 pub fn short_key(key: &str) -> &str {
     &key[..10.min(key.len())]
-}
-
-/// A file a step reads, with its bytes and their hash.
-#[derive(Clone, Debug)]
-pub struct InputFile {
-    /// The path as written in the document.
-    pub written: String,
-    pub path: PathBuf,
-    pub bytes: Arc<[u8]>,
-    pub hash: blake3::Hash,
 }
 
 /// One step, ready to run.
@@ -322,11 +312,11 @@ fn read_files(
         );
         return Vec::new();
     }
-    match std::fs::read(&path) {
-        Ok(bytes) => vec![InputFile {
+    // Hashed as a stream and not kept: the step reads the file again when it runs.
+    match InputFile::hash(&path) {
+        Ok(hash) => vec![InputFile {
             written: written.clone(),
-            hash: blake3::hash(&bytes),
-            bytes: bytes.into(),
+            hash,
             path,
         }],
         Err(error) => {

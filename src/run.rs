@@ -181,8 +181,15 @@ pub fn execute(plan: &Plan, cache: &Cache, options: &RunOptions) -> Vec<StepReco
     unique.sort_unstable();
     let fitted = fit_all(plan, cache, &mut prepared, &tasks, &unique, options);
     let mut trained_seconds: HashMap<usize, Seconds> = HashMap::new();
+    let mut unfitted: HashMap<usize, String> = HashMap::new();
     for (i, task) in tasks.iter().enumerate() {
-        let result = fitted[task.key].clone();
+        let result = match &fitted[task.key] {
+            Ok(result) => result.clone(),
+            Err(error) => {
+                unfitted.entry(task.step).or_insert_with(|| error.clone());
+                continue;
+            }
+        };
         let fits = pending.get_mut(&task.step).expect("a pending step");
         if owners[task.key] == i {
             *trained_seconds.entry(task.step).or_default() += result.seconds;
@@ -191,6 +198,10 @@ pub fn execute(plan: &Plan, cache: &Cache, options: &RunOptions) -> Vec<StepReco
         fits.runs[task.fit][task.run] = Some(result);
     }
     for (index, fits) in pending {
+        if let Some(error) = unfitted.remove(&index) {
+            records[index] = Some(StepRecord::failed(error));
+            continue;
+        }
         let status = match trained_seconds.get(&index) {
             Some(&seconds) => Status::Ran { seconds },
             None => Status::Reused,
@@ -260,8 +271,7 @@ fn prepare_data(step: &PlannedStep) -> Result<Prepared, String> {
         unreachable!("a data step has a data spec")
     };
     let file = &step.files[0];
-    let table =
-        data::read_table(&file.bytes).map_err(|error| format!("{}: {error}", file.written))?;
+    let table = file.read(|reader| data::read_table(reader))?;
     data::prepare(&table, &spec.settings).map_err(|error| format!("{}: {error}", file.written))
 }
 
@@ -485,15 +495,26 @@ pub fn execute_share(
         .filter_map(|i| owners.get(keys[i]).copied())
         .collect();
     mine.sort_unstable();
-    fit_all(plan, cache, &mut prepared, &tasks, &mine, options);
+    let fitted = fit_all(plan, cache, &mut prepared, &tasks, &mine, options);
+    let mut failed = failures(plan, records.iter().map(Option::as_ref));
+    for &i in &mine {
+        if let Err(error) = &fitted[tasks[i].key] {
+            let id = &plan.steps[tasks[i].step].id;
+            if !failed.iter().any(|(failed_id, _)| failed_id == id) {
+                failed.push((id.clone(), error.clone()));
+            }
+        }
+    }
     ShareSummary {
         uncached: owners.len(),
-        trained: mine.len(),
-        failed: failures(plan, records.iter().map(Option::as_ref)),
+        trained: fitted.values().filter(|result| result.is_ok()).count(),
+        failed,
     }
 }
 
-/// Fits the queued runs `unique` picks (one per key) on a pool of `jobs` threads.
+/// Fits the queued runs `unique` picks (one per key) on a pool of `jobs` threads. A
+/// run whose data cannot be prepared again (its file changed during the build) is an
+/// error naming the data step.
 fn fit_all<'t>(
     plan: &Plan,
     cache: &Cache,
@@ -501,12 +522,23 @@ fn fit_all<'t>(
     tasks: &'t [RunTask<'_>],
     unique: &[usize],
     options: &RunOptions,
-) -> HashMap<&'t Key, RunResult> {
+) -> HashMap<&'t Key, Result<RunResult, String>> {
+    let mut unprepared: HashMap<usize, String> = HashMap::new();
     for &i in unique {
-        // A data step that succeeded in this build prepares again from the same bytes.
-        prepared_for(plan, tasks[i].data, cache, prepared)
-            .expect("a data step that succeeded prepares again");
+        let data = tasks[i].data;
+        if !unprepared.contains_key(&data)
+            && let Err(error) = prepared_for(plan, data, cache, prepared)
+        {
+            let id = &plan.steps[data].id;
+            unprepared.insert(
+                data,
+                format!("not run: its data step '{id}' failed: {error}"),
+            );
+        }
     }
+    let (unique, unfit): (Vec<usize>, Vec<usize>) = unique
+        .iter()
+        .partition(|&&i| !unprepared.contains_key(&tasks[i].data));
     if let Some(bar) = &options.progress {
         bar.set_length(unique.len() as u64);
     }
@@ -530,14 +562,17 @@ fn fit_all<'t>(
                 if let Some(bar) = &options.progress {
                     bar.inc(1);
                 }
-                (task.key, result)
+                (task.key, Ok(result))
             })
-            .collect()
+            .collect::<HashMap<_, _>>()
     });
     if let Some(bar) = &options.progress {
         bar.finish_and_clear();
     }
-    results
+    let failed = unfit
+        .iter()
+        .map(|&i| (tasks[i].key, Err(unprepared[&tasks[i].data].clone())));
+    results.into_iter().chain(failed).collect()
 }
 
 /// A train step's or sweep's record from its fitted and reused runs.

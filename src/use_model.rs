@@ -6,10 +6,10 @@ use serde_json::json;
 
 use crate::data::{self, ColumnKind, Prepared, Task};
 use crate::document::spec::word;
+use crate::input_file::InputFile;
 use crate::nn::activation::LEAKY_SLOPE;
 use crate::nn::{Activation, Network};
 use crate::outcome::{ExportResult, FitResult, PredictResult};
-use crate::plan::InputFile;
 
 /// Version of the export format; bumped when its meaning changes.
 pub const EXPORT_FORMAT_VERSION: u32 = 1;
@@ -33,9 +33,11 @@ pub fn predict(
     file: &InputFile,
 ) -> Result<PredictResult, String> {
     let network = single_network(model)?;
-    let in_file = |error: data::DataError| format!("{}: {error}", file.written);
-    let table = data::read_table(&file.bytes).map_err(in_file)?;
-    let x = prepared.encoding.encode_inputs(&table).map_err(in_file)?;
+    let table = file.read(|reader| data::read_table(reader))?;
+    let x = prepared
+        .encoding
+        .encode_inputs(&table)
+        .map_err(|error| format!("{}: {error}", file.written))?;
     let scaled = prepared.partitions[0].scaler.apply(x.view());
     let raw = network.predict(scaled.view());
     let encoding = &prepared.encoding;
@@ -94,8 +96,8 @@ pub fn predict(
     header.extend(output_names.iter().cloned());
     let csv_error = |error: csv::Error| format!("writing predictions: {error}");
     writer.write_record(&header).map_err(csv_error)?;
-    for (i, row) in table.rows.iter().enumerate() {
-        let mut record = row.clone();
+    for i in 0..table.row_count() {
+        let mut record: Vec<String> = table.row(i).map(str::to_string).collect();
         if encoding.task == Task::Classify {
             record.push(predicted[i].clone());
         }
@@ -108,7 +110,7 @@ pub fn predict(
 
     Ok(PredictResult {
         labelled: encoding.classes.is_some(),
-        lines: table.lines.clone(),
+        lines: table.lines().to_vec(),
         predicted,
         output_names,
         outputs,

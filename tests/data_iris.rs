@@ -4,7 +4,7 @@
 use stet::data::{DataSettings, Missing, Prepared, Scale, Split, Table, Task, prepare, read_table};
 
 fn iris() -> Table {
-    read_table(include_bytes!("data/iris.csv")).expect("iris.csv reads")
+    read_table(include_bytes!("data/iris.csv").as_slice()).expect("iris.csv reads")
 }
 
 fn settings(split: Split, seed: u64) -> DataSettings {
@@ -152,7 +152,8 @@ fn minmax_scaler_uses_training_rows_and_maps_them_to_the_unit_interval() {
 fn new_rows_without_the_species_encode_like_the_training_rows() {
     let p = prepared(Split::Holdout(0.2), 1);
     let new = read_table(
-        b"petal_width_cm,petal_length_cm,sepal_width_cm,sepal_length_cm\n0.2,1.4,3.5,5.1\n",
+        b"petal_width_cm,petal_length_cm,sepal_width_cm,sepal_length_cm\n0.2,1.4,3.5,5.1\n"
+            .as_slice(),
     )
     .unwrap();
     let x = p.encoding.encode_inputs(&new).unwrap();

@@ -4,7 +4,7 @@ use stet::data::{ColumnKind, DataSettings, Missing, Scale, Split, Task, prepare,
 
 fn read(name: &str) -> stet::data::Table {
     let path = format!("{}/demo-data/{name}", env!("CARGO_MANIFEST_DIR"));
-    read_table(&std::fs::read(&path).expect("demo file exists")).expect("demo file reads")
+    read_table(std::fs::File::open(&path).expect("demo file exists")).expect("demo file reads")
 }
 
 fn names(list: &[&str]) -> Vec<String> {

@@ -42,7 +42,7 @@ fuzz_target!(|bytes: &[u8]| {
         }
     };
     assert_eq!(prepared.x.nrows(), prepared.y.nrows());
-    assert_eq!(prepared.rows_read, table.rows.len());
+    assert_eq!(prepared.rows_read, table.row_count());
     assert_eq!(prepared.lines.len(), prepared.x.nrows());
     for (i, partition) in prepared.partitions.iter().enumerate() {
         let data = prepared.split(i);

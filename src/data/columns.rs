@@ -96,15 +96,10 @@ fn nearest(name: &str, candidates: &[String]) -> Option<String> {
 mod tests {
     use super::*;
     use crate::data::settings::{Missing, Scale, Split};
+    use crate::data::table::read_table;
 
     fn table() -> Table {
-        Table {
-            headers: ["hive", "site", "temp_c", "humidity_pct", "status"]
-                .map(String::from)
-                .to_vec(),
-            rows: vec![],
-            lines: vec![],
-        }
+        read_table(b"hive,site,temp_c,humidity_pct,status\n".as_slice()).unwrap()
     }
 
     fn settings(inputs: Option<&[&str]>, target: &[&str]) -> DataSettings {

@@ -11,6 +11,7 @@
 use ndarray::Array2;
 use serde::{Deserialize, Serialize};
 
+use super::coded_column::CodedColumn;
 use super::columns::UsedColumns;
 use super::error::DataError;
 use super::settings::Task;
@@ -106,7 +107,7 @@ impl Encoding {
                 available: table.headers.clone(),
             });
         }
-        let rows: Vec<usize> = (0..table.rows.len()).collect();
+        let rows: Vec<usize> = (0..table.row_count()).collect();
         encode_rows(table, &self.columns, &positions, &rows)
     }
 
@@ -170,8 +171,8 @@ pub fn fit(
         .collect();
 
     let text_target = used.targets.iter().any(|&c| {
-        kept.iter()
-            .any(|&r| parse_number(cell(table, r, c)).is_none())
+        let column = ParsedColumn::new(table, c);
+        kept.iter().any(|&r| column.number(r).is_none())
     });
     let task = requested.unwrap_or(if text_target {
         Task::Classify
@@ -231,45 +232,149 @@ fn encode_rows(
             ColumnKind::Categorical { categories } => categories.len(),
         })
         .sum();
+    // Each distinct text of a column is looked at once; rows then only look up codes.
+    let features: Vec<(ParsedColumn, Vec<Feature>)> = columns
+        .iter()
+        .zip(positions)
+        .map(|(column, &pos)| {
+            let parsed = ParsedColumn::new(table, pos);
+            let features = parsed
+                .values
+                .iter()
+                .map(|v| Feature::of(v, column))
+                .collect();
+            (parsed, features)
+        })
+        .collect();
     let mut x = Array2::zeros((rows.len(), width));
     for (out, &row) in rows.iter().enumerate() {
-        let mut feature = 0;
-        for (column, &pos) in columns.iter().zip(positions) {
-            let value = cell(table, row, pos).trim();
-            if is_missing(value) {
-                return Err(DataError::MissingInput {
-                    line: table.line(row),
-                    column: column.name.clone(),
-                    value: value.to_string(),
-                });
-            }
-            match &column.kind {
-                ColumnKind::Numeric => {
-                    x[[out, feature]] =
-                        parse_number(value).ok_or_else(|| DataError::NotNumeric {
-                            line: table.line(row),
-                            column: column.name.clone(),
-                            value: value.to_string(),
-                            reason: "because the column was numeric in the training data",
-                        })?;
-                    feature += 1;
+        let mut first = 0;
+        for (column, (parsed, features)) in columns.iter().zip(&features) {
+            let code = parsed.column.code(row);
+            match features[code] {
+                Feature::Number(value) => {
+                    x[[out, first]] = value;
+                    first += 1;
                 }
-                ColumnKind::Categorical { categories } => {
-                    let index = categories.iter().position(|c| c == value).ok_or_else(|| {
-                        DataError::UnknownCategory {
-                            line: table.line(row),
-                            column: column.name.clone(),
-                            value: value.to_string(),
-                            known: categories.clone(),
-                        }
-                    })?;
-                    x[[out, feature + index]] = 1.0;
-                    feature += categories.len();
+                Feature::Category { index, count } => {
+                    x[[out, first + index]] = 1.0;
+                    first += count;
+                }
+                Feature::Missing => {
+                    return Err(DataError::MissingInput {
+                        line: table.line(row),
+                        column: column.name.clone(),
+                        value: parsed.values[code].to_string(),
+                    });
+                }
+                Feature::NotNumeric => {
+                    return Err(DataError::NotNumeric {
+                        line: table.line(row),
+                        column: column.name.clone(),
+                        value: parsed.values[code].to_string(),
+                        reason: "because the column was numeric in the training data",
+                    });
+                }
+                Feature::UnknownCategory => {
+                    let ColumnKind::Categorical { categories } = &column.kind else {
+                        unreachable!("only a categorical column has categories")
+                    };
+                    return Err(DataError::UnknownCategory {
+                        line: table.line(row),
+                        column: column.name.clone(),
+                        value: parsed.values[code].to_string(),
+                        known: categories.clone(),
+                    });
                 }
             }
         }
     }
     Ok(x)
+}
+
+/// What one distinct text of an input column becomes.
+#[derive(Clone, Copy, Debug)]
+enum Feature {
+    /// The value of a numeric column's feature.
+    Number(f64),
+    /// A one-hot feature among the column's `count`.
+    Category {
+        index: usize,
+        count: usize,
+    },
+    Missing,
+    NotNumeric,
+    UnknownCategory,
+}
+
+impl Feature {
+    /// The feature the trimmed text `value` gives in `column`.
+    fn of(value: &str, column: &InputColumn) -> Feature {
+        if is_missing(value) {
+            return Feature::Missing;
+        }
+        match &column.kind {
+            ColumnKind::Numeric => parse_number(value).map_or(Feature::NotNumeric, Feature::Number),
+            ColumnKind::Categorical { categories } => categories
+                .iter()
+                .position(|c| c == value)
+                .map_or(Feature::UnknownCategory, |index| Feature::Category {
+                    index,
+                    count: categories.len(),
+                }),
+        }
+    }
+}
+
+/// A table column's distinct texts, trimmed, each parsed as a number once.
+struct ParsedColumn<'t> {
+    column: &'t CodedColumn,
+    /// Per code: the text without surrounding whitespace.
+    values: Vec<&'t str>,
+    /// Per code: the text as a finite number, if it is one.
+    numbers: Vec<Option<f64>>,
+}
+
+impl<'t> ParsedColumn<'t> {
+    fn new(table: &'t Table, col: usize) -> ParsedColumn<'t> {
+        let column = table.coded(col);
+        let values: Vec<&str> = column.texts().map(str::trim).collect();
+        let numbers = values.iter().map(|v| parse_number(v)).collect();
+        ParsedColumn {
+            column,
+            values,
+            numbers,
+        }
+    }
+
+    /// Row `row`'s trimmed text.
+    fn value(&self, row: usize) -> &'t str {
+        self.values[self.column.code(row)]
+    }
+
+    /// Row `row`'s number, if its text is one.
+    fn number(&self, row: usize) -> Option<f64> {
+        self.numbers[self.column.code(row)]
+    }
+
+    /// The distinct trimmed texts of `rows`, in byte order.
+    fn sorted_distinct(&self, rows: &[usize]) -> Vec<String> {
+        let mut seen = vec![false; self.values.len()];
+        for &row in rows {
+            seen[self.column.code(row)] = true;
+        }
+        let mut distinct: Vec<String> = self
+            .values
+            .iter()
+            .zip(seen)
+            .filter(|(_, seen)| *seen)
+            .map(|(value, _)| value.to_string())
+            .collect();
+        distinct.sort();
+        // Two texts that differ only in surrounding spaces trim to one value.
+        distinct.dedup();
+        distinct
+    }
 }
 
 /// Share of number cells above which an input column is taken to be numeric with a
@@ -280,35 +385,29 @@ const MOSTLY_NUMERIC: f64 = 0.8;
 /// numbers with a few text cells is an error naming the first such cell: one-hot
 /// encoding it would silently turn a measurement into hundreds of categories.
 fn describe_input(table: &Table, col: usize, kept: &[usize]) -> Result<InputColumn, DataError> {
-    let values: Vec<&str> = kept.iter().map(|&r| cell(table, r, col).trim()).collect();
-    let numbers: Option<Vec<f64>> = values.iter().map(|v| parse_number(v)).collect();
-    if numbers.is_none() {
-        let numeric = values.iter().filter(|v| parse_number(v).is_some()).count();
-        if numeric as f64 >= MOSTLY_NUMERIC * values.len() as f64 {
-            let (row, value) = kept
+    let column = ParsedColumn::new(table, col);
+    let numeric = kept.iter().filter(|&&r| column.number(r).is_some()).count();
+    let (kind, constant) = if numeric == kept.len() {
+        // Compare as numbers, so "1" and "1.0" count as the same value.
+        let mut numbers = kept.iter().map(|&r| column.number(r));
+        let first = numbers.next().flatten();
+        (ColumnKind::Numeric, numbers.all(|n| n == first))
+    } else {
+        if numeric as f64 >= MOSTLY_NUMERIC * kept.len() as f64 {
+            let row = *kept
                 .iter()
-                .zip(&values)
-                .find(|(_, v)| parse_number(v).is_none())
+                .find(|&&r| column.number(r).is_none())
                 .expect("some cell is not a number");
             return Err(DataError::NotNumeric {
-                line: table.line(*row),
+                line: table.line(row),
                 column: table.headers[col].clone(),
-                value: value.to_string(),
+                value: column.value(row).to_string(),
                 reason: "because the rest of the column is numbers",
             });
         }
-    }
-    let (kind, constant) = match numbers {
-        Some(numbers) => {
-            // Compare as numbers, so "1" and "1.0" count as the same value.
-            let constant = numbers.windows(2).all(|w| w[0] == w[1]);
-            (ColumnKind::Numeric, constant)
-        }
-        None => {
-            let categories = sorted_distinct(&values);
-            let constant = categories.len() <= 1;
-            (ColumnKind::Categorical { categories }, constant)
-        }
+        let categories = column.sorted_distinct(kept);
+        let constant = categories.len() <= 1;
+        (ColumnKind::Categorical { categories }, constant)
     };
     Ok(InputColumn {
         name: table.headers[col].clone(),
@@ -323,14 +422,17 @@ fn regress_targets(
     targets: &[usize],
     kept: &[usize],
 ) -> Result<Array2<f64>, DataError> {
+    let columns: Vec<ParsedColumn> = targets
+        .iter()
+        .map(|&c| ParsedColumn::new(table, c))
+        .collect();
     let mut y = Array2::zeros((kept.len(), targets.len()));
     for (out, &row) in kept.iter().enumerate() {
-        for (j, &col) in targets.iter().enumerate() {
-            let value = cell(table, row, col).trim();
-            y[[out, j]] = parse_number(value).ok_or_else(|| DataError::NotNumeric {
+        for (j, (&col, column)) in targets.iter().zip(&columns).enumerate() {
+            y[[out, j]] = column.number(row).ok_or_else(|| DataError::NotNumeric {
                 line: table.line(row),
                 column: table.headers[col].clone(),
-                value: value.to_string(),
+                value: column.value(row).to_string(),
                 reason: "because the task is `regress`",
             })?;
         }
@@ -344,9 +446,9 @@ fn class_labels(
     col: usize,
     kept: &[usize],
 ) -> Result<(Vec<String>, Vec<usize>), DataError> {
-    let values: Vec<&str> = kept.iter().map(|&r| cell(table, r, col).trim()).collect();
-    let mut classes = sorted_distinct(&values);
-    if values.iter().all(|v| parse_number(v).is_some()) {
+    let column = ParsedColumn::new(table, col);
+    let mut classes = column.sorted_distinct(kept);
+    if kept.iter().all(|&r| column.number(r).is_some()) {
         // Numeric labels sort by value ("2" before "10"); equal values written
         // differently stay distinct classes, ordered by their text.
         let value = |s: &str| parse_number(s).expect("checked to be a number above");
@@ -358,13 +460,17 @@ fn class_labels(
             class: classes.into_iter().next().unwrap_or_default(),
         });
     }
-    let labels = values
+    // Each distinct text's class, found once; texts of rows not kept have none.
+    let class_of: Vec<Option<usize>> = column
+        .values
         .iter()
-        .map(|v| {
-            classes
-                .iter()
-                .position(|c| c == v)
-                .expect("every value is among the classes built from the same values")
+        .map(|v| classes.iter().position(|c| c == v))
+        .collect();
+    let labels = kept
+        .iter()
+        .map(|&r| {
+            class_of[column.column.code(r)]
+                .expect("every kept value is among the classes built from the kept values")
         })
         .collect();
     Ok((classes, labels))
@@ -379,19 +485,6 @@ fn one_hot_labels(labels: &[usize], n_classes: usize) -> Array2<f64> {
             f64::from(u8::from(labels[i] == j))
         })
     }
-}
-
-/// Distinct values in byte order.
-fn sorted_distinct(values: &[&str]) -> Vec<String> {
-    let mut distinct: Vec<String> = values.iter().map(|v| v.to_string()).collect();
-    distinct.sort();
-    distinct.dedup();
-    distinct
-}
-
-/// The cell, or "" for a hand-built row that is too short (and so reads as missing).
-pub fn cell(table: &Table, row: usize, col: usize) -> &str {
-    table.rows[row].get(col).map_or("", String::as_str)
 }
 
 #[cfg(test)]
@@ -439,7 +532,7 @@ mod tests {
     }
 
     fn all_rows(table: &Table) -> Vec<usize> {
-        (0..table.rows.len()).collect()
+        (0..table.row_count()).collect()
     }
 
     const HIVES: &[u8] = b"site,temp_c,status\n\
@@ -528,7 +621,7 @@ mod tests {
 
     #[test]
     fn two_classes_give_a_single_zero_one_column() {
-        let t = read_table(b"x,ok\n1,yes\n2,no\n3,yes\n").unwrap();
+        let t = read_table(b"x,ok\n1,yes\n2,no\n3,yes\n".as_slice()).unwrap();
         let e = fit(&t, &used(&t, &["x"], &["ok"]), &all_rows(&t), None).unwrap();
         assert_eq!(e.encoding.classes, Some(vec!["no".into(), "yes".into()]));
         assert_eq!(e.y, ndarray::array![[1.0], [0.0], [1.0]]);
@@ -537,7 +630,7 @@ mod tests {
 
     #[test]
     fn numeric_target_classes_sort_by_value() {
-        let t = read_table(b"x,grade\n1,10\n2,2\n3,1\n4,2\n5,10\n").unwrap();
+        let t = read_table(b"x,grade\n1,10\n2,2\n3,1\n4,2\n5,10\n".as_slice()).unwrap();
         let e = fit(
             &t,
             &used(&t, &["x"], &["grade"]),
@@ -555,7 +648,7 @@ mod tests {
 
     #[test]
     fn numeric_target_means_regress() {
-        let t = read_table(b"a,b,y1,y2\n1,2,0.5,7\n3,4,1.5,8\n").unwrap();
+        let t = read_table(b"a,b,y1,y2\n1,2,0.5,7\n3,4,1.5,8\n".as_slice()).unwrap();
         let e = fit(
             &t,
             &used(&t, &["a", "b"], &["y1", "y2"]),
@@ -572,7 +665,7 @@ mod tests {
 
     #[test]
     fn text_target_with_regress_names_line_and_column() {
-        let t = read_table(b"x,y\n1,2.0\n2,3.5\n3,high\n").unwrap();
+        let t = read_table(b"x,y\n1,2.0\n2,3.5\n3,high\n".as_slice()).unwrap();
         let err = fit(
             &t,
             &used(&t, &["x"], &["y"]),
@@ -588,7 +681,7 @@ mod tests {
 
     #[test]
     fn classify_with_two_targets_is_an_error() {
-        let t = read_table(b"x,a,b\n1,p,q\n2,r,s\n").unwrap();
+        let t = read_table(b"x,a,b\n1,p,q\n2,r,s\n".as_slice()).unwrap();
         let err = fit(&t, &used(&t, &["x"], &["a", "b"]), &all_rows(&t), None).unwrap_err();
         assert!(matches!(
             err,
@@ -599,7 +692,7 @@ mod tests {
             }
         ));
         // Said explicitly, the message must not claim the task was deduced.
-        let t = read_table(b"x,a,b\n1,1,2\n2,3,4\n").unwrap();
+        let t = read_table(b"x,a,b\n1,1,2\n2,3,4\n".as_slice()).unwrap();
         let err = fit(
             &t,
             &used(&t, &["x"], &["a", "b"]),
@@ -615,7 +708,7 @@ mod tests {
 
     #[test]
     fn single_class_is_an_error() {
-        let t = read_table(b"x,y\n1,a\n2,a\n").unwrap();
+        let t = read_table(b"x,y\n1,a\n2,a\n".as_slice()).unwrap();
         let err = fit(&t, &used(&t, &["x"], &["y"]), &all_rows(&t), None).unwrap_err();
         assert_eq!(
             err,
@@ -628,7 +721,7 @@ mod tests {
 
     #[test]
     fn constant_columns_are_flagged() {
-        let t = read_table(b"a,b,c,y\n1,k,1,0\n1.0,k,2,1\n1,k,3,0\n").unwrap();
+        let t = read_table(b"a,b,c,y\n1,k,1,0\n1.0,k,2,1\n1,k,3,0\n".as_slice()).unwrap();
         let e = fit(&t, &used(&t, &["a", "b", "c"], &["y"]), &all_rows(&t), None).unwrap();
         let constant: Vec<bool> = e.encoding.columns.iter().map(|c| c.constant).collect();
         assert_eq!(constant, vec![true, true, false]);
@@ -637,7 +730,7 @@ mod tests {
     #[test]
     fn kind_and_categories_come_from_kept_rows_only() {
         // Row 1 (line 3) is left out, so `a` is numeric and `b` has no "zz".
-        let t = read_table(b"a,b,y\n1,p,0\nx,zz,1\n3,q,1\n").unwrap();
+        let t = read_table(b"a,b,y\n1,p,0\nx,zz,1\n3,q,1\n".as_slice()).unwrap();
         let e = fit(&t, &used(&t, &["a", "b"], &["y"]), &[0, 2], None).unwrap();
         assert_eq!(e.encoding.feature_names, vec!["a", "b=p", "b=q"]);
         assert_eq!(e.x, ndarray::array![[1.0, 1.0, 0.0], [3.0, 0.0, 1.0]]);
@@ -657,7 +750,7 @@ mod tests {
 
     #[test]
     fn new_rows_are_encoded_by_name_without_targets() {
-        let new = read_table(b"temp_c,extra,site\n33,zz,south\n35.5,zz,east\n").unwrap();
+        let new = read_table(b"temp_c,extra,site\n33,zz,south\n35.5,zz,east\n".as_slice()).unwrap();
         let x = site_encoding().encode_inputs(&new).unwrap();
         assert_eq!(
             x,
@@ -667,7 +760,7 @@ mod tests {
 
     #[test]
     fn new_rows_missing_columns_are_all_listed() {
-        let new = read_table(b"other\n1\n").unwrap();
+        let new = read_table(b"other\n1\n".as_slice()).unwrap();
         let err = site_encoding().encode_inputs(&new).unwrap_err();
         assert_eq!(
             err,
@@ -684,7 +777,7 @@ mod tests {
 
     #[test]
     fn new_rows_with_unknown_category_name_line_and_column() {
-        let new = read_table(b"site,temp_c\nnorth,35\nwest,34\n").unwrap();
+        let new = read_table(b"site,temp_c\nnorth,35\nwest,34\n".as_slice()).unwrap();
         let err = site_encoding().encode_inputs(&new).unwrap_err();
         assert_eq!(
             err.to_string(),
@@ -695,7 +788,7 @@ mod tests {
 
     #[test]
     fn new_rows_with_missing_or_text_numbers_are_errors() {
-        let new = read_table(b"site,temp_c\nnorth,35\nnorth,NA\n").unwrap();
+        let new = read_table(b"site,temp_c\nnorth,35\nnorth,NA\n".as_slice()).unwrap();
         assert_eq!(
             site_encoding().encode_inputs(&new).unwrap_err(),
             DataError::MissingInput {
@@ -704,7 +797,7 @@ mod tests {
                 value: "NA".into()
             }
         );
-        let new = read_table(b"site,temp_c\nnorth,warm\n").unwrap();
+        let new = read_table(b"site,temp_c\nnorth,warm\n".as_slice()).unwrap();
         assert!(matches!(
             site_encoding().encode_inputs(&new).unwrap_err(),
             DataError::NotNumeric { line: 2, column, .. } if column == "temp_c"

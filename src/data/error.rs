@@ -13,6 +13,25 @@ pub enum DataError {
     #[error("the CSV file is empty: expected a header row naming the columns")]
     EmptyFile,
 
+    /// The file could not be read at all.
+    #[error("the file could not be read: {message}")]
+    Read {
+        /// The operating system's description.
+        message: String,
+    },
+
+    /// A column holds more distinct values than a table can number.
+    #[error(
+        "line {line}, column `{column}`: the column holds more than 2^32 distinct values, \
+         more than stet can read"
+    )]
+    TooManyDistinct {
+        /// 1-based line in the file of the value that did not fit.
+        line: u64,
+        /// The column.
+        column: String,
+    },
+
     /// A line holds bytes that are not UTF-8 text.
     #[error("line {line} is not valid UTF-8 text: save the CSV file as UTF-8")]
     InvalidUtf8 {

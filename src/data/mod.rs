@@ -1,4 +1,4 @@
-//! Data preparation: from the bytes of a CSV file to scaled training and test
+//! Data preparation: from a CSV file to scaled training and test
 //! matrices, as the data settings of an experiment document describe.
 //!
 //! The steps, each in its own module: [`read_table`] reads text cells;
@@ -8,6 +8,7 @@
 //! hands out the matrices of one partition, and [`Encoding::encode_inputs`]
 //! encodes new rows for prediction.
 
+mod coded_column;
 mod columns;
 mod encode;
 mod error;

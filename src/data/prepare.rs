@@ -9,6 +9,7 @@
 use ndarray::{Array2, Axis};
 use serde::{Deserialize, Serialize};
 
+use super::coded_column::CodedColumn;
 use super::columns::{self, UsedColumns};
 use super::encode::{self, Encoding, is_missing};
 use super::error::DataError;
@@ -72,10 +73,16 @@ impl Prepared {
     pub fn split(&self, partition: usize) -> SplitData {
         let p = &self.partitions[partition];
         let pick = |m: &Array2<f64>, rows: &[usize]| m.select(Axis(0), rows);
+        // Scaled where they were copied to, so no third copy of the inputs is made.
+        let scaled = |rows: &[usize]| {
+            let mut x = pick(&self.x, rows);
+            p.scaler.apply_in_place(x.view_mut());
+            x
+        };
         SplitData {
-            x_train: p.scaler.apply(pick(&self.x, &p.train_rows).view()),
+            x_train: scaled(&p.train_rows),
             y_train: pick(&self.y, &p.train_rows),
-            x_test: p.scaler.apply(pick(&self.x, &p.test_rows).view()),
+            x_test: scaled(&p.test_rows),
             y_test: pick(&self.y, &p.test_rows),
         }
     }
@@ -98,7 +105,7 @@ impl Prepared {
 pub fn prepare(table: &Table, settings: &DataSettings) -> Result<Prepared, DataError> {
     let used = columns::resolve(table, settings)?;
     let kept = kept_rows(table, &used, settings.missing)?;
-    let rows_read = table.rows.len();
+    let rows_read = table.row_count();
     let rows_dropped = rows_read - kept.len();
     // Two rows are the least that can be both learned from and tested or
     // told apart; anything fewer is almost surely a wrong file.
@@ -121,11 +128,7 @@ pub fn prepare(table: &Table, settings: &DataSettings) -> Result<Prepared, DataE
     let partitions = split::split_rows(settings.split, kept.len(), strata, settings.seed)?
         .into_iter()
         .map(|s| Partition {
-            scaler: Scaler::fit(
-                settings.scale,
-                encoded.x.select(Axis(0), &s.train).view(),
-                &numeric,
-            ),
+            scaler: Scaler::fit(settings.scale, encoded.x.view(), &s.train, &numeric),
             train_rows: s.train,
             test_rows: s.test,
         })
@@ -149,14 +152,22 @@ fn kept_rows(table: &Table, used: &UsedColumns, missing: Missing) -> Result<Vec<
     // In file order, so the column named is the leftmost one a person would see.
     let mut checked: Vec<usize> = used.all().collect();
     checked.sort_unstable();
+    // Whether each distinct text of each checked column is a missing marker.
+    let markers: Vec<(&CodedColumn, Vec<bool>)> = checked
+        .iter()
+        .map(|&c| {
+            let column = table.coded(c);
+            (column, column.texts().map(is_missing).collect())
+        })
+        .collect();
     let first_missing = |row: usize| {
-        checked
+        markers
             .iter()
-            .copied()
-            .find(|&c| is_missing(encode::cell(table, row, c)))
+            .position(|(column, missing)| missing[column.code(row)])
+            .map(|i| checked[i])
     };
     let (kept, with_missing): (Vec<usize>, Vec<usize>) =
-        (0..table.rows.len()).partition(|&row| first_missing(row).is_none());
+        (0..table.row_count()).partition(|&row| first_missing(row).is_none());
     if missing == Missing::Error
         && let Some(&row) = with_missing.first()
     {
@@ -164,7 +175,7 @@ fn kept_rows(table: &Table, used: &UsedColumns, missing: Missing) -> Result<Vec<
         return Err(DataError::MissingValue {
             line: table.line(row),
             column: table.headers[col].clone(),
-            value: encode::cell(table, row, col).trim().to_string(),
+            value: table.cell(row, col).trim().to_string(),
             more_rows: with_missing.len() - 1,
         });
     }
@@ -221,7 +232,7 @@ mod tests {
             inputs: Some(vec!["b".into(), "a".into()]),
             ..settings("y")
         };
-        let t = read_table(b"a,b,y\n1,p,0\nNA,,1\n").unwrap();
+        let t = read_table(b"a,b,y\n1,p,0\nNA,,1\n".as_slice()).unwrap();
         assert!(matches!(
             prepare(&t, &s).unwrap_err(),
             DataError::MissingValue { line: 3, column, more_rows: 0, .. } if column == "a"
@@ -247,7 +258,7 @@ mod tests {
             inputs: Some(vec!["a".into()]),
             ..settings("b")
         };
-        let t = read_table(b"a,b,notes\n1,x,\n2,y,?\n").unwrap();
+        let t = read_table(b"a,b,notes\n1,x,\n2,y,?\n".as_slice()).unwrap();
         let p = prepare(&t, &s).unwrap();
         assert_eq!(p.rows_dropped, 0);
         assert_eq!(p.encoding.classes, Some(vec!["x".into(), "y".into()]));
@@ -259,13 +270,13 @@ mod tests {
             missing: Missing::Drop,
             ..settings("y")
         };
-        let t = read_table(b"x,y\n1,2\nNA,3\n").unwrap();
+        let t = read_table(b"x,y\n1,2\nNA,3\n".as_slice()).unwrap();
         let err = prepare(&t, &s).unwrap_err();
         assert_eq!(
             err.to_string(),
             "too few rows: 1 left of 2 read (1 dropped for missing values); at least 2 are needed"
         );
-        let header_only = read_table(b"x,y\n").unwrap();
+        let header_only = read_table(b"x,y\n".as_slice()).unwrap();
         assert!(matches!(
             prepare(&header_only, &settings("y")).unwrap_err(),
             DataError::TooFewRows {
@@ -279,7 +290,7 @@ mod tests {
     #[test]
     fn scaler_is_fitted_on_training_rows_only() {
         // Regression folds of 4 rows in 2 folds: 2 training rows each.
-        let t = read_table(b"x,y\n1,0\n2,0\n3,0\n10,0\n").unwrap();
+        let t = read_table(b"x,y\n1,0\n2,0\n3,0\n10,0\n".as_slice()).unwrap();
         let s = DataSettings {
             split: Split::Folds(2),
             scale: Scale::Minmax,
@@ -299,7 +310,7 @@ mod tests {
 
     #[test]
     fn split_selects_and_scales_partition_rows() {
-        let t = read_table(b"x,c\n1,a\n2,b\n3,a\n4,b\n5,a\n6,b\n").unwrap();
+        let t = read_table(b"x,c\n1,a\n2,b\n3,a\n4,b\n5,a\n6,b\n".as_slice()).unwrap();
         let s = DataSettings {
             split: Split::Holdout(0.34),
             ..settings("c")
@@ -321,14 +332,14 @@ mod tests {
 
     #[test]
     fn class_counts_are_empty_for_regression() {
-        let t = read_table(b"x,y\n1,2\n3,4\n").unwrap();
+        let t = read_table(b"x,y\n1,2\n3,4\n".as_slice()).unwrap();
         let p = prepare(&t, &settings("y")).unwrap();
         assert!(p.class_counts(&[0, 1]).is_empty());
     }
 
     #[test]
     fn prepared_round_trips_through_json() {
-        let t = read_table(b"x,c\n1,a\n2,b\n3,a\n4,b\n").unwrap();
+        let t = read_table(b"x,c\n1,a\n2,b\n3,a\n4,b\n".as_slice()).unwrap();
         let p = prepare(&t, &settings("c")).unwrap();
         let json = serde_json::to_string(&p).unwrap();
         let back: Prepared = serde_json::from_str(&json).unwrap();

@@ -6,7 +6,7 @@
 //! rows and new rows: fitting it on test rows would leak information about
 //! them into training.
 
-use ndarray::{Array2, ArrayView2, Axis};
+use ndarray::{Array2, ArrayView1, ArrayView2, ArrayViewMut2, Axis};
 use serde::{Deserialize, Serialize};
 
 use super::settings::Scale;
@@ -23,9 +23,9 @@ pub struct Scaler {
 }
 
 impl Scaler {
-    /// Fit on the rows of `x`. Only features marked true in `numeric` are
-    /// scaled; the others (one-hot indicators) keep offset 0 and divisor 1, as
-    /// does every feature when `x` has no rows.
+    /// Fit on the rows `rows` of `x`, read in place. Only features marked true in
+    /// `numeric` are scaled; the others (one-hot indicators) keep offset 0 and
+    /// divisor 1, as does every feature when `rows` is empty.
     ///
     /// - `Standard`: offset = mean, divisor = population standard deviation
     ///   (dividing by n, not n − 1).
@@ -36,35 +36,58 @@ impl Scaler {
     /// A feature with the same value on every row gets divisor 1, so it maps
     /// to 0 instead of dividing by zero.
     ///
+    /// The sums are formed in the order in which ndarray summed the column of a
+    /// copied matrix of these rows, which earlier versions fitted on, so the
+    /// offsets and divisors (and the cache entries holding them) are unchanged
+    /// to the last bit.
+    ///
     /// # Panics
-    /// If `numeric` does not have one entry per column of `x`.
-    pub fn fit(kind: Scale, x: ArrayView2<f64>, numeric: &[bool]) -> Scaler {
+    /// If `numeric` does not have one entry per column of `x`, or a row is out of range.
+    pub fn fit(kind: Scale, x: ArrayView2<f64>, rows: &[usize], numeric: &[bool]) -> Scaler {
         assert_eq!(
             numeric.len(),
             x.ncols(),
             "the numeric mask needs one entry per feature"
         );
-        let mut offset = vec![0.0; x.ncols()];
-        let mut divisor = vec![1.0; x.ncols()];
-        if kind != Scale::None && x.nrows() > 0 {
-            for (j, column) in x.axis_iter(Axis(1)).enumerate() {
-                if !numeric[j] {
-                    continue;
+        let width = x.ncols();
+        let mut offset = vec![0.0; width];
+        let mut divisor = vec![1.0; width];
+        if kind != Scale::None && !rows.is_empty() {
+            let scaled: Vec<usize> = (0..width).filter(|&j| numeric[j]).collect();
+            // Row by row, each feature's statistics accumulate in row order: the same
+            // order as a pass down the column, without reading across rows per value.
+            let mut min = vec![f64::INFINITY; width];
+            let mut max = vec![f64::NEG_INFINITY; width];
+            let mut sum = vec![0.0; width];
+            for &r in rows {
+                let row = x.row(r);
+                for &j in &scaled {
+                    min[j] = f64::min(min[j], row[j]);
+                    max[j] = f64::max(max[j], row[j]);
+                    sum[j] += row[j];
                 }
-                let min = column.iter().copied().fold(f64::INFINITY, f64::min);
-                let max = column.iter().copied().fold(f64::NEG_INFINITY, f64::max);
+            }
+            let n = rows.len() as f64;
+            let mean: Vec<f64> = (0..width)
+                .map(|j| column_sum(x, rows, j, sum[j]) / n)
+                .collect();
+            let mut squares = vec![-0.0; width];
+            if kind == Scale::Standard {
+                for &r in rows {
+                    let row = x.row(r);
+                    for &j in &scaled {
+                        squares[j] += (row[j] - mean[j]).powi(2);
+                    }
+                }
+            }
+            for &j in &scaled {
                 // Checked on the values themselves: a computed standard
                 // deviation of a constant column can come out as a tiny
                 // rounding error instead of 0.
-                let constant = min == max;
+                let constant = min[j] == max[j];
                 let (o, d) = match kind {
-                    Scale::Standard => {
-                        let n = column.len() as f64;
-                        let mean = column.sum() / n;
-                        let variance = column.iter().map(|v| (v - mean).powi(2)).sum::<f64>() / n;
-                        (mean, variance.sqrt())
-                    }
-                    Scale::Minmax => (min, max - min),
+                    Scale::Standard => (mean[j], (squares[j] / n).sqrt()),
+                    Scale::Minmax => (min[j], max[j] - min[j]),
                     Scale::None => unreachable!("handled above"),
                 };
                 offset[j] = o;
@@ -83,17 +106,41 @@ impl Scaler {
     /// # Panics
     /// If `x` does not have as many columns as the scaler was fitted on.
     pub fn apply(&self, x: ArrayView2<f64>) -> Array2<f64> {
+        let mut out = x.to_owned();
+        self.apply_in_place(out.view_mut());
+        out
+    }
+
+    /// Apply the fitted map to the rows of `x`, overwriting them.
+    ///
+    /// # Panics
+    /// If `x` does not have as many columns as the scaler was fitted on.
+    pub fn apply_in_place(&self, mut x: ArrayViewMut2<f64>) {
         assert_eq!(
             x.ncols(),
             self.offset.len(),
             "the scaler was fitted on a different number of features"
         );
-        let mut out = x.to_owned();
-        for (j, mut column) in out.axis_iter_mut(Axis(1)).enumerate() {
+        for (j, mut column) in x.axis_iter_mut(Axis(1)).enumerate() {
             let (o, d) = (self.offset[j], self.divisor[j]);
             column.mapv_inplace(|v| (v - o) / d);
         }
-        out
+    }
+}
+
+/// The sum of feature `j` over `rows`, as ndarray's `sum` gave it on that column of
+/// a copy of the rows (`sequential` is the sum in row order, starting from 0).
+///
+/// ndarray adds a column in order, one value at a time, when its values are apart
+/// in memory; when they are adjacent (a single feature, or a single row) it adds
+/// them in eight interleaved partial sums instead, so that case is summed by
+/// ndarray itself.
+fn column_sum(x: ArrayView2<f64>, rows: &[usize], j: usize, sequential: f64) -> f64 {
+    if x.ncols() == 1 || rows.len() == 1 {
+        let column: Vec<f64> = rows.iter().map(|&r| x[[r, j]]).collect();
+        ArrayView1::from(&column).sum()
+    } else {
+        sequential
     }
 }
 
@@ -101,6 +148,10 @@ impl Scaler {
 mod tests {
     use super::*;
     use ndarray::array;
+
+    fn all(rows: usize) -> Vec<usize> {
+        (0..rows).collect()
+    }
 
     fn close(a: f64, b: f64) -> bool {
         (a - b).abs() < 1e-12
@@ -127,7 +178,7 @@ mod tests {
 
     #[test]
     fn standard_uses_mean_and_population_sd() {
-        let s = Scaler::fit(Scale::Standard, data().view(), &[true, false]);
+        let s = Scaler::fit(Scale::Standard, data().view(), &all(8), &[true, false]);
         assert_eq!(s.offset, vec![5.0, 0.0]);
         assert_eq!(s.divisor, vec![2.0, 1.0]);
         let scaled = s.apply(data().view());
@@ -140,7 +191,7 @@ mod tests {
 
     #[test]
     fn minmax_maps_training_range_to_unit_interval() {
-        let s = Scaler::fit(Scale::Minmax, data().view(), &[true, false]);
+        let s = Scaler::fit(Scale::Minmax, data().view(), &all(8), &[true, false]);
         assert_eq!(s.offset, vec![2.0, 0.0]);
         assert_eq!(s.divisor, vec![7.0, 1.0]);
         let scaled = s.apply(data().view());
@@ -155,7 +206,7 @@ mod tests {
 
     #[test]
     fn none_is_the_identity() {
-        let s = Scaler::fit(Scale::None, data().view(), &[true, false]);
+        let s = Scaler::fit(Scale::None, data().view(), &all(8), &[true, false]);
         assert_eq!(s.offset, vec![0.0, 0.0]);
         assert_eq!(s.divisor, vec![1.0, 1.0]);
         assert_eq!(s.apply(data().view()), data());
@@ -167,7 +218,7 @@ mod tests {
         // 0.1 by a rounding error; the divisor must still be 1.
         let x = array![[0.1, 3.0], [0.1, 3.0], [0.1, 3.0]];
         for kind in [Scale::Standard, Scale::Minmax] {
-            let s = Scaler::fit(kind, x.view(), &[true, true]);
+            let s = Scaler::fit(kind, x.view(), &all(3), &[true, true]);
             assert_eq!(s.divisor, vec![1.0, 1.0], "{kind:?}");
             let scaled = s.apply(x.view());
             assert!(scaled.iter().all(|v| v.abs() < 1e-15), "{kind:?}: {scaled}");
@@ -177,8 +228,91 @@ mod tests {
     #[test]
     fn no_rows_gives_the_identity() {
         let x = Array2::<f64>::zeros((0, 2));
-        let s = Scaler::fit(Scale::Standard, x.view(), &[true, true]);
+        let s = Scaler::fit(Scale::Standard, x.view(), &[], &[true, true]);
         assert_eq!(s.offset, vec![0.0, 0.0]);
         assert_eq!(s.divisor, vec![1.0, 1.0]);
+    }
+
+    #[test]
+    fn only_the_given_rows_are_used() {
+        // Rows 1, 3 and 7 of feature 0: 4, 4, 9.
+        let s = Scaler::fit(Scale::Minmax, data().view(), &[1, 3, 7], &[true, false]);
+        assert_eq!(s.offset, vec![4.0, 0.0]);
+        assert_eq!(s.divisor, vec![5.0, 1.0]);
+    }
+
+    /// How scalers were fitted before they read rows in place: on a copy of the rows,
+    /// column by column with ndarray's reductions.
+    fn fit_on_copy(kind: Scale, x: ArrayView2<f64>, rows: &[usize], numeric: &[bool]) -> Scaler {
+        let x = x.select(Axis(0), rows);
+        let mut offset = vec![0.0; x.ncols()];
+        let mut divisor = vec![1.0; x.ncols()];
+        if kind != Scale::None && x.nrows() > 0 {
+            for (j, column) in x.axis_iter(Axis(1)).enumerate() {
+                if !numeric[j] {
+                    continue;
+                }
+                let min = column.iter().copied().fold(f64::INFINITY, f64::min);
+                let max = column.iter().copied().fold(f64::NEG_INFINITY, f64::max);
+                let (o, d) = match kind {
+                    Scale::Standard => {
+                        let n = column.len() as f64;
+                        let mean = column.sum() / n;
+                        let variance = column.iter().map(|v| (v - mean).powi(2)).sum::<f64>() / n;
+                        (mean, variance.sqrt())
+                    }
+                    Scale::Minmax => (min, max - min),
+                    Scale::None => unreachable!(),
+                };
+                offset[j] = o;
+                divisor[j] = if min == max { 1.0 } else { d };
+            }
+        }
+        Scaler {
+            kind,
+            offset,
+            divisor,
+        }
+    }
+
+    fn bits(values: &[f64]) -> Vec<u64> {
+        values.iter().map(|v| v.to_bits()).collect()
+    }
+
+    #[test]
+    fn fitting_in_place_matches_fitting_a_copy_bit_for_bit() {
+        use rand::{Rng, SeedableRng};
+        let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(7);
+        // Shapes include one feature and one row, where ndarray sums a column
+        // differently, and rows of very different sizes, where order shows.
+        for (n, width) in [
+            (1, 4),
+            (2, 1),
+            (9, 1),
+            (37, 1),
+            (5, 3),
+            (200, 6),
+            (1000, 17),
+        ] {
+            let x = Array2::from_shape_fn((n, width), |_| {
+                let magnitude = 10f64.powi((rng.next_u32() % 16) as i32 - 8);
+                (rng.next_u64() >> 11) as f64 / (1u64 << 53) as f64 * magnitude - magnitude / 3.0
+            });
+            let numeric: Vec<bool> = (0..width).map(|j| j % 4 != 1).collect();
+            // A sorted subset of rows, as partitions have.
+            let rows: Vec<usize> = (0..n)
+                .filter(|_| n == 1 || rng.next_u32() % 3 != 0)
+                .collect();
+            for kind in [Scale::Standard, Scale::Minmax, Scale::None] {
+                let old = fit_on_copy(kind, x.view(), &rows, &numeric);
+                let new = Scaler::fit(kind, x.view(), &rows, &numeric);
+                assert_eq!(bits(&new.offset), bits(&old.offset), "{kind:?} {n}x{width}");
+                assert_eq!(
+                    bits(&new.divisor),
+                    bits(&old.divisor),
+                    "{kind:?} {n}x{width}"
+                );
+            }
+        }
     }
 }

@@ -1,0 +1,137 @@
+//! A file a step reads. The plan hashes it (the hash is part of the step's key)
+//! without keeping its bytes; the step reads it again as a stream, hashing on the
+//! way, and refuses the result if the bytes are not the ones the key was made from.
+
+use std::fs::File;
+use std::io::{self, Read};
+use std::path::{Path, PathBuf};
+
+/// A file a step reads, with the hash of its bytes when the build was planned.
+#[derive(Clone, Debug)]
+pub struct InputFile {
+    /// The path as written in the document.
+    pub written: String,
+    pub path: PathBuf,
+    pub hash: blake3::Hash,
+}
+
+impl InputFile {
+    /// Hashes the file at `path` as a stream.
+    pub fn hash(path: &Path) -> io::Result<blake3::Hash> {
+        let mut hasher = blake3::Hasher::new();
+        hasher.update_reader(File::open(path)?)?;
+        Ok(hasher.finalize())
+    }
+
+    /// Reads the file through `parse`. Errors name the file; so does the refusal when
+    /// the file changed since the build was planned, since the result would then be
+    /// stored under a key made from other bytes.
+    pub fn read<T, E: std::fmt::Display>(
+        &self,
+        parse: impl FnOnce(&mut Hashed<File>) -> Result<T, E>,
+    ) -> Result<T, String> {
+        let file = File::open(&self.path)
+            .map_err(|error| format!("cannot read '{}': {error}", self.path.display()))?;
+        let mut reader = Hashed::new(file);
+        let value = parse(&mut reader).map_err(|error| format!("{}: {error}", self.written))?;
+        // A parser may stop before the end (the CSV reader does not, but the hash
+        // must cover every byte whatever the parser).
+        io::copy(&mut reader, &mut io::sink())
+            .map_err(|error| format!("cannot read '{}': {error}", self.path.display()))?;
+        if reader.finish() != self.hash {
+            return Err(format!(
+                "{}: the file changed while the build was running (its contents differ from \
+                 when the build started), so nothing was kept from it; build again",
+                self.written
+            ));
+        }
+        Ok(value)
+    }
+}
+
+/// A reader that hashes every byte it hands out.
+pub struct Hashed<R> {
+    inner: R,
+    hasher: blake3::Hasher,
+}
+
+impl<R: Read> Hashed<R> {
+    pub fn new(inner: R) -> Hashed<R> {
+        Hashed {
+            inner,
+            hasher: blake3::Hasher::new(),
+        }
+    }
+
+    /// The hash of the bytes read so far.
+    pub fn finish(&self) -> blake3::Hash {
+        self.hasher.finalize()
+    }
+}
+
+impl<R: Read> Read for Hashed<R> {
+    fn read(&mut self, buf: &mut [u8]) -> io::Result<usize> {
+        let n = self.inner.read(buf)?;
+        self.hasher.update(&buf[..n]);
+        Ok(n)
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn input(dir: &Path, bytes: &[u8]) -> InputFile {
+        let path = dir.join("rows.csv");
+        std::fs::write(&path, bytes).unwrap();
+        InputFile {
+            written: "rows.csv".into(),
+            hash: InputFile::hash(&path).unwrap(),
+            path,
+        }
+    }
+
+    fn read_all(file: &InputFile) -> Result<Vec<u8>, String> {
+        file.read(|reader| {
+            let mut bytes = Vec::new();
+            reader.read_to_end(&mut bytes).map(|_| bytes)
+        })
+    }
+
+    #[test]
+    fn the_streamed_hash_is_the_hash_of_the_bytes() {
+        let dir = tempfile::tempdir().unwrap();
+        let bytes: Vec<u8> = (0..200_000u32).map(|i| (i % 251) as u8).collect();
+        let file = input(dir.path(), &bytes);
+        assert_eq!(file.hash, blake3::hash(&bytes));
+        assert_eq!(read_all(&file).unwrap(), bytes);
+    }
+
+    #[test]
+    fn bytes_a_parser_leaves_are_still_checked() {
+        let dir = tempfile::tempdir().unwrap();
+        let file = input(dir.path(), b"a,b\n1,2\n");
+        std::fs::write(&file.path, b"a,b\n1,3\n").unwrap();
+        let first_byte = |reader: &mut Hashed<File>| {
+            let mut byte = [0];
+            reader.read_exact(&mut byte).map(|_| byte[0])
+        };
+        let error = file.read(first_byte).unwrap_err();
+        assert!(
+            error.starts_with("rows.csv: the file changed while the build was running"),
+            "{error}"
+        );
+    }
+
+    #[test]
+    fn parse_errors_and_missing_files_name_the_file() {
+        let dir = tempfile::tempdir().unwrap();
+        let file = input(dir.path(), b"x");
+        let error = file.read(|_| Err::<(), _>("line 1 is wrong")).unwrap_err();
+        assert_eq!(error, "rows.csv: line 1 is wrong");
+        std::fs::remove_file(&file.path).unwrap();
+        let error = read_all(&file).unwrap_err();
+        assert!(error.starts_with("cannot read '"), "{error}");
+        assert!(error.contains("rows.csv"), "{error}");
+    }
+}
