@@ -41,13 +41,14 @@
 //! differ in the last bits, as may platforms whose `tanh`/`ln` differ (the
 //! `exp` of sigmoid and softmax is stet's own and the same everywhere).
 
-use ndarray::{Array2, ArrayView2, Zip, s};
+use ndarray::{Array2, ArrayView1, ArrayView2, ArrayViewMut1, Zip, s};
 use rand::SeedableRng;
 use rand::seq::SliceRandom;
 use rand_chacha::ChaCha8Rng;
 use serde::{Deserialize, Serialize};
 
 use super::backprop::Workspace;
+use super::float::{Float, Precision};
 use super::loss::Loss;
 use super::network::Network;
 use super::optimizer::{Optimizer, OptimizerState};
@@ -178,11 +179,45 @@ pub fn train_with_progress(
     y: ArrayView2<f64>,
     validation: Option<(ArrayView2<f64>, ArrayView2<f64>)>,
     config: &TrainConfig,
-    mut on_epoch: impl FnMut(usize, &EpochLosses),
+    on_epoch: impl FnMut(usize, &EpochLosses),
+) -> TrainOutcome {
+    train_at(Precision::F64, network, x, y, validation, config, on_epoch)
+}
+
+/// [`train_with_progress`] with its arithmetic in the float type `precision`
+/// names. Data and networks stay `f64` outside: the network is rounded to that
+/// type at the start, each batch as it is formed, and the trained network is
+/// converted back (exactly). Losses are summed in `f64`; the validation loss is
+/// that of the network converted back, i.e. of the network a run stores.
+///
+/// # Panics
+/// As [`train`].
+pub fn train_at(
+    precision: Precision,
+    network: Network,
+    x: ArrayView2<f64>,
+    y: ArrayView2<f64>,
+    validation: Option<(ArrayView2<f64>, ArrayView2<f64>)>,
+    config: &TrainConfig,
+    on_epoch: impl FnMut(usize, &EpochLosses),
 ) -> TrainOutcome {
     // Re-validate: the fields are public, so the network may not have been
     // built through `from_layers`.
-    let mut network = Network::from_layers(network.layers);
+    let network = Network::from_layers(network.layers);
+    match precision {
+        Precision::F64 => train_in::<f64>(network, x, y, validation, config, on_epoch),
+        Precision::F32 => train_in::<f32>(network, x, y, validation, config, on_epoch),
+    }
+}
+
+fn train_in<F: Float>(
+    network: Network,
+    x: ArrayView2<f64>,
+    y: ArrayView2<f64>,
+    validation: Option<(ArrayView2<f64>, ArrayView2<f64>)>,
+    config: &TrainConfig,
+    mut on_epoch: impl FnMut(usize, &EpochLosses),
+) -> TrainOutcome {
     let n = x.nrows();
     check_data(&network, x, y, "training");
     if let Some((vx, vy)) = validation {
@@ -202,14 +237,18 @@ pub fn train_with_progress(
         BatchSize::Full => n,
     };
     let shuffling = config.shuffle && batch < n;
+    let mut network = network.to_precision::<F>();
+    let l2 = F::round_from(config.l2);
 
     let mut workspace = Workspace::new(&network, batch);
     let mut optimizer = OptimizerState::new(&config.optimizer, &network);
     let mut rng = ChaCha8Rng::seed_from_u64(config.seed);
     rng.set_stream(super::SHUFFLE_STREAM);
     let mut order: Vec<usize> = (0..n).collect();
-    // Shuffled batches are gathered here; in-order batches are views of x, y.
-    let (mut batch_x, mut batch_y) = if shuffling {
+    // Shuffled batches are gathered here, as are all batches of a run in
+    // another float type than the data's; in-order f64 batches are views of x, y.
+    let gathering = shuffling || F::view(x).is_none();
+    let (mut batch_x, mut batch_y) = if gathering {
         (
             Array2::zeros((batch, x.ncols())),
             Array2::zeros((batch, y.ncols())),
@@ -228,17 +267,22 @@ pub fn train_with_progress(
         let mut total = 0.0;
         for start in (0..n).step_by(batch) {
             let end = (start + batch).min(n);
-            let (xb, yb) = if shuffling {
-                for (i, &row) in order[start..end].iter().enumerate() {
-                    batch_x.row_mut(i).assign(&x.row(row));
-                    batch_y.row_mut(i).assign(&y.row(row));
+            let in_order = (
+                F::view(x.slice(s![start..end, ..])),
+                F::view(y.slice(s![start..end, ..])),
+            );
+            let (xb, yb) = match in_order {
+                (Some(xb), Some(yb)) if !shuffling => (xb, yb),
+                _ => {
+                    for (i, &row) in order[start..end].iter().enumerate() {
+                        gather(batch_x.row_mut(i), x.row(row));
+                        gather(batch_y.row_mut(i), y.row(row));
+                    }
+                    (
+                        batch_x.slice(s![..end - start, ..]),
+                        batch_y.slice(s![..end - start, ..]),
+                    )
                 }
-                (
-                    batch_x.slice(s![..end - start, ..]),
-                    batch_y.slice(s![..end - start, ..]),
-                )
-            } else {
-                (x.slice(s![start..end, ..]), y.slice(s![start..end, ..]))
             };
             let batch_loss = config
                 .loss
@@ -252,14 +296,15 @@ pub fn train_with_progress(
                 for (g, layer) in workspace.gradients.iter_mut().zip(&network.layers) {
                     Zip::from(&mut g.weights)
                         .and(&layer.weights)
-                        .for_each(|g, &w| *g += config.l2 * w);
+                        .for_each(|g, &w| *g += l2 * w);
                 }
             }
             optimizer.step(&mut network, &workspace.gradients, config.update_biases);
         }
 
         let train_loss = total / n as f64;
-        let validation_loss = validation.map(|(vx, vy)| mean_loss(&network, vx, vy, config.loss));
+        let validation_loss = validation
+            .map(|(vx, vy)| mean_loss(&network.to_precision::<f64>(), vx, vy, config.loss));
         // Finite batch losses can still add up to infinity.
         if !train_loss.is_finite() || validation_loss.is_some_and(|v| !v.is_finite()) {
             return stopped(network, history, StopReason::Diverged, epoch, monitor);
@@ -298,13 +343,23 @@ pub fn train_with_progress(
 /// # Panics
 /// If `x` has no rows, the shapes do not fit the network, or the loss does
 /// not [support](Loss::supports) the output activation.
-pub fn mean_loss(network: &Network, x: ArrayView2<f64>, y: ArrayView2<f64>, loss: Loss) -> f64 {
+pub fn mean_loss<F: Float>(
+    network: &Network<F>,
+    x: ArrayView2<F>,
+    y: ArrayView2<F>,
+    loss: Loss,
+) -> f64 {
     check_data(network, x, y, "evaluation");
     let output = network.layers[network.layers.len() - 1].activation;
     loss.total(output, network.predict(x).view(), y) / x.nrows() as f64
 }
 
-fn check_data(network: &Network, x: ArrayView2<f64>, y: ArrayView2<f64>, what: &str) {
+fn check_data<F: Float, G: Float>(
+    network: &Network<F>,
+    x: ArrayView2<G>,
+    y: ArrayView2<G>,
+    what: &str,
+) {
     assert!(x.nrows() > 0, "{what} data needs at least one row");
     assert_eq!(
         x.ncols(),
@@ -323,17 +378,22 @@ fn check_data(network: &Network, x: ArrayView2<f64>, y: ArrayView2<f64>, what: &
     );
 }
 
+/// `to ← from`, each value rounded to the engine's float type.
+fn gather<F: Float>(mut to: ArrayViewMut1<F>, from: ArrayView1<f64>) {
+    to.zip_mut_with(&from, |t, &f| *t = F::round_from(f));
+}
+
 /// Early-stopping bookkeeping for `patience`.
-struct Monitor {
+struct Monitor<F> {
     patience: usize,
     best: f64,
     best_epoch: Option<usize>,
-    best_network: Option<Network>,
+    best_network: Option<Network<F>>,
     stale: usize,
 }
 
-impl Monitor {
-    fn new(patience: usize) -> Monitor {
+impl<F: Float> Monitor<F> {
+    fn new(patience: usize) -> Monitor<F> {
         Monitor {
             patience,
             best: f64::INFINITY,
@@ -344,7 +404,7 @@ impl Monitor {
     }
 
     /// Records an epoch's monitored loss; true when it is time to stop.
-    fn observe(&mut self, epoch: usize, value: f64, network: &Network) -> bool {
+    fn observe(&mut self, epoch: usize, value: f64, network: &Network<F>) -> bool {
         if value < self.best {
             self.best = value;
             self.best_epoch = Some(epoch);
@@ -358,15 +418,16 @@ impl Monitor {
     }
 }
 
-fn stopped(
-    network: Network,
+/// The outcome, with the network converted back to `f64`.
+fn stopped<F: Float>(
+    network: Network<F>,
     history: Vec<EpochLosses>,
     stop: StopReason,
     epochs_run: usize,
-    monitor: Option<Monitor>,
+    monitor: Option<Monitor<F>>,
 ) -> TrainOutcome {
     TrainOutcome {
-        network,
+        network: network.to_precision(),
         history,
         stop,
         epochs_run,
