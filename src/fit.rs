@@ -123,12 +123,14 @@ pub fn fit(
     };
     let has_test = split.x_test.nrows() > 0;
     let validation = has_test.then(|| (split.x_test.view(), split.y_test.view()));
-    let fitted = nn::train(
+    let fitted = nn::train_at(
+        train.precision,
         network,
         split.x_train.view(),
         split.y_train.view(),
         validation,
         &config,
+        |_, _| {},
     );
     let seconds = started.elapsed().as_secs_f64();
     let measure = |x: &ndarray::Array2<f64>, y: &ndarray::Array2<f64>| {
