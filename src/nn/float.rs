@@ -114,3 +114,88 @@ impl Float for f32 {
         false
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use ndarray::Array2;
+
+    /// Distance in units in the last place between two finite floats.
+    fn ulps(a: f32, b: f32) -> u32 {
+        let key = |v: f32| {
+            let bits = v.to_bits() as i32;
+            if bits < 0 { i32::MIN - bits } else { bits }
+        };
+        key(a).abs_diff(key(b))
+    }
+
+    /// Against the platform's `expf` over the whole range where `e^x` is a normal
+    /// `f32`, densely where sigmoid and softmax use it.
+    #[test]
+    fn f32_exp_is_within_one_ulp_of_the_platform() {
+        let mut worst = (0, 0.0f32);
+        for i in 0..400_000 {
+            let x = -87.0 + 175.0 * i as f32 / 400_000.0;
+            let d = ulps(x.vector_exp(), x.exp());
+            if d > worst.0 {
+                worst = (d, x);
+            }
+        }
+        assert!(worst.0 <= 1, "{} ulps at {}", worst.0, worst.1);
+        assert_eq!(0.0f32.vector_exp(), 1.0);
+        assert_eq!(100.0f32.vector_exp(), f32::INFINITY);
+        assert_eq!((-110.0f32).vector_exp(), 0.0);
+        assert!(f32::NAN.vector_exp().is_nan());
+    }
+
+    /// The single-precision product agrees with the double one to what `f32`
+    /// rounding allows: each entry of a k-term product is within about k unit
+    /// roundoffs (2⁻²⁴) of its magnitude sum (Higham, Accuracy and Stability of
+    /// Numerical Algorithms, 2002, §3.1), plus the rounding of the inputs.
+    #[test]
+    fn f32_products_agree_with_f64_to_single_precision() {
+        for &(m, k, n, accumulate) in &[
+            (150, 4, 8, false),
+            (33, 300, 17, true),
+            (128, 784, 256, true),
+        ] {
+            let a =
+                Array2::from_shape_fn((m, k), |(i, j)| ((i * 7 + j * 13) % 29) as f64 / 29.0 - 0.4);
+            let b =
+                Array2::from_shape_fn((k, n), |(i, j)| ((i * 11 + j * 5) % 31) as f64 / 31.0 - 0.6);
+            let c = Array2::from_shape_fn((m, n), |(i, j)| ((i + j) % 3) as f64 - 1.0);
+            let (a32, b32) = (a.mapv(|v| v as f32), b.mapv(|v| v as f32));
+            let mut single = c.mapv(|v| v as f32);
+            f32::gemm(a32.view(), b32.view(), accumulate, single.view_mut());
+            let mut double = if accumulate {
+                c.clone()
+            } else {
+                Array2::zeros((m, n))
+            };
+            f64::gemm(
+                a32.mapv(f64::from).view(),
+                b32.mapv(f64::from).view(),
+                true,
+                double.view_mut(),
+            );
+            let magnitude = a.mapv(f64::abs).dot(&b.mapv(f64::abs)) + 1.0;
+            let bound = (k + 2) as f64 * 2f64.powi(-24);
+            for ((s, d), size) in single.iter().zip(&double).zip(&magnitude) {
+                assert!(
+                    (f64::from(*s) - d).abs() <= bound * size,
+                    "{m}x{k}x{n}: {s} vs {d}"
+                );
+            }
+        }
+    }
+
+    #[test]
+    fn precision_words() {
+        assert_eq!(serde_json::to_string(&Precision::F32).unwrap(), "\"f32\"");
+        assert_eq!(
+            serde_json::from_str::<Precision>("\"f64\"").unwrap(),
+            Precision::F64
+        );
+        assert_eq!(Precision::default(), Precision::F64);
+    }
+}

@@ -739,6 +739,65 @@ mod tests {
         assert_eq!(seen.len(), 6);
     }
 
+    /// Every weight of an `f32` run is an `f32` value widened.
+    fn all_single(network: &Network) -> bool {
+        network.layers.iter().all(|l| {
+            l.weights
+                .iter()
+                .chain(&l.biases)
+                .all(|&v| f64::from(v as f32) == v)
+        })
+    }
+
+    #[test]
+    fn an_f32_run_starts_from_the_rounded_draws() {
+        let (x, y) = data();
+        let net = small_net(12);
+        let still = train_at(
+            Precision::F32,
+            net.clone(),
+            x.view(),
+            y.view(),
+            None,
+            &config(sgd(0.0, 0.0), BatchSize::Rows(3), 1),
+            |_, _| {},
+        );
+        assert_eq!(still.network, net.to_precision::<f32>().to_precision());
+        assert_ne!(still.network, net, "Xavier draws use all 53 bits");
+    }
+
+    #[test]
+    fn an_f32_run_trains_in_single_precision_along_the_f64_path() {
+        let (x, y) = data();
+        let mut cfg = config(sgd(0.1, 0.9), BatchSize::Rows(3), 50);
+        cfg.shuffle = true;
+        let validation = Some((x.view(), y.view()));
+        let double = train(small_net(13), x.view(), y.view(), validation, &cfg);
+        let single = train_at(
+            Precision::F32,
+            small_net(13),
+            x.view(),
+            y.view(),
+            validation,
+            &cfg,
+            |_, _| {},
+        );
+        assert!(all_single(&single.network));
+        assert!(!all_single(&double.network));
+        let (a, b) = (single.history[49], double.history[49]);
+        assert!(
+            b.train < 0.5 * double.history[0].train,
+            "the run should learn"
+        );
+        // Rounding at 6e-8 per operation, amplified a little by 150 updates.
+        assert!((a.train - b.train).abs() < 1e-4 * b.train, "{a:?} vs {b:?}");
+        // The validation loss is that of the stored (widened) network.
+        assert_eq!(
+            a.validation,
+            Some(mean_loss(&single.network, x.view(), y.view(), Loss::Mse))
+        );
+    }
+
     #[test]
     #[should_panic(expected = "cannot follow")]
     fn cross_entropy_needs_probabilities() {
