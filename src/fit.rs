@@ -100,7 +100,15 @@ pub fn fit(
     net: &NetSpec,
     train: &TrainSpec,
 ) -> RunResult {
-    let split = prepared.split(partition);
+    let part = &prepared.partitions[partition];
+    // Rows are read from the shared matrix and scaled batch by batch, so no run
+    // holds a copy of the data set.
+    let subset = |rows| {
+        nn::Rows::all(prepared.x.view(), prepared.y.view())
+            .pick(rows)
+            .scaled(&part.scaler.offset, &part.scaler.divisor)
+    };
+    let (train_rows, test_rows) = (subset(&part.train_rows), subset(&part.test_rows));
     let started = Instant::now();
     let network = Network::initialise(
         &shape.sizes,
@@ -121,23 +129,19 @@ pub fn fit(
         seed: train.seed,
         update_biases: true,
     };
-    let has_test = split.x_test.nrows() > 0;
-    let validation = has_test.then(|| (split.x_test.view(), split.y_test.view()));
+    let has_test = !test_rows.is_empty();
     let fitted = nn::train_at(
         train.precision,
         network,
-        split.x_train.view(),
-        split.y_train.view(),
-        validation,
+        train_rows,
+        has_test.then_some(test_rows),
         &config,
         |_, _| {},
     );
     let seconds = started.elapsed().as_secs_f64();
-    let measure = |x: &ndarray::Array2<f64>, y: &ndarray::Array2<f64>| {
-        set_metrics(prepared.encoding.task, &fitted.network, x, y, shape.loss)
-    };
-    let train_metrics = measure(&split.x_train, &split.y_train);
-    let test_metrics = has_test.then(|| measure(&split.x_test, &split.y_test));
+    let measure = |rows| set_metrics(prepared.encoding.task, &fitted.network, rows, shape.loss);
+    let train_metrics = measure(&train_rows);
+    let test_metrics = has_test.then(|| measure(&test_rows));
     RunResult {
         fit: fitted,
         seconds,
@@ -146,23 +150,17 @@ pub fn fit(
     }
 }
 
-fn set_metrics(
-    task: Task,
-    network: &Network,
-    x: &ndarray::Array2<f64>,
-    y: &ndarray::Array2<f64>,
-    loss: Loss,
-) -> SetMetrics {
-    let outputs = network.predict(x.view());
-    let loss_value = nn::mean_loss(network, x.view(), y.view(), loss);
+fn set_metrics(task: Task, network: &Network, rows: &nn::Rows, loss: Loss) -> SetMetrics {
+    let seen = nn::evaluate(network, rows, loss);
+    let (targets, outputs) = (seen.targets.view(), seen.outputs.view());
     match task {
         Task::Classify => SetMetrics::Classification {
-            loss: loss_value,
-            metrics: nn::classification_metrics(y.view(), outputs.view()),
+            loss: seen.mean_loss,
+            metrics: nn::classification_metrics(targets, outputs),
         },
         Task::Regress => SetMetrics::Regression {
-            loss: loss_value,
-            metrics: nn::regression_metrics(y.view(), outputs.view()),
+            loss: seen.mean_loss,
+            metrics: nn::regression_metrics(targets, outputs),
         },
     }
 }

@@ -101,7 +101,7 @@ fn a_sweep_over_precision_reuses_the_f64_base_and_trains_f32_beside_it() {
     let loss = |run: &serde_json::Value| run["metrics"]["train"]["loss"].as_f64().unwrap();
     assert_eq!(runs[0]["settings"]["precision"], "f64");
     assert_eq!(runs[1]["settings"]["precision"], "f32");
-    assert_eq!(loss(&runs[0]), loss(&step(&summary, "base")));
+    assert_eq!(loss(&runs[0]), loss(step(&summary, "base")));
     let (double, single) = (loss(&runs[0]), loss(&runs[1]));
     // The same 30 epochs from the same draws, rounded to single precision.
     assert!(double != single, "the f32 run trained in f64");

@@ -74,13 +74,14 @@ impl Loss {
         // instead of one per class). Skipping it leaves every sum unchanged: the
         // term would be +0. A NaN output is still seen, since softmax spreads a
         // NaN to its whole row. Binary cross-entropy skips the term whose
-        // weight is zero in the same way.
-        let per_element: fn(f64, f64) -> f64 = match (self, output) {
-            (Loss::Mse, _) => |o, t| 0.5 * (o - t) * (o - t),
-            (Loss::CrossEntropy, Activation::Softmax) => |p, t| {
+        // weight is zero in the same way. Each arm passes its own closure, so
+        // the term is inlined into the loop rather than called through a pointer.
+        match (self, output) {
+            (Loss::Mse, _) => sum_rows(outputs, targets, |o, t| 0.5 * (o - t) * (o - t)),
+            (Loss::CrossEntropy, Activation::Softmax) => sum_rows(outputs, targets, |p, t| {
                 if t == 0.0 { 0.0 } else { -t * clip(p).ln() }
-            },
-            (Loss::CrossEntropy, _) => |p, t| {
+            }),
+            (Loss::CrossEntropy, _) => sum_rows(outputs, targets, |p, t| {
                 let p = clip(p);
                 if t == 0.0 {
                     -(1.0 - p).ln()
@@ -89,19 +90,8 @@ impl Loss {
                 } else {
                     -(t * p.ln() + (1.0 - t) * (1.0 - p).ln())
                 }
-            },
-        };
-        outputs
-            .rows()
-            .into_iter()
-            .zip(targets.rows())
-            .map(|(o, t)| {
-                o.iter()
-                    .zip(t.iter())
-                    .map(|(&o, &t)| per_element(o.widen(), t.widen()))
-                    .sum::<f64>()
-            })
-            .sum()
+            }),
+        }
     }
 
     /// Writes `∂L/∂z` of the output layer into `delta`, where `L` is the mean
@@ -145,6 +135,41 @@ impl Loss {
             "outputs and targets must have the same shape"
         );
     }
+}
+
+/// `Σ_rows Σ_columns term(output, target)`, each row summed in order and
+/// the row sums added in order, every term in `f64`.
+#[inline(always)]
+fn sum_rows<F: Float>(
+    outputs: ArrayView2<F>,
+    targets: ArrayView2<F>,
+    term: impl Fn(f64, f64) -> f64,
+) -> f64 {
+    let term = |o: F, t: F| term(o.widen(), t.widen());
+    let row_sum = |o: &[F], t: &[F]| o.iter().zip(t).map(|(&o, &t)| term(o, t)).sum::<f64>();
+    let width = outputs.ncols();
+    // Row-major batches (the usual case) are read as plain slices, which
+    // costs far less per element than ndarray's strided row iterators.
+    if let (Some(o), Some(t)) = (outputs.as_slice(), targets.as_slice())
+        && width > 0
+    {
+        return o
+            .chunks_exact(width)
+            .zip(t.chunks_exact(width))
+            .map(|(o, t)| row_sum(o, t))
+            .sum();
+    }
+    outputs
+        .rows()
+        .into_iter()
+        .zip(targets.rows())
+        .map(|(o, t)| {
+            o.iter()
+                .zip(t.iter())
+                .map(|(&o, &t)| term(o, t))
+                .sum::<f64>()
+        })
+        .sum()
 }
 
 fn clip(p: f64) -> f64 {

@@ -13,6 +13,8 @@
 //! * [`backprop`]: gradients of a batch's loss;
 //! * [`optimizer`]: SGD with momentum and Adam;
 //! * [`train`](mod@train): batching, shuffling and stopping;
+//! * [`Rows`]: the rows of a shared data matrix a run reads, gathered and
+//!   scaled a batch at a time;
 //! * [`metrics`]: classification and regression scores for reports.
 //!
 //! ```
@@ -48,6 +50,7 @@ pub mod loss;
 pub mod metrics;
 pub mod network;
 pub mod optimizer;
+mod rows;
 pub mod train;
 mod vector;
 
@@ -60,9 +63,10 @@ pub use metrics::{
 };
 pub use network::{Init, Layer, Network, NetworkError};
 pub use optimizer::Optimizer;
+pub use rows::Rows;
 pub use train::{
-    BatchSize, EpochLosses, StopReason, TrainConfig, TrainOutcome, mean_loss, train, train_at,
-    train_with_progress,
+    BatchSize, EpochLosses, Evaluation, StopReason, TrainConfig, TrainOutcome, evaluate, mean_loss,
+    train, train_at, train_rows, train_with_progress,
 };
 
 /// ChaCha8 stream used for initial weights. Initialisation and shuffling use

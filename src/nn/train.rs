@@ -41,7 +41,7 @@
 //! differ in the last bits, as may platforms whose `tanh`/`ln` differ (the
 //! `exp` of sigmoid and softmax is stet's own and the same everywhere).
 
-use ndarray::{Array2, ArrayView1, ArrayView2, ArrayViewMut1, Zip, s};
+use ndarray::{Array2, ArrayView2, Zip, s};
 use rand::SeedableRng;
 use rand::seq::SliceRandom;
 use rand_chacha::ChaCha8Rng;
@@ -52,6 +52,7 @@ use super::float::{Float, Precision};
 use super::loss::Loss;
 use super::network::Network;
 use super::optimizer::{Optimizer, OptimizerState};
+use super::rows::Rows;
 
 /// Why training ended.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Hash, Serialize, Deserialize)]
@@ -165,23 +166,37 @@ pub fn train(
     validation: Option<(ArrayView2<f64>, ArrayView2<f64>)>,
     config: &TrainConfig,
 ) -> TrainOutcome {
-    train_with_progress(network, x, y, validation, config, |_, _| {})
+    let validation = validation.map(|(vx, vy)| Rows::all(vx, vy));
+    train_rows(network, Rows::all(x, y), validation, config)
 }
 
-/// [`train`], calling `on_epoch(epoch, losses)` (1-based epoch) after each
-/// epoch that is recorded in the history, e.g. to drive a progress bar.
+/// [`train`] on rows read through [`Rows`] (a subset of a shared matrix,
+/// scaled as it is read).
+///
+/// # Panics
+/// As [`train`].
+pub fn train_rows(
+    network: Network,
+    rows: Rows,
+    validation: Option<Rows>,
+    config: &TrainConfig,
+) -> TrainOutcome {
+    train_with_progress(network, rows, validation, config, |_, _| {})
+}
+
+/// [`train_rows`], calling `on_epoch(epoch, losses)` (1-based epoch) after
+/// each epoch that is recorded in the history, e.g. to drive a progress bar.
 ///
 /// # Panics
 /// As [`train`].
 pub fn train_with_progress(
     network: Network,
-    x: ArrayView2<f64>,
-    y: ArrayView2<f64>,
-    validation: Option<(ArrayView2<f64>, ArrayView2<f64>)>,
+    rows: Rows,
+    validation: Option<Rows>,
     config: &TrainConfig,
     on_epoch: impl FnMut(usize, &EpochLosses),
 ) -> TrainOutcome {
-    train_at(Precision::F64, network, x, y, validation, config, on_epoch)
+    train_at(Precision::F64, network, rows, validation, config, on_epoch)
 }
 
 /// [`train_with_progress`] with its arithmetic in the float type `precision`
@@ -195,9 +210,8 @@ pub fn train_with_progress(
 pub fn train_at(
     precision: Precision,
     network: Network,
-    x: ArrayView2<f64>,
-    y: ArrayView2<f64>,
-    validation: Option<(ArrayView2<f64>, ArrayView2<f64>)>,
+    rows: Rows,
+    validation: Option<Rows>,
     config: &TrainConfig,
     on_epoch: impl FnMut(usize, &EpochLosses),
 ) -> TrainOutcome {
@@ -205,23 +219,22 @@ pub fn train_at(
     // built through `from_layers`.
     let network = Network::from_layers(network.layers);
     match precision {
-        Precision::F64 => train_in::<f64>(network, x, y, validation, config, on_epoch),
-        Precision::F32 => train_in::<f32>(network, x, y, validation, config, on_epoch),
+        Precision::F64 => train_in::<f64>(network, rows, validation, config, on_epoch),
+        Precision::F32 => train_in::<f32>(network, rows, validation, config, on_epoch),
     }
 }
 
 fn train_in<F: Float>(
     network: Network,
-    x: ArrayView2<f64>,
-    y: ArrayView2<f64>,
-    validation: Option<(ArrayView2<f64>, ArrayView2<f64>)>,
+    rows: Rows,
+    validation: Option<Rows>,
     config: &TrainConfig,
     mut on_epoch: impl FnMut(usize, &EpochLosses),
 ) -> TrainOutcome {
-    let n = x.nrows();
-    check_data(&network, x, y, "training");
-    if let Some((vx, vy)) = validation {
-        check_data(&network, vx, vy, "validation");
+    let n = rows.len();
+    check_data(&network, &rows, "training");
+    if let Some(v) = &validation {
+        check_data(&network, v, "validation");
     }
     let output = network.layers[network.layers.len() - 1].activation;
     assert!(
@@ -245,17 +258,7 @@ fn train_in<F: Float>(
     let mut rng = ChaCha8Rng::seed_from_u64(config.seed);
     rng.set_stream(super::SHUFFLE_STREAM);
     let mut order: Vec<usize> = (0..n).collect();
-    // Shuffled batches are gathered here, as are all batches of a run in
-    // another float type than the data's; in-order f64 batches are views of x, y.
-    let gathering = shuffling || F::view(x).is_none();
-    let (mut batch_x, mut batch_y) = if gathering {
-        (
-            Array2::zeros((batch, x.ncols())),
-            Array2::zeros((batch, y.ncols())),
-        )
-    } else {
-        (Array2::zeros((0, 0)), Array2::zeros((0, 0)))
-    };
+    let mut batches = Batches::<F>::new(rows, batch, shuffling);
     let mut history = Vec::with_capacity(config.epochs);
     let mut monitor = config.patience.map(Monitor::new);
 
@@ -267,23 +270,7 @@ fn train_in<F: Float>(
         let mut total = 0.0;
         for start in (0..n).step_by(batch) {
             let end = (start + batch).min(n);
-            let in_order = (
-                F::view(x.slice(s![start..end, ..])),
-                F::view(y.slice(s![start..end, ..])),
-            );
-            let (xb, yb) = match in_order {
-                (Some(xb), Some(yb)) if !shuffling => (xb, yb),
-                _ => {
-                    for (i, &row) in order[start..end].iter().enumerate() {
-                        gather(batch_x.row_mut(i), x.row(row));
-                        gather(batch_y.row_mut(i), y.row(row));
-                    }
-                    (
-                        batch_x.slice(s![..end - start, ..]),
-                        batch_y.slice(s![..end - start, ..]),
-                    )
-                }
-            };
+            let (xb, yb) = batches.get(&order, start, end);
             let batch_loss = config
                 .loss
                 .total(output, workspace.forward(&network, xb), yb);
@@ -304,7 +291,8 @@ fn train_in<F: Float>(
 
         let train_loss = total / n as f64;
         let validation_loss = validation
-            .map(|(vx, vy)| mean_loss(&network.to_precision::<f64>(), vx, vy, config.loss));
+            .as_ref()
+            .map(|v| evaluate(&network.to_precision(), v, config.loss).mean_loss);
         // Finite batch losses can still add up to infinity.
         if !train_loss.is_finite() || validation_loss.is_some_and(|v| !v.is_finite()) {
             return stopped(network, history, StopReason::Diverged, epoch, monitor);
@@ -343,44 +331,115 @@ fn train_in<F: Float>(
 /// # Panics
 /// If `x` has no rows, the shapes do not fit the network, or the loss does
 /// not [support](Loss::supports) the output activation.
-pub fn mean_loss<F: Float>(
-    network: &Network<F>,
-    x: ArrayView2<F>,
-    y: ArrayView2<F>,
-    loss: Loss,
-) -> f64 {
-    check_data(network, x, y, "evaluation");
-    let output = network.layers[network.layers.len() - 1].activation;
-    loss.total(output, network.predict(x).view(), y) / x.nrows() as f64
+pub fn mean_loss(network: &Network, x: ArrayView2<f64>, y: ArrayView2<f64>, loss: Loss) -> f64 {
+    evaluate(network, &Rows::all(x, y), loss).mean_loss
 }
 
-fn check_data<F: Float, G: Float>(
-    network: &Network<F>,
-    x: ArrayView2<G>,
-    y: ArrayView2<G>,
-    what: &str,
-) {
-    assert!(x.nrows() > 0, "{what} data needs at least one row");
+/// A network's outputs on some rows, their targets, and the mean loss.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Evaluation {
+    /// One row of outputs per data row.
+    pub outputs: Array2<f64>,
+    /// The rows' targets.
+    pub targets: Array2<f64>,
+    /// [`mean_loss`] of the outputs.
+    pub mean_loss: f64,
+}
+
+/// Runs `network` on `rows` and measures the loss, as [`mean_loss`] does.
+///
+/// # Panics
+/// As [`mean_loss`].
+pub fn evaluate(network: &Network, rows: &Rows, loss: Loss) -> Evaluation {
+    check_data(network, rows, "evaluation");
+    let output = network.layers[network.layers.len() - 1].activation;
+    // One sum over all rows' outputs, so the result does not depend on how
+    // the rows were chunked for prediction.
+    let outputs = rows.predict(network);
+    let targets = rows.target_matrix();
+    let mean_loss = loss.total(output, outputs.view(), targets.view()) / rows.len() as f64;
+    Evaluation {
+        outputs,
+        targets,
+        mean_loss,
+    }
+}
+
+fn check_data(network: &Network, rows: &Rows, what: &str) {
+    assert!(!rows.is_empty(), "{what} data needs at least one row");
     assert_eq!(
-        x.ncols(),
+        rows.inputs(),
         network.input_size(),
         "{what} inputs: columns vs network inputs"
     );
     assert_eq!(
-        y.ncols(),
+        rows.targets(),
         network.output_size(),
         "{what} targets: columns vs network outputs"
     );
-    assert_eq!(
-        x.nrows(),
-        y.nrows(),
-        "{what} inputs and targets: row counts"
-    );
 }
 
-/// `to ← from`, each value rounded to the engine's float type.
-fn gather<F: Float>(mut to: ArrayViewMut1<F>, from: ArrayView1<f64>) {
-    to.zip_mut_with(&from, |t, &f| *t = F::round_from(f));
+/// Hands out the training batches in the engine's float type `F`: views of
+/// the data where rows are read in order, unscaled and already `f64`,
+/// otherwise rows gathered (and rounded to `F`) into reused buffers. A single
+/// in-order batch is gathered once, not every epoch.
+struct Batches<'a, F> {
+    rows: Rows<'a>,
+    shuffling: bool,
+    x: Array2<F>,
+    y: Array2<F>,
+    /// The buffers hold the one in-order batch already.
+    filled: bool,
+}
+
+impl<'a, F: Float> Batches<'a, F> {
+    fn new(rows: Rows<'a>, batch: usize, shuffling: bool) -> Batches<'a, F> {
+        let gathers = shuffling || Self::in_place(&rows, 0, 0).is_none();
+        let shape = |columns| if gathers { (batch, columns) } else { (0, 0) };
+        Batches {
+            rows,
+            shuffling,
+            x: Array2::zeros(shape(rows.inputs())),
+            y: Array2::zeros(shape(rows.targets())),
+            filled: false,
+        }
+    }
+
+    /// Rows `start..end` as views of the data, when they can be read in place
+    /// in this float type.
+    fn in_place(
+        rows: &Rows<'a>,
+        start: usize,
+        end: usize,
+    ) -> Option<(ArrayView2<'a, F>, ArrayView2<'a, F>)> {
+        let (x, y) = rows.in_place(start, end)?;
+        F::view(x).zip(F::view(y))
+    }
+
+    /// Rows `start..end` of the epoch's `order` (positions in `rows`).
+    fn get(
+        &mut self,
+        order: &[usize],
+        start: usize,
+        end: usize,
+    ) -> (ArrayView2<'_, F>, ArrayView2<'_, F>) {
+        if !self.shuffling
+            && let Some(views) = Self::in_place(&self.rows, start, end)
+        {
+            return views;
+        }
+        let single = !self.shuffling && start == 0 && end == self.rows.len();
+        if !(single && self.filled) {
+            let positions = order[start..end].iter().copied();
+            self.rows
+                .gather(positions, self.x.view_mut(), self.y.view_mut());
+            self.filled = single;
+        }
+        (
+            self.x.slice(s![..end - start, ..]),
+            self.y.slice(s![..end - start, ..]),
+        )
+    }
 }
 
 /// Early-stopping bookkeeping for `patience`.
@@ -517,6 +576,39 @@ mod tests {
         )) / 2.0;
         let out = train(net, x2, y2, None, &cfg);
         assert!((out.history[0].train - expected).abs() < 1e-15);
+    }
+
+    #[test]
+    fn gathered_rows_train_exactly_like_a_scaled_copy() {
+        // Training reads a subset of a shared matrix, scaled per batch; the
+        // result must be the same bits as training on a scaled copy of those
+        // rows, in order, shuffled and as one full batch, with validation.
+        let (x, y) = data();
+        let (offset, divisor) = ([0.2, -0.1], [0.7, 1.3]);
+        let (train_pick, test_pick) = ([6, 0, 2, 5, 3], [1, 4]);
+        let shared = Rows::all(x.view(), y.view());
+        let training = shared.pick(&train_pick).scaled(&offset, &divisor);
+        let test_rows = shared.pick(&test_pick).scaled(&offset, &divisor);
+        let (train_x, train_y) = training.to_matrices();
+        let (test_x, test_y) = test_rows.to_matrices();
+        for (batch, shuffle) in [
+            (BatchSize::Rows(2), false),
+            (BatchSize::Rows(2), true),
+            (BatchSize::Full, false),
+        ] {
+            let mut cfg = config(sgd(0.1, 0.9), batch, 20);
+            cfg.shuffle = shuffle;
+            cfg.seed = 5;
+            let gathered = train_rows(small_net(3), training, Some(test_rows), &cfg);
+            let copied = train(
+                small_net(3),
+                train_x.view(),
+                train_y.view(),
+                Some((test_x.view(), test_y.view())),
+                &cfg,
+            );
+            assert_eq!(gathered, copied, "{batch:?}, shuffle {shuffle}");
+        }
     }
 
     #[test]
@@ -725,9 +817,8 @@ mod tests {
         let (x, y) = data();
         let mut seen = Vec::new();
         let cfg = config(sgd(0.05, 0.5), BatchSize::Rows(3), 6);
-        let out = train_with_progress(small_net(11), x.view(), y.view(), None, &cfg, |e, l| {
-            seen.push((e, *l))
-        });
+        let rows = Rows::all(x.view(), y.view());
+        let out = train_with_progress(small_net(11), rows, None, &cfg, |e, l| seen.push((e, *l)));
         let expected: Vec<_> = out
             .history
             .iter()
@@ -756,8 +847,7 @@ mod tests {
         let still = train_at(
             Precision::F32,
             net.clone(),
-            x.view(),
-            y.view(),
+            Rows::all(x.view(), y.view()),
             None,
             &config(sgd(0.0, 0.0), BatchSize::Rows(3), 1),
             |_, _| {},
@@ -773,12 +863,12 @@ mod tests {
         cfg.shuffle = true;
         let validation = Some((x.view(), y.view()));
         let double = train(small_net(13), x.view(), y.view(), validation, &cfg);
+        let rows = Rows::all(x.view(), y.view());
         let single = train_at(
             Precision::F32,
             small_net(13),
-            x.view(),
-            y.view(),
-            validation,
+            rows,
+            Some(rows),
             &cfg,
             |_, _| {},
         );
