@@ -38,11 +38,14 @@ CASES = {
     "C": dict(title="60k x 784 synthetic", rows=60000, sizes=[784, 256, 10], activation="relu",
               sklearn_activation="relu", batch=128, epochs=2, learning_rate=0.01),
 }
+# C32: C in single precision on both sides (stet `precision: f32`, scikit-learn
+# given float32 arrays, with which MLPClassifier trains in float32).
+CASES["C32"] = dict(CASES["C"], title="60k x 784 synthetic, float32", data="C", precision="f32")
 # Runs per side per repetition: the small cases take milliseconds, so more of
 # them cost little and steady their medians.
-REPEATS = {"A": 5, "B": 5, "C": 1}
+REPEATS = {"A": 5, "B": 5, "C": 1, "C32": 1}
 
-TARGETS = {"A": 10.0, "B": 3.0, "C": 1.3}
+TARGETS = {"A": 10.0, "B": 3.0, "C": 1.3, "C32": 1.3}
 WHOLE_TARGET = 20.0
 PEAK_SHARE_TARGET = 0.60
 
@@ -113,6 +116,8 @@ def save(name, x, y, labels):
 def stet_document(name):
     c = CASES[name]
     hidden = c["sizes"][1:-1]
+    data = c.get("data", name)
+    precision = c.get("precision", "f64")
     text = f"""---
 title: bench {name}
 seed: 1
@@ -121,7 +126,7 @@ seed: 1
 # {c['title']}
 
 ```yaml data rows
-file: {name}.csv
+file: {data}.csv
 target: label
 scale: none
 holdout: 0
@@ -144,6 +149,7 @@ epochs: {c['epochs']}
 shuffle: false
 l2: 0
 seed: 1
+precision: {precision}
 ```
 """
     path = DATA / f"{name}.md"
@@ -154,13 +160,15 @@ seed: 1
 def case_file(name):
     c = CASES[name]
     case = dict(c)
+    data = c.get("data", name)
     case.update(
         hidden=c["sizes"][1:-1],
         classes=c["sizes"][-1],
         batch_rows=c["rows"] if c["batch"] == "full" else c["batch"],
-        npy_x=str(DATA / f"{name}_x.npy"),
-        npy_y=str(DATA / f"{name}_y.npy"),
-        csv=str(DATA / f"{name}.csv"),
+        npy_x=str(DATA / f"{data}_x.npy"),
+        npy_y=str(DATA / f"{data}_y.npy"),
+        csv=str(DATA / f"{data}.csv"),
+        float32=c.get("precision") == "f32",
     )
     path = DATA / f"{name}.json"
     path.write_text(json.dumps(case))

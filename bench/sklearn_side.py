@@ -62,6 +62,9 @@ def fit(case):
     from sklearn.metrics import log_loss
 
     x = np.load(case["npy_x"])
+    if case["float32"]:
+        # MLPClassifier keeps float32 inputs in float32 and trains in that type.
+        x = x.astype(np.float32)
     y = np.load(case["npy_y"])
     net = model(case)
     with warnings.catch_warnings():
@@ -71,7 +74,11 @@ def fit(case):
         seconds = time.perf_counter() - started
     # The same quantity as stet's metrics.train.loss: mean cross-entropy of the
     # final network over the training rows.
-    loss = float(log_loss(y, net.predict_proba(x), labels=np.arange(case["classes"])))
+    if net.coefs_[0].dtype != x.dtype:
+        sys.exit(f"trained in {net.coefs_[0].dtype}, not {x.dtype}")
+    # Probabilities in float64 so that the loss is computed alike for every case.
+    probabilities = net.predict_proba(x).astype(np.float64)
+    loss = float(log_loss(y, probabilities, labels=np.arange(case["classes"])))
     print(json.dumps({
         "seconds": seconds,
         "loss": loss,

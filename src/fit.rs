@@ -130,7 +130,14 @@ pub fn fit(
         update_biases: true,
     };
     let has_test = !test_rows.is_empty();
-    let fitted = nn::train_rows(network, train_rows, has_test.then_some(test_rows), &config);
+    let fitted = nn::train_at(
+        train.precision,
+        network,
+        train_rows,
+        has_test.then_some(test_rows),
+        &config,
+        |_, _| {},
+    );
     let seconds = started.elapsed().as_secs_f64();
     let measure = |rows| set_metrics(prepared.encoding.task, &fitted.network, rows, shape.loss);
     let train_metrics = measure(&train_rows);

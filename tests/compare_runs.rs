@@ -87,6 +87,33 @@ fn a_sweep_run_equal_to_the_base_train_shares_its_entry() {
 }
 
 #[test]
+fn a_sweep_over_precision_reuses_the_f64_base_and_trains_f32_beside_it() {
+    let ws = Workspace::new();
+    let text = SWEEP.replace(
+        "  learning_rate: [0.01, 0.03, 0.1]\n  activation: [tanh, relu]\nrepeat: 2\n",
+        "  precision: [f64, f32]\n",
+    );
+    let doc = ws.write("sweep.md", &text);
+    let summary = ws.build_ok(&doc, &[]);
+    // f64 is the default, so that combination is the base run and shares its entry.
+    assert_eq!(runs_trained(&summary, "grid"), 1);
+    let runs = step(&summary, "grid")["runs"].as_array().unwrap();
+    let loss = |run: &serde_json::Value| run["metrics"]["train"]["loss"].as_f64().unwrap();
+    assert_eq!(runs[0]["settings"]["precision"], "f64");
+    assert_eq!(runs[1]["settings"]["precision"], "f32");
+    assert_eq!(loss(&runs[0]), loss(step(&summary, "base")));
+    let (double, single) = (loss(&runs[0]), loss(&runs[1]));
+    // The same 30 epochs from the same draws, rounded to single precision.
+    assert!(double != single, "the f32 run trained in f64");
+    assert!(
+        (double - single).abs() < 1e-4 * double,
+        "{double} vs {single}"
+    );
+    let report = std::fs::read_to_string(doc.with_extension("html")).unwrap();
+    assert!(report.contains("precision"), "the settings table names it");
+}
+
+#[test]
 fn one_job_and_two_jobs_give_identical_numbers() {
     let ws = Workspace::new();
     let doc = ws.write("sweep.md", SWEEP);

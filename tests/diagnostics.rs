@@ -78,6 +78,18 @@ fn a_wrong_type_points_at_its_line() {
 }
 
 #[test]
+fn an_unknown_precision_points_at_its_line_and_names_both() {
+    let (at, message, _) = one_problem(&format!(
+        "{DATA}```yaml train t\ndata: iris\nnet: n\nprecision: f16\n```\n"
+    ));
+    assert!(at.starts_with("13:"), "{at}");
+    assert!(
+        message.contains("f16") && message.contains("`f64` or `f32`"),
+        "{message}"
+    );
+}
+
+#[test]
 fn out_of_range_values_each_point_at_their_line() {
     let ws = Workspace::new();
     let text = "```yaml data iris\nfile: iris.csv\ntarget: species\nholdout: 1.0\n```\n\n```yaml net n\nhidden: [4, 0]\n```\n\n```yaml train t\ndata: iris\nnet: n\nlearning_rate: -0.1\nbatch: 0\n```\n";

@@ -26,6 +26,7 @@
 use ndarray::{ArrayView1, ArrayView2, ArrayViewMut2, Zip};
 use serde::{Deserialize, Serialize};
 
+use super::float::Float;
 use super::vector;
 
 /// Slope of [`Activation::LeakyRelu`] for negative inputs.
@@ -58,12 +59,13 @@ impl Activation {
     /// Replaces each pre-activation `z` in `z` (rows are samples) by `f(z)`.
     ///
     /// NaN inputs stay NaN so that a diverging run is noticed by its loss.
-    pub fn apply(self, mut z: ArrayViewMut2<f64>) {
+    pub fn apply<F: Float>(self, mut z: ArrayViewMut2<F>) {
         if let (Activation::Sigmoid, Some(values)) = (self, z.as_slice_memory_order_mut()) {
             vector::map(values, sigmoid);
             return;
         }
         let width = z.ncols();
+        let (zero, slope) = (F::zero(), F::round_from(LEAKY_SLOPE));
         if self == Activation::Softmax
             && let Some(values) = z.as_slice_mut()
         {
@@ -74,9 +76,9 @@ impl Activation {
             Activation::Sigmoid => z.map_inplace(|v| *v = sigmoid(*v)),
             Activation::Tanh => z.map_inplace(|v| *v = v.tanh()),
             // Written with `<` rather than `max` so that NaN propagates.
-            Activation::Relu => z.map_inplace(|v| *v = if *v < 0.0 { 0.0 } else { *v }),
+            Activation::Relu => z.map_inplace(|v| *v = if *v < zero { zero } else { *v }),
             Activation::LeakyRelu => {
-                z.map_inplace(|v| *v = if *v < 0.0 { LEAKY_SLOPE * *v } else { *v })
+                z.map_inplace(|v| *v = if *v < zero { slope * *v } else { *v })
             }
             Activation::Linear => {}
             Activation::Softmax => {
@@ -96,19 +98,20 @@ impl Activation {
 
     /// Turns `grad`, holding `∂L/∂a` for this layer's outputs `a`, into
     /// `∂L/∂z` in place (the chain rule through the activation).
-    pub fn backprop(self, a: ArrayView2<f64>, mut grad: ArrayViewMut2<f64>) {
+    pub fn backprop<F: Float>(self, a: ArrayView2<F>, mut grad: ArrayViewMut2<F>) {
         assert_eq!(a.dim(), grad.dim(), "activations and gradient shapes");
+        let (zero, one, slope) = (F::zero(), F::one(), F::round_from(LEAKY_SLOPE));
         if let (Some(a), Some(g)) = (a.as_slice(), grad.as_slice_mut())
             && self.valid_for_hidden()
         {
             // Contiguous buffers (as in training): one flat loop that the
             // compiler vectorises.
             match self {
-                Activation::Sigmoid => zip_slices(g, a, |g, a| *g *= a * (1.0 - a)),
-                Activation::Tanh => zip_slices(g, a, |g, a| *g *= 1.0 - a * a),
-                Activation::Relu => zip_slices(g, a, |g, a| *g = if a <= 0.0 { 0.0 } else { *g }),
+                Activation::Sigmoid => zip_slices(g, a, |g, a| *g *= a * (one - a)),
+                Activation::Tanh => zip_slices(g, a, |g, a| *g *= one - a * a),
+                Activation::Relu => zip_slices(g, a, |g, a| *g = if a <= zero { zero } else { *g }),
                 Activation::LeakyRelu => {
-                    zip_slices(g, a, |g, a| *g *= if a <= 0.0 { LEAKY_SLOPE } else { 1.0 })
+                    zip_slices(g, a, |g, a| *g *= if a <= zero { slope } else { one })
                 }
                 Activation::Linear | Activation::Softmax => {}
             }
@@ -116,16 +119,16 @@ impl Activation {
         }
         let zip = Zip::from(&mut grad).and(&a);
         match self {
-            Activation::Sigmoid => zip.for_each(|g, &a| *g *= a * (1.0 - a)),
-            Activation::Tanh => zip.for_each(|g, &a| *g *= 1.0 - a * a),
+            Activation::Sigmoid => zip.for_each(|g, &a| *g *= a * (one - a)),
+            Activation::Tanh => zip.for_each(|g, &a| *g *= one - a * a),
             Activation::Relu => zip.for_each(|g, &a| {
-                if a <= 0.0 {
-                    *g = 0.0;
+                if a <= zero {
+                    *g = zero;
                 }
             }),
             Activation::LeakyRelu => zip.for_each(|g, &a| {
-                if a <= 0.0 {
-                    *g *= LEAKY_SLOPE;
+                if a <= zero {
+                    *g *= slope;
                 }
             }),
             Activation::Linear => {}
@@ -143,7 +146,7 @@ impl Activation {
 
 /// `f(g[i], a[i])` for every `i`, inlined so that the loop vectorises.
 #[inline(always)]
-fn zip_slices(g: &mut [f64], a: &[f64], f: impl Fn(&mut f64, f64)) {
+fn zip_slices<F: Float>(g: &mut [F], a: &[F], f: impl Fn(&mut F, F)) {
     g.iter_mut().zip(a).for_each(|(g, &a)| f(g, a));
 }
 
@@ -155,18 +158,18 @@ fn zip_slices(g: &mut [f64], a: &[f64], f: impl Fn(&mut f64, f64)) {
 /// `z` in a batch is close to random, and a mispredicted branch per unit cost
 /// more than the arithmetic.
 #[inline]
-pub fn sigmoid(z: f64) -> f64 {
-    let e = vector::exp(-z.abs());
-    let numerator = if z >= 0.0 { 1.0 } else { e };
-    numerator / (1.0 + e)
+pub fn sigmoid<F: Float>(z: F) -> F {
+    let e = (-z.abs()).vector_exp();
+    let numerator = if z >= F::zero() { F::one() } else { e };
+    numerator / (F::one() + e)
 }
 
 /// Softmax of one row in place. Subtracting the row maximum first leaves the
 /// result unchanged mathematically and keeps `exp` from overflowing. The sum
 /// is ndarray's (eight-way unrolled for long rows).
-fn softmax_row(row: &mut [f64]) {
-    let max = row.iter().fold(f64::NEG_INFINITY, |m, &v| m.max(v));
-    row.iter_mut().for_each(|v| *v = vector::exp(*v - max));
+fn softmax_row<F: Float>(row: &mut [F]) {
+    let max = row.iter().fold(F::neg_infinity(), |m, &v| m.max(v));
+    row.iter_mut().for_each(|v| *v = (*v - max).vector_exp());
     let sum = ndarray_sum(row);
     row.iter_mut().for_each(|v| *v /= sum);
 }
@@ -174,15 +177,15 @@ fn softmax_row(row: &mut [f64]) {
 /// [`softmax_row`] on each row of a row-major buffer, with the exponentials
 /// taken over the whole buffer in one vectorised pass: rows of a few classes
 /// are too short to vectorise on their own.
-fn softmax_rows(values: &mut [f64], width: usize) {
+fn softmax_rows<F: Float>(values: &mut [F], width: usize) {
     if width == 0 {
         return;
     }
     for row in values.chunks_exact_mut(width) {
-        let max = row.iter().fold(f64::NEG_INFINITY, |m, &v| m.max(v));
+        let max = row.iter().fold(F::neg_infinity(), |m, &v| m.max(v));
         row.iter_mut().for_each(|v| *v -= max);
     }
-    vector::map(values, vector::exp);
+    vector::map(values, F::vector_exp);
     for row in values.chunks_exact_mut(width) {
         let sum = ndarray_sum(row);
         row.iter_mut().for_each(|v| *v /= sum);
@@ -193,13 +196,13 @@ fn softmax_rows(values: &mut [f64], width: usize) {
 /// eight-way unrolled fold, then the remainder in order), inlined because for
 /// rows of a few classes the call costs more than the additions.
 #[inline(always)]
-fn ndarray_sum(row: &[f64]) -> f64 {
-    let mut lanes = [0.0; 8];
+fn ndarray_sum<F: Float>(row: &[F]) -> F {
+    let mut lanes = [F::zero(); 8];
     let mut chunks = row.chunks_exact(8);
     for chunk in &mut chunks {
         lanes.iter_mut().zip(chunk).for_each(|(l, &v)| *l += v);
     }
-    let mut sum = 0.0;
+    let mut sum = F::zero();
     for i in 0..4 {
         sum += lanes[i] + lanes[i + 4];
     }

@@ -16,22 +16,22 @@
 
 use ndarray::{Array1, Array2, ArrayView2, s};
 
-use super::gemm::{self, gemm};
+use super::float::Float;
 use super::loss::Loss;
 use super::network::Network;
 
 /// The gradient of the loss with respect to one layer's parameters.
 #[derive(Clone, Debug, PartialEq)]
-pub struct LayerGradient {
+pub struct LayerGradient<F = f64> {
     /// `∂L/∂W`, shape `(inputs, outputs)` like the weights.
-    pub weights: Array2<f64>,
+    pub weights: Array2<F>,
     /// `∂L/∂b`.
-    pub biases: Array1<f64>,
+    pub biases: Array1<F>,
 }
 
-impl LayerGradient {
+impl<F: Float> LayerGradient<F> {
     /// Zeros shaped like each layer of `network`.
-    pub(crate) fn zeros_like(network: &Network) -> Vec<LayerGradient> {
+    pub(crate) fn zeros_like(network: &Network<F>) -> Vec<LayerGradient<F>> {
         network
             .layers
             .iter()
@@ -44,17 +44,18 @@ impl LayerGradient {
 }
 
 /// The gradient of the mean loss over the rows of `x` (targets `y`) with
-/// respect to each layer's weights and biases, without any L2 term.
+/// respect to each layer's weights and biases, without any L2 term, computed in
+/// the network's float type.
 ///
 /// # Panics
 /// If the shapes do not fit the network, `x` has no rows, or the loss does
 /// not [support](Loss::supports) the output activation.
-pub fn gradients(
-    network: &Network,
-    x: ArrayView2<f64>,
-    y: ArrayView2<f64>,
+pub fn gradients<F: Float>(
+    network: &Network<F>,
+    x: ArrayView2<F>,
+    y: ArrayView2<F>,
     loss: Loss,
-) -> Vec<LayerGradient> {
+) -> Vec<LayerGradient<F>> {
     assert!(x.nrows() > 0, "gradients need at least one row");
     assert_eq!(x.nrows(), y.nrows(), "inputs and targets: row counts");
     let mut workspace = Workspace::new(network, x.nrows());
@@ -66,19 +67,19 @@ pub fn gradients(
 /// Activations, deltas and gradients for batches of up to `capacity` rows.
 /// A shorter batch uses the leading rows of each buffer, which stay
 /// contiguous because the buffers are row-major.
-pub(crate) struct Workspace {
-    activations: Vec<Array2<f64>>,
-    deltas: Vec<Array2<f64>>,
-    pub(crate) gradients: Vec<LayerGradient>,
-    /// `W_lᵀ` in row-major order for the products `δ_l · W_lᵀ` that take the
-    /// direct kernel, which reads its right operand by rows; refreshed each
-    /// batch. Entry 0 is unused (no delta goes below the first layer).
-    transposed: Vec<Array2<f64>>,
+pub(crate) struct Workspace<F> {
+    activations: Vec<Array2<F>>,
+    deltas: Vec<Array2<F>>,
+    pub(crate) gradients: Vec<LayerGradient<F>>,
+    /// `W_lᵀ` in row-major order for the products `δ_l · W_lᵀ` that take a
+    /// kernel reading its right operand by rows; refreshed each batch. Entry 0
+    /// is unused (no delta goes below the first layer).
+    transposed: Vec<Array2<F>>,
 }
 
-impl Workspace {
-    pub(crate) fn new(network: &Network, capacity: usize) -> Workspace {
-        let buffers = || -> Vec<Array2<f64>> {
+impl<F: Float> Workspace<F> {
+    pub(crate) fn new(network: &Network<F>, capacity: usize) -> Workspace<F> {
+        let buffers = || -> Vec<Array2<F>> {
             network
                 .layers
                 .iter()
@@ -99,7 +100,7 @@ impl Workspace {
 
     /// Runs the forward pass on the batch `x` and returns the network's
     /// outputs for it.
-    pub(crate) fn forward(&mut self, network: &Network, x: ArrayView2<f64>) -> ArrayView2<'_, f64> {
+    pub(crate) fn forward(&mut self, network: &Network<F>, x: ArrayView2<F>) -> ArrayView2<'_, F> {
         let n = x.nrows();
         assert_eq!(x.ncols(), network.input_size(), "input columns");
         for (l, layer) in network.layers.iter().enumerate() {
@@ -117,9 +118,9 @@ impl Workspace {
     /// has just been run by [`Self::forward`].
     pub(crate) fn backward(
         &mut self,
-        network: &Network,
-        x: ArrayView2<f64>,
-        y: ArrayView2<f64>,
+        network: &Network<F>,
+        x: ArrayView2<F>,
+        y: ArrayView2<F>,
         loss: Loss,
     ) {
         let n = x.nrows();
@@ -139,18 +140,18 @@ impl Workspace {
                 self.activations[l - 1].slice(s![..n, ..])
             };
             let gradient = &mut self.gradients[l];
-            gemm(input.t(), delta, false, gradient.weights.view_mut());
+            F::gemm(input.t(), delta, false, gradient.weights.view_mut());
             sum_rows(delta, &mut gradient.biases);
             if l > 0 {
                 let mut below = lower[l - 1].slice_mut(s![..n, ..]);
                 let weights = &network.layers[l].weights;
                 let (inputs, outputs) = weights.dim();
-                if gemm::direct(n, outputs, inputs) {
+                if F::reads_rows(n, outputs, inputs) {
                     let transposed = &mut self.transposed[l];
                     transposed.assign(&weights.t());
-                    gemm(delta, transposed.view(), false, below.view_mut());
+                    F::gemm(delta, transposed.view(), false, below.view_mut());
                 } else {
-                    gemm(delta, weights.t(), false, below.view_mut());
+                    F::gemm(delta, weights.t(), false, below.view_mut());
                 }
                 network.layers[l - 1].activation.backprop(input, below);
             }
@@ -160,8 +161,8 @@ impl Workspace {
 
 /// `sums ← Σ_rows delta`, adding the rows in order (the same sums, bit for
 /// bit, as adding whole rows to a zero vector one after another).
-fn sum_rows(delta: ArrayView2<f64>, sums: &mut Array1<f64>) {
-    sums.fill(0.0);
+fn sum_rows<F: Float>(delta: ArrayView2<F>, sums: &mut Array1<F>) {
+    sums.fill(F::zero());
     let sums = sums
         .as_slice_mut()
         .expect("gradient vectors are contiguous");

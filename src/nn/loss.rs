@@ -27,6 +27,7 @@ use ndarray::{ArrayView2, ArrayViewMut2, Zip};
 use serde::{Deserialize, Serialize};
 
 use super::activation::Activation;
+use super::float::Float;
 
 /// Smallest probability used when evaluating a cross-entropy value.
 const PROBABILITY_CLIP: f64 = 1e-15;
@@ -54,15 +55,18 @@ impl Loss {
     }
 
     /// The loss summed over the rows of a batch (divide by the row count for
-    /// the mean). Rows are added in order, so the result is reproducible.
+    /// the mean). Rows are added in order, so the result is reproducible. It is
+    /// evaluated in `f64` whatever the float type of the outputs, so that the
+    /// probability clip (1e-15 is below `f32`'s resolution near 1) and the sums
+    /// keep their precision.
     ///
     /// # Panics
     /// If the shapes differ, or the combination is not [`supported`](Self::supports).
-    pub fn total(
+    pub fn total<F: Float>(
         self,
         output: Activation,
-        outputs: ArrayView2<f64>,
-        targets: ArrayView2<f64>,
+        outputs: ArrayView2<F>,
+        targets: ArrayView2<F>,
     ) -> f64 {
         self.check(output, outputs, targets);
         // A zero target contributes nothing to a categorical cross-entropy,
@@ -95,16 +99,16 @@ impl Loss {
     ///
     /// # Panics
     /// If the shapes differ, or the combination is not [`supported`](Self::supports).
-    pub fn output_delta(
+    pub fn output_delta<F: Float>(
         self,
         output: Activation,
-        outputs: ArrayView2<f64>,
-        targets: ArrayView2<f64>,
-        mut delta: ArrayViewMut2<f64>,
+        outputs: ArrayView2<F>,
+        targets: ArrayView2<F>,
+        mut delta: ArrayViewMut2<F>,
     ) {
         self.check(output, outputs, targets);
         assert_eq!(delta.dim(), outputs.dim(), "delta buffer shape");
-        let n = outputs.nrows() as f64;
+        let n = F::round_from(outputs.nrows() as f64);
         // Both losses start from (o − t)/n: it is ∂L/∂o for squared error and
         // the fused ∂L/∂z for cross-entropy after sigmoid or softmax.
         Zip::from(&mut delta)
@@ -120,7 +124,7 @@ impl Loss {
         }
     }
 
-    fn check(self, output: Activation, outputs: ArrayView2<f64>, targets: ArrayView2<f64>) {
+    fn check<F: Float>(self, output: Activation, outputs: ArrayView2<F>, targets: ArrayView2<F>) {
         assert!(
             self.supports(output),
             "{self:?} loss cannot follow a {output:?} output"
@@ -134,14 +138,15 @@ impl Loss {
 }
 
 /// `Σ_rows Σ_columns term(output, target)`, each row summed in order and
-/// the row sums added in order.
+/// the row sums added in order, every term in `f64`.
 #[inline(always)]
-fn sum_rows(
-    outputs: ArrayView2<f64>,
-    targets: ArrayView2<f64>,
+fn sum_rows<F: Float>(
+    outputs: ArrayView2<F>,
+    targets: ArrayView2<F>,
     term: impl Fn(f64, f64) -> f64,
 ) -> f64 {
-    let row_sum = |o: &[f64], t: &[f64]| o.iter().zip(t).map(|(&o, &t)| term(o, t)).sum::<f64>();
+    let term = |o: F, t: F| term(o.widen(), t.widen());
+    let row_sum = |o: &[F], t: &[F]| o.iter().zip(t).map(|(&o, &t)| term(o, t)).sum::<f64>();
     let width = outputs.ncols();
     // Row-major batches (the usual case) are read as plain slices, which
     // costs far less per element than ndarray's strided row iterators.

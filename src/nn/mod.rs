@@ -6,6 +6,7 @@
 //! gradients are averaged over the rows of a batch (as scikit-learn's MLP
 //! does). Each module's header states its formulas and their sources:
 //!
+//! * [`float`]: the float type training runs in (`f64`, or `f32` for speed);
 //! * [`activation`]: non-linearities and their derivatives;
 //! * [`loss`]: objectives and their output-layer gradients;
 //! * [`network`]: layers, initialisation and the forward pass;
@@ -43,6 +44,7 @@
 
 pub mod activation;
 pub mod backprop;
+pub mod float;
 mod gemm;
 pub mod loss;
 pub mod metrics;
@@ -54,6 +56,7 @@ mod vector;
 
 pub use activation::Activation;
 pub use backprop::{LayerGradient, gradients};
+pub use float::{Float, Precision};
 pub use loss::Loss;
 pub use metrics::{
     ClassificationMetrics, RegressionMetrics, classification_metrics, regression_metrics,
@@ -63,7 +66,7 @@ pub use optimizer::Optimizer;
 pub use rows::Rows;
 pub use train::{
     BatchSize, EpochLosses, Evaluation, StopReason, TrainConfig, TrainOutcome, evaluate, mean_loss,
-    train, train_rows, train_with_progress,
+    train, train_at, train_rows, train_with_progress,
 };
 
 /// ChaCha8 stream used for initial weights. Initialisation and shuffling use

@@ -30,7 +30,7 @@ use serde::{Deserialize, Serialize};
 use thiserror::Error;
 
 use super::activation::Activation;
-use super::gemm::gemm;
+use super::float::Float;
 
 /// How initial weights are drawn; see the module documentation.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Hash, Serialize, Deserialize)]
@@ -44,22 +44,24 @@ pub enum Init {
     Uniform,
 }
 
-/// One fully connected layer: `a_out = activation(a_in · weights + biases)`.
+/// One fully connected layer: `a_out = activation(a_in · weights + biases)`, in the
+/// float type `F` (`f64` but while an `f32` run trains).
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
-pub struct Layer {
+pub struct Layer<F = f64> {
     /// Shape `(inputs, outputs)`: `weights[[i, j]]` connects input `i` to unit `j`.
-    pub weights: Array2<f64>,
+    pub weights: Array2<F>,
     /// One bias per unit.
-    pub biases: Array1<f64>,
+    pub biases: Array1<F>,
     /// Applied after the affine map.
     pub activation: Activation,
 }
 
-/// A feed-forward network: layers applied in order.
+/// A feed-forward network: layers applied in order. Networks are built, stored and
+/// applied in `f64`; `Network<f32>` exists only while an `f32` run trains.
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
-pub struct Network {
+pub struct Network<F = f64> {
     /// From the input side to the output layer.
-    pub layers: Vec<Layer>,
+    pub layers: Vec<Layer<F>>,
 }
 
 /// Why a list of layers does not form a network.
@@ -106,7 +108,7 @@ pub enum NetworkError {
     },
 }
 
-impl Layer {
+impl<F: Float> Layer<F> {
     /// Number of inputs (rows of `weights`).
     pub fn inputs(&self) -> usize {
         self.weights.nrows()
@@ -119,7 +121,7 @@ impl Layer {
 
     /// Computes this layer's activations for `input` into `out`, which must
     /// have shape `(input.nrows(), self.outputs())`. Allocates nothing.
-    pub(crate) fn forward_into(&self, input: ArrayView2<f64>, mut out: ArrayViewMut2<f64>) {
+    pub(crate) fn forward_into(&self, input: ArrayView2<F>, mut out: ArrayViewMut2<F>) {
         // Bias first, then `out ← input · W + out` accumulates the product
         // onto it in one pass, with no temporary matrix.
         match (out.as_slice_mut(), self.biases.as_slice()) {
@@ -130,7 +132,7 @@ impl Layer {
                 .for_each(|row| row.copy_from_slice(biases)),
             _ => out.assign(&self.biases),
         }
-        gemm(input, self.weights.view(), true, out.view_mut());
+        F::gemm(input, self.weights.view(), true, out.view_mut());
         self.activation.apply(out);
     }
 }
@@ -239,6 +241,25 @@ impl Network {
         }
         Ok(Network { layers })
     }
+}
+
+impl<F: Float> Network<F> {
+    /// The same network in the float type `G`: each value rounded to the nearest
+    /// (exact when `G` is at least as wide as `F`).
+    pub fn to_precision<G: Float>(&self) -> Network<G> {
+        let convert = |v: &F| G::round_from(v.widen());
+        Network {
+            layers: self
+                .layers
+                .iter()
+                .map(|l| Layer {
+                    weights: l.weights.map(convert),
+                    biases: l.biases.map(convert),
+                    activation: l.activation,
+                })
+                .collect(),
+        }
+    }
 
     /// Number of input features.
     pub fn input_size(&self) -> usize {
@@ -254,10 +275,10 @@ impl Network {
     ///
     /// # Panics
     /// If `x` does not have [`input_size`](Self::input_size) columns.
-    pub fn predict(&self, x: ArrayView2<f64>) -> Array2<f64> {
+    pub fn predict(&self, x: ArrayView2<F>) -> Array2<F> {
         assert_eq!(x.ncols(), self.input_size(), "input columns");
         let n = x.nrows();
-        let mut current: Option<Array2<f64>> = None;
+        let mut current: Option<Array2<F>> = None;
         for layer in &self.layers {
             let mut out = Array2::zeros((n, layer.outputs()));
             let input = current.as_ref().map_or(x, |a| a.view());

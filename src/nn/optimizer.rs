@@ -15,6 +15,7 @@ use ndarray::{ArrayRef, Dimension, Zip};
 use serde::{Deserialize, Serialize};
 
 use super::backprop::LayerGradient;
+use super::float::Float;
 use super::network::Network;
 
 /// The update rule and its hyper-parameters.
@@ -44,19 +45,21 @@ pub enum Optimizer {
 }
 
 /// An optimiser's running state for one network: allocated once, updated in
-/// place at every step.
-pub(crate) struct OptimizerState {
+/// place at every step, in the network's float type (hyper-parameters rounded
+/// to it).
+pub(crate) struct OptimizerState<F> {
     rule: Optimizer,
     /// Velocity (SGD) or first moment (Adam), shaped like the parameters.
-    first: Vec<LayerGradient>,
+    first: Vec<LayerGradient<F>>,
     /// Second moment (Adam only; empty for SGD).
-    second: Vec<LayerGradient>,
-    /// `β₁ᵗ` and `β₂ᵗ` for Adam's bias correction, kept as running products.
+    second: Vec<LayerGradient<F>>,
+    /// `β₁ᵗ` and `β₂ᵗ` for Adam's bias correction, kept as running products in
+    /// `f64` whatever `F` is.
     beta_powers: (f64, f64),
 }
 
-impl OptimizerState {
-    pub(crate) fn new(rule: &Optimizer, network: &Network) -> OptimizerState {
+impl<F: Float> OptimizerState<F> {
+    pub(crate) fn new(rule: &Optimizer, network: &Network<F>) -> OptimizerState<F> {
         let second = match rule {
             Optimizer::Sgd { .. } => Vec::new(),
             Optimizer::Adam { .. } => LayerGradient::zeros_like(network),
@@ -72,8 +75,8 @@ impl OptimizerState {
     /// Applies one update to `network` from `gradients` (one per layer).
     pub(crate) fn step(
         &mut self,
-        network: &mut Network,
-        gradients: &[LayerGradient],
+        network: &mut Network<F>,
+        gradients: &[LayerGradient<F>],
         update_biases: bool,
     ) {
         match self.rule {
@@ -81,6 +84,8 @@ impl OptimizerState {
                 learning_rate,
                 momentum,
             } => {
+                let (learning_rate, momentum) =
+                    (F::round_from(learning_rate), F::round_from(momentum));
                 for ((layer, g), v) in network
                     .layers
                     .iter_mut()
@@ -114,12 +119,12 @@ impl OptimizerState {
                 self.beta_powers.0 *= beta1;
                 self.beta_powers.1 *= beta2;
                 let adam = Adam {
-                    learning_rate,
-                    beta1,
-                    beta2,
-                    epsilon,
-                    correction1: 1.0 - self.beta_powers.0,
-                    correction2: 1.0 - self.beta_powers.1,
+                    learning_rate: F::round_from(learning_rate),
+                    beta1: F::round_from(beta1),
+                    beta2: F::round_from(beta2),
+                    epsilon: F::round_from(epsilon),
+                    correction1: F::round_from(1.0 - self.beta_powers.0),
+                    correction2: F::round_from(1.0 - self.beta_powers.1),
                 };
                 let layers = network.layers.iter_mut().zip(gradients);
                 for ((layer, g), (m, v)) in layers.zip(self.first.iter_mut().zip(&mut self.second))
@@ -139,12 +144,12 @@ impl OptimizerState {
     }
 }
 
-fn sgd<D: Dimension>(
-    w: &mut ArrayRef<f64, D>,
-    g: &ArrayRef<f64, D>,
-    v: &mut ArrayRef<f64, D>,
-    learning_rate: f64,
-    momentum: f64,
+fn sgd<F: Float, D: Dimension>(
+    w: &mut ArrayRef<F, D>,
+    g: &ArrayRef<F, D>,
+    v: &mut ArrayRef<F, D>,
+    learning_rate: F,
+    momentum: F,
 ) {
     Zip::from(w).and(g).and(v).for_each(|w, &g, v| {
         *v = momentum * *v - learning_rate * g;
@@ -153,28 +158,28 @@ fn sgd<D: Dimension>(
 }
 
 /// Adam's constants for one step.
-struct Adam {
-    learning_rate: f64,
-    beta1: f64,
-    beta2: f64,
-    epsilon: f64,
+struct Adam<F> {
+    learning_rate: F,
+    beta1: F,
+    beta2: F,
+    epsilon: F,
     /// `1 − β₁ᵗ`.
-    correction1: f64,
+    correction1: F,
     /// `1 − β₂ᵗ`.
-    correction2: f64,
+    correction2: F,
 }
 
-impl Adam {
+impl<F: Float> Adam<F> {
     fn update<D: Dimension>(
         &self,
-        w: &mut ArrayRef<f64, D>,
-        g: &ArrayRef<f64, D>,
-        m: &mut ArrayRef<f64, D>,
-        v: &mut ArrayRef<f64, D>,
+        w: &mut ArrayRef<F, D>,
+        g: &ArrayRef<F, D>,
+        m: &mut ArrayRef<F, D>,
+        v: &mut ArrayRef<F, D>,
     ) {
         Zip::from(w).and(g).and(m).and(v).for_each(|w, &g, m, v| {
-            *m = self.beta1 * *m + (1.0 - self.beta1) * g;
-            *v = self.beta2 * *v + (1.0 - self.beta2) * g * g;
+            *m = self.beta1 * *m + (F::one() - self.beta1) * g;
+            *v = self.beta2 * *v + (F::one() - self.beta2) * g * g;
             let m_hat = *m / self.correction1;
             let v_hat = *v / self.correction2;
             *w -= self.learning_rate * m_hat / (v_hat.sqrt() + self.epsilon);

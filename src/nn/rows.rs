@@ -12,6 +12,7 @@
 
 use ndarray::{Array2, ArrayView2, ArrayViewMut2, s};
 
+use super::float::Float;
 use super::network::Network;
 
 /// Rows predicted at a time by [`Rows::predict`]: enough to keep the matrix
@@ -115,23 +116,30 @@ impl<'a> Rows<'a> {
     }
 
     /// Copies the rows at positions `order` (indices into these rows) into
-    /// the leading rows of `x_out` and `y_out`, inputs scaled.
-    pub(crate) fn gather(
+    /// the leading rows of `x_out` and `y_out`, inputs scaled (in `f64`), then
+    /// rounded to the float type of the buffers: a run in `f32` converts its
+    /// data here, a batch at a time.
+    pub(crate) fn gather<F: Float>(
         &self,
         order: impl Iterator<Item = usize>,
-        mut x_out: ArrayViewMut2<f64>,
-        mut y_out: ArrayViewMut2<f64>,
+        mut x_out: ArrayViewMut2<F>,
+        mut y_out: ArrayViewMut2<F>,
     ) {
         for (i, position) in order.enumerate() {
             let row = self.pick.map_or(position, |pick| pick[position]);
             let mut x_row = x_out.row_mut(i);
-            x_row.assign(&self.x.row(row));
-            if let Some((offset, divisor)) = self.scaling {
-                for ((v, &o), &d) in x_row.iter_mut().zip(offset).zip(divisor) {
-                    *v = (*v - o) / d;
+            match self.scaling {
+                Some((offset, divisor)) => {
+                    let from = self.x.row(row);
+                    for (((v, &x), &o), &d) in x_row.iter_mut().zip(from).zip(offset).zip(divisor) {
+                        *v = F::round_from((x - o) / d);
+                    }
                 }
+                None => x_row.zip_mut_with(&self.x.row(row), |v, &x| *v = F::round_from(x)),
             }
-            y_out.row_mut(i).assign(&self.y.row(row));
+            y_out
+                .row_mut(i)
+                .zip_mut_with(&self.y.row(row), |v, &y| *v = F::round_from(y));
         }
     }
 

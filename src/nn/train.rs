@@ -48,6 +48,7 @@ use rand_chacha::ChaCha8Rng;
 use serde::{Deserialize, Serialize};
 
 use super::backprop::Workspace;
+use super::float::{Float, Precision};
 use super::loss::Loss;
 use super::network::Network;
 use super::optimizer::{Optimizer, OptimizerState};
@@ -193,11 +194,43 @@ pub fn train_with_progress(
     rows: Rows,
     validation: Option<Rows>,
     config: &TrainConfig,
-    mut on_epoch: impl FnMut(usize, &EpochLosses),
+    on_epoch: impl FnMut(usize, &EpochLosses),
+) -> TrainOutcome {
+    train_at(Precision::F64, network, rows, validation, config, on_epoch)
+}
+
+/// [`train_with_progress`] with its arithmetic in the float type `precision`
+/// names. Data and networks stay `f64` outside: the network is rounded to that
+/// type at the start, each batch as it is formed, and the trained network is
+/// converted back (exactly). Losses are summed in `f64`; the validation loss is
+/// that of the network converted back, i.e. of the network a run stores.
+///
+/// # Panics
+/// As [`train`].
+pub fn train_at(
+    precision: Precision,
+    network: Network,
+    rows: Rows,
+    validation: Option<Rows>,
+    config: &TrainConfig,
+    on_epoch: impl FnMut(usize, &EpochLosses),
 ) -> TrainOutcome {
     // Re-validate: the fields are public, so the network may not have been
     // built through `from_layers`.
-    let mut network = Network::from_layers(network.layers);
+    let network = Network::from_layers(network.layers);
+    match precision {
+        Precision::F64 => train_in::<f64>(network, rows, validation, config, on_epoch),
+        Precision::F32 => train_in::<f32>(network, rows, validation, config, on_epoch),
+    }
+}
+
+fn train_in<F: Float>(
+    network: Network,
+    rows: Rows,
+    validation: Option<Rows>,
+    config: &TrainConfig,
+    mut on_epoch: impl FnMut(usize, &EpochLosses),
+) -> TrainOutcome {
     let n = rows.len();
     check_data(&network, &rows, "training");
     if let Some(v) = &validation {
@@ -217,13 +250,15 @@ pub fn train_with_progress(
         BatchSize::Full => n,
     };
     let shuffling = config.shuffle && batch < n;
+    let mut network = network.to_precision::<F>();
+    let l2 = F::round_from(config.l2);
 
     let mut workspace = Workspace::new(&network, batch);
     let mut optimizer = OptimizerState::new(&config.optimizer, &network);
     let mut rng = ChaCha8Rng::seed_from_u64(config.seed);
     rng.set_stream(super::SHUFFLE_STREAM);
     let mut order: Vec<usize> = (0..n).collect();
-    let mut batches = Batches::new(rows, batch, shuffling);
+    let mut batches = Batches::<F>::new(rows, batch, shuffling);
     let mut history = Vec::with_capacity(config.epochs);
     let mut monitor = config.patience.map(Monitor::new);
 
@@ -248,7 +283,7 @@ pub fn train_with_progress(
                 for (g, layer) in workspace.gradients.iter_mut().zip(&network.layers) {
                     Zip::from(&mut g.weights)
                         .and(&layer.weights)
-                        .for_each(|g, &w| *g += config.l2 * w);
+                        .for_each(|g, &w| *g += l2 * w);
                 }
             }
             optimizer.step(&mut network, &workspace.gradients, config.update_biases);
@@ -257,7 +292,7 @@ pub fn train_with_progress(
         let train_loss = total / n as f64;
         let validation_loss = validation
             .as_ref()
-            .map(|v| evaluate(&network, v, config.loss).mean_loss);
+            .map(|v| evaluate(&network.to_precision(), v, config.loss).mean_loss);
         // Finite batch losses can still add up to infinity.
         if !train_loss.is_finite() || validation_loss.is_some_and(|v| !v.is_finite()) {
             return stopped(network, history, StopReason::Diverged, epoch, monitor);
@@ -344,21 +379,22 @@ fn check_data(network: &Network, rows: &Rows, what: &str) {
     );
 }
 
-/// Hands out the training batches: views of the data where rows are read
-/// in order and unscaled, otherwise rows gathered into reused buffers. A
-/// single in-order batch is gathered once, not every epoch.
-struct Batches<'a> {
+/// Hands out the training batches in the engine's float type `F`: views of
+/// the data where rows are read in order, unscaled and already `f64`,
+/// otherwise rows gathered (and rounded to `F`) into reused buffers. A single
+/// in-order batch is gathered once, not every epoch.
+struct Batches<'a, F> {
     rows: Rows<'a>,
     shuffling: bool,
-    x: Array2<f64>,
-    y: Array2<f64>,
+    x: Array2<F>,
+    y: Array2<F>,
     /// The buffers hold the one in-order batch already.
     filled: bool,
 }
 
-impl<'a> Batches<'a> {
-    fn new(rows: Rows<'a>, batch: usize, shuffling: bool) -> Batches<'a> {
-        let gathers = shuffling || rows.in_place(0, 0).is_none();
+impl<'a, F: Float> Batches<'a, F> {
+    fn new(rows: Rows<'a>, batch: usize, shuffling: bool) -> Batches<'a, F> {
+        let gathers = shuffling || Self::in_place(&rows, 0, 0).is_none();
         let shape = |columns| if gathers { (batch, columns) } else { (0, 0) };
         Batches {
             rows,
@@ -369,15 +405,26 @@ impl<'a> Batches<'a> {
         }
     }
 
+    /// Rows `start..end` as views of the data, when they can be read in place
+    /// in this float type.
+    fn in_place(
+        rows: &Rows<'a>,
+        start: usize,
+        end: usize,
+    ) -> Option<(ArrayView2<'a, F>, ArrayView2<'a, F>)> {
+        let (x, y) = rows.in_place(start, end)?;
+        F::view(x).zip(F::view(y))
+    }
+
     /// Rows `start..end` of the epoch's `order` (positions in `rows`).
     fn get(
         &mut self,
         order: &[usize],
         start: usize,
         end: usize,
-    ) -> (ArrayView2<'_, f64>, ArrayView2<'_, f64>) {
+    ) -> (ArrayView2<'_, F>, ArrayView2<'_, F>) {
         if !self.shuffling
-            && let Some(views) = self.rows.in_place(start, end)
+            && let Some(views) = Self::in_place(&self.rows, start, end)
         {
             return views;
         }
@@ -396,16 +443,16 @@ impl<'a> Batches<'a> {
 }
 
 /// Early-stopping bookkeeping for `patience`.
-struct Monitor {
+struct Monitor<F> {
     patience: usize,
     best: f64,
     best_epoch: Option<usize>,
-    best_network: Option<Network>,
+    best_network: Option<Network<F>>,
     stale: usize,
 }
 
-impl Monitor {
-    fn new(patience: usize) -> Monitor {
+impl<F: Float> Monitor<F> {
+    fn new(patience: usize) -> Monitor<F> {
         Monitor {
             patience,
             best: f64::INFINITY,
@@ -416,7 +463,7 @@ impl Monitor {
     }
 
     /// Records an epoch's monitored loss; true when it is time to stop.
-    fn observe(&mut self, epoch: usize, value: f64, network: &Network) -> bool {
+    fn observe(&mut self, epoch: usize, value: f64, network: &Network<F>) -> bool {
         if value < self.best {
             self.best = value;
             self.best_epoch = Some(epoch);
@@ -430,15 +477,16 @@ impl Monitor {
     }
 }
 
-fn stopped(
-    network: Network,
+/// The outcome, with the network converted back to `f64`.
+fn stopped<F: Float>(
+    network: Network<F>,
     history: Vec<EpochLosses>,
     stop: StopReason,
     epochs_run: usize,
-    monitor: Option<Monitor>,
+    monitor: Option<Monitor<F>>,
 ) -> TrainOutcome {
     TrainOutcome {
-        network,
+        network: network.to_precision(),
         history,
         stop,
         epochs_run,
@@ -780,6 +828,64 @@ mod tests {
             .collect();
         assert_eq!(seen, expected);
         assert_eq!(seen.len(), 6);
+    }
+
+    /// Every weight of an `f32` run is an `f32` value widened.
+    fn all_single(network: &Network) -> bool {
+        network.layers.iter().all(|l| {
+            l.weights
+                .iter()
+                .chain(&l.biases)
+                .all(|&v| f64::from(v as f32) == v)
+        })
+    }
+
+    #[test]
+    fn an_f32_run_starts_from_the_rounded_draws() {
+        let (x, y) = data();
+        let net = small_net(12);
+        let still = train_at(
+            Precision::F32,
+            net.clone(),
+            Rows::all(x.view(), y.view()),
+            None,
+            &config(sgd(0.0, 0.0), BatchSize::Rows(3), 1),
+            |_, _| {},
+        );
+        assert_eq!(still.network, net.to_precision::<f32>().to_precision());
+        assert_ne!(still.network, net, "Xavier draws use all 53 bits");
+    }
+
+    #[test]
+    fn an_f32_run_trains_in_single_precision_along_the_f64_path() {
+        let (x, y) = data();
+        let mut cfg = config(sgd(0.1, 0.9), BatchSize::Rows(3), 50);
+        cfg.shuffle = true;
+        let validation = Some((x.view(), y.view()));
+        let double = train(small_net(13), x.view(), y.view(), validation, &cfg);
+        let rows = Rows::all(x.view(), y.view());
+        let single = train_at(
+            Precision::F32,
+            small_net(13),
+            rows,
+            Some(rows),
+            &cfg,
+            |_, _| {},
+        );
+        assert!(all_single(&single.network));
+        assert!(!all_single(&double.network));
+        let (a, b) = (single.history[49], double.history[49]);
+        assert!(
+            b.train < 0.5 * double.history[0].train,
+            "the run should learn"
+        );
+        // Rounding at 6e-8 per operation, amplified a little by 150 updates.
+        assert!((a.train - b.train).abs() < 1e-4 * b.train, "{a:?} vs {b:?}");
+        // The validation loss is that of the stored (widened) network.
+        assert_eq!(
+            a.validation,
+            Some(mean_loss(&single.network, x.view(), y.view(), Loss::Mse))
+        );
     }
 
     #[test]

@@ -56,7 +56,7 @@ pub fn exp(x: f64) -> f64 {
 /// the processor has it. `f` must be pure arithmetic for that to pay; the
 /// results do not depend on which path runs.
 #[inline]
-pub fn map(values: &mut [f64], f: impl Fn(f64) -> f64) {
+pub fn map<F: Copy>(values: &mut [F], f: impl Fn(F) -> F) {
     #[cfg(target_arch = "x86_64")]
     if std::arch::is_x86_feature_detected!("avx2") {
         // SAFETY: AVX2 was detected.
@@ -68,7 +68,7 @@ pub fn map(values: &mut [f64], f: impl Fn(f64) -> f64) {
 
 #[cfg(target_arch = "x86_64")]
 #[target_feature(enable = "avx2")]
-fn map_avx2(values: &mut [f64], f: impl Fn(f64) -> f64) {
+fn map_avx2<F: Copy>(values: &mut [F], f: impl Fn(F) -> F) {
     values.iter_mut().for_each(|v| *v = f(*v));
 }
 

@@ -110,6 +110,7 @@ pub fn rows(spec: &StepSpec, yaml: &str) -> Vec<SettingRow> {
             rows.push(row("l2", train.l2.to_string()));
             rows.push(row("shuffle", train.shuffle.to_string()));
             rows.push(row("seed", train.seed.to_string()));
+            rows.push(row("precision", word(&train.precision)));
             rows
         }
         StepSpec::Sweep(sweep) => {

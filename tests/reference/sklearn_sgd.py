@@ -6,8 +6,14 @@ CASES.json holds a list of cases, each with the data ("x", "y"), the initial
 weights ("coefs": one (inputs, outputs) matrix per layer, "intercepts"), the
 model ("kind": "regressor", "binary", "multilabel" or "multiclass";
 "hidden_layer_sizes"; "activation": a scikit-learn hidden activation name),
-the optimiser ("solver": "sgd" or "adam" with its settings), "batch_size" and
-"epochs". RESULTS.json receives, per case, the weights after the epochs.
+the optimiser ("solver": "sgd" or "adam" with its settings), "batch_size",
+"epochs" and "float32" (train in single precision). RESULTS.json receives, per
+case, the weights after the epochs.
+
+Single precision: given float32 inputs, MLPClassifier allocates its weights in
+the inputs' type and, its targets being booleans, keeps every product and
+update in float32 (scikit-learn 1.9.1; `run` checks the weights' type after
+training). The initial weights are rounded to float32 as they are copied in.
 
 How the weights are fixed: one `partial_fit` call builds the model (and its
 shapes), the initial weights are then copied into `coefs_` and `intercepts_`
@@ -67,7 +73,8 @@ def targets(case):
 
 
 def run(case):
-    x = np.array(case["x"], dtype=np.float64)
+    dtype = np.float32 if case["float32"] else np.float64
+    x = np.array(case["x"], dtype=dtype)
     y, classes = targets(case)
     model = build(case)
 
@@ -93,8 +100,12 @@ def run(case):
     expected_output = {"regressor": "identity", "binary": "logistic", "multilabel": "logistic", "multiclass": "softmax"}
     if model.out_activation_ != expected_output[case["kind"]]:
         raise ValueError(f"{case['name']}: output activation is {model.out_activation_}")
+    types = {p.dtype for p in model.coefs_ + model.intercepts_}
+    if types != {np.dtype(dtype)}:
+        raise ValueError(f"{case['name']}: trained in {types}, not {np.dtype(dtype)}")
     return {
         "name": case["name"],
+        "float32": case["float32"],
         "out_activation": model.out_activation_,
         "coefs": [c.tolist() for c in model.coefs_],
         "intercepts": [b.tolist() for b in model.intercepts_],

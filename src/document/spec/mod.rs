@@ -13,7 +13,7 @@ use super::StepBlock;
 use super::problem::Problem;
 use super::yaml::{self, Block};
 use crate::data::{DataSettings, Missing, Scale, Split, Task};
-use crate::nn::{Activation, BatchSize, Init, Optimizer};
+use crate::nn::{Activation, BatchSize, Init, Optimizer, Precision};
 pub use compare::{ChartChoice, CompareSpec};
 pub use model_use::{ExportSpec, PredictSpec};
 pub use sweep::{MetricName, SweepSpec};
@@ -132,6 +132,10 @@ pub struct TrainSpec {
     pub l2: f64,
     pub shuffle: bool,
     pub seed: u64,
+    /// Left out of the serialisation (and so of cache keys) at its default, `f64`, so
+    /// that the keys of runs written before the setting existed stay valid.
+    #[serde(skip_serializing_if = "Precision::is_f64")]
+    pub precision: Precision,
 }
 
 fn reference<'a>(id: &'a str, setting: &'static str, kinds: &'static [StepKind]) -> Reference<'a> {
@@ -226,6 +230,7 @@ pub(crate) struct RawTrain {
     l2: Option<f64>,
     shuffle: Option<bool>,
     seed: Option<u64>,
+    precision: Option<Precision>,
 }
 pub(crate) const TRAIN_KEYS: &[&str] = &[
     "data",
@@ -241,6 +246,7 @@ pub(crate) const TRAIN_KEYS: &[&str] = &[
     "l2",
     "shuffle",
     "seed",
+    "precision",
 ];
 
 /// `batch` is a row count or the word `full`.
@@ -507,5 +513,6 @@ pub(crate) fn validate_train(
         l2,
         shuffle: raw.shuffle.unwrap_or(true),
         seed: raw.seed.unwrap_or(default_seed),
+        precision: raw.precision.unwrap_or_default(),
     }
 }
