@@ -162,16 +162,53 @@ impl<F: Float> Workspace<F> {
 /// `sums ← Σ_rows delta`, adding the rows in order (the same sums, bit for
 /// bit, as adding whole rows to a zero vector one after another).
 fn sum_rows<F: Float>(delta: ArrayView2<F>, sums: &mut Array1<F>) {
-    sums.fill(F::zero());
     let sums = sums
         .as_slice_mut()
         .expect("gradient vectors are contiguous");
+    let width = delta.ncols();
+    if let Some(values) = delta.as_slice()
+        && width > 0
+    {
+        // A group of columns at a time, its running sums held in registers:
+        // adding each row into `sums` in memory would make every addition
+        // wait for the store of the one before.
+        for (group, out) in sums.chunks_mut(SUM_GROUP).enumerate() {
+            let start = group * SUM_GROUP;
+            match out.len() {
+                1 => column_sums::<F, 1>(values, width, start, out),
+                2 => column_sums::<F, 2>(values, width, start, out),
+                3 => column_sums::<F, 3>(values, width, start, out),
+                4 => column_sums::<F, 4>(values, width, start, out),
+                5 => column_sums::<F, 5>(values, width, start, out),
+                6 => column_sums::<F, 6>(values, width, start, out),
+                7 => column_sums::<F, 7>(values, width, start, out),
+                _ => column_sums::<F, SUM_GROUP>(values, width, start, out),
+            }
+        }
+        return;
+    }
+    sums.fill(F::zero());
     for row in delta.rows() {
-        match row.as_slice() {
-            Some(row) => sums.iter_mut().zip(row).for_each(|(s, &d)| *s += d),
-            None => sums.iter_mut().zip(row).for_each(|(s, &d)| *s += d),
+        sums.iter_mut().zip(row).for_each(|(s, &d)| *s += d);
+    }
+}
+
+/// Columns summed together by [`sum_rows`].
+const SUM_GROUP: usize = 8;
+
+/// `out[q] ← Σ_rows values[row · width + start + q]` for `q < W`, rows in order.
+#[inline(always)]
+fn column_sums<F: Float, const W: usize>(values: &[F], width: usize, start: usize, out: &mut [F]) {
+    let mut acc = [F::zero(); W];
+    for row in values.chunks_exact(width) {
+        let columns: &[F; W] = row[start..start + W]
+            .try_into()
+            .expect("a group lies inside a row");
+        for (a, &d) in acc.iter_mut().zip(columns) {
+            *a += d;
         }
     }
+    out.copy_from_slice(&acc);
 }
 
 #[cfg(test)]
@@ -179,6 +216,31 @@ mod tests {
     use super::*;
     use crate::nn::{Activation, Layer};
     use ndarray::array;
+
+    /// Column sums by groups equal adding whole rows one after another, bit
+    /// for bit, for every width around the group size and a strided view.
+    #[test]
+    fn bias_sums_match_row_by_row_addition() {
+        for width in 1..=19 {
+            let delta = Array2::from_shape_fn((37, width), |(i, j)| {
+                ((i * 31 + j * 17) % 23) as f64 * 0.1371 - 1.3 + 1e-9 * (i as f64)
+            });
+            let mut expected = Array1::zeros(width);
+            for row in delta.rows() {
+                expected += &row;
+            }
+            let mut sums = Array1::from_elem(width, 7.0);
+            sum_rows(delta.view(), &mut sums);
+            assert_eq!(sums, expected, "width {width}");
+            let mut strided = Array1::zeros(width);
+            sum_rows(delta.slice(s![..;2, ..]), &mut strided);
+            let mut every_other = Array1::zeros(width);
+            for row in delta.slice(s![..;2, ..]).rows() {
+                every_other += &row;
+            }
+            assert_eq!(strided, every_other, "width {width}, strided");
+        }
+    }
 
     /// One linear unit with squared error: ∂L/∂w = (1/n) Σ (o − t) x and
     /// ∂L/∂b = (1/n) Σ (o − t), worked by hand.
