@@ -125,15 +125,25 @@ impl<F: Float> Layer<F> {
         // Bias first, then `out ← input · W + out` accumulates the product
         // onto it in one pass, with no temporary matrix.
         match (out.as_slice_mut(), self.biases.as_slice()) {
-            // Row by row from the slice: ndarray's broadcasting assignment
-            // costs more than the copy itself for narrow layers.
-            (Some(values), Some(biases)) if !biases.is_empty() => values
-                .chunks_exact_mut(biases.len())
-                .for_each(|row| row.copy_from_slice(biases)),
+            (Some(values), Some(biases)) if !values.is_empty() => fill_rows(values, biases),
             _ => out.assign(&self.biases),
         }
         F::gemm(input, self.weights.view(), true, out.view_mut());
         self.activation.apply(out);
+    }
+}
+
+/// Every row of the row-major `values` set to `row`, by doubling the filled
+/// part: a few long copies instead of one short copy per row, which for narrow
+/// layers costs more in calls than in bytes (and ndarray's broadcasting
+/// assignment more still).
+fn fill_rows<F: Copy>(values: &mut [F], row: &[F]) {
+    values[..row.len()].copy_from_slice(row);
+    let mut filled = row.len();
+    while filled < values.len() {
+        let copy = filled.min(values.len() - filled);
+        values.copy_within(..copy, filled);
+        filled += copy;
     }
 }
 
@@ -329,6 +339,18 @@ mod tests {
             .iter()
             .flat_map(|l| l.weights.iter().copied())
             .collect()
+    }
+
+    #[test]
+    fn fill_rows_sets_every_row() {
+        for rows in [1, 2, 3, 5, 8, 150] {
+            for width in [1, 3, 8] {
+                let row: Vec<usize> = (0..width).map(|j| j * 10 + 1).collect();
+                let mut values = vec![0; rows * width];
+                fill_rows(&mut values, &row);
+                assert_eq!(values, row.repeat(rows), "{rows} x {width}");
+            }
+        }
     }
 
     #[test]
