@@ -1,22 +1,26 @@
 //! Matrix products for the engine: `C ← A·B` or `C ← A·B + C`.
 //!
-//! Large products go to `matrixmultiply` (through ndarray's
-//! `general_mat_mul`), which packs its operands into cache-sized panels and
-//! splits the work over threads. For the small products of small networks
-//! (Iris-sized layers, short batches) that packing, its allocation and the
-//! masked edge kernels cost more than the arithmetic, so those are computed
-//! here directly from the row-major buffers.
+//! For the small products of small networks (Iris-sized layers, short
+//! batches) packing the operands, its allocation and masked edge kernels cost
+//! more than the arithmetic, so those are computed here directly from the
+//! row-major buffers. Large products are packed into cache-sized panels: on
+//! processors with AVX-512 by the kernel in [`packed`], elsewhere by
+//! `matrixmultiply` (through ndarray's `general_mat_mul`), whose kernel uses
+//! AVX2 at most.
 //!
-//! Both paths give the same bits. `matrixmultiply`'s FMA kernel, which it
+//! All paths give the same bits. `matrixmultiply`'s FMA kernel, which it
 //! selects at run time on processors with AVX2 and FMA, forms each entry of
 //! `A·B` as one fused multiply–add chain over `k` in order, starting from
 //! zero, in blocks of [`KC`] values of `k`, and then adds the block to `C`
 //! (`C ← ab + C`, or `C ← ab + 0` for the first block without accumulation).
-//! The kernel here does exactly that, only with no packing; where the
+//! The kernels here do exactly that; where the
 //! processor lacks AVX2 or FMA, `matrixmultiply` uses other kernels with other
 //! rounding, so every product goes to it and nothing changes there.
 
 use ndarray::{ArrayView2, ArrayViewMut2, linalg::general_mat_mul};
+
+#[cfg(target_arch = "x86_64")]
+mod packed;
 
 /// `matrixmultiply`'s block depth along `k` for `f64` (its `D_KC`).
 const KC: usize = 256;
@@ -73,6 +77,11 @@ pub(crate) fn gemm(
         // the kernel forms (`i·rsa + p·csa`, `p·ldb + j`, `i·ldc + j` for
         // `i < m`, `p < k`, `j < n`) lies inside the viewed memory.
         unsafe { x86::direct(&shape, a.as_ptr(), b.as_ptr(), c.as_mut_ptr()) };
+        return;
+    }
+    #[cfg(target_arch = "x86_64")]
+    if m * n * k > DIRECT_MAX_WORK && c.strides()[1] == 1 && packed::available() {
+        packed::gemm(a, b, accumulate, c);
         return;
     }
     let beta = if accumulate { 1.0 } else { 0.0 };
@@ -271,8 +280,64 @@ mod tests {
         })
     }
 
+    /// matrixmultiply's result for `start`, or `0` when not accumulating.
+    fn theirs(
+        a: ArrayView2<f64>,
+        b: ArrayView2<f64>,
+        accumulate: bool,
+        start: &Array2<f64>,
+    ) -> Array2<f64> {
+        let mut c = start.clone();
+        let beta = if accumulate { 1.0 } else { 0.0 };
+        general_mat_mul(1.0, &a, &b, beta, &mut c);
+        c
+    }
+
+    /// Whether two matrices hold the same bits (`==` would let −0 equal +0).
+    fn same_bits(x: &Array2<f64>, y: &Array2<f64>) -> bool {
+        x.dim() == y.dim() && x.iter().zip(y).all(|(x, y)| x.to_bits() == y.to_bits())
+    }
+
+    /// A product with [`gemm`]'s signature.
+    type Product = fn(ArrayView2<f64>, ArrayView2<f64>, bool, ArrayViewMut2<f64>);
+
+    /// `product` into columns `2..n + 2` of a wider `C` starting as `start`
+    /// there, on a pool of `threads`; checks that the columns around are
+    /// untouched and returns the product's columns.
+    fn into_wider_c(
+        product: Product,
+        a: ArrayView2<f64>,
+        b: ArrayView2<f64>,
+        accumulate: bool,
+        start: &Array2<f64>,
+        threads: usize,
+    ) -> Array2<f64> {
+        let (m, n) = start.dim();
+        let mut wide = matrix(m, n + 5, 9);
+        wide.slice_mut(s![.., 2..n + 2]).assign(start);
+        let around = |w: &Array2<f64>| {
+            (
+                w.slice(s![.., ..2]).to_owned(),
+                w.slice(s![.., n + 2..]).to_owned(),
+            )
+        };
+        let before = around(&wide);
+        let pool = rayon::ThreadPoolBuilder::new()
+            .num_threads(threads)
+            .build()
+            .unwrap();
+        pool.install(|| product(a, b, accumulate, wide.slice_mut(s![.., 2..n + 2])));
+        assert_eq!(around(&wide), before, "outside the product's columns");
+        wide.slice(s![.., 2..n + 2]).to_owned()
+    }
+
     /// Bit for bit the same as matrixmultiply, including long `k` (several
-    /// blocks), ragged edges, transposed left operands and accumulation.
+    /// blocks, the last one short), ragged edges, transposed left operands,
+    /// accumulation, `C` inside a wider matrix, the training benchmark's two
+    /// large products (128 × 784 · 784 × 256 and 784 × 128 · 128 × 256), and
+    /// one and two threads. Each shape runs through [`gemm`] and, where the
+    /// processor has AVX-512, through the packed kernel itself, so that small
+    /// shapes test its edges too.
     #[test]
     fn same_bits_as_matrixmultiply() {
         for &(m, k, n) in &[
@@ -285,6 +350,14 @@ mod tests {
             (13, 300, 6),
             (3, 600, 17),
             (64, 520, 2),
+            (128, 784, 256),
+            (784, 128, 256),
+            (130, 600, 53),
+            (61, 257, 600),
+            (9, 1000, 250),
+            (200, 20, 47),
+            (128, 256, 10),
+            (128, 10, 256),
         ] {
             for transposed in [false, true] {
                 for accumulate in [false, true] {
@@ -300,21 +373,49 @@ mod tests {
                     };
                     let b = matrix(k, n, 2);
                     let start = matrix(m, n, 3);
-                    let mut ours = start.clone();
-                    gemm(a, b.view(), accumulate, ours.view_mut());
-                    let mut theirs = start.clone();
-                    let beta = if accumulate { 1.0 } else { 0.0 };
-                    general_mat_mul(1.0, &a, &b, beta, &mut theirs);
-                    let same = ours
-                        .iter()
-                        .zip(&theirs)
-                        .all(|(x, y)| x.to_bits() == y.to_bits());
-                    assert!(
-                        same,
-                        "{m}x{k}x{n} transposed {transposed} accumulate {accumulate}"
-                    );
+                    let expected = theirs(a, b.view(), accumulate, &start);
+                    let mut products: Vec<(&str, Product)> = vec![("gemm", gemm)];
+                    #[cfg(target_arch = "x86_64")]
+                    if packed::available() {
+                        products.push(("packed", packed::gemm));
+                    }
+                    for (name, product) in products {
+                        for threads in [1, 2] {
+                            let ours =
+                                into_wider_c(product, a, b.view(), accumulate, &start, threads);
+                            assert!(
+                                same_bits(&ours, &expected),
+                                "{name} {m}x{k}x{n} transposed {transposed} accumulate {accumulate} threads {threads}"
+                            );
+                        }
+                    }
                 }
             }
+        }
+    }
+
+    /// Products that underflow to −0 added to a −0 `C`: matrixmultiply gives
+    /// −0 from its full tiles but +0 from its remainder rows and columns
+    /// (which add `ab + 0`); so must the packed kernel.
+    #[test]
+    fn negative_zeros_as_matrixmultiply() {
+        let (m, k, n) = (13, 300, 38);
+        let a = Array2::from_elem((m, k), 1e-200);
+        let b = Array2::from_elem((k, n), -1e-200);
+        let start =
+            Array2::from_shape_fn((m, n), |(i, j)| if (i + j) % 5 == 0 { 0.0 } else { -0.0 });
+        let expected = theirs(a.view(), b.view(), true, &start);
+        let negative = expected
+            .iter()
+            .filter(|v| v.to_bits() == (-0.0f64).to_bits())
+            .count();
+        assert!(negative > 0 && negative < m * n, "both signs of zero occur");
+        let ours = into_wider_c(gemm, a.view(), b.view(), true, &start, 2);
+        assert!(same_bits(&ours, &expected));
+        #[cfg(target_arch = "x86_64")]
+        if packed::available() {
+            let ours = into_wider_c(packed::gemm, a.view(), b.view(), true, &start, 2);
+            assert!(same_bits(&ours, &expected));
         }
     }
 
