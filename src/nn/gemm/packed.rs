@@ -1,18 +1,20 @@
-//! The packed product for large `f64` products on processors with AVX-512.
+//! The packed product for large products on processors with AVX-512, in
+//! `f64` and `f32` ([`Element`]).
 //!
-//! `C` is computed in tiles of [`MR`] rows × [`NR`] columns (three vectors of
-//! eight lanes), whose 24 accumulators stay in registers through the whole
-//! chain over `k`. For each block of [`KC`] values of `k`, a block of `B` of
-//! up to [`NC`] columns is copied into contiguous panels of `NR` columns
-//! (sized to stay in the 1 MiB L2 cache), and each eight-row tile of `A` into
-//! a contiguous strip (which stays in L1 while every panel of the block
-//! passes it). Copies are zero-padded to whole tiles, so the kernel needs no
+//! `C` is computed in tiles of [`MR`] rows × three vectors of columns (24
+//! `f64` or 48 `f32`), whose 24 accumulators stay in registers through the
+//! whole chain over `k`. For each block of [`KC`] values of `k`, a block of
+//! `B` of up to [`PANELS`] panels is copied into contiguous panels of one
+//! tile's width (528 KiB, sized to stay in the 1 MiB L2 cache), and each
+//! eight-row strip of `A` into a contiguous strip (which stays in L1 while
+//! every panel of the block passes it). Copies are zero-padded to whole tiles, so the kernel needs no
 //! edge cases; only its stores are masked.
 //!
 //! Bits: each entry is formed exactly as `matrixmultiply` forms it (see the
-//! parent module): one fused chain over a block of `k` from zero, then added
-//! to `C`. One detail of its edges is copied too: it computes the last
-//! `m mod 8` rows and `n mod 4` columns (its 8 × 4 tile's remainders) into a
+//! parent module; its `f32` kernel works alike, also with blocks of 256): one
+//! fused chain over a block of `k` from zero, then added to `C`. One detail
+//! of its edges is copied too: it computes the last `m mod 8` rows and
+//! `n mod 4` (`f32`: `n mod 8`) columns, its tile's remainders, into a
 //! scratch tile as `ab + 0` and adds that to `C`, where its full tiles add
 //! `ab` itself. The two differ only when `ab` underflowed to −0 and `C` is −0,
 //! but they do differ, so the store adds `+0` there and `−0` (which changes
@@ -25,8 +27,10 @@
 //! products.
 
 use std::arch::x86_64::{
-    _mm512_add_pd, _mm512_fmadd_pd, _mm512_load_pd, _mm512_mask_blend_pd, _mm512_mask_storeu_pd,
-    _mm512_maskz_loadu_pd, _mm512_set1_pd, _mm512_setzero_pd,
+    __m512, __m512d, _mm512_add_pd, _mm512_add_ps, _mm512_fmadd_pd, _mm512_fmadd_ps,
+    _mm512_load_pd, _mm512_load_ps, _mm512_mask_blend_pd, _mm512_mask_blend_ps,
+    _mm512_mask_storeu_pd, _mm512_mask_storeu_ps, _mm512_maskz_loadu_pd, _mm512_maskz_loadu_ps,
+    _mm512_set1_pd, _mm512_set1_ps, _mm512_setzero_pd, _mm512_setzero_ps,
 };
 use std::cell::RefCell;
 
@@ -34,21 +38,145 @@ use ndarray::{ArrayView2, ArrayViewMut2, Axis, s};
 
 use super::KC;
 
-/// Values per vector register.
-const LANES: usize = 8;
 /// Rows of a tile of `C`.
 const MR: usize = 8;
-/// Columns of a tile of `C`: with `MR`, 24 of the 32 vector registers hold
+/// Vectors per row of a tile: with `MR`, 24 of the 32 vector registers hold
 /// accumulators, three hold a row of the `B` panel.
-const NR: usize = 3 * LANES;
-/// Columns of `B` packed per block: 264 × [`KC`] values take 528 KiB.
-const NC: usize = 11 * NR;
-/// `matrixmultiply`'s `f64` FMA tile, whose remainders it computes apart.
+const VECTORS: usize = 3;
+/// Panels of `B` packed per block: 11 × 3 vectors × [`KC`] take 528 KiB.
+const PANELS: usize = 11;
+/// `matrixmultiply`'s FMA tile has 8 rows (and [`Element::THEIR_COLS`]
+/// columns); it computes its remainders apart.
 const THEIR_ROWS: usize = 8;
-const THEIR_COLS: usize = 4;
 /// Products with fewer multiply–adds stay on one thread: below this, the
 /// cost of waking a second one is a noticeable share.
 const PARALLEL_MIN_WORK: usize = 1 << 21;
+
+/// The vector operations the kernel needs of its element type, and
+/// `matrixmultiply`'s tile width for it. Implemented for `f64` and `f32`
+/// only: the packing buffers hand out their bytes as either.
+pub(super) trait Element: Copy + Send + Sync + 'static {
+    type Vector: Copy;
+    /// Values per vector.
+    const LANES: usize;
+    /// Columns of `matrixmultiply`'s FMA tile.
+    const THEIR_COLS: usize;
+    const ZERO: Self;
+
+    // SAFETY (all below): AVX-512F and FMA must be available.
+    unsafe fn zero() -> Self::Vector;
+    unsafe fn negative_zero() -> Self::Vector;
+    unsafe fn splat(x: Self) -> Self::Vector;
+    /// `LANES` values at `p`, which is aligned to 64 bytes.
+    unsafe fn load(p: *const Self) -> Self::Vector;
+    /// `x·y + acc`, rounded once.
+    unsafe fn fma(x: Self::Vector, y: Self::Vector, acc: Self::Vector) -> Self::Vector;
+    unsafe fn add(x: Self::Vector, y: Self::Vector) -> Self::Vector;
+    /// `y` in the lanes set in `mask`, `x` elsewhere.
+    unsafe fn blend(mask: u16, x: Self::Vector, y: Self::Vector) -> Self::Vector;
+    /// The lanes set in `mask` read from `p`, zero elsewhere.
+    unsafe fn load_masked(mask: u16, p: *const Self) -> Self::Vector;
+    /// The lanes set in `mask` written to `p`.
+    unsafe fn store_masked(p: *mut Self, mask: u16, v: Self::Vector);
+}
+
+/// Implements [`Element`] with one type's intrinsics.
+macro_rules! element {
+    ($t:ty, $v:ty, $lanes:expr, $their_cols:expr, $mask:ty, $zero:ident, $set1:ident,
+     $load:ident, $fma:ident, $add:ident, $blend:ident, $load_masked:ident, $store_masked:ident) => {
+        impl Element for $t {
+            type Vector = $v;
+            const LANES: usize = $lanes;
+            const THEIR_COLS: usize = $their_cols;
+            const ZERO: $t = 0.0;
+
+            #[inline]
+            #[target_feature(enable = "avx512f,fma")]
+            unsafe fn zero() -> $v {
+                $zero()
+            }
+            #[inline]
+            #[target_feature(enable = "avx512f,fma")]
+            unsafe fn negative_zero() -> $v {
+                $set1(-0.0)
+            }
+            #[inline]
+            #[target_feature(enable = "avx512f,fma")]
+            unsafe fn splat(x: $t) -> $v {
+                $set1(x)
+            }
+            #[inline]
+            #[target_feature(enable = "avx512f,fma")]
+            unsafe fn load(p: *const $t) -> $v {
+                // SAFETY: as the caller guarantees.
+                unsafe { $load(p) }
+            }
+            #[inline]
+            #[target_feature(enable = "avx512f,fma")]
+            unsafe fn fma(x: $v, y: $v, acc: $v) -> $v {
+                $fma(x, y, acc)
+            }
+            #[inline]
+            #[target_feature(enable = "avx512f,fma")]
+            unsafe fn add(x: $v, y: $v) -> $v {
+                $add(x, y)
+            }
+            #[inline]
+            #[target_feature(enable = "avx512f,fma")]
+            unsafe fn blend(mask: u16, x: $v, y: $v) -> $v {
+                $blend(mask as $mask, x, y)
+            }
+            #[inline]
+            #[target_feature(enable = "avx512f,fma")]
+            unsafe fn load_masked(mask: u16, p: *const $t) -> $v {
+                // SAFETY: as the caller guarantees.
+                unsafe { $load_masked(mask as $mask, p) }
+            }
+            #[inline]
+            #[target_feature(enable = "avx512f,fma")]
+            unsafe fn store_masked(p: *mut $t, mask: u16, v: $v) {
+                // SAFETY: as the caller guarantees.
+                unsafe { $store_masked(p, mask as $mask, v) }
+            }
+        }
+    };
+}
+
+element!(
+    f64,
+    __m512d,
+    8,
+    4,
+    u8,
+    _mm512_setzero_pd,
+    _mm512_set1_pd,
+    _mm512_load_pd,
+    _mm512_fmadd_pd,
+    _mm512_add_pd,
+    _mm512_mask_blend_pd,
+    _mm512_maskz_loadu_pd,
+    _mm512_mask_storeu_pd
+);
+element!(
+    f32,
+    __m512,
+    16,
+    8,
+    u16,
+    _mm512_setzero_ps,
+    _mm512_set1_ps,
+    _mm512_load_ps,
+    _mm512_fmadd_ps,
+    _mm512_add_ps,
+    _mm512_mask_blend_ps,
+    _mm512_maskz_loadu_ps,
+    _mm512_mask_storeu_ps
+);
+
+/// Columns of a tile of `C`.
+const fn tile_cols<T: Element>() -> usize {
+    VECTORS * T::LANES
+}
 
 /// Whether the processor runs this kernel.
 pub(super) fn available() -> bool {
@@ -60,11 +188,11 @@ pub(super) fn available() -> bool {
 ///
 /// # Panics
 /// If the processor lacks AVX-512 or FMA, or `c`'s rows are not contiguous.
-pub(super) fn gemm(
-    a: ArrayView2<f64>,
-    b: ArrayView2<f64>,
+pub(super) fn gemm<T: Element>(
+    a: ArrayView2<T>,
+    b: ArrayView2<T>,
     accumulate: bool,
-    c: ArrayViewMut2<f64>,
+    c: ArrayViewMut2<T>,
 ) {
     assert!(available(), "the packed product needs AVX-512 and FMA");
     assert!(
@@ -79,7 +207,7 @@ pub(super) fn gemm(
     };
     let edge = Edge {
         row: m - m % THEIR_ROWS,
-        col: n - n % THEIR_COLS,
+        col: n - n % T::THEIR_COLS,
     };
     split(a, b, accumulate, c, edge, pieces);
 }
@@ -94,11 +222,11 @@ struct Edge {
 
 /// Splits the rows of `C` (at tile boundaries) into `pieces` parts computed
 /// in parallel.
-fn split(
-    a: ArrayView2<f64>,
-    b: ArrayView2<f64>,
+fn split<T: Element>(
+    a: ArrayView2<T>,
+    b: ArrayView2<T>,
     accumulate: bool,
-    c: ArrayViewMut2<f64>,
+    c: ArrayViewMut2<T>,
     edge: Edge,
     pieces: usize,
 ) {
@@ -114,42 +242,34 @@ fn split(
         row: edge.row.saturating_sub(mid),
         ..edge
     };
+    let lower = pieces - upper;
     rayon::join(
         || split(a_top, b, accumulate, c_top, edge, upper),
-        || {
-            split(
-                a_bottom,
-                b,
-                accumulate,
-                c_bottom,
-                bottom_edge,
-                pieces - upper,
-            )
-        },
+        || split(a_bottom, b, accumulate, c_bottom, bottom_edge, lower),
     );
 }
 
-/// One cache line of packed values.
+/// One cache line.
 #[derive(Clone, Copy)]
 #[repr(C, align(64))]
-struct Line([f64; LANES]);
+struct Line([u64; 8]);
 
-/// A growable buffer of cache-line-aligned values.
+/// A growable buffer of cache-line-aligned values of either element type.
 #[derive(Default)]
 struct Aligned(Vec<Line>);
 
 impl Aligned {
-    /// The first `len` values (a multiple of [`LANES`]), grown as needed.
-    fn take(&mut self, len: usize) -> &mut [f64] {
-        debug_assert_eq!(len % LANES, 0);
-        let lines = len / LANES;
+    /// The first `len` values, grown as needed.
+    fn take<T: Element>(&mut self, len: usize) -> &mut [T] {
+        let lines = (len * size_of::<T>()).div_ceil(size_of::<Line>());
         if self.0.len() < lines {
-            self.0.resize(lines, Line([0.0; LANES]));
+            self.0.resize(lines, Line([0; 8]));
         }
-        // SAFETY: `Line` is `repr(C)` around `[f64; LANES]`, so `lines`
-        // lines are `len` initialised, contiguous `f64`s, borrowed mutably
-        // through `self` for as long as the slice lives.
-        unsafe { std::slice::from_raw_parts_mut(self.0.as_mut_ptr().cast::<f64>(), len) }
+        // SAFETY: `T` is `f64` or `f32` (see `Element`): any bits are a
+        // value, and 64-byte lines are aligned for it; the `lines` lines
+        // hold at least `len` of them, borrowed mutably through `self` for as long as
+        // the slice lives.
+        unsafe { std::slice::from_raw_parts_mut(self.0.as_mut_ptr().cast::<T>(), len) }
     }
 }
 
@@ -165,34 +285,35 @@ thread_local! {
 }
 
 /// The whole product on the calling thread.
-fn product(
-    a: ArrayView2<f64>,
-    b: ArrayView2<f64>,
+fn product<T: Element>(
+    a: ArrayView2<T>,
+    b: ArrayView2<T>,
     accumulate: bool,
-    mut c: ArrayViewMut2<f64>,
+    mut c: ArrayViewMut2<T>,
     edge: Edge,
 ) {
     let ((m, k), n) = (a.dim(), b.ncols());
+    let nr = tile_cols::<T>();
     let ldc = c.strides()[0];
     let corner = c.as_mut_ptr();
     // Nothing below calls back into rayon, so this borrow cannot be re-entered
     // by other work this thread picks up while waiting.
     BUFFERS.with_borrow_mut(|buffers| {
-        for j0 in (0..n).step_by(NC) {
-            let nc = NC.min(n - j0);
+        for j0 in (0..n).step_by(PANELS * nr) {
+            let nc = (PANELS * nr).min(n - j0);
             for p0 in (0..k).step_by(KC) {
                 let kc = KC.min(k - p0);
-                let panels = buffers.b.take(kc * nc.div_ceil(NR) * NR);
+                let panels = buffers.b.take(kc * nc.div_ceil(nr) * nr);
                 pack_b(b.slice(s![p0..p0 + kc, j0..j0 + nc]), panels);
                 let strip = buffers.a.take(kc * MR);
                 for i0 in (0..m).step_by(MR) {
                     let rows = MR.min(m - i0);
                     pack_a(a.slice(s![i0..i0 + rows, p0..p0 + kc]), strip);
-                    for (q, panel) in panels.chunks_exact(kc * NR).enumerate() {
-                        let j = j0 + q * NR;
+                    for (q, panel) in panels.chunks_exact(kc * nr).enumerate() {
+                        let j = j0 + q * nr;
                         let store = Store {
                             rows,
-                            cols: NR.min(n - j),
+                            cols: nr.min(n - j),
                             add: accumulate || p0 > 0,
                             edge_row: edge.row.saturating_sub(i0),
                             edge_col: edge.col.saturating_sub(j),
@@ -203,10 +324,10 @@ fn product(
                         // entries, which lie in C too.
                         unsafe {
                             let out = corner.offset(i0 as isize * ldc + j as isize);
-                            match store.cols.div_ceil(LANES) {
-                                1 => tile::<1>(strip, panel, out, ldc, &store),
-                                2 => tile::<2>(strip, panel, out, ldc, &store),
-                                _ => tile::<3>(strip, panel, out, ldc, &store),
+                            match store.cols.div_ceil(T::LANES) {
+                                1 => tile::<T, 1>(strip, panel, out, ldc, &store),
+                                2 => tile::<T, 2>(strip, panel, out, ldc, &store),
+                                _ => tile::<T, VECTORS>(strip, panel, out, ldc, &store),
                             }
                         }
                     }
@@ -216,31 +337,31 @@ fn product(
     });
 }
 
-/// Copies a `kc × nc` block of `B` into panels of [`NR`] columns, each stored
-/// row after row and zero-padded to full width.
-fn pack_b(b: ArrayView2<f64>, out: &mut [f64]) {
-    let kc = b.nrows();
+/// Copies a `kc × nc` block of `B` into panels of one tile's width, each
+/// stored row after row and zero-padded to full width.
+fn pack_b<T: Element>(b: ArrayView2<T>, out: &mut [T]) {
+    let (kc, nr) = (b.nrows(), tile_cols::<T>());
     for (panel, out) in b
-        .axis_chunks_iter(Axis(1), NR)
-        .zip(out.chunks_exact_mut(kc * NR))
+        .axis_chunks_iter(Axis(1), nr)
+        .zip(out.chunks_exact_mut(kc * nr))
     {
-        for (row, out) in panel.rows().into_iter().zip(out.chunks_exact_mut(NR)) {
+        for (row, out) in panel.rows().into_iter().zip(out.chunks_exact_mut(nr)) {
             let (values, padding) = out.split_at_mut(row.len());
             match row.as_slice() {
                 Some(row) => values.copy_from_slice(row),
                 None => values.iter_mut().zip(&row).for_each(|(o, &v)| *o = v),
             }
-            padding.fill(0.0);
+            padding.iter_mut().for_each(|o| *o = T::ZERO);
         }
     }
 }
 
 /// Copies up to [`MR`] rows × `kc` columns of `A` into `out`, column after
 /// column, each zero-padded to `MR` values.
-fn pack_a(a: ArrayView2<f64>, out: &mut [f64]) {
+fn pack_a<T: Element>(a: ArrayView2<T>, out: &mut [T]) {
     let rows = a.nrows();
     if rows < MR {
-        out.fill(0.0);
+        out.iter_mut().for_each(|o| *o = T::ZERO);
     }
     if a.strides()[0] == 1 {
         // A transposed operand (`xᵀ`): its columns are contiguous.
@@ -270,68 +391,72 @@ struct Store {
 }
 
 /// The lanes of vector `v` of a tile row whose column is below `limit`.
-fn lanes_below(v: usize, limit: usize) -> u8 {
-    let count = limit.saturating_sub(v * LANES).min(LANES);
-    ((1u16 << count) - 1) as u8
+fn lanes_below<T: Element>(v: usize, limit: usize) -> u16 {
+    let count = limit.saturating_sub(v * T::LANES).min(T::LANES);
+    ((1u32 << count) - 1) as u16
 }
 
 /// One tile of `C`, `MR` rows × `NV` vectors: the fused chain over the strip
-/// of `A` and the panel of `B` (`kc` steps of `MR` and `NR` values), then the
-/// store.
+/// of `A` and the panel of `B` (`kc` steps of `MR` values and one tile's
+/// width), then the store.
 ///
 /// # Safety
 /// AVX-512F and FMA must be available; `c` must be valid for reads and
 /// writes of `store.rows` rows (stride `ldc`) of `store.cols ≤ NV·LANES`
 /// values.
 #[target_feature(enable = "avx512f,fma")]
-unsafe fn tile<const NV: usize>(
-    strip: &[f64],
-    panel: &[f64],
-    c: *mut f64,
+unsafe fn tile<T: Element, const NV: usize>(
+    strip: &[T],
+    panel: &[T],
+    c: *mut T,
     ldc: isize,
     store: &Store,
 ) {
-    let mut acc = [[_mm512_setzero_pd(); NV]; MR];
-    for (a, b) in strip.chunks_exact(MR).zip(panel.chunks_exact(NR)) {
-        let mut row = [_mm512_setzero_pd(); NV];
+    // SAFETY (vector operations): the caller guarantees AVX-512F and FMA.
+    let mut acc = [[unsafe { T::zero() }; NV]; MR];
+    for (a, b) in strip
+        .chunks_exact(MR)
+        .zip(panel.chunks_exact(tile_cols::<T>()))
+    {
+        let mut row = [unsafe { T::zero() }; NV];
         for (v, lane) in row.iter_mut().enumerate() {
-            // SAFETY: `b` holds NR ≥ NV·LANES values and starts on a cache
-            // line (panels are whole lines long, from an aligned buffer).
-            *lane = unsafe { _mm512_load_pd(b.as_ptr().add(v * LANES)) };
+            // SAFETY: `b` holds a tile's width ≥ NV·LANES values and starts
+            // on a cache line (panel rows are whole lines long, in an
+            // aligned buffer).
+            *lane = unsafe { T::load(b.as_ptr().add(v * T::LANES)) };
         }
         for (acc, &x) in acc.iter_mut().zip(a) {
-            let x = _mm512_set1_pd(x);
+            let x = unsafe { T::splat(x) };
             for (acc, &y) in acc.iter_mut().zip(&row) {
-                *acc = _mm512_fmadd_pd(x, y, *acc);
+                *acc = unsafe { T::fma(x, y, *acc) };
             }
         }
     }
-    let zero = _mm512_setzero_pd();
-    let negative_zero = _mm512_set1_pd(-0.0);
+    let (zero, negative_zero) = unsafe { (T::zero(), T::negative_zero()) };
     for (r, acc) in acc.iter().enumerate().take(store.rows) {
         for (v, &ab) in acc.iter().enumerate() {
-            let keep = lanes_below(v, store.cols);
+            let keep = lanes_below::<T>(v, store.cols);
             if keep == 0 {
                 continue;
             }
-            // SAFETY: row r < rows and the kept lanes' columns < cols.
-            let out = unsafe { c.offset(r as isize * ldc).add(v * LANES) };
-            let value = if store.add {
-                // `+0` in matrixmultiply's remainder tiles, `−0` elsewhere.
-                let offset = if r >= store.edge_row {
-                    zero
+            // SAFETY: row r < rows and the kept lanes' columns < cols, so
+            // the masked loads and stores below stay inside C.
+            unsafe {
+                let out = c.offset(r as isize * ldc).add(v * T::LANES);
+                let value = if store.add {
+                    // `+0` in matrixmultiply's remainder tiles, `−0` elsewhere.
+                    let offset = if r >= store.edge_row {
+                        zero
+                    } else {
+                        let remainder = !lanes_below::<T>(v, store.edge_col);
+                        T::blend(remainder, negative_zero, zero)
+                    };
+                    T::add(T::load_masked(keep, out), T::add(ab, offset))
                 } else {
-                    let remainder = !lanes_below(v, store.edge_col);
-                    _mm512_mask_blend_pd(remainder, negative_zero, zero)
+                    T::add(ab, zero)
                 };
-                // SAFETY: as above, masked to the kept lanes.
-                let old = unsafe { _mm512_maskz_loadu_pd(keep, out) };
-                _mm512_add_pd(old, _mm512_add_pd(ab, offset))
-            } else {
-                _mm512_add_pd(ab, zero)
-            };
-            // SAFETY: as above.
-            unsafe { _mm512_mask_storeu_pd(out, keep, value) };
+                T::store_masked(out, keep, value);
+            }
         }
     }
 }
