@@ -22,7 +22,8 @@ use ndarray::{ArrayView2, ArrayViewMut2, linalg::general_mat_mul};
 #[cfg(target_arch = "x86_64")]
 mod packed;
 
-/// `matrixmultiply`'s block depth along `k` for `f64` (its `D_KC`).
+/// `matrixmultiply`'s block depth along `k`, for `f64` and `f32` alike (its
+/// `D_KC` and `S_KC`).
 const KC: usize = 256;
 
 /// Products with at most this many multiply–adds use the direct kernel. Past

@@ -1,5 +1,5 @@
-//! The packed product for large products on processors with AVX-512, in
-//! `f64` and `f32` ([`Element`]).
+//! The packed kernel for large products on processors with AVX-512, in `f64`
+//! and `f32` ([`Element`]).
 //!
 //! `C` is computed in tiles of [`MR`] rows × three vectors of columns (24
 //! `f64` or 48 `f32`), whose 24 accumulators stay in registers through the
@@ -7,8 +7,8 @@
 //! `B` of up to [`PANELS`] panels is copied into contiguous panels of one
 //! tile's width (528 KiB, sized to stay in the 1 MiB L2 cache), and each
 //! eight-row strip of `A` into a contiguous strip (which stays in L1 while
-//! every panel of the block passes it). Copies are zero-padded to whole tiles, so the kernel needs no
-//! edge cases; only its stores are masked.
+//! every panel of the block passes it). Copies are zero-padded to whole
+//! tiles, so the kernel needs no edge cases; only its stores are masked.
 //!
 //! Bits: each entry is formed exactly as `matrixmultiply` forms it (see the
 //! parent module; its `f32` kernel works alike, also with blocks of 256): one
