@@ -5,10 +5,13 @@
 //! `f64` or 48 `f32`), whose 24 accumulators stay in registers through the
 //! whole chain over `k`. For each block of [`KC`] values of `k`, a block of
 //! `B` of up to [`PANELS`] panels is copied into contiguous panels of one
-//! tile's width (528 KiB, sized to stay in the 1 MiB L2 cache), and each
-//! eight-row strip of `A` into a contiguous strip (which stays in L1 while
-//! every panel of the block passes it). Copies are zero-padded to whole
-//! tiles, so the kernel needs no edge cases; only its stores are masked.
+//! tile's width (528 KiB, sized to stay in the 1 MiB L2 cache), zero-padded
+//! to whole tiles. `A` is read in place, an eight-row strip at a time (which
+//! stays in L1 while every panel of the block passes it): the kernel reads
+//! one value per row and step of `k`, which is as cheap from a strided strip
+//! as from a copy, and copying it cost more than a quarter of the kernel's
+//! time. Only a last strip of fewer than eight rows is copied, zero-padded,
+//! so the kernel needs no edge cases; only its stores are masked.
 //!
 //! Bits: each entry is formed exactly as `matrixmultiply` forms it (see the
 //! parent module; its `f32` kernel works alike, also with blocks of 256): one
@@ -305,10 +308,20 @@ fn product<T: Element>(
                 let kc = KC.min(k - p0);
                 let panels = buffers.b.take(kc * nc.div_ceil(nr) * nr);
                 pack_b(b.slice(s![p0..p0 + kc, j0..j0 + nc]), panels);
-                let strip = buffers.a.take(kc * MR);
+                let padded = buffers.a.take(kc * MR);
                 for i0 in (0..m).step_by(MR) {
                     let rows = MR.min(m - i0);
-                    pack_a(a.slice(s![i0..i0 + rows, p0..p0 + kc]), strip);
+                    let block = a.slice(s![i0..i0 + rows, p0..p0 + kc]);
+                    let strip = if rows == MR {
+                        Strip::of(block)
+                    } else {
+                        pad_a(block, padded);
+                        Strip::of(
+                            ArrayView2::from_shape((kc, MR), &*padded)
+                                .expect("kc × MR values")
+                                .t(),
+                        )
+                    };
                     for (q, panel) in panels.chunks_exact(kc * nr).enumerate() {
                         let j = j0 + q * nr;
                         let store = Store {
@@ -325,9 +338,9 @@ fn product<T: Element>(
                         unsafe {
                             let out = corner.offset(i0 as isize * ldc + j as isize);
                             match store.cols.div_ceil(T::LANES) {
-                                1 => tile::<T, 1>(strip, panel, out, ldc, &store),
-                                2 => tile::<T, 2>(strip, panel, out, ldc, &store),
-                                _ => tile::<T, VECTORS>(strip, panel, out, ldc, &store),
+                                1 => tile::<T, 1>(&strip, panel, out, ldc, &store),
+                                2 => tile::<T, 2>(&strip, panel, out, ldc, &store),
+                                _ => tile::<T, VECTORS>(&strip, panel, out, ldc, &store),
                             }
                         }
                     }
@@ -356,26 +369,33 @@ fn pack_b<T: Element>(b: ArrayView2<T>, out: &mut [T]) {
     }
 }
 
-/// Copies up to [`MR`] rows × `kc` columns of `A` into `out`, column after
-/// column, each zero-padded to `MR` values.
-fn pack_a<T: Element>(a: ArrayView2<T>, out: &mut [T]) {
-    let rows = a.nrows();
-    if rows < MR {
-        out.iter_mut().for_each(|o| *o = T::ZERO);
-    }
-    if a.strides()[0] == 1 {
-        // A transposed operand (`xᵀ`): its columns are contiguous.
-        for (column, out) in a.columns().into_iter().zip(out.chunks_exact_mut(MR)) {
-            out[..rows]
-                .iter_mut()
-                .zip(&column)
-                .for_each(|(o, &v)| *o = v);
+/// Copies fewer than [`MR`] rows × `kc` columns of `A` into `out`, column
+/// after column, each zero-padded to `MR` values.
+fn pad_a<T: Element>(a: ArrayView2<T>, out: &mut [T]) {
+    out.iter_mut().for_each(|o| *o = T::ZERO);
+    for (r, row) in a.rows().into_iter().enumerate() {
+        for (out, &v) in out.chunks_exact_mut(MR).zip(&row) {
+            out[r] = v;
         }
-    } else {
-        for (r, row) in a.rows().into_iter().enumerate() {
-            for (out, &v) in out.chunks_exact_mut(MR).zip(&row) {
-                out[r] = v;
-            }
+    }
+}
+
+/// [`MR`] rows × `kc` columns of `A` where the kernel reads them: the first
+/// value and the strides between rows and between columns.
+struct Strip<T> {
+    first: *const T,
+    row_stride: isize,
+    column_stride: isize,
+}
+
+impl<T: Element> Strip<T> {
+    /// The strip of `MR` rows `a`.
+    fn of(a: ArrayView2<T>) -> Strip<T> {
+        debug_assert_eq!(a.nrows(), MR);
+        Strip {
+            first: a.as_ptr(),
+            row_stride: a.strides()[0],
+            column_stride: a.strides()[1],
         }
     }
 }
@@ -397,16 +417,17 @@ fn lanes_below<T: Element>(v: usize, limit: usize) -> u16 {
 }
 
 /// One tile of `C`, `MR` rows × `NV` vectors: the fused chain over the strip
-/// of `A` and the panel of `B` (`kc` steps of `MR` values and one tile's
-/// width), then the store.
+/// of `A` and the panel of `B` (`kc` steps of one tile's width), then the
+/// store.
 ///
 /// # Safety
-/// AVX-512F and FMA must be available; `c` must be valid for reads and
-/// writes of `store.rows` rows (stride `ldc`) of `store.cols ≤ NV·LANES`
-/// values.
+/// AVX-512F and FMA must be available; `strip` must describe `MR` rows ×
+/// `kc` readable values, where `kc` is the panel's rows; `c` must be valid
+/// for reads and writes of `store.rows` rows (stride `ldc`) of
+/// `store.cols ≤ NV·LANES` values.
 #[target_feature(enable = "avx512f,fma")]
 unsafe fn tile<T: Element, const NV: usize>(
-    strip: &[T],
+    strip: &Strip<T>,
     panel: &[T],
     c: *mut T,
     ldc: isize,
@@ -414,10 +435,9 @@ unsafe fn tile<T: Element, const NV: usize>(
 ) {
     // SAFETY (vector operations): the caller guarantees AVX-512F and FMA.
     let mut acc = [[unsafe { T::zero() }; NV]; MR];
-    for (a, b) in strip
-        .chunks_exact(MR)
-        .zip(panel.chunks_exact(tile_cols::<T>()))
-    {
+    for (p, b) in panel.chunks_exact(tile_cols::<T>()).enumerate() {
+        // SAFETY: p < kc, so this column of the strip is readable.
+        let a = unsafe { strip.first.offset(p as isize * strip.column_stride) };
         let mut row = [unsafe { T::zero() }; NV];
         for (v, lane) in row.iter_mut().enumerate() {
             // SAFETY: `b` holds a tile's width ≥ NV·LANES values and starts
@@ -425,8 +445,9 @@ unsafe fn tile<T: Element, const NV: usize>(
             // aligned buffer).
             *lane = unsafe { T::load(b.as_ptr().add(v * T::LANES)) };
         }
-        for (acc, &x) in acc.iter_mut().zip(a) {
-            let x = unsafe { T::splat(x) };
+        for (r, acc) in acc.iter_mut().enumerate() {
+            // SAFETY: r < MR, so this value of the strip is readable.
+            let x = unsafe { T::splat(*a.offset(r as isize * strip.row_stride)) };
             for (acc, &y) in acc.iter_mut().zip(&row) {
                 *acc = unsafe { T::fma(x, y, *acc) };
             }
