@@ -332,9 +332,10 @@ fn product<T: Element>(
                             edge_col: edge.col.saturating_sub(j),
                         };
                         // SAFETY: AVX-512F and FMA were checked in `gemm`;
-                        // `i0 < m` and `j < n`, so the tile's corner lies in
-                        // C, and `store` limits writes to its `rows × cols`
-                        // entries, which lie in C too.
+                        // the strip is `MR × kc` values of A or of the padded
+                        // copy; `i0 < m` and `j < n`, so the tile's corner
+                        // lies in C, and `store` limits writes to its
+                        // `rows × cols` entries, which lie in C too.
                         unsafe {
                             let out = corner.offset(i0 as isize * ldc + j as isize);
                             match store.cols.div_ceil(T::LANES) {
