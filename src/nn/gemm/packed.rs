@@ -52,8 +52,9 @@ const PANELS: usize = 11;
 /// columns); it computes its remainders apart.
 const THEIR_ROWS: usize = 8;
 /// Products with fewer multiply–adds stay on one thread: below this, the
-/// cost of waking a second one is a noticeable share.
-const PARALLEL_MIN_WORK: usize = 1 << 21;
+/// cost of waking a second one is a noticeable share (case B's loss over
+/// 1024-row chunks, 2²¹ multiply–adds, trained slower split in two).
+const PARALLEL_MIN_WORK: usize = 1 << 22;
 
 /// The vector operations the kernel needs of its element type, and
 /// `matrixmultiply`'s tile width for it. Implemented for `f64` and `f32`
