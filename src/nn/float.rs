@@ -7,7 +7,6 @@
 //! same draws; the trained network is converted back to `f64` (exactly: every `f32`
 //! is an `f64`).
 
-use ndarray::linalg::general_mat_mul;
 use ndarray::{ArrayView2, ArrayViewMut2, NdFloat};
 use serde::{Deserialize, Serialize};
 
@@ -104,10 +103,8 @@ impl Float for f32 {
         vector::exp(f64::from(self)) as f32
     }
 
-    /// Always `matrixmultiply`'s single-precision product.
-    fn gemm(a: ArrayView2<f32>, b: ArrayView2<f32>, accumulate: bool, mut c: ArrayViewMut2<f32>) {
-        let beta = if accumulate { 1.0 } else { 0.0 };
-        general_mat_mul(1.0, &a, &b, beta, &mut c);
+    fn gemm(a: ArrayView2<f32>, b: ArrayView2<f32>, accumulate: bool, c: ArrayViewMut2<f32>) {
+        gemm::gemm_f32(a, b, accumulate, c);
     }
 
     fn reads_rows(_: usize, _: usize, _: usize) -> bool {

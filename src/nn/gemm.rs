@@ -1,24 +1,29 @@
 //! Matrix products for the engine: `C ← A·B` or `C ← A·B + C`.
 //!
-//! Large products go to `matrixmultiply` (through ndarray's
-//! `general_mat_mul`), which packs its operands into cache-sized panels and
-//! splits the work over threads. For the small products of small networks
-//! (Iris-sized layers, short batches) that packing, its allocation and the
-//! masked edge kernels cost more than the arithmetic, so those are computed
-//! here directly from the row-major buffers.
+//! For the small products of small networks (Iris-sized layers, short
+//! batches) packing the operands, its allocation and masked edge kernels cost
+//! more than the arithmetic, so those are computed here directly from the
+//! row-major buffers. Large products are packed into cache-sized panels: on
+//! processors with AVX-512 by the kernel in [`packed`], elsewhere by
+//! `matrixmultiply` (through ndarray's `general_mat_mul`), whose kernel uses
+//! AVX2 at most.
 //!
-//! Both paths give the same bits. `matrixmultiply`'s FMA kernel, which it
+//! All paths give the same bits. `matrixmultiply`'s FMA kernel, which it
 //! selects at run time on processors with AVX2 and FMA, forms each entry of
 //! `A·B` as one fused multiply–add chain over `k` in order, starting from
 //! zero, in blocks of [`KC`] values of `k`, and then adds the block to `C`
 //! (`C ← ab + C`, or `C ← ab + 0` for the first block without accumulation).
-//! The kernel here does exactly that, only with no packing; where the
+//! The kernels here do exactly that; where the
 //! processor lacks AVX2 or FMA, `matrixmultiply` uses other kernels with other
 //! rounding, so every product goes to it and nothing changes there.
 
 use ndarray::{ArrayView2, ArrayViewMut2, linalg::general_mat_mul};
 
-/// `matrixmultiply`'s block depth along `k` for `f64` (its `D_KC`).
+#[cfg(target_arch = "x86_64")]
+mod packed;
+
+/// `matrixmultiply`'s block depth along `k`, for `f64` and `f32` alike (its
+/// `D_KC` and `S_KC`).
 const KC: usize = 256;
 
 /// Products with at most this many multiply–adds use the direct kernel. Past
@@ -39,14 +44,7 @@ pub(crate) fn gemm(
     accumulate: bool,
     mut c: ArrayViewMut2<f64>,
 ) {
-    let ((m, k), (k2, n)) = (a.dim(), b.dim());
-    assert!(
-        k == k2 && c.dim() == (m, n),
-        "gemm shapes: {:?}·{:?} into {:?}",
-        a.dim(),
-        b.dim(),
-        c.dim()
-    );
+    let (m, k, n) = dimensions(&a, &b, &c);
     if m == 0 || n == 0 {
         return;
     }
@@ -75,8 +73,54 @@ pub(crate) fn gemm(
         unsafe { x86::direct(&shape, a.as_ptr(), b.as_ptr(), c.as_mut_ptr()) };
         return;
     }
+    #[cfg(target_arch = "x86_64")]
+    if m * n * k > DIRECT_MAX_WORK && c.strides()[1] == 1 && packed::available() {
+        packed::gemm(a, b, accumulate, c);
+        return;
+    }
     let beta = if accumulate { 1.0 } else { 0.0 };
     general_mat_mul(1.0, &a, &b, beta, &mut c);
+}
+
+/// [`gemm`] in single precision: large products take the packed kernel
+/// where the processor has AVX-512, all others `matrixmultiply`.
+///
+/// # Panics
+/// If the shapes do not chain.
+pub(crate) fn gemm_f32(
+    a: ArrayView2<f32>,
+    b: ArrayView2<f32>,
+    accumulate: bool,
+    mut c: ArrayViewMut2<f32>,
+) {
+    let (m, k, n) = dimensions(&a, &b, &c);
+    #[cfg(target_arch = "x86_64")]
+    if m * n * k > DIRECT_MAX_WORK && c.strides()[1] == 1 && packed::available() {
+        packed::gemm(a, b, accumulate, c);
+        return;
+    }
+    let beta = if accumulate { 1.0 } else { 0.0 };
+    general_mat_mul(1.0, &a, &b, beta, &mut c);
+}
+
+/// `(m, k, n)` of an `(m × k)·(k × n)` product into `c`.
+///
+/// # Panics
+/// If the shapes do not chain.
+fn dimensions<T>(
+    a: &ArrayView2<T>,
+    b: &ArrayView2<T>,
+    c: &ArrayViewMut2<T>,
+) -> (usize, usize, usize) {
+    let ((m, k), (k2, n)) = (a.dim(), b.dim());
+    assert!(
+        k == k2 && c.dim() == (m, n),
+        "gemm shapes: {:?}·{:?} into {:?}",
+        a.dim(),
+        b.dim(),
+        c.dim()
+    );
+    (m, k, n)
 }
 
 /// Whether an `(m × k)·(k × n)` product takes the direct kernel (given
@@ -261,7 +305,17 @@ mod x86 {
 #[cfg(test)]
 mod tests {
     use super::*;
+    use crate::nn::Float;
     use ndarray::{Array2, s};
+
+    /// The packed kernel's element types (any type elsewhere, where there is
+    /// no packed kernel to test).
+    #[cfg(target_arch = "x86_64")]
+    use packed::Element;
+    #[cfg(not(target_arch = "x86_64"))]
+    trait Element {}
+    #[cfg(not(target_arch = "x86_64"))]
+    impl<T> Element for T {}
 
     /// Values with full mantissas, so that any difference in rounding shows.
     fn matrix(rows: usize, cols: usize, seed: u64) -> Array2<f64> {
@@ -271,10 +325,78 @@ mod tests {
         })
     }
 
-    /// Bit for bit the same as matrixmultiply, including long `k` (several
-    /// blocks), ragged edges, transposed left operands and accumulation.
-    #[test]
-    fn same_bits_as_matrixmultiply() {
+    /// matrixmultiply's result for `start`, or `0` when not accumulating.
+    fn theirs<T: Float>(
+        a: ArrayView2<T>,
+        b: ArrayView2<T>,
+        accumulate: bool,
+        start: &Array2<T>,
+    ) -> Array2<T> {
+        let mut c = start.clone();
+        let beta = if accumulate { T::one() } else { T::zero() };
+        general_mat_mul(T::one(), &a, &b, beta, &mut c);
+        c
+    }
+
+    /// Whether two matrices hold the same bits (`==` would let −0 equal +0).
+    fn same_bits<T: Float>(x: &Array2<T>, y: &Array2<T>) -> bool {
+        x.dim() == y.dim()
+            && x.iter()
+                .zip(y)
+                .all(|(x, y)| x.widen().to_bits() == y.widen().to_bits())
+    }
+
+    /// A product with [`gemm`]'s signature.
+    type Product<T> = fn(ArrayView2<T>, ArrayView2<T>, bool, ArrayViewMut2<T>);
+
+    /// The products of one float type to check: the engine's entry point and,
+    /// where the processor has AVX-512, the packed kernel itself (so that
+    /// small shapes test its edges too).
+    fn products<T: Float + Element>(entry: Product<T>) -> Vec<(&'static str, Product<T>)> {
+        let mut products = vec![("gemm", entry)];
+        #[cfg(target_arch = "x86_64")]
+        if packed::available() {
+            products.push(("packed", packed::gemm::<T>));
+        }
+        products
+    }
+
+    /// `product` into columns `2..n + 2` of a wider `C` starting as `start`
+    /// there, on a pool of `threads`; checks that the columns around are
+    /// untouched and returns the product's columns.
+    fn into_wider_c<T: Float>(
+        product: Product<T>,
+        a: ArrayView2<T>,
+        b: ArrayView2<T>,
+        accumulate: bool,
+        start: &Array2<T>,
+        threads: usize,
+    ) -> Array2<T> {
+        let (m, n) = start.dim();
+        let mut wide = matrix(m, n + 5, 9).mapv(T::round_from);
+        wide.slice_mut(s![.., 2..n + 2]).assign(start);
+        let around = |w: &Array2<T>| {
+            (
+                w.slice(s![.., ..2]).to_owned(),
+                w.slice(s![.., n + 2..]).to_owned(),
+            )
+        };
+        let before = around(&wide);
+        let pool = rayon::ThreadPoolBuilder::new()
+            .num_threads(threads)
+            .build()
+            .unwrap();
+        pool.install(|| product(a, b, accumulate, wide.slice_mut(s![.., 2..n + 2])));
+        assert_eq!(around(&wide), before, "outside the product's columns");
+        wide.slice(s![.., 2..n + 2]).to_owned()
+    }
+
+    /// Bit for bit the same as matrixmultiply, in both float types, including
+    /// long `k` (several blocks, the last one short), ragged edges,
+    /// transposed left operands, accumulation, `C` inside a wider matrix, the
+    /// training benchmark's two large products (128 × 784 · 784 × 256 and
+    /// 784 × 128 · 128 × 256), and one and two threads.
+    fn same_bits_as_matrixmultiply<T: Float + Element>(entry: Product<T>) {
         for &(m, k, n) in &[
             (1, 1, 1),
             (150, 4, 8),
@@ -285,6 +407,14 @@ mod tests {
             (13, 300, 6),
             (3, 600, 17),
             (64, 520, 2),
+            (128, 784, 256),
+            (784, 128, 256),
+            (130, 620, 53),
+            (61, 257, 600),
+            (9, 2000, 250),
+            (200, 20, 47),
+            (128, 256, 10),
+            (128, 10, 256),
         ] {
             for transposed in [false, true] {
                 for accumulate in [false, true] {
@@ -292,30 +422,71 @@ mod tests {
                         matrix(k, m, 1)
                     } else {
                         matrix(m, k, 1)
-                    };
+                    }
+                    .mapv(T::round_from);
                     let a = if transposed {
                         a_owned.t()
                     } else {
                         a_owned.view()
                     };
-                    let b = matrix(k, n, 2);
-                    let start = matrix(m, n, 3);
-                    let mut ours = start.clone();
-                    gemm(a, b.view(), accumulate, ours.view_mut());
-                    let mut theirs = start.clone();
-                    let beta = if accumulate { 1.0 } else { 0.0 };
-                    general_mat_mul(1.0, &a, &b, beta, &mut theirs);
-                    let same = ours
-                        .iter()
-                        .zip(&theirs)
-                        .all(|(x, y)| x.to_bits() == y.to_bits());
-                    assert!(
-                        same,
-                        "{m}x{k}x{n} transposed {transposed} accumulate {accumulate}"
-                    );
+                    let b = matrix(k, n, 2).mapv(T::round_from);
+                    let start = matrix(m, n, 3).mapv(T::round_from);
+                    let expected = theirs(a, b.view(), accumulate, &start);
+                    for (name, product) in products(entry) {
+                        for threads in [1, 2] {
+                            let ours =
+                                into_wider_c(product, a, b.view(), accumulate, &start, threads);
+                            assert!(
+                                same_bits(&ours, &expected),
+                                "{name} {m}x{k}x{n} transposed {transposed} accumulate {accumulate} threads {threads}"
+                            );
+                        }
+                    }
                 }
             }
         }
+    }
+
+    #[test]
+    fn same_bits_as_matrixmultiply_f64() {
+        same_bits_as_matrixmultiply::<f64>(gemm);
+    }
+
+    #[test]
+    fn same_bits_as_matrixmultiply_f32() {
+        same_bits_as_matrixmultiply::<f32>(gemm_f32);
+    }
+
+    /// Products that underflow to −0 added to a −0 `C`: matrixmultiply gives
+    /// −0 from its full tiles but +0 from its remainder rows and columns
+    /// (which add `ab + 0`); so must the packed kernel.
+    fn negative_zeros_as_matrixmultiply<T: Float + Element>(entry: Product<T>, tiny: f64) {
+        let (m, k, n) = (13, 300, 38);
+        let a = Array2::from_elem((m, k), T::round_from(tiny));
+        let b = Array2::from_elem((k, n), T::round_from(-tiny));
+        let start = Array2::from_shape_fn((m, n), |(i, j)| {
+            T::round_from(if (i + j) % 5 == 0 { 0.0 } else { -0.0 })
+        });
+        let expected = theirs(a.view(), b.view(), true, &start);
+        let negative = expected
+            .iter()
+            .filter(|v| v.widen().to_bits() == (-0.0f64).to_bits())
+            .count();
+        assert!(negative > 0 && negative < m * n, "both signs of zero occur");
+        for (name, product) in products(entry) {
+            let ours = into_wider_c(product, a.view(), b.view(), true, &start, 2);
+            assert!(same_bits(&ours, &expected), "{name}");
+        }
+    }
+
+    #[test]
+    fn negative_zeros_as_matrixmultiply_f64() {
+        negative_zeros_as_matrixmultiply::<f64>(gemm, 1e-200);
+    }
+
+    #[test]
+    fn negative_zeros_as_matrixmultiply_f32() {
+        negative_zeros_as_matrixmultiply::<f32>(gemm_f32, 1e-30);
     }
 
     #[test]
