@@ -7,9 +7,12 @@
 //! same draws; the trained network is converted back to `f64` (exactly: every `f32`
 //! is an `f64`).
 
+use std::borrow::Cow;
+
 use ndarray::{ArrayView2, ArrayViewMut2, NdFloat};
 use serde::{Deserialize, Serialize};
 
+use super::network::Network;
 use super::{gemm, vector};
 
 /// The float type of a run's training arithmetic.
@@ -43,6 +46,10 @@ pub trait Float: NdFloat {
     /// `f64` data as this type without copying, where it is `f64`.
     fn view(data: ArrayView2<'_, f64>) -> Option<ArrayView2<'_, Self>>;
 
+    /// A network of this type as the `f64` network it stands for (exact), without
+    /// copying where it is `f64`.
+    fn widened(network: &Network<Self>) -> Cow<'_, Network>;
+
     /// `e^x` in a form the compiler vectorises (see `vector`).
     fn vector_exp(self) -> Self;
 
@@ -66,6 +73,10 @@ impl Float for f64 {
 
     fn view(data: ArrayView2<'_, f64>) -> Option<ArrayView2<'_, f64>> {
         Some(data)
+    }
+
+    fn widened(network: &Network) -> Cow<'_, Network> {
+        Cow::Borrowed(network)
     }
 
     #[inline(always)]
@@ -93,6 +104,10 @@ impl Float for f32 {
 
     fn view(_: ArrayView2<'_, f64>) -> Option<ArrayView2<'_, f32>> {
         None
+    }
+
+    fn widened(network: &Network<f32>) -> Cow<'_, Network> {
+        Cow::Owned(network.to_precision())
     }
 
     /// Computed in `f64` and rounded: the `f64` exponential is within one `f64` ulp,

@@ -143,8 +143,10 @@ impl<'a> Rows<'a> {
         }
     }
 
-    /// All rows gathered into new matrices `(inputs, targets)`.
-    pub fn to_matrices(&self) -> (Array2<f64>, Array2<f64>) {
+    /// All rows gathered into new matrices `(inputs, targets)`: the scaled copy
+    /// that training avoids, which tests compare it with.
+    #[cfg(test)]
+    pub(crate) fn scaled_copy(&self) -> (Array2<f64>, Array2<f64>) {
         let mut x = Array2::zeros((self.len(), self.inputs()));
         let mut y = Array2::zeros((self.len(), self.targets()));
         self.gather(0..self.len(), x.view_mut(), y.view_mut());
@@ -201,7 +203,7 @@ mod tests {
         let rows = Rows::all(x.view(), y.view())
             .pick(&pick)
             .scaled(&offset, &divisor);
-        let (gx, gy) = rows.to_matrices();
+        let (gx, gy) = rows.scaled_copy();
         for (i, &r) in pick.iter().enumerate() {
             for j in 0..2 {
                 assert_eq!(gx[[i, j]], (x[[r, j]] - offset[j]) / divisor[j]);
@@ -243,7 +245,7 @@ mod tests {
         let rows = Rows::all(x.view(), y.view())
             .pick(&pick)
             .scaled(&offset, &divisor);
-        let (copy, _) = rows.to_matrices();
+        let (copy, _) = rows.scaled_copy();
         assert_eq!(rows.predict(&network), network.predict(copy.view()));
     }
 

@@ -236,6 +236,8 @@ fn train_in<F: Float>(
     if let Some(v) = &validation {
         check_data(&network, v, "validation");
     }
+    // The validation targets do not change between epochs.
+    let validation = validation.map(|v| (v, v.target_matrix()));
     let output = network.layers[network.layers.len() - 1].activation;
     assert!(
         config.loss.supports(output),
@@ -290,9 +292,9 @@ fn train_in<F: Float>(
         }
 
         let train_loss = total / n as f64;
-        let validation_loss = validation
-            .as_ref()
-            .map(|v| evaluate(&network.to_precision(), v, config.loss).mean_loss);
+        let validation_loss = validation.as_ref().map(|(rows, targets)| {
+            outputs_and_mean_loss(&F::widened(&network), rows, targets.view(), config.loss).1
+        });
         // Finite batch losses can still add up to infinity.
         if !train_loss.is_finite() || validation_loss.is_some_and(|v| !v.is_finite()) {
             return stopped(network, history, StopReason::Diverged, epoch, monitor);
@@ -352,17 +354,29 @@ pub struct Evaluation {
 /// As [`mean_loss`].
 pub fn evaluate(network: &Network, rows: &Rows, loss: Loss) -> Evaluation {
     check_data(network, rows, "evaluation");
-    let output = network.layers[network.layers.len() - 1].activation;
-    // One sum over all rows' outputs, so the result does not depend on how
-    // the rows were chunked for prediction.
-    let outputs = rows.predict(network);
     let targets = rows.target_matrix();
-    let mean_loss = loss.total(output, outputs.view(), targets.view()) / rows.len() as f64;
+    let (outputs, mean_loss) = outputs_and_mean_loss(network, rows, targets.view(), loss);
     Evaluation {
         outputs,
         targets,
         mean_loss,
     }
+}
+
+/// `network`'s outputs on `rows` and their mean loss against `targets` (the
+/// rows' targets, gathered by the caller so that training gathers them once).
+fn outputs_and_mean_loss(
+    network: &Network,
+    rows: &Rows,
+    targets: ArrayView2<f64>,
+    loss: Loss,
+) -> (Array2<f64>, f64) {
+    let output = network.layers[network.layers.len() - 1].activation;
+    // One sum over all rows' outputs, so the result does not depend on how
+    // the rows were chunked for prediction.
+    let outputs = rows.predict(network);
+    let mean_loss = loss.total(output, outputs.view(), targets) / rows.len() as f64;
+    (outputs, mean_loss)
 }
 
 fn check_data(network: &Network, rows: &Rows, what: &str) {
@@ -589,8 +603,8 @@ mod tests {
         let shared = Rows::all(x.view(), y.view());
         let training = shared.pick(&train_pick).scaled(&offset, &divisor);
         let test_rows = shared.pick(&test_pick).scaled(&offset, &divisor);
-        let (train_x, train_y) = training.to_matrices();
-        let (test_x, test_y) = test_rows.to_matrices();
+        let (train_x, train_y) = training.scaled_copy();
+        let (test_x, test_y) = test_rows.scaled_copy();
         for (batch, shuffle) in [
             (BatchSize::Rows(2), false),
             (BatchSize::Rows(2), true),
