@@ -27,6 +27,7 @@ pub mod shard;
 pub mod use_model;
 
 use std::path::{Path, PathBuf};
+use std::time::Duration;
 
 use cache::Cache;
 use document::{Document, DocumentErrors, Problem};
@@ -312,22 +313,26 @@ pub struct Dispatched {
 }
 
 /// `stet dispatch`: prepares the document's data into the cache, submits a job array
-/// of `tasks` shares, and with `wait` waits for it and builds the report (which then
-/// trains nothing) — unless a task failed and left runs uncached.
+/// of `tasks` shares, and with `wait` (the longest wait) waits for it and builds the
+/// report (which then trains nothing) — unless a task failed and left runs uncached.
+/// Slurm's programs are found, and the outputs checked, before anything is written.
 pub fn dispatch(
     options: &BuildOptions,
     tasks: usize,
-    wait: bool,
+    wait: Option<Duration>,
     sbatch_options: &[String],
 ) -> Result<Dispatched, Error> {
     if tasks == 0 {
         return Err(Error::Usage("--tasks must be at least 1".into()));
     }
+    let slurm = dispatch::Slurm::locate(wait.is_some()).map_err(Error::Usage)?;
     let loaded = load(&options.document, &options.plan)?;
     let cache = open_cache(&options.cache, &options.document);
     let Some(dir) = cache.dir() else {
         return Err(Error::Usage("dispatch needs a shared cache folder".into()));
     };
+    // The build after the wait writes the report: refuse now what it would refuse then.
+    check_outputs(options, &loaded, &cache)?;
     let io = |context: String| move |source| Error::Io { context, source };
     std::fs::create_dir_all(dir).map_err(io(format!("creating {}", dir.display())))?;
     let cache_dir = dir
@@ -349,16 +354,16 @@ pub fn dispatch(
         sbatch_options,
         plan: &options.plan,
     };
-    let (job, script) = dispatch::submit(&request).map_err(Error::Usage)?;
-    if !wait {
+    let (job, script) = dispatch::submit(&request, &slurm.sbatch).map_err(Error::Usage)?;
+    let (Some(timeout), Some(squeue)) = (wait, &slurm.squeue) else {
         return Ok(Dispatched {
             job,
             script,
             finished: None,
         });
-    }
+    };
     eprintln!("submitted job {job} ({tasks} tasks); waiting for it");
-    dispatch::wait_for(&job).map_err(Error::Usage)?;
+    dispatch::wait_for(&job, squeue, timeout).map_err(Error::Usage)?;
     let (cached, all) = freshness::run_totals(&loaded.plan, &cache);
     let missing = all - cached;
     let finished = if missing > 0 {
