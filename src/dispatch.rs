@@ -252,7 +252,13 @@ mod tests {
     fn only_a_numeric_job_id_is_taken_from_sbatch() {
         assert_eq!(parse_job_id("4242\n"), Ok("4242".into()));
         assert_eq!(parse_job_id("4242;cluster\n"), Ok("4242".into()));
-        for bad in ["", "garbage output", "Submitted batch job 4242", "42 43", "4242\n4243"] {
+        for bad in [
+            "",
+            "garbage output",
+            "Submitted batch job 4242",
+            "42 43",
+            "4242\n4243",
+        ] {
             assert!(parse_job_id(bad).is_err(), "{bad:?} was taken");
         }
     }

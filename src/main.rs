@@ -201,7 +201,8 @@ fn run(command: Command) -> Result<ExitCode, Error> {
                 allow_html: false,
                 plan: flags.options(),
             };
-            let dispatched = stet::dispatch(&options, tasks, wait.then_some(wait_timeout), &sbatch)?;
+            let dispatched =
+                stet::dispatch(&options, tasks, wait.then_some(wait_timeout), &sbatch)?;
             println!("{}", dispatched.job);
             eprintln!("job script: {}", dispatched.script.display());
             Ok(match dispatched.finished {

@@ -208,7 +208,10 @@ pub struct BuildTargets {
 #[derive(Debug)]
 pub enum BuildRefusal {
     /// The report or summary path, named by its flag.
-    Flag { flag: &'static str, refusal: Refusal },
+    Flag {
+        flag: &'static str,
+        refusal: Refusal,
+    },
     /// Steps whose `write:` takes the document, the report, the summary or the cache:
     /// each step's index and why.
     Steps(Vec<(usize, Refusal)>),
@@ -234,7 +237,11 @@ pub fn check_build(
     let inputs = input_claims(steps);
     // What the build's own files may not take; each file found joins it.
     let mut claims = vec![Claim::new(absolute(paths.document), "this document")];
-    claims.extend(paths.cache.map(|dir| Claim::new(absolute(dir), "the cache folder or what it holds")));
+    claims.extend(
+        paths
+            .cache
+            .map(|dir| Claim::new(absolute(dir), "the cache folder or what it holds")),
+    );
     let (report_path, flag) = paths.report;
     let report = checked_command_output(report_path, flag, &project, &[&claims, &inputs])?;
     claims.push(Claim::new(report.clone(), "the report"));
@@ -242,7 +249,10 @@ pub fn check_build(
         .json
         .map(|path| checked_command_output(path, "--json", &project, &[&claims, &inputs]))
         .transpose()?;
-    claims.extend(json.iter().map(|path| Claim::new(path.clone(), "the JSON summary")));
+    claims.extend(
+        json.iter()
+            .map(|path| Claim::new(path.clone(), "the JSON summary")),
+    );
     let clashes: Vec<(usize, Refusal)> = steps
         .iter()
         .enumerate()
@@ -449,7 +459,11 @@ mod tests {
     fn folders_are_created_only_inside_the_project() {
         let (dir, root) = project();
         assert!(step_output(&root, "new/deeper/x.csv", Some(&root)).is_ok());
-        let outside = dir.path().parent().unwrap().join("stet-no-such-folder/x.csv");
+        let outside = dir
+            .path()
+            .parent()
+            .unwrap()
+            .join("stet-no-such-folder/x.csv");
         assert!(matches!(
             step_output(&root, outside.to_str().unwrap(), None),
             Err(Refusal::NoFolder { .. })

@@ -57,7 +57,10 @@ fn stale_temporary_files_of_ours_beside_the_report_are_removed_by_the_next_build
     write_aged(&not_ours, Duration::from_secs(600));
     ws.build_ok(&doc, &[]);
     assert!(!stale.exists(), "the stale temporary file is still there");
-    assert!(fresh.exists(), "a temporary file still being written was removed");
+    assert!(
+        fresh.exists(),
+        "a temporary file still being written was removed"
+    );
     assert!(not_ours.exists(), "a file of another naming was removed");
 }
 
@@ -126,8 +129,15 @@ fn dispatch_without_sbatch_writes_nothing() {
     let slurm = FakeSlurm::new(&[]);
     let output = slurm.dispatch_alone(&ws, &[]);
     assert_eq!(output.status.code(), Some(2), "{}", stderr(&output));
-    assert!(stderr(&output).contains("sbatch is not on PATH"), "{}", stderr(&output));
-    assert!(!ws.path("cache").exists(), "dispatch wrote into the cache first");
+    assert!(
+        stderr(&output).contains("sbatch is not on PATH"),
+        "{}",
+        stderr(&output)
+    );
+    assert!(
+        !ws.path("cache").exists(),
+        "dispatch wrote into the cache first"
+    );
 }
 
 #[test]
@@ -137,8 +147,15 @@ fn dispatch_with_wait_and_without_squeue_writes_nothing() {
     let slurm = FakeSlurm::new(&[("sbatch", "echo 4242")]);
     let output = slurm.dispatch_alone(&ws, &["--wait"]);
     assert_eq!(output.status.code(), Some(2), "{}", stderr(&output));
-    assert!(stderr(&output).contains("squeue is not on PATH"), "{}", stderr(&output));
-    assert!(!ws.path("cache").exists(), "dispatch wrote into the cache first");
+    assert!(
+        stderr(&output).contains("squeue is not on PATH"),
+        "{}",
+        stderr(&output)
+    );
+    assert!(
+        !ws.path("cache").exists(),
+        "dispatch wrote into the cache first"
+    );
 }
 
 #[test]
@@ -179,7 +196,11 @@ fn waiting_for_a_job_gives_up_after_the_wait_timeout() {
     let started = std::time::Instant::now();
     let output = slurm.dispatch(&ws, &["--wait", "--wait-timeout", "3s"]);
     assert_eq!(output.status.code(), Some(2), "{}", stderr(&output));
-    assert!(stderr(&output).contains("job 4242 is still running after 3s"), "{}", stderr(&output));
+    assert!(
+        stderr(&output).contains("job 4242 is still running after 3s"),
+        "{}",
+        stderr(&output)
+    );
     assert!(slurm.squeue_calls() >= 2);
     assert!(started.elapsed() < Duration::from_secs(30));
 }

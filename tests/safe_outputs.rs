@@ -75,16 +75,28 @@ fn line_of(document: &str, text: &str) -> usize {
 /// with nothing run or written: no report, no cache, and every file in `unchanged`
 /// byte for byte as before.
 fn assert_refused_at_write(ws: &Workspace, write: &str, other: &str, unchanged: &[&str]) {
-    let before: Vec<Option<Vec<u8>>> = unchanged.iter().map(|f| std::fs::read(ws.path(f)).ok()).collect();
+    let before: Vec<Option<Vec<u8>>> = unchanged
+        .iter()
+        .map(|f| std::fs::read(ws.path(f)).ok())
+        .collect();
     let output = run(ws, &["build", "victim.md"]);
     let err = stderr(&output);
     assert_eq!(output.status.code(), Some(2), "write: {write}: {err}");
     let text = std::fs::read_to_string(ws.path("victim.md")).unwrap();
     let line = line_of(&text, &format!("write: {write}"));
-    assert!(err.contains(&format!("victim.md:{line}:1")), "write: {write}: {err}");
-    assert!(err.contains(other), "write: {write}: expected {other:?} in {err}");
+    assert!(
+        err.contains(&format!("victim.md:{line}:1")),
+        "write: {write}: {err}"
+    );
+    assert!(
+        err.contains(other),
+        "write: {write}: expected {other:?} in {err}"
+    );
     assert!(!ws.path("victim.html").exists() || unchanged.contains(&"victim.html"));
-    assert!(!ws.path(".stet").exists(), "write: {write}: the build ran first");
+    assert!(
+        !ws.path(".stet").exists(),
+        "write: {write}: the build ran first"
+    );
     for (file, bytes) in unchanged.iter().zip(before) {
         assert_eq!(std::fs::read(ws.path(file)).ok(), bytes, "{file} changed");
     }
@@ -162,8 +174,17 @@ fn the_report_or_summary_over_the_document_or_its_data_is_refused() {
             std::fs::read(ws.path("new.csv")).unwrap(),
         ];
         let output = run(&ws, args);
-        assert_eq!(output.status.code(), Some(2), "{args:?}: {}", stderr(&output));
-        assert!(stderr(&output).contains("would overwrite"), "{}", stderr(&output));
+        assert_eq!(
+            output.status.code(),
+            Some(2),
+            "{args:?}: {}",
+            stderr(&output)
+        );
+        assert!(
+            stderr(&output).contains("would overwrite"),
+            "{}",
+            stderr(&output)
+        );
         assert!(!ws.path(".stet").exists(), "{args:?} ran the build");
         assert_eq!(std::fs::read(ws.path("victim.md")).unwrap(), before[0]);
         assert_eq!(std::fs::read(ws.path("iris.csv")).unwrap(), before[1]);
@@ -176,16 +197,25 @@ fn a_missing_report_folder_is_created_only_inside_the_project() {
     let ws = victim(&document(&export("model.json")));
     let elsewhere = tempfile::tempdir().unwrap();
     let outside = elsewhere.path().join("missing/deeper/report.html");
-    let output = run(&ws, &["build", "victim.md", "-o", outside.to_str().unwrap()]);
+    let output = run(
+        &ws,
+        &["build", "victim.md", "-o", outside.to_str().unwrap()],
+    );
     assert_eq!(output.status.code(), Some(2), "{}", stderr(&output));
     assert!(stderr(&output).contains("creates folders only inside the project"));
     assert!(!elsewhere.path().join("missing").exists());
     let json = elsewhere.path().join("missing/summary.json");
-    let output = run(&ws, &["build", "victim.md", "--json", json.to_str().unwrap()]);
+    let output = run(
+        &ws,
+        &["build", "victim.md", "--json", json.to_str().unwrap()],
+    );
     assert_eq!(output.status.code(), Some(2), "{}", stderr(&output));
     assert!(!elsewhere.path().join("missing").exists());
 
-    let output = run(&ws, &["build", "victim.md", "-o", "reports/new/victim.html"]);
+    let output = run(
+        &ws,
+        &["build", "victim.md", "-o", "reports/new/victim.html"],
+    );
     assert!(output.status.success(), "{}", stderr(&output));
     assert!(ws.path("reports/new/victim.html").is_file());
 }
@@ -198,9 +228,18 @@ fn writes_that_name_no_file_are_refused_when_planning() {
         let output = run(&ws, &["build", "victim.md"]);
         let err = stderr(&output);
         assert_eq!(output.status.code(), Some(2), "write: {write}: {err}");
-        let line = line_of(&std::fs::read_to_string(ws.path("victim.md")).unwrap(), &format!("write: {write}"));
-        assert!(err.contains(&format!("victim.md:{line}:1")), "write: {write}: {err}");
-        assert!(!ws.path(".stet").exists(), "write: {write}: the build ran first");
+        let line = line_of(
+            &std::fs::read_to_string(ws.path("victim.md")).unwrap(),
+            &format!("write: {write}"),
+        );
+        assert!(
+            err.contains(&format!("victim.md:{line}:1")),
+            "write: {write}: {err}"
+        );
+        assert!(
+            !ws.path(".stet").exists(),
+            "write: {write}: the build ran first"
+        );
         assert!(!ws.path("victim.html").exists());
         assert!(!ws.path("~").exists() && !ws.path("null").exists());
     }
@@ -216,7 +255,12 @@ fn a_write_that_fails_at_the_end_fails_its_step_and_the_report_is_still_written(
     let summary = summary.expect("a JSON summary");
     let step = common::step(&summary, "model");
     assert_eq!(step["status"], "failed");
-    assert!(step["error"].as_str().unwrap().contains("/proc/stet-model.json"));
+    assert!(
+        step["error"]
+            .as_str()
+            .unwrap()
+            .contains("/proc/stet-model.json")
+    );
     assert_eq!(common::step(&summary, "rows")["status"], "ran");
     let report = std::fs::read_to_string(ws.path("victim.html")).unwrap();
     assert!(report.contains("This step failed."));
@@ -239,7 +283,10 @@ fn names_of_the_document(ws: &Workspace) -> Vec<(std::path::PathBuf, String)> {
         (experiments.clone(), "./doc.md".into()),
         (ws.path(""), "experiments/doc.md".into()),
         (ws.path("demo-data"), "../experiments/doc.md".into()),
-        (ws.path("demo-data"), experiments.join("doc.md").display().to_string()),
+        (
+            ws.path("demo-data"),
+            experiments.join("doc.md").display().to_string(),
+        ),
         (ws.path(""), "linked/doc.md".into()),
         (ws.path("linked"), "doc.md".into()),
     ]
@@ -251,7 +298,10 @@ fn a_document_named_every_way_reads_and_writes_the_same_files() {
     let text = document(&export("models/model.json"))
         .replace("file: iris.csv", "file: ../iris.csv")
         .replace("file: new.csv", "file: ../demo-data/../iris.csv")
-        .replace("```yaml predict rows\nmodel: quick\n", "```yaml predict rows\nmodel: quick\nwrite: rows.csv\n");
+        .replace(
+            "```yaml predict rows\nmodel: quick\n",
+            "```yaml predict rows\nmodel: quick\nwrite: rows.csv\n",
+        );
     ws.write("experiments/doc.md", &text);
     std::os::unix::fs::symlink(ws.path("experiments"), ws.path("linked")).unwrap();
     for (dir, name) in names_of_the_document(&ws) {
@@ -260,7 +310,12 @@ fn a_document_named_every_way_reads_and_writes_the_same_files() {
             let _ = std::fs::remove_file(ws.path("experiments").join(made));
         }
         let output = stet(&["build".to_string(), name.clone()], &dir);
-        assert!(output.status.success(), "{name} in {}: {}", dir.display(), stderr(&output));
+        assert!(
+            output.status.success(),
+            "{name} in {}: {}",
+            dir.display(),
+            stderr(&output)
+        );
         for made in ["models/model.json", "rows.csv", "doc.html"] {
             assert!(
                 ws.path("experiments").join(made).is_file(),
@@ -275,13 +330,20 @@ fn a_document_named_every_way_reads_and_writes_the_same_files() {
 fn a_document_named_every_way_refuses_the_same_write() {
     let ws = Workspace::new();
     let text = document(&export("../iris.csv")).replace("file: iris.csv", "file: ../iris.csv");
-    ws.write("experiments/doc.md", &text.replace("file: new.csv", "file: ../iris.csv"));
+    ws.write(
+        "experiments/doc.md",
+        &text.replace("file: new.csv", "file: ../iris.csv"),
+    );
     std::os::unix::fs::symlink(ws.path("experiments"), ws.path("linked")).unwrap();
     let data = std::fs::read(ws.path("iris.csv")).unwrap();
     for (dir, name) in names_of_the_document(&ws) {
         let output = stet(&["build".to_string(), name.clone()], &dir);
         assert_eq!(output.status.code(), Some(2), "{name}: {}", stderr(&output));
-        assert!(stderr(&output).contains("the file step 'iris' reads"), "{name}: {}", stderr(&output));
+        assert!(
+            stderr(&output).contains("the file step 'iris' reads"),
+            "{name}: {}",
+            stderr(&output)
+        );
         assert_eq!(std::fs::read(ws.path("iris.csv")).unwrap(), data);
     }
     assert!(!Path::new(&ws.path("experiments/doc.html")).exists());
