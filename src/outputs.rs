@@ -27,7 +27,7 @@ const PROJECT_MARKER: &str = ".stet-project";
 pub enum Refusal {
     #[error("'{0}' names no file")]
     NoFile(String),
-    #[error("'{0}' contains a NUL character")]
+    #[error("{0:?} contains a NUL character")]
     Nul(String),
     #[error("'{0}' names a folder, not a file")]
     Folder(String),
