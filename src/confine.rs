@@ -2,9 +2,10 @@
 //! cannot read a reader's other files into a report or write over them. The project is
 //! the nearest folder above the document that holds a `.stet-project` file or a
 //! version-control folder (`.git`, `.hg`, `.svn`), or else the document's own folder. Symbolic links are followed
-//! before the check, so a link that leads outside is refused too.
+//! before the check, so a link that leads outside is refused too. The rules for files
+//! a build writes are in `outputs`.
 
-use std::path::{Component, Path, PathBuf};
+use std::path::{Path, PathBuf};
 
 /// The folder a document's data paths must stay inside.
 pub fn project_root(document_dir: &Path) -> PathBuf {
@@ -35,32 +36,6 @@ pub fn is_inside(path: &Path, root: &Path) -> bool {
         // A file that cannot be resolved is reported by the read itself.
         Err(_) => true,
     }
-}
-
-/// Whether a file to be written (which may not exist yet) would land inside `root`:
-/// its deepest existing folder, with links resolved, and the rest of the path without
-/// any `..`, must lie inside.
-pub fn is_writable_inside(path: &Path, root: &Path) -> bool {
-    let mut existing = path.to_path_buf();
-    let mut rest = Vec::new();
-    while !existing.exists() {
-        match (existing.file_name(), existing.parent()) {
-            (Some(name), Some(parent)) => {
-                rest.push(name.to_os_string());
-                existing = parent.to_path_buf();
-            }
-            _ => return false,
-        }
-    }
-    let rest_is_plain = rest.iter().all(|part| {
-        Path::new(part)
-            .components()
-            .all(|c| matches!(c, Component::Normal(_)))
-    });
-    rest_is_plain
-        && existing
-            .canonicalize()
-            .is_ok_and(|real| real.starts_with(root))
 }
 
 #[cfg(test)]
@@ -101,8 +76,5 @@ mod tests {
         let root = root.canonicalize().unwrap();
         assert!(!is_inside(&root.join("data.csv"), &root));
         assert!(!is_inside(&root.join("../secret.csv"), &root));
-        assert!(is_writable_inside(&root.join("out/new.csv"), &root));
-        assert!(!is_writable_inside(&root.join("out/../../x.csv"), &root));
-        assert!(!is_writable_inside(&root.join("../x.csv"), &root));
     }
 }

@@ -67,9 +67,51 @@ fn shell_quote(text: &str) -> String {
     }
 }
 
+/// The Slurm programs a dispatch runs, found on PATH before anything is written.
+#[derive(Clone, Debug)]
+pub struct Slurm {
+    pub sbatch: PathBuf,
+    /// Needed only to wait for the job.
+    pub squeue: Option<PathBuf>,
+}
+
+impl Slurm {
+    /// Finds `sbatch`, and `squeue` when the dispatch will wait.
+    pub fn locate(wait: bool) -> Result<Slurm, String> {
+        let find = |name: &str| {
+            find_on_path(name)
+                .ok_or_else(|| format!("{name} is not on PATH: stet dispatch needs Slurm"))
+        };
+        Ok(Slurm {
+            sbatch: find("sbatch")?,
+            squeue: if wait { Some(find("squeue")?) } else { None },
+        })
+    }
+}
+
+/// The first executable file called `name` in a folder of PATH.
+fn find_on_path(name: &str) -> Option<PathBuf> {
+    let path = std::env::var_os("PATH")?;
+    std::env::split_paths(&path)
+        .map(|dir| dir.join(name))
+        .find(|candidate| std::fs::metadata(candidate).is_ok_and(|meta| is_executable(&meta)))
+}
+
+fn is_executable(metadata: &std::fs::Metadata) -> bool {
+    #[cfg(unix)]
+    {
+        use std::os::unix::fs::PermissionsExt;
+        metadata.is_file() && metadata.permissions().mode() & 0o111 != 0
+    }
+    #[cfg(not(unix))]
+    {
+        metadata.is_file()
+    }
+}
+
 /// Writes the script beside the cache and submits it; returns the job id and the
 /// script's path.
-pub fn submit(request: &DispatchRequest<'_>) -> Result<(String, PathBuf), String> {
+pub fn submit(request: &DispatchRequest<'_>, sbatch: &Path) -> Result<(String, PathBuf), String> {
     let folder = request.cache_dir.join("dispatch");
     std::fs::create_dir_all(&folder).map_err(|e| format!("creating {}: {e}", folder.display()))?;
     let stem = request
@@ -81,46 +123,102 @@ pub fn submit(request: &DispatchRequest<'_>) -> Result<(String, PathBuf), String
     let script = job_script(request, &stet, &folder);
     crate::atomic::write(&script_path, script.as_bytes())
         .map_err(|e| format!("writing {}: {e}", script_path.display()))?;
-    let output = Command::new("sbatch")
+    let output = Command::new(sbatch)
         .arg("--parsable")
         .arg(format!("--array=1-{}", request.tasks))
         .args(request.sbatch_options)
         .arg(&script_path)
         .current_dir(&folder)
         .output()
-        .map_err(|e| format!("running sbatch: {e} (is Slurm installed and on PATH?)"))?;
+        .map_err(|e| format!("running {}: {e}", sbatch.display()))?;
     if !output.status.success() {
         return Err(format!(
             "sbatch refused the job: {}",
             String::from_utf8_lossy(&output.stderr).trim()
         ));
     }
-    let stdout = String::from_utf8_lossy(&output.stdout);
-    // --parsable prints "id" or "id;cluster".
-    let job = stdout
-        .trim()
-        .split(';')
-        .next()
-        .unwrap_or_default()
-        .to_string();
-    if job.is_empty() {
-        return Err("sbatch printed no job id".into());
-    }
+    let job = parse_job_id(&String::from_utf8_lossy(&output.stdout))?;
     Ok((job, script_path))
 }
 
-/// Waits until no task of the job is queued or running.
-pub fn wait_for(job: &str) -> Result<(), String> {
-    loop {
-        let output = Command::new("squeue")
-            .args(["-h", "-j", job, "-o", "%i"])
-            .output()
-            .map_err(|e| format!("running squeue: {e}"))?;
-        // squeue fails for a job id it no longer knows: the job is over.
-        if !output.status.success() || output.stdout.iter().all(u8::is_ascii_whitespace) {
-            return Ok(());
+/// The job id in what `sbatch --parsable` printed: one line, "ID" or "ID;CLUSTER",
+/// with ID all digits. Anything else is refused rather than waited on.
+fn parse_job_id(stdout: &str) -> Result<String, String> {
+    let line = stdout.trim();
+    let id = line.split(';').next().unwrap_or_default();
+    if !line.contains('\n') && !id.is_empty() && id.bytes().all(|b| b.is_ascii_digit()) {
+        Ok(id.to_string())
+    } else {
+        Err(format!(
+            "sbatch printed {line:?} where a job id was expected; the job may have been submitted, check with squeue"
+        ))
+    }
+}
+
+/// How long to wait between polls of a running job.
+const POLL_EVERY: Duration = Duration::from_secs(2);
+/// How often to ask `squeue` again after it fails, and the first pause (doubled each
+/// time): about half a minute in all, enough for a controller that is restarting.
+const SQUEUE_ATTEMPTS: u32 = 6;
+const FIRST_RETRY_AFTER: Duration = Duration::from_secs(1);
+
+/// Waits until no task of the job is queued or running, for at most `timeout`.
+pub fn wait_for(job: &str, squeue: &Path, timeout: Duration) -> Result<(), String> {
+    let started = std::time::Instant::now();
+    while asked_with_retries(job, squeue)? {
+        let waited = started.elapsed();
+        if waited >= timeout {
+            return Err(format!(
+                "job {job} is still running after {} (--wait-timeout); its tasks keep filling the cache, so build the document once it ends",
+                humantime::format_duration(timeout)
+            ));
         }
-        std::thread::sleep(Duration::from_secs(2));
+        std::thread::sleep(POLL_EVERY.min(timeout - waited));
+    }
+    Ok(())
+}
+
+/// Whether the job is still in the queue, asking again with a growing pause while
+/// `squeue` fails: a busy or restarting controller must not end the wait.
+fn asked_with_retries(job: &str, squeue: &Path) -> Result<bool, String> {
+    let mut pause = FIRST_RETRY_AFTER;
+    let mut attempt = 1;
+    loop {
+        match is_queued(job, squeue) {
+            Ok(queued) => return Ok(queued),
+            Err(error) if attempt >= SQUEUE_ATTEMPTS => {
+                return Err(format!(
+                    "asking squeue about job {job} failed {attempt} times: {error}"
+                ));
+            }
+            Err(_) => {
+                std::thread::sleep(pause);
+                pause *= 2;
+                attempt += 1;
+            }
+        }
+    }
+}
+
+/// One question to `squeue`: is any task of the job queued or running?
+fn is_queued(job: &str, squeue: &Path) -> Result<bool, String> {
+    let output = Command::new(squeue)
+        .args(["-h", "-j", job, "-o", "%i"])
+        .output()
+        .map_err(|e| format!("running {}: {e}", squeue.display()))?;
+    let stderr = String::from_utf8_lossy(&output.stderr);
+    queue_answer(output.status.success(), &output.stdout, &stderr)
+}
+
+/// Reads squeue's answer. It refuses a job id it no longer knows, which means the job
+/// is over; any other failure says nothing about the job.
+fn queue_answer(success: bool, stdout: &[u8], stderr: &str) -> Result<bool, String> {
+    if success {
+        Ok(!stdout.iter().all(u8::is_ascii_whitespace))
+    } else if stderr.to_ascii_lowercase().contains("invalid job id") {
+        Ok(false)
+    } else {
+        Err(format!("squeue failed: {}", stderr.trim()))
     }
 }
 
@@ -148,6 +246,32 @@ mod tests {
         assert!(script.contains(
             "exec /opt/stet build /data/exp/hives.md --cache /shared/cache --shard \"$SLURM_ARRAY_TASK_ID/4\""
         ));
+    }
+
+    #[test]
+    fn only_a_numeric_job_id_is_taken_from_sbatch() {
+        assert_eq!(parse_job_id("4242\n"), Ok("4242".into()));
+        assert_eq!(parse_job_id("4242;cluster\n"), Ok("4242".into()));
+        for bad in [
+            "",
+            "garbage output",
+            "Submitted batch job 4242",
+            "42 43",
+            "4242\n4243",
+        ] {
+            assert!(parse_job_id(bad).is_err(), "{bad:?} was taken");
+        }
+    }
+
+    #[test]
+    fn an_unknown_job_is_over_but_other_squeue_failures_are_not() {
+        assert_eq!(queue_answer(true, b"4242_1\n", ""), Ok(true));
+        assert_eq!(queue_answer(true, b"\n", ""), Ok(false));
+        // squeue's words for a job it has forgotten (Slurm 23).
+        let forgotten = "slurm_load_jobs error: Invalid job id specified";
+        assert_eq!(queue_answer(false, b"", forgotten), Ok(false));
+        let down = "slurm_load_jobs error: Unable to contact slurm controller";
+        assert!(queue_answer(false, b"", down).is_err());
     }
 
     #[test]

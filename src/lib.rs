@@ -18,6 +18,7 @@ pub mod input_file;
 pub mod manifest;
 pub mod nn;
 pub mod outcome;
+pub mod outputs;
 pub mod plan;
 pub mod prune;
 pub mod report;
@@ -26,6 +27,7 @@ pub mod shard;
 pub mod use_model;
 
 use std::path::{Path, PathBuf};
+use std::time::Duration;
 
 use cache::Cache;
 use document::{Document, DocumentErrors, Problem};
@@ -161,6 +163,8 @@ pub fn build(options: &BuildOptions) -> Result<BuildSummary, Error> {
     };
     let loaded = load(&options.document, &options.plan)?;
     let cache = open_cache(&options.cache, &options.document);
+    let targets = check_outputs(options, &loaded, &cache)?;
+    remove_stale_temporaries(&loaded.plan, &targets);
     let progress =
         indicatif::ProgressBar::with_draw_target(None, indicatif::ProgressDrawTarget::stderr())
             .with_style(
@@ -173,8 +177,9 @@ pub fn build(options: &BuildOptions) -> Result<BuildSummary, Error> {
         jobs: options.jobs,
         progress: Some(progress),
     };
-    let records = run::execute(&loaded.plan, &cache, &run_options);
+    let mut records = run::execute(&loaded.plan, &cache, &run_options);
     manifest::store(&cache, &options.document, &loaded.plan);
+    write_model_files(&loaded.plan, &mut records);
     let built_at = build_time();
     let html = report::render(
         &report::ReportInput {
@@ -189,26 +194,90 @@ pub fn build(options: &BuildOptions) -> Result<BuildSummary, Error> {
         &templates,
     )
     .map_err(|error| Error::Usage(format!("rendering the report: {error:#}")))?;
-    let report_path = options
-        .output
-        .clone()
-        .unwrap_or_else(|| options.document.with_extension("html"));
-    let base_dir = options.document.parent().unwrap_or(Path::new("."));
-    for (path, bytes) in model_files(&loaded.plan, &records, base_dir) {
-        write_output(&path, &bytes)?;
-    }
-    write_output(&report_path, html.as_bytes())?;
-    if let Some(json_path) = &options.json {
+    write_output(&targets.report, html.as_bytes())?;
+    if let Some(json_path) = &targets.json {
         let summary = report::summary::summary(&loaded.name, &loaded.hash, &loaded.plan, &records);
         let text = serde_json::to_string_pretty(&summary).expect("a JSON value serialises");
         write_output(json_path, text.as_bytes())?;
     }
     Ok(summarise(
-        report_path,
+        report_path(options),
         &loaded.plan,
         &records,
         cache.take_warnings(),
     ))
+}
+
+/// The report path as the user gave it, or `DOC.html` beside the document.
+fn report_path(options: &BuildOptions) -> PathBuf {
+    options
+        .output
+        .clone()
+        .unwrap_or_else(|| options.document.with_extension("html"))
+}
+
+/// Every file the build will write, checked before anything runs: a report or summary
+/// path that would replace the document, a file a step reads, the cache or each other
+/// is a command-line error; a step's `write:` that would is a problem at its line.
+fn check_outputs(
+    options: &BuildOptions,
+    loaded: &Loaded,
+    cache: &Cache,
+) -> Result<outputs::BuildTargets, Error> {
+    let report = report_path(options);
+    let paths = outputs::BuildPaths {
+        document: &options.document,
+        report: (
+            &report,
+            if options.output.is_some() {
+                "-o"
+            } else {
+                "the report beside the document"
+            },
+        ),
+        json: options.json.as_deref(),
+        cache: cache.dir(),
+    };
+    outputs::check_build(&loaded.plan.steps, &paths).map_err(|refused| match refused {
+        outputs::BuildRefusal::Flag { flag, refusal } => Error::Usage(format!("{flag}: {refusal}")),
+        outputs::BuildRefusal::Steps(clashes) => {
+            let problems = clashes
+                .into_iter()
+                .map(|(index, refusal)| refusal.at(write_span(loaded, index)))
+                .collect();
+            Error::Document(DocumentErrors::for_file(
+                &options.document,
+                loaded.document.source.clone(),
+                problems,
+            ))
+        }
+    })
+}
+
+/// Where a step's `write:` setting sits in the document.
+fn write_span(loaded: &Loaded, step: usize) -> std::ops::Range<usize> {
+    let document::Piece::Step(block) = &loaded.document.pieces[loaded.plan.steps[step].piece]
+    else {
+        unreachable!("a planned step comes from a step block")
+    };
+    document::spec::key_span(block.yaml_block(), "write").unwrap_or(block.info_span.clone())
+}
+
+/// A build killed while writing leaves its temporary files behind; the next build
+/// removes those of its own beside the files it writes.
+fn remove_stale_temporaries(plan: &Plan, targets: &outputs::BuildTargets) {
+    let files = plan
+        .steps
+        .iter()
+        .filter_map(|step| step.output.as_ref().map(|output| &output.path))
+        .chain([&targets.report])
+        .chain(&targets.json);
+    let mut folders: Vec<&Path> = files.filter_map(|path| path.parent()).collect();
+    folders.sort();
+    folders.dedup();
+    for folder in folders {
+        atomic::remove_stale(folder);
+    }
 }
 
 /// `stet build --shard K/N`: trains one share of the document's uncached runs into the
@@ -244,22 +313,26 @@ pub struct Dispatched {
 }
 
 /// `stet dispatch`: prepares the document's data into the cache, submits a job array
-/// of `tasks` shares, and with `wait` waits for it and builds the report (which then
-/// trains nothing) — unless a task failed and left runs uncached.
+/// of `tasks` shares, and with `wait` (the longest wait) waits for it and builds the
+/// report (which then trains nothing) — unless a task failed and left runs uncached.
+/// Slurm's programs are found, and the outputs checked, before anything is written.
 pub fn dispatch(
     options: &BuildOptions,
     tasks: usize,
-    wait: bool,
+    wait: Option<Duration>,
     sbatch_options: &[String],
 ) -> Result<Dispatched, Error> {
     if tasks == 0 {
         return Err(Error::Usage("--tasks must be at least 1".into()));
     }
+    let slurm = dispatch::Slurm::locate(wait.is_some()).map_err(Error::Usage)?;
     let loaded = load(&options.document, &options.plan)?;
     let cache = open_cache(&options.cache, &options.document);
     let Some(dir) = cache.dir() else {
         return Err(Error::Usage("dispatch needs a shared cache folder".into()));
     };
+    // The build after the wait writes the report: refuse now what it would refuse then.
+    check_outputs(options, &loaded, &cache)?;
     let io = |context: String| move |source| Error::Io { context, source };
     std::fs::create_dir_all(dir).map_err(io(format!("creating {}", dir.display())))?;
     let cache_dir = dir
@@ -281,16 +354,16 @@ pub fn dispatch(
         sbatch_options,
         plan: &options.plan,
     };
-    let (job, script) = dispatch::submit(&request).map_err(Error::Usage)?;
-    if !wait {
+    let (job, script) = dispatch::submit(&request, &slurm.sbatch).map_err(Error::Usage)?;
+    let (Some(timeout), Some(squeue)) = (wait, &slurm.squeue) else {
         return Ok(Dispatched {
             job,
             script,
             finished: None,
         });
-    }
+    };
     eprintln!("submitted job {job} ({tasks} tasks); waiting for it");
-    dispatch::wait_for(&job).map_err(Error::Usage)?;
+    dispatch::wait_for(&job, squeue, timeout).map_err(Error::Usage)?;
     let (cached, all) = freshness::run_totals(&loaded.plan, &cache);
     let missing = all - cached;
     let finished = if missing > 0 {
@@ -373,24 +446,29 @@ fn summarise(
     }
 }
 
-/// The files predict and export steps asked for (`write`), relative to the document.
-fn model_files(plan: &Plan, records: &[StepRecord], base_dir: &Path) -> Vec<(PathBuf, Vec<u8>)> {
-    use document::StepSpec;
-    use outcome::Outcome;
-    plan.steps
-        .iter()
-        .zip(records)
-        .filter_map(|(step, record)| match (&step.spec, &record.outcome) {
-            (StepSpec::Predict(spec), Some(Outcome::Predict(result))) => spec
-                .write
-                .as_ref()
-                .map(|write| (base_dir.join(write), result.csv.clone().into_bytes())),
-            (StepSpec::Export(spec), Some(Outcome::Export(result))) => {
-                Some((base_dir.join(&spec.write), result.json.clone().into_bytes()))
-            }
-            _ => None,
-        })
-        .collect()
+/// Writes the file each predict and export step asked for. A write that fails (the
+/// plan checked every path, but the disk may still refuse) fails its step in place, so
+/// the report is still written and shows why.
+fn write_model_files(plan: &Plan, records: &mut [StepRecord]) {
+    for (step, record) in plan.steps.iter().zip(records.iter_mut()) {
+        let (Some(output), Some(bytes)) = (&step.output, model_file(record)) else {
+            continue;
+        };
+        if let Err(error) = atomic::write(&output.path, bytes) {
+            record.status = run::Status::Failed {
+                error: format!("writing {}: {error}", output.path.display()),
+            };
+        }
+    }
+}
+
+/// The bytes a predict or export step's result saves.
+fn model_file(record: &StepRecord) -> Option<&[u8]> {
+    match &record.outcome {
+        Some(outcome::Outcome::Predict(result)) => Some(result.csv.as_bytes()),
+        Some(outcome::Outcome::Export(result)) => Some(result.json.as_bytes()),
+        _ => None,
+    }
 }
 
 /// Writes a result file atomically so an interrupted build never leaves it torn.

@@ -3,6 +3,7 @@
 
 use std::path::PathBuf;
 use std::process::ExitCode;
+use std::time::Duration;
 
 use clap::{Parser, Subcommand};
 use stet::plan::{Limits, PlanOptions};
@@ -96,6 +97,9 @@ enum Command {
         /// Wait for the job, then build the report.
         #[arg(long)]
         wait: bool,
+        /// The longest --wait waits for the job, e.g. 90m or 2days.
+        #[arg(long, value_name = "DURATION", default_value = "24h", value_parser = humantime::parse_duration)]
+        wait_timeout: Duration,
         #[command(flatten)]
         flags: DocumentFlags,
         /// Options passed to sbatch (after `--`), e.g. -- --partition=short --time=1:00:00 --cpus-per-task=4
@@ -183,6 +187,7 @@ fn run(command: Command) -> Result<ExitCode, Error> {
             tasks,
             cache,
             wait,
+            wait_timeout,
             flags,
             sbatch,
         } => {
@@ -196,7 +201,8 @@ fn run(command: Command) -> Result<ExitCode, Error> {
                 allow_html: false,
                 plan: flags.options(),
             };
-            let dispatched = stet::dispatch(&options, tasks, wait, &sbatch)?;
+            let dispatched =
+                stet::dispatch(&options, tasks, wait.then_some(wait_timeout), &sbatch)?;
             println!("{}", dispatched.job);
             eprintln!("job script: {}", dispatched.script.display());
             Ok(match dispatched.finished {

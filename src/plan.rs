@@ -13,6 +13,7 @@ use crate::document::spec::sweep::{settings_text, variant};
 use crate::document::spec::{NetSpec, TrainSpec, key_span, parse_step};
 use crate::document::{Document, Problem, StepBlock, StepKind, StepSpec};
 use crate::input_file::InputFile;
+use crate::outputs::{self, Output};
 
 /// Bumped whenever the meaning of a cached result changes, so old entries miss.
 pub const CACHE_FORMAT_VERSION: u32 = 1;
@@ -36,6 +37,8 @@ pub struct PlannedStep {
     /// Indices (into `Plan::steps`) of the steps this one reads, in reference order.
     pub upstream: Vec<usize>,
     pub files: Vec<InputFile>,
+    /// The file a predict or export step writes, checked against every other use.
+    pub output: Option<Output>,
     pub key: Key,
     /// The networks a train step (one) or a sweep (one per combination) fits.
     pub fits: Vec<FitPlan>,
@@ -212,7 +215,7 @@ pub fn plan(
             }
         }
         let files = read_files(block, spec, &place, &mut problems);
-        check_writes(block, spec, &place, &mut problems);
+        let output = check_writes(block, spec, &place, &mut problems);
         if let StepSpec::Net(net) = spec {
             check_widths(block, &net.hidden, options.limits, "", &mut problems);
         }
@@ -223,9 +226,13 @@ pub fn plan(
             piece: *piece,
             upstream,
             files,
+            output,
             key: String::new(),
             fits: Vec::new(),
         });
+    }
+    for (index, refusal) in outputs::step_clashes(&steps) {
+        problems.push(refusal.at(setting_span(parsed[index].1, "write")));
     }
     if !problems.is_empty() {
         return Err(problems);
@@ -329,28 +336,27 @@ fn read_files(
     }
 }
 
-/// A file that predict or export will write must stay inside the project too.
+/// The file a predict or export step will write, resolved and checked (`outputs`).
 fn check_writes(
     block: &StepBlock,
     spec: &StepSpec,
     place: &Place<'_>,
     problems: &mut Vec<Problem>,
-) {
+) -> Option<Output> {
     let written = match spec {
         StepSpec::Predict(predict) => predict.write.as_ref(),
         StepSpec::Export(export) => Some(&export.write),
         _ => None,
-    };
-    if let (Some(written), Some(root)) = (written, &place.root)
-        && !confine::is_writable_inside(&place.base_dir.join(written), root)
-    {
-        problems.push(
-                Problem::new(
-                    setting_span(block, "write"),
-                    format!("'{written}' is outside this document's project ({})", root.display()),
-                )
-                .with_help("a document writes only under its project folder; pass --allow-outside if you trust it"),
-            );
+    }?;
+    match outputs::step_output(place.base_dir, written, place.root.as_deref()) {
+        Ok(path) => Some(Output {
+            path,
+            written: written.clone(),
+        }),
+        Err(refusal) => {
+            problems.push(refusal.at(setting_span(block, "write")));
+            None
+        }
     }
 }
 

@@ -52,6 +52,9 @@ impl Templates {
 
     /// The built-in templates, each replaced by a file of the same name in `dir` if present.
     pub fn with_overrides(dir: &Path) -> Result<Templates, String> {
+        if !dir.is_dir() {
+            return Err(format!("--templates {}: no such folder", dir.display()));
+        }
         let mut env = Environment::new();
         for (name, text) in BUILT_IN {
             let path = dir.join(name);
