@@ -6,6 +6,9 @@ use std::fs::File;
 use std::io::Write;
 use std::path::Path;
 
+/// How the temporary files start, so that `stet clean` can tell leftovers apart.
+pub const TEMPORARY_PREFIX: &str = ".stet-tmp-";
+
 /// Writes `bytes` to `path` atomically, creating its folder if needed. The file is
 /// readable by others (0644 on Unix), since reports and shared caches are meant to be.
 pub fn write(path: &Path, bytes: &[u8]) -> std::io::Result<()> {
@@ -24,7 +27,7 @@ pub fn write_with(
     };
     std::fs::create_dir_all(dir)?;
     let mut builder = tempfile::Builder::new();
-    builder.prefix(".stet-tmp-");
+    builder.prefix(TEMPORARY_PREFIX);
     #[cfg(unix)]
     {
         use std::os::unix::fs::PermissionsExt;

@@ -36,6 +36,15 @@ pub enum EntryKind {
 }
 
 impl EntryKind {
+    const ALL: [EntryKind; 6] = [
+        EntryKind::DataSummary,
+        EntryKind::Prepared,
+        EntryKind::Marker,
+        EntryKind::Predict,
+        EntryKind::Export,
+        EntryKind::Run,
+    ];
+
     fn suffix(self) -> &'static str {
         match self {
             EntryKind::DataSummary => "data",
@@ -46,6 +55,25 @@ impl EntryKind {
             EntryKind::Run => "run",
         }
     }
+}
+
+/// The file name of an entry: `<key>.<kind>`.
+pub fn entry_name(key: &str, kind: EntryKind) -> String {
+    format!("{key}.{}", kind.suffix())
+}
+
+/// Whether a file name is one `entry_name` gives: a 64-digit hex key and a kind.
+pub fn is_entry_name(name: &str) -> bool {
+    name.split_once('.').is_some_and(|(key, suffix)| {
+        key.len() == 64
+            && key.bytes().all(|b| b.is_ascii_hexdigit())
+            && EntryKind::ALL.iter().any(|kind| kind.suffix() == suffix)
+    })
+}
+
+/// Whether a file name is a temporary file an interrupted write left behind.
+pub fn is_leftover_name(name: &str) -> bool {
+    name.starts_with(crate::atomic::TEMPORARY_PREFIX)
 }
 
 /// The cache, or no cache at all (`--no-cache`, or a folder that cannot be used).
@@ -95,7 +123,7 @@ impl Cache {
         Some(
             dir.join("entries")
                 .join(&key[..2])
-                .join(format!("{key}.{}", kind.suffix())),
+                .join(entry_name(key, kind)),
         )
     }
 
