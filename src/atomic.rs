@@ -7,8 +7,9 @@ use std::io::Write;
 use std::path::Path;
 use std::time::Duration;
 
-/// How every temporary file of ours begins, so leftovers can be told from others' files.
-const TEMPORARY_PREFIX: &str = ".stet-tmp-";
+/// How every temporary file of ours begins, so leftovers (for `remove_stale` and
+/// `stet clean`) can be told from others' files.
+pub const TEMPORARY_PREFIX: &str = ".stet-tmp-";
 /// The random part `tempfile` adds to the prefix.
 const TEMPORARY_RANDOM_CHARS: usize = 6;
 /// A temporary file untouched this long belongs to no live write: writes fill their

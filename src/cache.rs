@@ -13,7 +13,9 @@ use serde::de::DeserializeOwned;
 
 use crate::input_file::Hashed;
 
-const MAGIC: &[u8; 8] = b"stet\0ent";
+/// Marks the entry layout; a different one (an older stet's) is another format, not
+/// damage. Changed from `stet\0ent` when the checksum started covering the entry's name.
+const MAGIC: &[u8; 8] = b"stet\0en2";
 const HEADER_LEN: usize = MAGIC.len() + 32;
 
 /// What kind of result an entry holds; part of the file name so kinds never collide.
@@ -34,6 +36,15 @@ pub enum EntryKind {
 }
 
 impl EntryKind {
+    const ALL: [EntryKind; 6] = [
+        EntryKind::DataSummary,
+        EntryKind::Prepared,
+        EntryKind::Marker,
+        EntryKind::Predict,
+        EntryKind::Export,
+        EntryKind::Run,
+    ];
+
     fn suffix(self) -> &'static str {
         match self {
             EntryKind::DataSummary => "data",
@@ -44,6 +55,25 @@ impl EntryKind {
             EntryKind::Run => "run",
         }
     }
+}
+
+/// The file name of an entry: `<key>.<kind>`.
+pub fn entry_name(key: &str, kind: EntryKind) -> String {
+    format!("{key}.{}", kind.suffix())
+}
+
+/// Whether a file name is one `entry_name` gives: a 64-digit hex key and a kind.
+pub fn is_entry_name(name: &str) -> bool {
+    name.split_once('.').is_some_and(|(key, suffix)| {
+        key.len() == 64
+            && key.bytes().all(|b| b.is_ascii_hexdigit())
+            && EntryKind::ALL.iter().any(|kind| kind.suffix() == suffix)
+    })
+}
+
+/// Whether a file name is a temporary file an interrupted write left behind.
+pub fn is_leftover_name(name: &str) -> bool {
+    name.starts_with(crate::atomic::TEMPORARY_PREFIX)
 }
 
 /// The cache, or no cache at all (`--no-cache`, or a folder that cannot be used).
@@ -93,7 +123,7 @@ impl Cache {
         Some(
             dir.join("entries")
                 .join(&key[..2])
-                .join(format!("{key}.{}", kind.suffix())),
+                .join(entry_name(key, kind)),
         )
     }
 
@@ -104,21 +134,23 @@ impl Cache {
     }
 
     /// Loads an entry; a missing one is `None`, and so is one that fails its checksum
-    /// or does not decode, which is then removed with a warning.
+    /// or was written in another format, which is then removed with a warning.
     pub fn load<T: DeserializeOwned>(&self, key: &str, kind: EntryKind) -> Option<T> {
         let path = self.entry_path(key, kind)?;
         let file = fs::File::open(&path).ok()?;
-        match decode(file) {
-            Some(value) => Some(value),
-            None => {
-                self.warn(format!(
-                    "cache entry {} failed its integrity check; recomputing it",
-                    path.display()
-                ));
-                let _ = fs::remove_file(&path);
-                None
+        let problem = match decode(file, key, kind) {
+            Decoded::Value(value) => return Some(value),
+            Decoded::Damaged => "failed its integrity check (its bytes do not match its name)",
+            Decoded::OtherFormat => {
+                "could not be decoded: it was written in another format (by another build of stet)"
             }
-        }
+        };
+        self.warn(format!(
+            "cache entry {} {problem}; recomputing it",
+            path.display()
+        ));
+        let _ = fs::remove_file(&path);
+        None
     }
 
     /// Stores an entry; a failure (read-only or full disk) is a warning, not an error.
@@ -126,7 +158,7 @@ impl Cache {
         let Some(path) = self.entry_path(key, kind) else {
             return;
         };
-        if let Err(error) = crate::atomic::write_with(&path, |file| encode(value, file))
+        if let Err(error) = crate::atomic::write_with(&path, |file| encode(value, key, kind, file))
             && !self.write_failed.swap(true, Ordering::Relaxed)
         {
             let dir = self
@@ -143,38 +175,86 @@ impl Cache {
 /// Bytes moved between an entry's file and its value at a time.
 const BUFFER: usize = 1 << 16;
 
+/// The checksum's hasher, fed the entry's name before its payload: the checksum then
+/// vouches for "this payload under this key and kind", so bytes copied or renamed to
+/// another entry's file fail the check instead of answering for another step (issue 12).
+fn checksum_hasher(key: &str, kind: EntryKind) -> blake3::Hasher {
+    let mut hasher = blake3::Hasher::new();
+    hasher.update(MAGIC);
+    hasher.update(kind.suffix().as_bytes());
+    hasher.update(b"\0");
+    hasher.update(key.as_bytes());
+    hasher.update(b"\0");
+    hasher
+}
+
 /// Writes `magic ‖ checksum ‖ payload` as a stream: the payload goes through the
 /// hasher into the file, then the checksum is written into the space left for it.
-fn encode<T: Serialize>(value: &T, file: &mut fs::File) -> io::Result<()> {
+fn encode<T: Serialize>(
+    value: &T,
+    key: &str,
+    kind: EntryKind,
+    file: &mut fs::File,
+) -> io::Result<()> {
     file.write_all(MAGIC)?;
     file.write_all(&[0; 32])?;
     // Buffered above the hasher, so it hashes large blocks, not each small write.
-    let mut writer = BufWriter::with_capacity(BUFFER, HashingWriter::new(&mut *file));
+    let hashing = HashingWriter::new(&mut *file, checksum_hasher(key, kind));
+    let mut writer = BufWriter::with_capacity(BUFFER, hashing);
     postcard::to_io(value, &mut writer).map_err(io::Error::other)?;
     let checksum = writer.into_inner().map_err(|e| e.into_error())?.finish();
     file.seek(SeekFrom::Start(MAGIC.len() as u64))?;
     file.write_all(checksum.as_bytes())
 }
 
+/// What reading an entry found.
+enum Decoded<T> {
+    Value(T),
+    /// Truncated, altered, or another entry's bytes under this name.
+    Damaged,
+    /// Intact, but in a layout or value format this build does not read.
+    OtherFormat,
+}
+
 /// Reads an entry as a stream, hashing it on the way; the value is kept only if every
-/// byte after the header matches the checksum.
-fn decode<T: DeserializeOwned>(mut file: fs::File) -> Option<T> {
+/// byte after the header matches the checksum. A value that does not decode is read to
+/// the end all the same, so that an intact entry of another format is told apart from
+/// a damaged one.
+fn decode<T: DeserializeOwned>(mut file: fs::File, key: &str, kind: EntryKind) -> Decoded<T> {
     let mut header = [0; HEADER_LEN];
-    file.read_exact(&mut header).ok()?;
+    if file.read_exact(&mut header).is_err() {
+        return Decoded::Damaged;
+    }
     let (magic, checksum) = header.split_at(MAGIC.len());
     if magic != MAGIC {
-        return None;
+        return Decoded::OtherFormat;
     }
-    let length = file.metadata().ok()?.len();
+    let Some(length) = file
+        .metadata()
+        .ok()
+        .and_then(|m| usize::try_from(m.len()).ok())
+    else {
+        return Decoded::Damaged;
+    };
     // Scratch for decoding text, which postcard needs as long as the longest string;
     // the entry's length bounds that. Its pages stay untouched (and take no memory)
     // beyond the longest string actually read.
-    let mut scratch = vec![0; usize::try_from(length).ok()?];
-    let reader = BufReader::with_capacity(BUFFER, Hashed::new(file));
-    let (value, (mut reader, _)) = postcard::from_io::<T, _>((reader, &mut scratch)).ok()?;
+    let mut scratch = vec![0; length];
+    let hashed = Hashed::continuing(file, checksum_hasher(key, kind));
+    let mut reader = BufReader::with_capacity(BUFFER, hashed);
+    let value = postcard::from_io::<T, _>((&mut reader, &mut scratch))
+        .ok()
+        .map(|(value, _)| value);
     // Bytes after the value are covered by the checksum too.
-    io::copy(&mut reader, &mut io::sink()).ok()?;
-    (reader.get_ref().finish().as_bytes() == checksum).then_some(value)
+    if io::copy(&mut reader, &mut io::sink()).is_err() {
+        return Decoded::Damaged;
+    }
+    let intact = reader.get_ref().finish().as_bytes() == checksum;
+    match (value, intact) {
+        (Some(value), true) => Decoded::Value(value),
+        (None, true) => Decoded::OtherFormat,
+        (_, false) => Decoded::Damaged,
+    }
 }
 
 /// A writer that hashes every byte it passes on.
@@ -184,11 +264,8 @@ struct HashingWriter<W> {
 }
 
 impl<W: Write> HashingWriter<W> {
-    fn new(inner: W) -> Self {
-        HashingWriter {
-            inner,
-            hasher: blake3::Hasher::new(),
-        }
+    fn new(inner: W, hasher: blake3::Hasher) -> Self {
+        HashingWriter { inner, hasher }
     }
 
     fn finish(&self) -> blake3::Hash {
@@ -260,14 +337,18 @@ mod tests {
     }
 
     /// The layout the module documents, built in memory: what `store` must write.
-    fn layout<T: Serialize>(value: &T) -> Vec<u8> {
+    fn layout<T: Serialize>(value: &T, key: &str, kind: EntryKind) -> Vec<u8> {
         let payload = postcard::to_stdvec(value).unwrap();
-        [
+        let named = [
             MAGIC.as_slice(),
-            blake3::hash(&payload).as_bytes(),
+            kind.suffix().as_bytes(),
+            b"\0",
+            key.as_bytes(),
+            b"\0",
             &payload,
         ]
-        .concat()
+        .concat();
+        [MAGIC.as_slice(), blake3::hash(&named).as_bytes(), &payload].concat()
     }
 
     #[test]
@@ -281,7 +362,10 @@ mod tests {
         );
         cache.store(KEY, EntryKind::Export, &value);
         let path = cache.entry_path(KEY, EntryKind::Export).unwrap();
-        assert_eq!(fs::read(&path).unwrap(), layout(&value));
+        assert_eq!(
+            fs::read(&path).unwrap(),
+            layout(&value, KEY, EntryKind::Export)
+        );
         assert_eq!(cache.load(KEY, EntryKind::Export), Some(value));
     }
 
@@ -296,5 +380,70 @@ mod tests {
         fs::write(&path, bytes).unwrap();
         assert_eq!(cache.load::<Vec<f64>>(KEY, EntryKind::Run), None);
         assert!(!path.exists());
+    }
+
+    const OTHER_KEY: &str = "ff0011bb22cc33dd44ee55ff66778899aabbccddeeff00112233445566778899";
+
+    #[test]
+    fn an_entry_copied_under_another_key_fails_its_check() {
+        let dir = tempfile::tempdir().unwrap();
+        let cache = Cache::at(dir.path().to_path_buf());
+        cache.store(KEY, EntryKind::Run, &vec![1.5f64, 2.5]);
+        cache.store(OTHER_KEY, EntryKind::Run, &vec![3.5f64, 4.5]);
+        let path = cache.entry_path(KEY, EntryKind::Run).unwrap();
+        let other = cache.entry_path(OTHER_KEY, EntryKind::Run).unwrap();
+        fs::copy(&path, &other).unwrap();
+        assert_eq!(cache.load::<Vec<f64>>(OTHER_KEY, EntryKind::Run), None);
+        assert!(!other.exists());
+        let warnings = cache.take_warnings();
+        assert!(
+            warnings[0].contains("failed its integrity check"),
+            "{warnings:?}"
+        );
+        assert_eq!(
+            cache.load::<Vec<f64>>(KEY, EntryKind::Run),
+            Some(vec![1.5, 2.5])
+        );
+    }
+
+    #[test]
+    fn an_entry_renamed_to_another_kind_fails_its_check() {
+        let dir = tempfile::tempdir().unwrap();
+        let cache = Cache::at(dir.path().to_path_buf());
+        cache.store(KEY, EntryKind::Predict, &vec![1.5f64]);
+        let predict = cache.entry_path(KEY, EntryKind::Predict).unwrap();
+        let export = cache.entry_path(KEY, EntryKind::Export).unwrap();
+        fs::rename(&predict, &export).unwrap();
+        assert_eq!(cache.load::<Vec<f64>>(KEY, EntryKind::Export), None);
+        assert!(cache.take_warnings()[0].contains("failed its integrity check"));
+    }
+
+    #[test]
+    fn an_intact_entry_that_does_not_decode_is_reported_as_another_format() {
+        let dir = tempfile::tempdir().unwrap();
+        let cache = Cache::at(dir.path().to_path_buf());
+        // 200 is no postcard bool (0 or 1): the value format changed, the bytes did not.
+        cache.store(KEY, EntryKind::Marker, &200u8);
+        assert_eq!(cache.load::<bool>(KEY, EntryKind::Marker), None);
+        let warnings = cache.take_warnings();
+        assert!(
+            warnings[0].contains("written in another format"),
+            "{warnings:?}"
+        );
+        assert!(!warnings[0].contains("integrity"), "{warnings:?}");
+    }
+
+    #[test]
+    fn an_entry_in_the_previous_layout_is_reported_as_another_format() {
+        let dir = tempfile::tempdir().unwrap();
+        let cache = Cache::at(dir.path().to_path_buf());
+        let path = cache.entry_path(KEY, EntryKind::Marker).unwrap();
+        fs::create_dir_all(path.parent().unwrap()).unwrap();
+        // The layout before the checksum covered the name: magic `stet\0ent`, then the
+        // BLAKE3 of the (here empty) payload.
+        let old = [b"stet\0ent".as_slice(), blake3::hash(b"").as_bytes()].concat();
+        fs::write(&path, old).unwrap();
+        assert_eq!(cache.load::<()>(KEY, EntryKind::Marker), None);
+        assert!(cache.take_warnings()[0].contains("written in another format"));
     }
 }

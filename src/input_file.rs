@@ -57,10 +57,12 @@ pub struct Hashed<R> {
 
 impl<R: Read> Hashed<R> {
     pub fn new(inner: R) -> Hashed<R> {
-        Hashed {
-            inner,
-            hasher: blake3::Hasher::new(),
-        }
+        Hashed::continuing(inner, blake3::Hasher::new())
+    }
+
+    /// Hashes the bytes read after whatever `hasher` has already been given.
+    pub fn continuing(inner: R, hasher: blake3::Hasher) -> Hashed<R> {
+        Hashed { inner, hasher }
     }
 
     /// The hash of the bytes read so far.

@@ -401,32 +401,42 @@ pub struct StatusReport {
     pub runs: (usize, usize),
 }
 
-/// `stet clean`: removes the cache entries no named document uses; with no document,
-/// the whole cache. The cache is the one the first document (or the current folder)
-/// would use.
+/// `stet clean`: removes the cache entries no document still uses (see
+/// `prune::entries_in_use`); with no document, the whole cache. The cache is the one
+/// the first document (or the current folder) would use. With `dry_run` nothing is
+/// removed and the result lists what would be.
 pub fn clean(
     documents: &[PathBuf],
     cache: &CacheChoice,
     options: &plan::PlanOptions,
-) -> Result<prune::Freed, Error> {
+    dry_run: bool,
+) -> Result<prune::Cleaning, Error> {
     let anchor = documents
         .first()
         .cloned()
         .unwrap_or_else(|| PathBuf::from("stet.md"));
     let cache = open_cache(cache, &anchor);
     let Some(dir) = cache.dir().map(Path::to_path_buf) else {
-        return Ok(prune::Freed::default());
+        return Ok(prune::Cleaning::default());
     };
     let loaded = documents
         .iter()
         .map(|path| load(path, options))
         .collect::<Result<Vec<_>, _>>()?;
     let plans: Vec<&Plan> = loaded.iter().map(|l| &l.plan).collect();
-    let keep = (!documents.is_empty()).then(|| prune::used_entries(&plans, &cache));
-    prune::remove_unused(&dir, keep.as_ref()).map_err(|source| Error::Io {
-        context: format!("cleaning {}", dir.display()),
-        source,
-    })
+    let keep = if documents.is_empty() {
+        None
+    } else {
+        let in_use = prune::entries_in_use(&cache, documents, &plans).map_err(|error| {
+            Error::Usage(format!(
+                "{error}; nothing was removed, since what its document uses is unknown \
+                 (remove that record, or clean the whole cache with `stet clean --cache {}`)",
+                dir.display()
+            ))
+        })?;
+        Some(in_use)
+    };
+    Ok(prune::remove_unused(&dir, keep.as_ref(), dry_run))
 }
 
 fn summarise(

@@ -121,6 +121,9 @@ enum Command {
         /// The cache folder [default: $STET_CACHE, else .stet/ beside the first document].
         #[arg(long, value_name = "DIR")]
         cache: Option<PathBuf>,
+        /// List what would be removed, and its size, and remove nothing.
+        #[arg(long)]
+        dry_run: bool,
         #[command(flatten)]
         flags: DocumentFlags,
     },
@@ -244,15 +247,38 @@ fn run(command: Command) -> Result<ExitCode, Error> {
         Command::Clean {
             documents,
             cache,
+            dry_run,
             flags,
         } => {
-            let freed = stet::clean(&documents, &cache_choice(cache), &flags.options())?;
-            println!(
-                "removed {} cache entries, {} bytes freed",
-                freed.entries, freed.bytes
-            );
+            let cleaning =
+                stet::clean(&documents, &cache_choice(cache), &flags.options(), dry_run)?;
+            report_clean(&cleaning, dry_run);
             Ok(ExitCode::SUCCESS)
         }
+    }
+}
+
+/// Prints what a clean removed (or would remove) and what it passed over.
+fn report_clean(cleaning: &stet::prune::Cleaning, dry_run: bool) {
+    for skipped in &cleaning.skipped {
+        eprintln!(
+            "warning: left {} in place: {}",
+            skipped.path.display(),
+            skipped.reason
+        );
+    }
+    let (count, bytes) = (cleaning.removed.len(), cleaning.bytes());
+    if dry_run {
+        for removal in &cleaning.removed {
+            println!(
+                "would remove {} ({} bytes)",
+                removal.path.display(),
+                removal.bytes
+            );
+        }
+        println!("would remove {count} cache entries, {bytes} bytes");
+    } else {
+        println!("removed {count} cache entries, {bytes} bytes freed");
     }
 }
 

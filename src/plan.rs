@@ -16,7 +16,8 @@ use crate::input_file::InputFile;
 use crate::outputs::{self, Output};
 
 /// Bumped whenever the meaning of a cached result changes, so old entries miss.
-pub const CACHE_FORMAT_VERSION: u32 = 1;
+/// 2: entries' checksums cover their names, and keys hold the crate version.
+pub const CACHE_FORMAT_VERSION: u32 = 2;
 
 /// A step's cache key: the BLAKE3 hash of everything its result depends on, in hex.
 pub type Key = String;
@@ -525,19 +526,28 @@ pub fn run_key(data_key: &str, net: &NetSpec, train: &TrainSpec, partition: usiz
         net: String::new(),
         ..train.clone()
     };
-    let mut hasher = blake3::Hasher::new();
-    hasher.update(&CACHE_FORMAT_VERSION.to_le_bytes());
+    let mut hasher = engine_hasher();
     hasher.update(b"run\0");
     hasher.update(data_key.as_bytes());
     hasher.update(&serde_json::to_vec(&(net, &settings, partition)).expect("specs serialise"));
     hasher.finalize().to_hex().to_string()
 }
 
-/// BLAKE3 over the format version, the kind, the canonical settings, the upstream
-/// keys and the hash of every file read. Prose never enters.
-fn step_key(step: &PlannedStep, upstream_keys: &[Key]) -> Key {
+/// The start of every key: the cache format and the crate version, so that results
+/// of another engine (whose numbers may differ) never answer for this one's, even
+/// when nobody remembered to bump `CACHE_FORMAT_VERSION`.
+fn engine_hasher() -> blake3::Hasher {
     let mut hasher = blake3::Hasher::new();
     hasher.update(&CACHE_FORMAT_VERSION.to_le_bytes());
+    hasher.update(env!("CARGO_PKG_VERSION").as_bytes());
+    hasher.update(b"\0");
+    hasher
+}
+
+/// BLAKE3 over the engine, the kind, the canonical settings, the upstream keys and
+/// the hash of every file read. Prose never enters.
+fn step_key(step: &PlannedStep, upstream_keys: &[Key]) -> Key {
+    let mut hasher = engine_hasher();
     hasher.update(step.kind.word().as_bytes());
     hasher.update(b"\0");
     let settings = serde_json::to_vec(&step.spec).expect("specs serialise");

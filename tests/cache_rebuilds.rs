@@ -153,6 +153,43 @@ fn a_corrupted_entry_is_recomputed_to_the_same_numbers() {
 }
 
 #[test]
+fn two_run_entries_with_swapped_bytes_are_recomputed_not_trusted() {
+    let ws = Workspace::new();
+    let doc = ws.write("cache.md", DOC);
+    let clean = ws.build_ok(&doc, &[]);
+    let runs: Vec<_> = entry_files(&ws.path(".stet"))
+        .into_iter()
+        .filter(|p| p.extension().unwrap() == "run")
+        .collect();
+    let (first, second) = (
+        std::fs::read(&runs[0]).unwrap(),
+        std::fs::read(&runs[1]).unwrap(),
+    );
+    assert_ne!(first, second, "two different runs");
+    std::fs::write(&runs[0], &second).unwrap();
+    std::fs::write(&runs[1], &first).unwrap();
+
+    let (output, summary) = ws.build(&doc, &[]);
+    assert!(output.status.success());
+    let stderr = String::from_utf8_lossy(&output.stderr);
+    assert_eq!(
+        stderr.matches("failed its integrity check").count(),
+        2,
+        "{stderr}"
+    );
+    let summary = summary.unwrap();
+    assert_eq!(ids_with_status(&summary, "ran").len(), 2, "both recomputed");
+    for id in ["slow", "fast", "steady", "water"] {
+        assert_eq!(metrics_of(&clean, id), metrics_of(&summary, id), "{id}");
+    }
+    assert_ne!(
+        std::fs::read(&runs[0]).unwrap(),
+        second,
+        "rewritten in place"
+    );
+}
+
+#[test]
 fn two_builds_at_once_both_finish_and_agree() {
     let ws = Workspace::new();
     let doc = ws.write("cache.md", DOC);
