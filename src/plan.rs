@@ -33,12 +33,48 @@ pub struct PlannedStep {
     pub spec: StepSpec,
     /// Index of the step's block among the document's pieces.
     pub piece: usize,
-    /// Indices (into `Plan::steps`) of the steps this one reads, in reference order.
-    pub upstream: Vec<usize>,
+    /// The steps this one reads, each named by the setting that names it.
+    pub upstream: Upstream,
     pub files: Vec<InputFile>,
     pub key: Key,
     /// The networks a train step (one) or a sweep (one per combination) fits.
     pub fits: Vec<FitPlan>,
+}
+
+/// The steps a step reads, as indices into `Plan::steps`, named by the setting that
+/// names each: a plan holds one only when every reference resolved to a step of the
+/// right kind, so no stage reads an upstream step by position.
+#[derive(Clone, Debug, PartialEq, Eq)]
+pub enum Upstream {
+    /// Data and net steps read no other step.
+    Nothing,
+    Train {
+        data: usize,
+        net: usize,
+    },
+    Sweep {
+        from: usize,
+    },
+    Compare {
+        runs: Vec<usize>,
+    },
+    /// Predict and export: the train step whose model they use.
+    Model {
+        model: usize,
+    },
+}
+
+impl Upstream {
+    /// Every step read, in the order their keys enter this step's key.
+    pub fn all(&self) -> Vec<usize> {
+        match self {
+            Upstream::Nothing => Vec::new(),
+            Upstream::Train { data, net } => vec![*data, *net],
+            Upstream::Sweep { from } => vec![*from],
+            Upstream::Compare { runs } => runs.clone(),
+            Upstream::Model { model } => vec![*model],
+        }
+    }
 }
 
 /// One setting of net and train values, fitted once per seed and partition.
@@ -62,6 +98,14 @@ pub struct RunPlan {
 }
 
 impl PlannedStep {
+    /// The data and net steps of a train step; `None` for every other kind.
+    pub fn train_inputs(&self) -> Option<(usize, usize)> {
+        match self.upstream {
+            Upstream::Train { data, net } => Some((data, net)),
+            _ => None,
+        }
+    }
+
     /// The cache entries that hold this step's result: all present means a build
     /// reuses it. (A data step also keeps its prepared matrices, loaded only to train.)
     pub fn result_entries(&self) -> Vec<(&str, EntryKind)> {
@@ -185,38 +229,36 @@ pub fn plan(
         .enumerate()
         .map(|(i, (_, b, _))| (b.id.as_str(), i))
         .collect();
-    let mut steps = Vec::new();
-    for (piece, block, spec) in &parsed {
-        let mut upstream = Vec::new();
-        for reference in spec.references() {
-            let (id, setting) = (reference.id, reference.setting);
-            match kinds.get(id) {
-                // A block whose info string was unreadable already has its problem.
-                None if document.unreadable_ids.iter().any(|u| u == id) => {}
-                None => problems.push(missing_reference(block, setting, id, &kinds)),
-                Some(kind) if !reference.kinds.contains(kind) => problems.push(Problem::new(
-                    setting_span(block, setting),
-                    format!(
-                        "'{id}' is a {} step, but {setting} must name a {} step",
-                        kind.word(),
-                        reference
-                            .kinds
-                            .iter()
-                            .map(|k| k.word())
-                            .collect::<Vec<_>>()
-                            .join(" or ")
-                    ),
-                )),
-                // A referenced step that failed to parse already has its own problem.
-                Some(_) => upstream.extend(index.get(id).copied()),
-            }
-        }
+    let found = |id: &str, wanted: &[StepKind]| {
+        index
+            .get(id)
+            .copied()
+            .filter(|&i| wanted.contains(&parsed[i].1.kind))
+    };
+    let mut checked = Vec::new();
+    for (_, block, spec) in &parsed {
+        check_references(document, block, spec, &kinds, &mut problems);
         let files = read_files(block, spec, &place, &mut problems);
         check_writes(block, spec, &place, &mut problems);
         if let StepSpec::Net(net) = spec {
             check_widths(block, &net.hidden, options.limits, "", &mut problems);
         }
-        steps.push(PlannedStep {
+        checked.push((upstream_of(spec, found), files));
+    }
+    // Keys and fits read every upstream step, so nothing past here runs on a document
+    // with a problem; a reference left unresolved without a problem of its own names
+    // a block whose header the parser already reported.
+    let resolved: Option<Vec<_>> = checked
+        .into_iter()
+        .map(|(upstream, files)| Some((upstream?, files)))
+        .collect();
+    let Some(resolved) = resolved.filter(|_| problems.is_empty()) else {
+        return Err(problems);
+    };
+    let mut steps: Vec<PlannedStep> = parsed
+        .iter()
+        .zip(resolved)
+        .map(|((piece, block, spec), (upstream, files))| PlannedStep {
             id: block.id.clone(),
             kind: block.kind,
             spec: spec.clone(),
@@ -225,17 +267,15 @@ pub fn plan(
             files,
             key: String::new(),
             fits: Vec::new(),
-        });
-    }
-    if !problems.is_empty() {
-        return Err(problems);
-    }
+        })
+        .collect();
     let order = execution_order(&steps);
     for &i in &order {
         let upstream_keys: Vec<Key> = steps[i]
             .upstream
-            .iter()
-            .map(|&u| steps[u].key.clone())
+            .all()
+            .into_iter()
+            .map(|u| steps[u].key.clone())
             .collect();
         steps[i].key = step_key(&steps[i], &upstream_keys);
     }
@@ -248,6 +288,71 @@ pub fn plan(
         return Err(problems);
     }
     Ok(Plan { steps, order })
+}
+
+/// Each id the step reads names a step of a kind it may read; problems otherwise.
+fn check_references(
+    document: &Document,
+    block: &StepBlock,
+    spec: &StepSpec,
+    kinds: &HashMap<&str, StepKind>,
+    problems: &mut Vec<Problem>,
+) {
+    for reference in spec.references() {
+        let (id, setting) = (reference.id, reference.setting);
+        match kinds.get(id) {
+            // A block whose info string was unreadable already has its problem.
+            None if document.unreadable_ids.iter().any(|u| u == id) => {}
+            None => problems.push(missing_reference(block, setting, id, kinds)),
+            Some(kind) if !reference.kinds.contains(kind) => problems.push(Problem::new(
+                setting_span(block, setting),
+                format!(
+                    "'{id}' is a {} step, but {setting} must name a {} step",
+                    kind.word(),
+                    reference
+                        .kinds
+                        .iter()
+                        .map(|k| k.word())
+                        .collect::<Vec<_>>()
+                        .join(" or ")
+                ),
+            )),
+            // A referenced step that failed to parse already has its own problem.
+            Some(_) => {}
+        }
+    }
+}
+
+/// The steps `spec` reads, each looked up by name with the kinds it may be; `None`
+/// when any of them is not a parsed step of such a kind.
+fn upstream_of(
+    spec: &StepSpec,
+    found: impl Fn(&str, &[StepKind]) -> Option<usize>,
+) -> Option<Upstream> {
+    const MODELS: &[StepKind] = &[StepKind::Train];
+    Some(match spec {
+        StepSpec::Data(_) | StepSpec::Net(_) => Upstream::Nothing,
+        StepSpec::Train(train) => Upstream::Train {
+            data: found(&train.data, &[StepKind::Data])?,
+            net: found(&train.net, &[StepKind::Net])?,
+        },
+        StepSpec::Sweep(sweep) => Upstream::Sweep {
+            from: found(&sweep.from, &[StepKind::Train])?,
+        },
+        StepSpec::Compare(compare) => Upstream::Compare {
+            runs: compare
+                .runs
+                .iter()
+                .map(|id| found(id, &[StepKind::Train, StepKind::Sweep]))
+                .collect::<Option<_>>()?,
+        },
+        StepSpec::Predict(predict) => Upstream::Model {
+            model: found(&predict.model, MODELS)?,
+        },
+        StepSpec::Export(export) => Upstream::Model {
+            model: found(&export.model, MODELS)?,
+        },
+    })
 }
 
 fn missing_reference(
@@ -414,13 +519,17 @@ fn execution_order(steps: &[PlannedStep]) -> Vec<usize> {
     let mut order = Vec::with_capacity(steps.len());
     while order.len() < steps.len() {
         let ready = (0..steps.len())
-            .find(|&i| !done[i] && steps[i].upstream.iter().all(|&u| done[u]))
+            .find(|&i| !done[i] && steps[i].upstream.all().into_iter().all(|u| done[u]))
             .expect("step references form no cycle");
         done[ready] = true;
         order.push(ready);
     }
     order
 }
+
+/// Planning resolves a train step's references to a data and a net step, and a
+/// sweep's `from` to a train step, or makes no plan.
+const TRAIN_READS: &str = "a train step reads a data and a net step";
 
 /// The fits of a train step (its own settings) or a sweep (one per combination, each
 /// checked as if its values were written in the base train and net steps).
@@ -434,12 +543,13 @@ fn fits(
     let step = &steps[index];
     match &step.spec {
         StepSpec::Train(train) => {
-            let StepSpec::Net(net) = &steps[step.upstream[1]].spec else {
-                unreachable!("references were checked")
+            let (data, net) = step.train_inputs().expect(TRAIN_READS);
+            let StepSpec::Net(net) = &steps[net].spec else {
+                unreachable!("{TRAIN_READS}")
             };
             vec![fit_plan(
                 steps,
-                step.upstream[0],
+                data,
                 Vec::new(),
                 net.clone(),
                 train.clone(),
@@ -447,8 +557,10 @@ fn fits(
             )]
         }
         StepSpec::Sweep(sweep) => {
-            let base = step.upstream[0];
-            let (data, net) = (steps[base].upstream[0], steps[base].upstream[1]);
+            let Upstream::Sweep { from: base } = step.upstream else {
+                unreachable!("a sweep's upstream is its from step")
+            };
+            let (data, net) = steps[base].train_inputs().expect(TRAIN_READS);
             let span = setting_span(blocks[index], "vary");
             sweep
                 .combinations()
@@ -544,4 +656,36 @@ fn step_key(step: &PlannedStep, upstream_keys: &[Key]) -> Key {
         hasher.update(file.hash.as_bytes());
     }
     hasher.finalize().to_hex().to_string()
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// A small fixed document with its data file, planned.
+    fn planned(text: &str) -> Plan {
+        let dir = tempfile::tempdir().unwrap();
+        std::fs::write(dir.path().join("xy.csv"), "x,y\n1,2\n2,4\n3,6\n4,8\n").unwrap();
+        let (document, problems) = crate::document::parse(text);
+        assert!(problems.is_empty(), "{problems:?}");
+        let options = PlanOptions {
+            allow_outside: true,
+            ..PlanOptions::default()
+        };
+        plan(&document.unwrap(), dir.path(), &options).unwrap()
+    }
+
+    /// Pins the keys of one small document so that a change to what enters a key is
+    /// a visible decision (bump `CACHE_FORMAT_VERSION` when a result's meaning
+    /// changes, and update these values). The values are this function's own output,
+    /// recorded when the keys were last meant to change.
+    #[test]
+    fn the_keys_of_a_fixed_document_stay_what_they_were() {
+        let plan = planned(
+            "```yaml data d\nfile: xy.csv\ntarget: y\n```\n\n```yaml net n\nhidden: [3]\n```\n\n```yaml train t\ndata: d\nnet: n\nepochs: 7\n```\n",
+        );
+        let train = &plan.steps[plan.index_of("t").unwrap()];
+        assert_eq!(short_key(&train.key), "8635dfe729");
+        assert_eq!(short_key(&train.fits[0].runs[0].key), "90c351467f");
+    }
 }

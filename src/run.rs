@@ -20,7 +20,7 @@ use crate::outcome::{
     DataSummary, FitResult, ModelShape, Outcome, PartitionSummary, RunResult, Seconds, SweepResult,
     rank,
 };
-use crate::plan::{Key, Plan, PlannedStep, describe};
+use crate::plan::{Key, Plan, PlannedStep, Upstream, describe};
 use crate::shard::Share;
 use crate::use_model;
 
@@ -212,8 +212,13 @@ pub fn execute(plan: &Plan, cache: &Cache, options: &RunOptions) -> Vec<StepReco
     for &index in &plan.order {
         let step = &plan.steps[index];
         let record = match &step.spec {
-            StepSpec::Compare(_) => match step.upstream.iter().find(|&&u| failed(&records[u])) {
-                Some(&u) => StepRecord::failed(format!("not run: '{}' failed", plan.steps[u].id)),
+            StepSpec::Compare(_) => match step
+                .upstream
+                .all()
+                .into_iter()
+                .find(|&u| failed(&records[u]))
+            {
+                Some(u) => StepRecord::failed(format!("not run: '{}' failed", plan.steps[u].id)),
                 None => marker_step(step, cache),
             },
             StepSpec::Predict(_) | StepSpec::Export(_) => {
@@ -653,7 +658,9 @@ fn use_model_step(
     if let Some(outcome) = cache.load::<Outcome>(&step.key, kind) {
         return StepRecord::new(Status::Reused, outcome);
     }
-    let model_index = step.upstream[0];
+    let Upstream::Model { model: model_index } = step.upstream else {
+        unreachable!("predict and export read a model")
+    };
     let model = match records[model_index]
         .as_ref()
         .and_then(|r| r.outcome.as_ref())
@@ -667,7 +674,9 @@ fn use_model_step(
         }
     };
     let started = Instant::now();
-    let data = plan.steps[model_index].upstream[0];
+    let (data, _) = plan.steps[model_index]
+        .train_inputs()
+        .expect("a model is a train step's");
     let computed = prepared_for(plan, data, cache, prepared).and_then(|ready| match &step.spec {
         StepSpec::Predict(_) => {
             use_model::predict(model, &ready, &step.files[0]).map(Outcome::Predict)
