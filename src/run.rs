@@ -20,7 +20,7 @@ use crate::outcome::{
     DataSummary, FitResult, ModelShape, Outcome, PartitionSummary, RunResult, Seconds, SweepResult,
     rank,
 };
-use crate::plan::{Key, Plan, PlannedStep, Upstream, describe};
+use crate::plan::{Key, Limits, Plan, PlannedStep, Upstream, describe, weights_between};
 use crate::shard::Share;
 use crate::use_model;
 
@@ -380,13 +380,15 @@ fn plan_fits(
     let mut runs = Vec::new();
     for fit_plan in &step.fits {
         let summary = data_summary(plan, records, fit_plan.data)?;
-        let shape = model_shape(summary, &fit_plan.net, &fit_plan.train).map_err(|error| {
-            if fit_plan.settings.is_empty() {
-                error
-            } else {
-                format!("with {}: {error}", describe(&fit_plan.settings))
-            }
-        })?;
+        let shape = model_shape(summary, &fit_plan.net, &fit_plan.train)
+            .and_then(|shape| within_weight_limit(shape, plan.limits))
+            .map_err(|error| {
+                if fit_plan.settings.is_empty() {
+                    error
+                } else {
+                    format!("with {}: {error}", describe(&fit_plan.settings))
+                }
+            })?;
         shapes.push(shape);
         runs.push(
             fit_plan
@@ -402,6 +404,20 @@ fn plan_fits(
         runs,
         trained,
     })
+}
+
+/// The plan checked the weights between hidden layers; the data decides the input and
+/// output widths (a text column becomes one input per distinct value), so the whole
+/// network is checked once its shape is known, before anything is allocated for it.
+fn within_weight_limit(shape: ModelShape, limits: Limits) -> Result<ModelShape, String> {
+    let weights = weights_between(&shape.sizes);
+    if weights > u128::from(limits.max_weights) {
+        return Err(format!(
+            "a network of layer sizes {:?} holds {weights} weights, over the limit of {} (raise it with --max-weights)",
+            shape.sizes, limits.max_weights
+        ));
+    }
+    Ok(shape)
 }
 
 /// Runs the steps that need no training (data preparation above all) into the cache,
