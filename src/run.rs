@@ -564,7 +564,7 @@ fn fit_all<'t>(
         bar.set_length(unique.len() as u64);
     }
     let pool = rayon::ThreadPoolBuilder::new()
-        .num_threads(options.jobs.max(1))
+        .num_threads(pool_threads(options.jobs))
         .build()
         .expect("a thread pool");
     let results = pool.install(|| {
@@ -594,6 +594,15 @@ fn fit_all<'t>(
         .iter()
         .map(|&i| (tasks[i].key, Err(unprepared[&tasks[i].data].clone())));
     results.into_iter().chain(failed).collect()
+}
+
+/// Threads for the training pool: `--jobs`, but never more than the cores, since
+/// training is arithmetic and a thread per job is started up front. Not capped at the
+/// number of runs: the large products of a run split over the pool's threads, so a
+/// lone run still uses every core it is given.
+fn pool_threads(jobs: usize) -> usize {
+    let cores = std::thread::available_parallelism().map_or(1, |n| n.get());
+    jobs.clamp(1, cores)
 }
 
 /// A train step's or sweep's record from its fitted and reused runs.
