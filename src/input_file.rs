@@ -13,14 +13,18 @@ pub struct InputFile {
     pub written: String,
     pub path: PathBuf,
     pub hash: blake3::Hash,
+    /// Line breaks in the file when it was hashed: at least the rows a CSV file holds
+    /// (a quoted field may hold more), which the plan's work estimate multiplies.
+    pub lines: u64,
 }
 
 impl InputFile {
-    /// Hashes the file at `path` as a stream.
-    pub fn hash(path: &Path) -> io::Result<blake3::Hash> {
-        let mut hasher = blake3::Hasher::new();
-        hasher.update_reader(File::open(path)?)?;
-        Ok(hasher.finalize())
+    /// Hashes the file at `path` as a stream and counts its line breaks on the way.
+    pub fn measure(path: &Path) -> io::Result<(blake3::Hash, u64)> {
+        let mut reader = Hashed::new(File::open(path)?);
+        let mut lines = LineCount(0);
+        io::copy(&mut reader, &mut lines)?;
+        Ok((reader.finish(), lines.0))
     }
 
     /// Reads the file through `parse`. Errors name the file; so does the refusal when
@@ -46,6 +50,20 @@ impl InputFile {
             ));
         }
         Ok(value)
+    }
+}
+
+/// A sink that counts the line breaks written to it.
+struct LineCount(u64);
+
+impl io::Write for LineCount {
+    fn write(&mut self, buf: &[u8]) -> io::Result<usize> {
+        self.0 += buf.iter().filter(|&&byte| byte == b'\n').count() as u64;
+        Ok(buf.len())
+    }
+
+    fn flush(&mut self) -> io::Result<()> {
+        Ok(())
     }
 }
 
@@ -86,9 +104,11 @@ mod tests {
     fn input(dir: &Path, bytes: &[u8]) -> InputFile {
         let path = dir.join("rows.csv");
         std::fs::write(&path, bytes).unwrap();
+        let (hash, lines) = InputFile::measure(&path).unwrap();
         InputFile {
             written: "rows.csv".into(),
-            hash: InputFile::hash(&path).unwrap(),
+            hash,
+            lines,
             path,
         }
     }
@@ -106,6 +126,10 @@ mod tests {
         let bytes: Vec<u8> = (0..200_000u32).map(|i| (i % 251) as u8).collect();
         let file = input(dir.path(), &bytes);
         assert_eq!(file.hash, blake3::hash(&bytes));
+        assert_eq!(
+            file.lines,
+            bytes.iter().filter(|&&b| b == b'\n').count() as u64
+        );
         assert_eq!(read_all(&file).unwrap(), bytes);
     }
 

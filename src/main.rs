@@ -30,9 +30,18 @@ struct DocumentFlags {
     /// Widest hidden layer a document may declare.
     #[arg(long, value_name = "UNITS", default_value_t = Limits::default().max_layer_width)]
     max_layer_width: usize,
+    /// Most hidden layers a network may have.
+    #[arg(long, value_name = "LAYERS", default_value_t = Limits::default().max_layers)]
+    max_layers: usize,
+    /// Most weights and biases a network may have.
+    #[arg(long, value_name = "WEIGHTS", default_value_t = Limits::default().max_weights)]
+    max_weights: u64,
     /// Most training runs one sweep may ask for.
     #[arg(long, value_name = "RUNS", default_value_t = Limits::default().max_sweep_runs)]
     max_sweep_runs: usize,
+    /// Most row passes (runs × epochs × rows) one train step or sweep may ask for.
+    #[arg(long, value_name = "ROW-PASSES", default_value_t = Limits::default().max_work)]
+    max_work: u64,
     /// Largest file a step may read, in MiB.
     #[arg(long, value_name = "MIB", default_value_t = Limits::default().max_file_bytes >> 20)]
     max_file_mb: u64,
@@ -44,7 +53,10 @@ impl DocumentFlags {
             allow_outside: self.allow_outside,
             limits: Limits {
                 max_layer_width: self.max_layer_width,
+                max_layers: self.max_layers,
+                max_weights: self.max_weights,
                 max_sweep_runs: self.max_sweep_runs,
+                max_work: self.max_work,
                 max_file_bytes: self.max_file_mb << 20,
             },
         }

@@ -33,8 +33,9 @@ impl StepInputs {
                 .collect(),
             upstream: step
                 .upstream
-                .iter()
-                .map(|&u| plan.steps[u].key.clone())
+                .all()
+                .into_iter()
+                .map(|u| plan.steps[u].key.clone())
                 .collect(),
         }
     }

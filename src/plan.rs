@@ -8,6 +8,7 @@ use crate::cache::EntryKind;
 use crate::confine;
 use crate::data::Split;
 use crate::document::problem::nearest;
+use crate::document::spec::sweep::SweepSpec;
 pub use crate::document::spec::sweep::describe;
 use crate::document::spec::sweep::{settings_text, variant};
 use crate::document::spec::{NetSpec, TrainSpec, key_span, parse_step};
@@ -35,14 +36,50 @@ pub struct PlannedStep {
     pub spec: StepSpec,
     /// Index of the step's block among the document's pieces.
     pub piece: usize,
-    /// Indices (into `Plan::steps`) of the steps this one reads, in reference order.
-    pub upstream: Vec<usize>,
+    /// The steps this one reads, each named by the setting that names it.
+    pub upstream: Upstream,
     pub files: Vec<InputFile>,
     /// The file a predict or export step writes, checked against every other use.
     pub output: Option<Output>,
     pub key: Key,
     /// The networks a train step (one) or a sweep (one per combination) fits.
     pub fits: Vec<FitPlan>,
+}
+
+/// The steps a step reads, as indices into `Plan::steps`, named by the setting that
+/// names each: a plan holds one only when every reference resolved to a step of the
+/// right kind, so no stage reads an upstream step by position.
+#[derive(Clone, Debug, PartialEq, Eq)]
+pub enum Upstream {
+    /// Data and net steps read no other step.
+    Nothing,
+    Train {
+        data: usize,
+        net: usize,
+    },
+    Sweep {
+        from: usize,
+    },
+    Compare {
+        runs: Vec<usize>,
+    },
+    /// Predict and export: the train step whose model they use.
+    Model {
+        model: usize,
+    },
+}
+
+impl Upstream {
+    /// Every step read, in the order their keys enter this step's key.
+    pub fn all(&self) -> Vec<usize> {
+        match self {
+            Upstream::Nothing => Vec::new(),
+            Upstream::Train { data, net } => vec![*data, *net],
+            Upstream::Sweep { from } => vec![*from],
+            Upstream::Compare { runs } => runs.clone(),
+            Upstream::Model { model } => vec![*model],
+        }
+    }
 }
 
 /// One setting of net and train values, fitted once per seed and partition.
@@ -66,6 +103,14 @@ pub struct RunPlan {
 }
 
 impl PlannedStep {
+    /// The data and net steps of a train step; `None` for every other kind.
+    pub fn train_inputs(&self) -> Option<(usize, usize)> {
+        match self.upstream {
+            Upstream::Train { data, net } => Some((data, net)),
+            _ => None,
+        }
+    }
+
     /// The cache entries that hold this step's result: all present means a build
     /// reuses it. (A data step also keeps its prepared matrices, loaded only to train.)
     pub fn result_entries(&self) -> Vec<(&str, EntryKind)> {
@@ -93,6 +138,9 @@ pub struct Plan {
     pub steps: Vec<PlannedStep>,
     /// Indices into `steps` such that every step comes after the steps it reads.
     pub order: Vec<usize>,
+    /// The limits the plan was made under; a run checks against them what only the
+    /// data decides (the network's input and output widths).
+    pub limits: Limits,
 }
 
 impl Plan {
@@ -106,8 +154,15 @@ impl Plan {
 pub struct Limits {
     /// Widest hidden layer allowed.
     pub max_layer_width: usize,
+    /// Most hidden layers a network may have.
+    pub max_layers: usize,
+    /// Most weights and biases a network may have, input and output layers included.
+    pub max_weights: u64,
     /// Most training runs one sweep may ask for (combinations × seeds × folds).
     pub max_sweep_runs: usize,
+    /// Most row passes (runs × epochs × rows of the data file) one train step or
+    /// sweep may ask for.
+    pub max_work: u64,
     /// Largest file a step may read, in bytes.
     pub max_file_bytes: u64,
 }
@@ -116,7 +171,18 @@ impl Default for Limits {
     fn default() -> Limits {
         Limits {
             max_layer_width: 4096,
+            // Feed-forward networks for tabular data rarely pass ten hidden layers.
+            max_layers: 100,
+            // Training keeps some six copies of every weight (the network, gradients,
+            // optimizer state, the best epoch's network), 8 bytes each: about 1 GB
+            // per run here, with a run per job in parallel. Two hidden layers of the
+            // widest default width (4096² ≈ 16.8 million) still fit.
+            max_weights: 20_000_000,
             max_sweep_runs: 2000,
+            // A laptop core makes some 10⁷ row passes a second through a small
+            // network, so this is hours of training, not years; a full default
+            // sweep (2000 runs × 1000 epochs) stays under it up to 50,000 rows.
+            max_work: 100_000_000_000,
             max_file_bytes: 1 << 30,
         }
     }
@@ -189,38 +255,36 @@ pub fn plan(
         .enumerate()
         .map(|(i, (_, b, _))| (b.id.as_str(), i))
         .collect();
-    let mut steps = Vec::new();
-    for (piece, block, spec) in &parsed {
-        let mut upstream = Vec::new();
-        for reference in spec.references() {
-            let (id, setting) = (reference.id, reference.setting);
-            match kinds.get(id) {
-                // A block whose info string was unreadable already has its problem.
-                None if document.unreadable_ids.iter().any(|u| u == id) => {}
-                None => problems.push(missing_reference(block, setting, id, &kinds)),
-                Some(kind) if !reference.kinds.contains(kind) => problems.push(Problem::new(
-                    setting_span(block, setting),
-                    format!(
-                        "'{id}' is a {} step, but {setting} must name a {} step",
-                        kind.word(),
-                        reference
-                            .kinds
-                            .iter()
-                            .map(|k| k.word())
-                            .collect::<Vec<_>>()
-                            .join(" or ")
-                    ),
-                )),
-                // A referenced step that failed to parse already has its own problem.
-                Some(_) => upstream.extend(index.get(id).copied()),
-            }
-        }
+    let found = |id: &str, wanted: &[StepKind]| {
+        index
+            .get(id)
+            .copied()
+            .filter(|&i| wanted.contains(&parsed[i].1.kind))
+    };
+    let mut checked = Vec::new();
+    for (_, block, spec) in &parsed {
+        check_references(document, block, spec, &kinds, &mut problems);
         let files = read_files(block, spec, &place, &mut problems);
         let output = check_writes(block, spec, &place, &mut problems);
         if let StepSpec::Net(net) = spec {
-            check_widths(block, &net.hidden, options.limits, "", &mut problems);
+            check_net_size(block, &net.hidden, options.limits, "", &mut problems);
         }
-        steps.push(PlannedStep {
+        checked.push((upstream_of(spec, found), files, output));
+    }
+    // Keys and fits read every upstream step, so nothing past here runs on a document
+    // with a problem; a reference left unresolved without a problem of its own names
+    // a block whose header the parser already reported.
+    let resolved: Option<Vec<_>> = checked
+        .into_iter()
+        .map(|(upstream, files, output)| Some((upstream?, files, output)))
+        .collect();
+    let Some(resolved) = resolved.filter(|_| problems.is_empty()) else {
+        return Err(problems);
+    };
+    let mut steps: Vec<PlannedStep> = parsed
+        .iter()
+        .zip(resolved)
+        .map(|((piece, block, spec), (upstream, files, output))| PlannedStep {
             id: block.id.clone(),
             kind: block.kind,
             spec: spec.clone(),
@@ -230,8 +294,8 @@ pub fn plan(
             output,
             key: String::new(),
             fits: Vec::new(),
-        });
-    }
+        })
+        .collect();
     for (index, refusal) in outputs::step_clashes(&steps) {
         problems.push(refusal.at(setting_span(parsed[index].1, "write")));
     }
@@ -242,20 +306,96 @@ pub fn plan(
     for &i in &order {
         let upstream_keys: Vec<Key> = steps[i]
             .upstream
-            .iter()
-            .map(|&u| steps[u].key.clone())
+            .all()
+            .into_iter()
+            .map(|u| steps[u].key.clone())
             .collect();
         steps[i].key = step_key(&steps[i], &upstream_keys);
     }
     let blocks: Vec<&StepBlock> = parsed.iter().map(|(_, block, _)| *block).collect();
     for i in 0..steps.len() {
-        steps[i].fits = fits(&steps, &blocks, i, default_seed, &mut problems);
-        check_sweep_size(blocks[i], &steps[i], options.limits, &mut problems);
+        steps[i].fits = fits(
+            &steps,
+            &blocks,
+            i,
+            default_seed,
+            options.limits,
+            &mut problems,
+        );
     }
     if !problems.is_empty() {
         return Err(problems);
     }
-    Ok(Plan { steps, order })
+    Ok(Plan {
+        steps,
+        order,
+        limits: options.limits,
+    })
+}
+
+/// Each id the step reads names a step of a kind it may read; problems otherwise.
+fn check_references(
+    document: &Document,
+    block: &StepBlock,
+    spec: &StepSpec,
+    kinds: &HashMap<&str, StepKind>,
+    problems: &mut Vec<Problem>,
+) {
+    for reference in spec.references() {
+        let (id, setting) = (reference.id, reference.setting);
+        match kinds.get(id) {
+            // A block whose info string was unreadable already has its problem.
+            None if document.unreadable_ids.iter().any(|u| u == id) => {}
+            None => problems.push(missing_reference(block, setting, id, kinds)),
+            Some(kind) if !reference.kinds.contains(kind) => problems.push(Problem::new(
+                setting_span(block, setting),
+                format!(
+                    "'{id}' is a {} step, but {setting} must name a {} step",
+                    kind.word(),
+                    reference
+                        .kinds
+                        .iter()
+                        .map(|k| k.word())
+                        .collect::<Vec<_>>()
+                        .join(" or ")
+                ),
+            )),
+            // A referenced step that failed to parse already has its own problem.
+            Some(_) => {}
+        }
+    }
+}
+
+/// The steps `spec` reads, each looked up by name with the kinds it may be; `None`
+/// when any of them is not a parsed step of such a kind.
+fn upstream_of(
+    spec: &StepSpec,
+    found: impl Fn(&str, &[StepKind]) -> Option<usize>,
+) -> Option<Upstream> {
+    const MODELS: &[StepKind] = &[StepKind::Train];
+    Some(match spec {
+        StepSpec::Data(_) | StepSpec::Net(_) => Upstream::Nothing,
+        StepSpec::Train(train) => Upstream::Train {
+            data: found(&train.data, &[StepKind::Data])?,
+            net: found(&train.net, &[StepKind::Net])?,
+        },
+        StepSpec::Sweep(sweep) => Upstream::Sweep {
+            from: found(&sweep.from, &[StepKind::Train])?,
+        },
+        StepSpec::Compare(compare) => Upstream::Compare {
+            runs: compare
+                .runs
+                .iter()
+                .map(|id| found(id, &[StepKind::Train, StepKind::Sweep]))
+                .collect::<Option<_>>()?,
+        },
+        StepSpec::Predict(predict) => Upstream::Model {
+            model: found(&predict.model, MODELS)?,
+        },
+        StepSpec::Export(export) => Upstream::Model {
+            model: found(&export.model, MODELS)?,
+        },
+    })
 }
 
 fn missing_reference(
@@ -321,10 +461,11 @@ fn read_files(
         return Vec::new();
     }
     // Hashed as a stream and not kept: the step reads the file again when it runs.
-    match InputFile::hash(&path) {
-        Ok(hash) => vec![InputFile {
+    match InputFile::measure(&path) {
+        Ok((hash, lines)) => vec![InputFile {
             written: written.clone(),
             hash,
+            lines,
             path,
         }],
         Err(error) => {
@@ -361,57 +502,59 @@ fn check_writes(
     }
 }
 
-fn check_widths(
+/// A network's hidden layers against the width, depth and weight limits. The
+/// weights between hidden layers are counted here; those to the inputs and outputs
+/// depend on the data and are checked when the run's shape is known.
+fn check_net_size(
     block: &StepBlock,
     hidden: &[usize],
     limits: Limits,
     prefix: &str,
     problems: &mut Vec<Problem>,
 ) {
-    if let Some(&width) = hidden.iter().find(|&&w| w > limits.max_layer_width) {
-        let setting = if prefix.is_empty() { "hidden" } else { "vary" };
+    let setting = if prefix.is_empty() { "hidden" } else { "vary" };
+    let mut exceeds = |message: String, flag: &str| {
         problems.push(
-            Problem::new(
-                setting_span(block, setting),
-                format!(
-                    "{prefix}a hidden layer of {width} units is wider than the limit of {}",
-                    limits.max_layer_width
-                ),
-            )
-            .with_help("raise the limit with --max-layer-width"),
+            Problem::new(setting_span(block, setting), format!("{prefix}{message}"))
+                .with_help(format!("raise the limit with {flag}")),
+        );
+    };
+    if let Some(&width) = hidden.iter().find(|&&w| w > limits.max_layer_width) {
+        exceeds(
+            format!(
+                "a hidden layer of {width} units is wider than the limit of {}",
+                limits.max_layer_width
+            ),
+            "--max-layer-width",
+        );
+    } else if hidden.len() > limits.max_layers {
+        exceeds(
+            format!(
+                "{} hidden layers are more than the limit of {}",
+                hidden.len(),
+                limits.max_layers
+            ),
+            "--max-layers",
+        );
+    } else if weights_between(hidden) > u128::from(limits.max_weights) {
+        exceeds(
+            format!(
+                "the hidden layers alone hold {} weights, over the limit of {}",
+                weights_between(hidden),
+                limits.max_weights
+            ),
+            "--max-weights",
         );
     }
 }
 
-/// A sweep's size and its combinations' widths, against the limits.
-fn check_sweep_size(
-    block: &StepBlock,
-    step: &PlannedStep,
-    limits: Limits,
-    problems: &mut Vec<Problem>,
-) {
-    if step.kind != StepKind::Sweep {
-        return;
-    }
-    let runs: usize = step.fits.iter().map(|fit| fit.runs.len()).sum();
-    if runs > limits.max_sweep_runs {
-        problems.push(
-            Problem::new(
-                setting_span(block, "vary"),
-                format!(
-                    "this sweep asks for {runs} training runs ({} combinations), over the limit of {}",
-                    step.fits.len(),
-                    limits.max_sweep_runs
-                ),
-            )
-            .with_help("raise the limit with --max-sweep-runs"),
-        );
-        return;
-    }
-    for fit in &step.fits {
-        let prefix = format!("with {}: ", describe(&fit.settings));
-        check_widths(block, &fit.net.hidden, limits, &prefix, problems);
-    }
+/// Weights and biases between consecutive layers of sizes `sizes` (in a type wide
+/// enough that no list of widths overflows it).
+pub fn weights_between(sizes: &[usize]) -> u128 {
+    sizes
+        .windows(2)
+        .map(|pair| (pair[0] as u128 + 1) * pair[1] as u128)
+        .sum()
 }
 
 /// Kahn's algorithm, taking ready steps in document order so the order is stable.
@@ -421,7 +564,7 @@ fn execution_order(steps: &[PlannedStep]) -> Vec<usize> {
     let mut order = Vec::with_capacity(steps.len());
     while order.len() < steps.len() {
         let ready = (0..steps.len())
-            .find(|&i| !done[i] && steps[i].upstream.iter().all(|&u| done[u]))
+            .find(|&i| !done[i] && steps[i].upstream.all().into_iter().all(|u| done[u]))
             .expect("step references form no cycle");
         done[ready] = true;
         order.push(ready);
@@ -429,35 +572,55 @@ fn execution_order(steps: &[PlannedStep]) -> Vec<usize> {
     order
 }
 
+/// Planning resolves a train step's references to a data and a net step, and a
+/// sweep's `from` to a train step, or makes no plan.
+const TRAIN_READS: &str = "a train step reads a data and a net step";
+
+/// One fit's settings, before its runs are listed.
+struct FitSettings {
+    settings: Vec<(String, String)>,
+    net: NetSpec,
+    train: TrainSpec,
+}
+
 /// The fits of a train step (its own settings) or a sweep (one per combination, each
-/// checked as if its values were written in the base train and net steps).
+/// checked as if its values were written in the base train and net steps). The
+/// number of runs and the work are checked against the limits before any list of
+/// runs is made, so no setting sizes an allocation unchecked.
 fn fits(
     steps: &[PlannedStep],
     blocks: &[&StepBlock],
     index: usize,
     default_seed: u64,
+    limits: Limits,
     problems: &mut Vec<Problem>,
 ) -> Vec<FitPlan> {
     let step = &steps[index];
-    match &step.spec {
+    let (data, fits, repeat) = match &step.spec {
         StepSpec::Train(train) => {
-            let StepSpec::Net(net) = &steps[step.upstream[1]].spec else {
-                unreachable!("references were checked")
+            let (data, net) = step.train_inputs().expect(TRAIN_READS);
+            let StepSpec::Net(net) = &steps[net].spec else {
+                unreachable!("{TRAIN_READS}")
             };
-            vec![fit_plan(
-                steps,
-                step.upstream[0],
-                Vec::new(),
-                net.clone(),
-                train.clone(),
-                1,
-            )]
+            let own = FitSettings {
+                settings: Vec::new(),
+                net: net.clone(),
+                train: train.clone(),
+            };
+            (data, vec![own], 1)
         }
         StepSpec::Sweep(sweep) => {
-            let base = step.upstream[0];
-            let (data, net) = (steps[base].upstream[0], steps[base].upstream[1]);
+            let Upstream::Sweep { from: base } = step.upstream else {
+                unreachable!("a sweep's upstream is its from step")
+            };
+            let (data, net) = steps[base].train_inputs().expect(TRAIN_READS);
+            let runs = sweep_runs(sweep, partitions(&steps[data]));
+            if runs > limits.max_sweep_runs as u128 {
+                problems.push(too_many_runs(blocks[index], sweep, runs, limits));
+                return Vec::new();
+            }
             let span = setting_span(blocks[index], "vary");
-            sweep
+            let fits = sweep
                 .combinations()
                 .iter()
                 .filter_map(|combination| {
@@ -470,29 +633,121 @@ fn fits(
                         problems,
                     )?;
                     let settings = settings_text(combination);
-                    Some(fit_plan(steps, data, settings, net, train, sweep.repeat))
+                    let prefix = format!("with {}: ", describe(&settings));
+                    check_net_size(blocks[index], &net.hidden, limits, &prefix, problems);
+                    Some(FitSettings {
+                        settings,
+                        net,
+                        train,
+                    })
                 })
-                .collect()
+                .collect();
+            (data, fits, sweep.repeat)
         }
-        _ => Vec::new(),
+        _ => return Vec::new(),
+    };
+    let work = Work::of(&steps[data], &fits, repeat);
+    if work.row_passes > u128::from(limits.max_work) {
+        problems.push(too_much_work(blocks[index], step.kind, &work, limits));
+        return Vec::new();
+    }
+    fits.into_iter()
+        .map(|fit| fit_plan(steps, data, fit, repeat))
+        .collect()
+}
+
+/// How many partitions (folds, or the one holdout split) a data step makes.
+fn partitions(data: &PlannedStep) -> usize {
+    let StepSpec::Data(spec) = &data.spec else {
+        unreachable!("{TRAIN_READS}")
+    };
+    match spec.settings.split {
+        Split::Holdout(_) => 1,
+        Split::Folds(folds) => folds,
     }
 }
 
-fn fit_plan(
-    steps: &[PlannedStep],
-    data: usize,
-    settings: Vec<(String, String)>,
-    net: NetSpec,
-    train: TrainSpec,
-    repeat: usize,
-) -> FitPlan {
-    let StepSpec::Data(data_spec) = &steps[data].spec else {
-        unreachable!("references were checked")
+/// A sweep's combinations, counted without listing them.
+fn combinations(sweep: &SweepSpec) -> u128 {
+    sweep.vary.iter().fold(1u128, |product, (_, values)| {
+        product.saturating_mul(values.len() as u128)
+    })
+}
+
+/// A sweep's runs (combinations × repeats × partitions), counted without listing them.
+fn sweep_runs(sweep: &SweepSpec, partitions: usize) -> u128 {
+    combinations(sweep)
+        .saturating_mul(sweep.repeat as u128)
+        .saturating_mul(partitions as u128)
+}
+
+fn too_many_runs(block: &StepBlock, sweep: &SweepSpec, runs: u128, limits: Limits) -> Problem {
+    let combinations = combinations(sweep);
+    Problem::new(
+        setting_span(block, "vary"),
+        format!(
+            "this sweep asks for {runs} training runs ({combinations} combinations), over the limit of {}",
+            limits.max_sweep_runs
+        ),
+    )
+    .with_help("raise the limit with --max-sweep-runs")
+}
+
+/// The training a step asks for, in row passes: one row forward and back through a
+/// network once. An upper estimate, as the data file's line breaks stand for its
+/// rows and every row is counted, held out or not.
+struct Work {
+    row_passes: u128,
+    runs: u128,
+    most_epochs: usize,
+    rows: u64,
+}
+
+impl Work {
+    fn of(data: &PlannedStep, fits: &[FitSettings], repeat: usize) -> Work {
+        let rows: u64 = data.files.iter().map(|file| file.lines).sum();
+        let runs_per_fit = (repeat as u128).saturating_mul(partitions(data) as u128);
+        let row_passes = fits.iter().fold(0u128, |total, fit| {
+            let per_run = (fit.train.epochs as u128).saturating_mul(u128::from(rows));
+            total.saturating_add(runs_per_fit.saturating_mul(per_run))
+        });
+        Work {
+            row_passes,
+            runs: runs_per_fit.saturating_mul(fits.len() as u128),
+            most_epochs: fits.iter().map(|fit| fit.train.epochs).max().unwrap_or(0),
+            rows,
+        }
+    }
+}
+
+/// Located at a train step's `epochs` (the default when the block has none) or a
+/// sweep's `vary`.
+fn too_much_work(block: &StepBlock, kind: StepKind, work: &Work, limits: Limits) -> Problem {
+    let (what, setting) = match kind {
+        StepKind::Sweep => ("this sweep", "vary"),
+        _ => ("this train step", "epochs"),
     };
-    let partitions = match data_spec.settings.split {
-        Split::Holdout(_) => 1,
-        Split::Folds(folds) => folds,
-    };
+    Problem::new(
+        setting_span(block, setting),
+        format!(
+            "{what} asks for up to {} row passes ({} runs of up to {} epochs over up to {} rows), over the limit of {}",
+            work.row_passes,
+            work.runs,
+            work.most_epochs,
+            work.rows,
+            limits.max_work
+        ),
+    )
+    .with_help("raise the limit with --max-work, or ask for fewer epochs or runs")
+}
+
+fn fit_plan(steps: &[PlannedStep], data: usize, fit: FitSettings, repeat: usize) -> FitPlan {
+    let FitSettings {
+        settings,
+        net,
+        train,
+    } = fit;
+    let partitions = partitions(&steps[data]);
     let mut runs = Vec::new();
     for r in 0..repeat as u64 {
         // The first repeat is the train step's own seed, so it shares the train's entry.

@@ -20,7 +20,7 @@ use crate::outcome::{
     DataSummary, FitResult, ModelShape, Outcome, PartitionSummary, RunResult, Seconds, SweepResult,
     rank,
 };
-use crate::plan::{Key, Plan, PlannedStep, describe};
+use crate::plan::{Key, Limits, Plan, PlannedStep, Upstream, describe, weights_between};
 use crate::shard::Share;
 use crate::use_model;
 
@@ -212,8 +212,13 @@ pub fn execute(plan: &Plan, cache: &Cache, options: &RunOptions) -> Vec<StepReco
     for &index in &plan.order {
         let step = &plan.steps[index];
         let record = match &step.spec {
-            StepSpec::Compare(_) => match step.upstream.iter().find(|&&u| failed(&records[u])) {
-                Some(&u) => StepRecord::failed(format!("not run: '{}' failed", plan.steps[u].id)),
+            StepSpec::Compare(_) => match step
+                .upstream
+                .all()
+                .into_iter()
+                .find(|&u| failed(&records[u]))
+            {
+                Some(u) => StepRecord::failed(format!("not run: '{}' failed", plan.steps[u].id)),
                 None => marker_step(step, cache),
             },
             StepSpec::Predict(_) | StepSpec::Export(_) => {
@@ -375,13 +380,15 @@ fn plan_fits(
     let mut runs = Vec::new();
     for fit_plan in &step.fits {
         let summary = data_summary(plan, records, fit_plan.data)?;
-        let shape = model_shape(summary, &fit_plan.net, &fit_plan.train).map_err(|error| {
-            if fit_plan.settings.is_empty() {
-                error
-            } else {
-                format!("with {}: {error}", describe(&fit_plan.settings))
-            }
-        })?;
+        let shape = model_shape(summary, &fit_plan.net, &fit_plan.train)
+            .and_then(|shape| within_weight_limit(shape, plan.limits))
+            .map_err(|error| {
+                if fit_plan.settings.is_empty() {
+                    error
+                } else {
+                    format!("with {}: {error}", describe(&fit_plan.settings))
+                }
+            })?;
         shapes.push(shape);
         runs.push(
             fit_plan
@@ -397,6 +404,20 @@ fn plan_fits(
         runs,
         trained,
     })
+}
+
+/// The plan checked the weights between hidden layers; the data decides the input and
+/// output widths (a text column becomes one input per distinct value), so the whole
+/// network is checked once its shape is known, before anything is allocated for it.
+fn within_weight_limit(shape: ModelShape, limits: Limits) -> Result<ModelShape, String> {
+    let weights = weights_between(&shape.sizes);
+    if weights > u128::from(limits.max_weights) {
+        return Err(format!(
+            "a network of layer sizes {:?} holds {weights} weights, over the limit of {} (raise it with --max-weights)",
+            shape.sizes, limits.max_weights
+        ));
+    }
+    Ok(shape)
 }
 
 /// Runs the steps that need no training (data preparation above all) into the cache,
@@ -543,7 +564,7 @@ fn fit_all<'t>(
         bar.set_length(unique.len() as u64);
     }
     let pool = rayon::ThreadPoolBuilder::new()
-        .num_threads(options.jobs.max(1))
+        .num_threads(pool_threads(options.jobs))
         .build()
         .expect("a thread pool");
     let results = pool.install(|| {
@@ -573,6 +594,15 @@ fn fit_all<'t>(
         .iter()
         .map(|&i| (tasks[i].key, Err(unprepared[&tasks[i].data].clone())));
     results.into_iter().chain(failed).collect()
+}
+
+/// Threads for the training pool: `--jobs`, but never more than the cores, since
+/// training is arithmetic and a thread per job is started up front. Not capped at the
+/// number of runs: the large products of a run split over the pool's threads, so a
+/// lone run still uses every core it is given.
+fn pool_threads(jobs: usize) -> usize {
+    let cores = std::thread::available_parallelism().map_or(1, |n| n.get());
+    jobs.clamp(1, cores)
 }
 
 /// A train step's or sweep's record from its fitted and reused runs.
@@ -653,7 +683,9 @@ fn use_model_step(
     if let Some(outcome) = cache.load::<Outcome>(&step.key, kind) {
         return StepRecord::new(Status::Reused, outcome);
     }
-    let model_index = step.upstream[0];
+    let Upstream::Model { model: model_index } = step.upstream else {
+        unreachable!("predict and export read a model")
+    };
     let model = match records[model_index]
         .as_ref()
         .and_then(|r| r.outcome.as_ref())
@@ -667,7 +699,9 @@ fn use_model_step(
         }
     };
     let started = Instant::now();
-    let data = plan.steps[model_index].upstream[0];
+    let (data, _) = plan.steps[model_index]
+        .train_inputs()
+        .expect("a model is a train step's");
     let computed = prepared_for(plan, data, cache, prepared).and_then(|ready| match &step.spec {
         StepSpec::Predict(_) => {
             use_model::predict(model, &ready, &step.files[0]).map(Outcome::Predict)

@@ -160,6 +160,20 @@ fn every_problem_is_reported_not_just_the_first() {
 }
 
 #[test]
+fn a_misspelt_kind_with_the_data_file_present_is_a_located_error() {
+    // The data file is present, so planning reaches the train step, whose net is
+    // the unreadable block.
+    let ws = Workspace::new();
+    let found = problems(
+        &ws,
+        "```yaml data d\nfile: iris.csv\ntarget: species\n```\n\n```yaml nett n\n```\n\n```yaml train t\ndata: d\nnet: n\n```\n",
+    );
+    assert_eq!(found.len(), 1, "{found:?}");
+    assert_eq!(found[0].0, "6:4");
+    assert!(found[0].1.contains("'nett' is not a step kind"));
+}
+
+#[test]
 fn empty_documents_and_documents_without_steps_are_errors() {
     let (at, message, _) = one_problem("\n\n");
     assert_eq!(at, "1:1");

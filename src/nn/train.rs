@@ -261,7 +261,9 @@ fn train_in<F: Float>(
     rng.set_stream(super::SHUFFLE_STREAM);
     let mut order: Vec<usize> = (0..n).collect();
     let mut batches = Batches::<F>::new(rows, batch, shuffling);
-    let mut history = Vec::with_capacity(config.epochs);
+    // Grown as epochs run: `epochs` is only a bound, and reserving it up front would
+    // size an allocation by a setting (a run that stops early needs far less).
+    let mut history = Vec::new();
     let mut monitor = config.patience.map(Monitor::new);
 
     for epoch in 1..=config.epochs {
@@ -702,6 +704,21 @@ mod tests {
             assert_eq!(before.biases, after.biases);
             assert_ne!(before.weights, after.weights);
         }
+    }
+
+    #[test]
+    fn an_epoch_limit_near_the_largest_integer_allocates_only_the_epochs_run() {
+        let (x, y) = data();
+        let cfg = TrainConfig {
+            // Every mean loss is at or below infinity, so the run stops after one epoch.
+            target_loss: Some(f64::INFINITY),
+            ..config(sgd(0.05, 0.0), BatchSize::Rows(4), usize::MAX)
+        };
+        let out = train(small_net(7), x.view(), y.view(), None, &cfg);
+        assert_eq!(
+            (out.stop, out.epochs_run, out.history.len()),
+            (StopReason::TargetLoss, 1, 1)
+        );
     }
 
     #[test]

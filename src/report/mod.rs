@@ -308,8 +308,9 @@ fn compared<'a>(
     step: &'a crate::plan::PlannedStep,
 ) -> Vec<Compared<'a>> {
     step.upstream
-        .iter()
-        .filter_map(|&u| {
+        .all()
+        .into_iter()
+        .filter_map(|u| {
             let id = input.plan.steps[u].id.as_str();
             match input.records[u].outcome.as_ref()? {
                 Outcome::Train(fit) => Some(Compared {

@@ -182,9 +182,15 @@ const fn tile_cols<T: Element>() -> usize {
     VECTORS * T::LANES
 }
 
-/// Whether the processor runs this kernel.
+/// Whether the processor runs this kernel, and the test switch `STET_GEMM_PORTABLE`
+/// does not send every product to the path for processors without AVX-512.
 pub(super) fn available() -> bool {
-    std::arch::is_x86_feature_detected!("avx512f") && std::arch::is_x86_feature_detected!("fma")
+    static AVAILABLE: std::sync::OnceLock<bool> = std::sync::OnceLock::new();
+    *AVAILABLE.get_or_init(|| {
+        std::env::var_os("STET_GEMM_PORTABLE").is_none()
+            && std::arch::is_x86_feature_detected!("avx512f")
+            && std::arch::is_x86_feature_detected!("fma")
+    })
 }
 
 /// `c ← a·b`, or `c ← a·b + c` with `accumulate`, for `k > 0` and `c` with
