@@ -1,0 +1,69 @@
+//! Documents and data files that once crashed, hung, exhausted memory or silently
+//! changed results (issue 11): each must now end quickly with a located error.
+
+mod common;
+
+use std::process::Output;
+
+use common::Workspace;
+
+/// `stet build DOC` in the workspace, without a JSON summary.
+fn build(ws: &Workspace, document: &str, extra: &[&str]) -> Output {
+    let mut args = vec!["build".to_string(), document.to_string()];
+    args.extend(extra.iter().map(|s| s.to_string()));
+    common::stet(&args, ws.dir.path())
+}
+
+fn stderr(output: &Output) -> String {
+    String::from_utf8_lossy(&output.stderr).into_owned()
+}
+
+/// The build was refused as unusable input, with no panic and no report.
+fn assert_refused(ws: &Workspace, output: &Output, report: &str) {
+    let text = stderr(output);
+    assert_eq!(output.status.code(), Some(2), "{text}");
+    assert!(!text.contains("panicked"), "{text}");
+    assert!(!ws.path(report).exists(), "no report is written");
+}
+
+#[test]
+fn an_error_past_column_65535_is_shown_with_its_line_cut_short() {
+    let ws = Workspace::new();
+    // 35,000 widths put the bad one at column 9 + 3 · 35,000 + 1 = 105,010.
+    let widths = "2, ".repeat(35_000);
+    ws.write(
+        "doc.md",
+        &format!("```yaml net n\nhidden: [{widths}x]\n```\n"),
+    );
+    let output = build(&ws, "doc.md", &[]);
+    assert_refused(&ws, &output, "doc.html");
+    let text = stderr(&output);
+    assert!(text.contains("doc.md:2:105010"), "{text}");
+    assert!(
+        text.contains("| …2, 2, 2") && text.contains("2, x]"),
+        "{text}"
+    );
+    assert!(
+        text.lines().all(|line| line.chars().count() < 400),
+        "{text}"
+    );
+}
+
+#[test]
+fn a_70000_character_unknown_key_is_shown_cut_short() {
+    let ws = Workspace::new();
+    let key = "k".repeat(70_000);
+    ws.write(
+        "doc.md",
+        &format!("```yaml net n\nhidden: [4]\n{key}: 1\n```\n"),
+    );
+    let output = build(&ws, "doc.md", &[]);
+    assert_refused(&ws, &output, "doc.html");
+    let text = stderr(&output);
+    assert!(text.contains("doc.md:3:70001"), "{text}");
+    assert!(text.contains("| …kkk"), "{text}");
+    assert!(
+        text.lines().all(|line| line.chars().count() < 400),
+        "{text}"
+    );
+}
