@@ -67,3 +67,49 @@ fn a_70000_character_unknown_key_is_shown_cut_short() {
         "{text}"
     );
 }
+
+const SEEDED: &str = "---\ntitle: Seeded\nseed: 3\n---\n\nProse.\n\n```yaml data d\nfile: iris.csv\ntarget: species\n```\n\n```yaml net n\nhidden: [3]\n```\n\n```yaml train t\ndata: d\nnet: n\nepochs: 5\n```\n";
+
+/// Each step's id and key: equal keys mean equal settings, seed included.
+fn step_keys(summary: &serde_json::Value) -> Vec<(String, String)> {
+    summary["steps"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|step| (step["id"].to_string(), step["key"].to_string()))
+        .collect()
+}
+
+#[test]
+fn a_byte_order_mark_before_the_front_matter_keeps_its_title_and_seed() {
+    let ws = Workspace::new();
+    let plain = ws.build_ok(&ws.write("plain.md", SEEDED), &[]);
+    let marked = ws.build_ok(&ws.write("marked.md", &format!("\u{FEFF}{SEEDED}")), &[]);
+    assert_eq!(step_keys(&marked), step_keys(&plain));
+    let html = std::fs::read_to_string(ws.path("marked.html")).unwrap();
+    assert!(
+        html.contains("<title>Seeded</title>"),
+        "the front matter is read"
+    );
+}
+
+#[test]
+fn a_document_with_carriage_return_line_ends_builds_like_one_with_line_feeds() {
+    let ws = Workspace::new();
+    let plain = ws.build_ok(&ws.write("plain.md", SEEDED), &[]);
+    let old_mac = ws.build_ok(&ws.write("old-mac.md", &SEEDED.replace('\n', "\r")), &[]);
+    assert_eq!(step_keys(&old_mac), step_keys(&plain));
+}
+
+#[test]
+fn a_problem_in_a_marked_document_is_placed_as_an_editor_shows_it() {
+    let ws = Workspace::new();
+    ws.write("doc.md", "\u{FEFF}```yaml net n\rhidden: [x]\r```\r");
+    let output = build(&ws, "doc.md", &[]);
+    assert_refused(&ws, &output, "doc.html");
+    assert!(
+        stderr(&output).contains("doc.md:2:10"),
+        "{}",
+        stderr(&output)
+    );
+}
