@@ -3,7 +3,8 @@
 
 mod common;
 
-use std::process::Output;
+use std::process::{Command, Output, Stdio};
+use std::time::{Duration, Instant};
 
 use common::Workspace;
 
@@ -13,6 +14,32 @@ fn build(ws: &Workspace, document: &str, extra: &[&str]) -> Output {
     args.extend(extra.iter().map(|s| s.to_string()));
     common::stet(&args, ws.dir.path())
 }
+
+/// Runs stet in the workspace and fails the test, killing stet, if it has not
+/// finished within `limit`: a regression then fails instead of hanging the suite.
+fn stet_within(ws: &Workspace, args: &[&str], limit: Duration) -> Output {
+    let mut child = Command::new(env!("CARGO_BIN_EXE_stet"))
+        .args(args)
+        .current_dir(ws.dir.path())
+        .env_remove("STET_CACHE")
+        .stdout(Stdio::piped())
+        .stderr(Stdio::piped())
+        .spawn()
+        .expect("the stet binary runs");
+    let started = Instant::now();
+    while child.try_wait().unwrap().is_none() {
+        if started.elapsed() > limit {
+            child.kill().unwrap();
+            child.wait().unwrap();
+            panic!("stet {args:?} was still running after {limit:?}");
+        }
+        std::thread::sleep(Duration::from_millis(20));
+    }
+    child.wait_with_output().unwrap()
+}
+
+/// Long enough for a loaded machine, far shorter than the minute the slow inputs took.
+const PROMPTLY: Duration = Duration::from_secs(10);
 
 fn stderr(output: &Output) -> String {
     String::from_utf8_lossy(&output.stderr).into_owned()
@@ -112,4 +139,23 @@ fn a_problem_in_a_marked_document_is_placed_as_an_editor_shows_it() {
         "{}",
         stderr(&output)
     );
+}
+
+#[test]
+fn settings_nested_100000_deep_are_refused_at_once() {
+    let ws = Workspace::new();
+    let deep = format!("{}{}", "[".repeat(100_000), "]".repeat(100_000));
+    ws.write("doc.md", &format!("```yaml net n\nhidden: {deep}\n```\n"));
+    let output = stet_within(&ws, &["build", "doc.md"], PROMPTLY);
+    assert_refused(&ws, &output, "doc.html");
+    // The block's one level and 31 brackets pass; the 32nd bracket, column 9 + 31, does not.
+    assert!(stderr(&output).contains("doc.md:2:40: the settings nest more than 32 levels"));
+
+    ws.write(
+        "front.md",
+        &format!("---\nnotes: {deep}\n---\n\n```yaml net n\nhidden: [2]\n```\n"),
+    );
+    let output = stet_within(&ws, &["build", "front.md"], PROMPTLY);
+    assert_refused(&ws, &output, "front.html");
+    assert!(stderr(&output).contains("front.md:2:39: the settings nest more than 32 levels"));
 }
