@@ -313,16 +313,13 @@ fn read_files(
         return Vec::new();
     }
     // Hashed as a stream and not kept: the step reads the file again when it runs.
-    match InputFile::hash(&path) {
-        Ok(hash) => vec![InputFile {
-            written: written.clone(),
-            hash,
-            path,
-        }],
+    let shown = path.display().to_string();
+    match InputFile::planned(written, path, limit) {
+        Ok(file) => vec![file],
         Err(error) => {
             problems.push(
-                Problem::new(span, format!("cannot read '{}': {error}", path.display()))
-                    .with_help("the path is relative to the document's folder"),
+                Problem::new(span, format!("cannot read '{shown}': {error}"))
+                    .with_help(error.help()),
             );
             Vec::new()
         }

@@ -159,3 +159,70 @@ fn settings_nested_100000_deep_are_refused_at_once() {
     assert_refused(&ws, &output, "front.html");
     assert!(stderr(&output).contains("front.md:2:39: the settings nest more than 32 levels"));
 }
+
+/// Makes a named pipe at `relative` in the workspace; nothing ever writes to it.
+fn named_pipe(ws: &Workspace, relative: &str) {
+    let status = Command::new("mkfifo")
+        .arg(ws.path(relative))
+        .status()
+        .expect("mkfifo runs");
+    assert!(status.success());
+}
+
+#[test]
+fn a_named_pipe_as_a_data_file_is_refused_by_build_status_and_clean() {
+    let ws = Workspace::new();
+    named_pipe(&ws, "fifo.csv");
+    ws.write(
+        "doc.md",
+        "```yaml data d\nfile: fifo.csv\ntarget: species\n```\n",
+    );
+    for command in ["build", "status", "clean"] {
+        let output = stet_within(&ws, &[command, "doc.md"], PROMPTLY);
+        assert_refused(&ws, &output, "doc.html");
+        let text = stderr(&output);
+        assert!(text.contains("doc.md:2:1"), "{command}: {text}");
+        assert!(text.contains("is not a regular file"), "{command}: {text}");
+    }
+}
+
+#[test]
+fn a_named_pipe_as_a_file_to_predict_is_refused() {
+    let ws = Workspace::new();
+    named_pipe(&ws, "new-rows.csv");
+    ws.write(
+        "doc.md",
+        "```yaml data d\nfile: iris.csv\ntarget: species\n```\n\n```yaml net n\nhidden: [3]\n```\n\n```yaml train t\ndata: d\nnet: n\nepochs: 2\n```\n\n```yaml predict p\nmodel: t\nfile: new-rows.csv\n```\n",
+    );
+    let output = stet_within(&ws, &["build", "doc.md"], PROMPTLY);
+    assert_refused(&ws, &output, "doc.html");
+    assert!(
+        stderr(&output).contains("doc.md:18:1"),
+        "{}",
+        stderr(&output)
+    );
+}
+
+#[test]
+fn a_device_as_a_data_file_is_refused_even_outside_the_limits() {
+    let ws = Workspace::new();
+    ws.write(
+        "doc.md",
+        "```yaml data d\nfile: /dev/zero\ntarget: y\n```\n",
+    );
+    let args = ["build", "doc.md", "--allow-outside", "--max-file-mb", "1"];
+    let output = stet_within(&ws, &args, PROMPTLY);
+    assert_refused(&ws, &output, "doc.html");
+    assert!(stderr(&output).contains("'/dev/zero': it is not a regular file"));
+}
+
+#[test]
+fn a_symbolic_link_to_a_data_file_is_read() {
+    let ws = Workspace::new();
+    std::os::unix::fs::symlink(ws.path("iris.csv"), ws.path("linked.csv")).unwrap();
+    let doc = ws.write(
+        "doc.md",
+        "```yaml data d\nfile: linked.csv\ntarget: species\n```\n",
+    );
+    ws.build_ok(&doc, &[]);
+}
