@@ -89,6 +89,8 @@ pub struct Plan {
     pub steps: Vec<PlannedStep>,
     /// Indices into `steps` such that every step comes after the steps it reads.
     pub order: Vec<usize>,
+    /// The bounds the document was planned under; data steps apply them as they run.
+    pub limits: Limits,
 }
 
 impl Plan {
@@ -106,6 +108,8 @@ pub struct Limits {
     pub max_sweep_runs: usize,
     /// Largest file a step may read, in bytes.
     pub max_file_bytes: u64,
+    /// Most distinct texts a text input, or classes a target, may have.
+    pub max_categories: usize,
 }
 
 impl Default for Limits {
@@ -114,6 +118,7 @@ impl Default for Limits {
             max_layer_width: 4096,
             max_sweep_runs: 2000,
             max_file_bytes: 1 << 30,
+            max_categories: crate::data::DEFAULT_MAX_CATEGORIES,
         }
     }
 }
@@ -247,7 +252,11 @@ pub fn plan(
     if !problems.is_empty() {
         return Err(problems);
     }
-    Ok(Plan { steps, order })
+    Ok(Plan {
+        steps,
+        order,
+        limits: options.limits,
+    })
 }
 
 fn missing_reference(

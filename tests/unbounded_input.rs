@@ -226,3 +226,121 @@ fn a_symbolic_link_to_a_data_file_is_read() {
     );
     ws.build_ok(&doc, &[]);
 }
+
+/// A CSV of `rows` rows: a text `id` unique to each row, a number `x` and a class `y`.
+fn csv_with_ids(rows: usize) -> String {
+    let mut csv = String::from("id,x,y\n");
+    for i in 0..rows {
+        let class = if i % 2 == 0 { "even" } else { "odd" };
+        csv.push_str(&format!("row-{i:06},{}.5,{class}\n", i % 17));
+    }
+    csv
+}
+
+const DATA_ONLY: &str = "```yaml data d\nfile: rows.csv\ntarget: y\n```\n";
+
+#[test]
+fn a_text_column_of_100000_unique_ids_is_refused_by_name_and_count() {
+    let ws = Workspace::new();
+    ws.write("rows.csv", &csv_with_ids(100_000));
+    ws.write("doc.md", DATA_ONLY);
+    let output = stet_within(&ws, &["build", "doc.md"], PROMPTLY);
+    let text = stderr(&output);
+    assert_eq!(output.status.code(), Some(1), "{text}");
+    assert!(
+        text.contains("column `id` holds 100000 distinct texts, over the limit of 1000"),
+        "{text}"
+    );
+    assert!(text.contains("`inputs:` without it"), "{text}");
+}
+
+#[test]
+fn max_categories_sets_the_limit_on_distinct_texts() {
+    let ws = Workspace::new();
+    ws.write("rows.csv", &csv_with_ids(60));
+    ws.write("doc.md", DATA_ONLY);
+    let output = build(&ws, "doc.md", &["--max-categories", "59"]);
+    assert_eq!(output.status.code(), Some(1));
+    assert!(stderr(&output).contains("column `id` holds 60 distinct texts, over the limit of 59"));
+    let output = build(&ws, "doc.md", &["--max-categories", "60"]);
+    assert!(output.status.success(), "{}", stderr(&output));
+}
+
+#[test]
+fn an_identifier_like_text_column_under_the_limit_is_flagged_on_the_data_card() {
+    let ws = Workspace::new();
+    ws.write("rows.csv", &csv_with_ids(60));
+    ws.build_ok(&ws.write("doc.md", DATA_ONLY), &[]);
+    let html = std::fs::read_to_string(ws.path("doc.html")).unwrap();
+    assert_eq!(
+        html.matches("like an identifier").count(),
+        1,
+        "only `id` is flagged"
+    );
+}
+
+/// A regression table whose line 5 (row 4) holds `cell` in column `x`.
+fn table_with(cell: &str) -> String {
+    let mut csv = String::from("x,y\n");
+    for i in 0..20 {
+        let x = if i == 3 {
+            cell.to_string()
+        } else {
+            format!("{i}.25")
+        };
+        csv.push_str(&format!("{x},{}\n", i % 5));
+    }
+    csv
+}
+
+const REGRESSION: &str = "```yaml data d\nfile: rows.csv\ntarget: y\nMISSING```\n\n```yaml net n\nhidden: [2]\n```\n\n```yaml train t\ndata: d\nnet: n\nepochs: 3\n```\n";
+
+#[test]
+fn an_infinite_cell_is_an_error_at_its_line_and_column() {
+    let ws = Workspace::new();
+    for cell in ["inf", "-Infinity", "1e999"] {
+        ws.write("rows.csv", &table_with(cell));
+        ws.write("doc.md", &REGRESSION.replace("MISSING", ""));
+        let output = build(&ws, "doc.md", &[]);
+        let text = stderr(&output);
+        assert_eq!(output.status.code(), Some(1), "{text}");
+        let expected = format!("rows.csv: line 5, column `x`: `{cell}` is not a finite number");
+        assert!(text.contains(&expected), "{text}");
+    }
+}
+
+#[test]
+fn an_infinite_cell_is_dropped_with_missing_values_under_missing_drop() {
+    let ws = Workspace::new();
+    ws.write("rows.csv", &table_with("inf"));
+    let doc = ws.write("doc.md", &REGRESSION.replace("MISSING", "missing: drop\n"));
+    ws.build_ok(&doc, &[]);
+    let html = std::fs::read_to_string(ws.path("doc.html")).unwrap();
+    assert!(
+        html.contains("20 rows read, 1 dropped"),
+        "x stays numeric, its row left out"
+    );
+}
+
+#[test]
+fn values_that_overflow_scaling_are_an_error_naming_the_column() {
+    let ws = Workspace::new();
+    // Finite doubles whose sum (standard) or range (minmax) is past f64::MAX, 1.8e308.
+    let mut csv = String::from("x,y\n");
+    for i in 0..20 {
+        let sign = if i % 2 == 0 { "" } else { "-" };
+        csv.push_str(&format!("{sign}1.5e308,{}\n", i % 5));
+    }
+    ws.write("rows.csv", &csv);
+    for scale in ["standard", "minmax"] {
+        let settings = format!("scale: {scale}\n");
+        ws.write("doc.md", &REGRESSION.replace("MISSING", &settings));
+        let output = build(&ws, "doc.md", &[]);
+        let text = stderr(&output);
+        assert_eq!(output.status.code(), Some(1), "{text}");
+        assert!(
+            text.contains("column `x`: its values are too large to scale"),
+            "{scale}: {text}"
+        );
+    }
+}
