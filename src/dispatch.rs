@@ -32,13 +32,14 @@ pub fn job_script(request: &DispatchRequest<'_>, stet: &Path, log_dir: &Path) ->
     }
     let limits = request.plan.limits;
     flags.push_str(&format!(
-        " --max-layer-width {} --max-layers {} --max-weights {} --max-sweep-runs {} --max-work {} --max-file-mb {}",
+        " --max-layer-width {} --max-layers {} --max-weights {} --max-sweep-runs {} --max-work {} --max-file-mb {} --max-categories {}",
         limits.max_layer_width,
         limits.max_layers,
         limits.max_weights,
         limits.max_sweep_runs,
         limits.max_work,
-        limits.max_file_bytes >> 20
+        limits.max_file_bytes >> 20,
+        limits.max_categories
     ));
     let name = request
         .document

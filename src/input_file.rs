@@ -13,18 +13,53 @@ pub struct InputFile {
     pub written: String,
     pub path: PathBuf,
     pub hash: blake3::Hash,
+    /// Its length when it was hashed: reading stops one byte past it, since more
+    /// bytes mean the file changed.
+    pub bytes: u64,
     /// Line breaks in the file when it was hashed: at least the rows a CSV file holds
     /// (a quoted field may hold more), which the plan's work estimate multiplies.
     pub lines: u64,
 }
 
+/// Why a step's file could not be hashed.
+#[derive(Debug, thiserror::Error)]
+pub enum InputError {
+    /// A named pipe, device or folder: reading it could block or never end.
+    #[error("it is not a regular file (a named pipe, device or folder)")]
+    NotRegular,
+    /// More bytes than `--max-file-mb` allows came out of it.
+    #[error("it holds more than the limit of {limit} bytes")]
+    TooLarge { limit: u64 },
+    #[error("{0}")]
+    Io(#[from] io::Error),
+}
+
+impl InputError {
+    /// What the document's author can do about it.
+    pub fn help(&self) -> &'static str {
+        match self {
+            InputError::NotRegular => "a step reads an ordinary file; save the data into one",
+            InputError::TooLarge { .. } => "raise the limit with --max-file-mb",
+            InputError::Io(_) => "the path is relative to the document's folder",
+        }
+    }
+}
+
 impl InputFile {
-    /// Hashes the file at `path` as a stream and counts its line breaks on the way.
-    pub fn measure(path: &Path) -> io::Result<(blake3::Hash, u64)> {
-        let mut reader = Hashed::new(File::open(path)?);
-        let mut lines = LineCount(0);
-        io::copy(&mut reader, &mut lines)?;
-        Ok((reader.finish(), lines.0))
+    /// Hashes the file at `path` as a stream, reading at most `limit` bytes.
+    pub fn planned(written: &str, path: PathBuf, limit: u64) -> Result<InputFile, InputError> {
+        let mut sink = HashAndCount::default();
+        let bytes = io::copy(&mut open_regular(&path)?.take(limit + 1), &mut sink)?;
+        if bytes > limit {
+            return Err(InputError::TooLarge { limit });
+        }
+        Ok(InputFile {
+            written: written.to_string(),
+            path,
+            hash: sink.hasher.finalize(),
+            bytes,
+            lines: sink.lines,
+        })
     }
 
     /// Reads the file through `parse`. Errors name the file; so does the refusal when
@@ -32,11 +67,11 @@ impl InputFile {
     /// stored under a key made from other bytes.
     pub fn read<T, E: std::fmt::Display>(
         &self,
-        parse: impl FnOnce(&mut Hashed<File>) -> Result<T, E>,
+        parse: impl FnOnce(&mut Hashed<io::Take<File>>) -> Result<T, E>,
     ) -> Result<T, String> {
-        let file = File::open(&self.path)
+        let file = open_regular(&self.path)
             .map_err(|error| format!("cannot read '{}': {error}", self.path.display()))?;
-        let mut reader = Hashed::new(file);
+        let mut reader = Hashed::new(file.take(self.bytes + 1));
         let value = parse(&mut reader).map_err(|error| format!("{}: {error}", self.written))?;
         // A parser may stop before the end (the CSV reader does not, but the hash
         // must cover every byte whatever the parser).
@@ -53,18 +88,37 @@ impl InputFile {
     }
 }
 
-/// A sink that counts the line breaks written to it.
-struct LineCount(u64);
+/// A sink that hashes what is written to it and counts its line breaks.
+#[derive(Default)]
+struct HashAndCount {
+    hasher: blake3::Hasher,
+    lines: u64,
+}
 
-impl io::Write for LineCount {
+impl io::Write for HashAndCount {
     fn write(&mut self, buf: &[u8]) -> io::Result<usize> {
-        self.0 += buf.iter().filter(|&&byte| byte == b'\n').count() as u64;
+        self.hasher.update(buf);
+        self.lines += buf.iter().filter(|&&byte| byte == b'\n').count() as u64;
         Ok(buf.len())
     }
 
     fn flush(&mut self) -> io::Result<()> {
         Ok(())
     }
+}
+
+/// Opens `path` (following symbolic links) only if it is a regular file: opening a
+/// named pipe waits for a writer, and a device may never end. Checked before opening,
+/// and again on what was opened in case the path was swapped in between.
+fn open_regular(path: &Path) -> Result<File, InputError> {
+    if !std::fs::metadata(path)?.is_file() {
+        return Err(InputError::NotRegular);
+    }
+    let file = File::open(path)?;
+    if !file.metadata()?.is_file() {
+        return Err(InputError::NotRegular);
+    }
+    Ok(file)
 }
 
 /// A reader that hashes every byte it hands out.
@@ -104,13 +158,7 @@ mod tests {
     fn input(dir: &Path, bytes: &[u8]) -> InputFile {
         let path = dir.join("rows.csv");
         std::fs::write(&path, bytes).unwrap();
-        let (hash, lines) = InputFile::measure(&path).unwrap();
-        InputFile {
-            written: "rows.csv".into(),
-            hash,
-            lines,
-            path,
-        }
+        InputFile::planned("rows.csv", path, 1 << 20).unwrap()
     }
 
     fn read_all(file: &InputFile) -> Result<Vec<u8>, String> {
@@ -138,7 +186,7 @@ mod tests {
         let dir = tempfile::tempdir().unwrap();
         let file = input(dir.path(), b"a,b\n1,2\n");
         std::fs::write(&file.path, b"a,b\n1,3\n").unwrap();
-        let first_byte = |reader: &mut Hashed<File>| {
+        let first_byte = |reader: &mut Hashed<io::Take<File>>| {
             let mut byte = [0];
             reader.read_exact(&mut byte).map(|_| byte[0])
         };
@@ -147,6 +195,38 @@ mod tests {
             error.starts_with("rows.csv: the file changed while the build was running"),
             "{error}"
         );
+    }
+
+    #[test]
+    fn a_file_over_the_limit_stops_being_read_at_the_limit() {
+        let dir = tempfile::tempdir().unwrap();
+        let path = dir.path().join("rows.csv");
+        std::fs::write(&path, [b'x'; 101]).unwrap();
+        let error = InputFile::planned("rows.csv", path.clone(), 100).unwrap_err();
+        assert!(
+            matches!(error, InputError::TooLarge { limit: 100 }),
+            "{error}"
+        );
+        assert_eq!(
+            InputFile::planned("rows.csv", path, 101).unwrap().bytes,
+            101
+        );
+    }
+
+    #[test]
+    fn a_folder_is_not_a_regular_file() {
+        let dir = tempfile::tempdir().unwrap();
+        let error = InputFile::planned("d", dir.path().to_path_buf(), 100).unwrap_err();
+        assert!(matches!(error, InputError::NotRegular), "{error}");
+    }
+
+    #[test]
+    fn a_file_that_grew_since_it_was_planned_is_refused() {
+        let dir = tempfile::tempdir().unwrap();
+        let file = input(dir.path(), b"a,b\n1,2\n");
+        std::fs::write(&file.path, b"a,b\n1,2\n3,4\n").unwrap();
+        let error = read_all(&file).unwrap_err();
+        assert!(error.contains("the file changed"), "{error}");
     }
 
     #[test]

@@ -120,6 +120,7 @@ pub fn load(path: &Path, options: &plan::PlanOptions) -> Result<Loaded, Error> {
         }
     };
     let hash = blake3::hash(source.as_bytes()).to_hex().to_string();
+    let source = document::normalised(source);
     let (document, mut problems) = document::parse(&source);
     let base_dir = path.parent().unwrap_or(Path::new("."));
     let planned = document

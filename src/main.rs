@@ -45,6 +45,9 @@ struct DocumentFlags {
     /// Largest file a step may read, in MiB.
     #[arg(long, value_name = "MIB", default_value_t = Limits::default().max_file_bytes >> 20)]
     max_file_mb: u64,
+    /// Most distinct texts a text input (one-hot encoded) or classes a target may have.
+    #[arg(long, value_name = "N", default_value_t = Limits::default().max_categories)]
+    max_categories: usize,
 }
 
 impl DocumentFlags {
@@ -58,6 +61,7 @@ impl DocumentFlags {
                 max_sweep_runs: self.max_sweep_runs,
                 max_work: self.max_work,
                 max_file_bytes: self.max_file_mb << 20,
+                max_categories: self.max_categories,
             },
         }
     }

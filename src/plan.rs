@@ -165,6 +165,8 @@ pub struct Limits {
     pub max_work: u64,
     /// Largest file a step may read, in bytes.
     pub max_file_bytes: u64,
+    /// Most distinct texts a text input, or classes a target, may have.
+    pub max_categories: usize,
 }
 
 impl Default for Limits {
@@ -184,6 +186,7 @@ impl Default for Limits {
             // sweep (2000 runs × 1000 epochs) stays under it up to 50,000 rows.
             max_work: 100_000_000_000,
             max_file_bytes: 1 << 30,
+            max_categories: crate::data::DEFAULT_MAX_CATEGORIES,
         }
     }
 }
@@ -461,17 +464,13 @@ fn read_files(
         return Vec::new();
     }
     // Hashed as a stream and not kept: the step reads the file again when it runs.
-    match InputFile::measure(&path) {
-        Ok((hash, lines)) => vec![InputFile {
-            written: written.clone(),
-            hash,
-            lines,
-            path,
-        }],
+    let shown = path.display().to_string();
+    match InputFile::planned(written, path, limit) {
+        Ok(file) => vec![file],
         Err(error) => {
             problems.push(
-                Problem::new(span, format!("cannot read '{}': {error}", path.display()))
-                    .with_help("the path is relative to the document's folder"),
+                Problem::new(span, format!("cannot read '{shown}': {error}"))
+                    .with_help(error.help()),
             );
             Vec::new()
         }

@@ -106,7 +106,7 @@ fn stage(plan: &Plan, cache: &Cache) -> Stage {
     for &index in &plan.order {
         let step = &plan.steps[index];
         let record = match &step.spec {
-            StepSpec::Data(_) => run_data_step(step, cache, &mut prepared, index),
+            StepSpec::Data(_) => run_data_step(step, plan.limits, cache, &mut prepared, index),
             StepSpec::Net(_) => marker_step(step, cache),
             StepSpec::Train(_) | StepSpec::Sweep(_) => match plan_fits(plan, step, &records, cache)
             {
@@ -246,6 +246,7 @@ fn failed(record: &Option<StepRecord>) -> bool {
 
 fn run_data_step(
     step: &PlannedStep,
+    limits: Limits,
     cache: &Cache,
     prepared: &mut HashMap<usize, Arc<Prepared>>,
     index: usize,
@@ -254,7 +255,7 @@ fn run_data_step(
         return StepRecord::new(Status::Reused, Outcome::Data(summary));
     }
     let started = Instant::now();
-    match prepare_data(step) {
+    match prepare_data(step, limits) {
         Ok(ready) => {
             let summary = summarise(step, &ready);
             cache.store(&step.key, EntryKind::Prepared, &ready);
@@ -271,13 +272,14 @@ fn run_data_step(
     }
 }
 
-fn prepare_data(step: &PlannedStep) -> Result<Prepared, String> {
+fn prepare_data(step: &PlannedStep, limits: Limits) -> Result<Prepared, String> {
     let StepSpec::Data(spec) = &step.spec else {
         unreachable!("a data step has a data spec")
     };
     let file = &step.files[0];
     let table = file.read(|reader| data::read_table(reader))?;
-    data::prepare(&table, &spec.settings).map_err(|error| format!("{}: {error}", file.written))
+    data::prepare(&table, &spec.settings, limits.max_categories)
+        .map_err(|error| format!("{}: {error}", file.written))
 }
 
 /// A data step's prepared matrices: from this build, the cache, or prepared again.
@@ -294,7 +296,7 @@ fn prepared_for(
     let ready = match cache.load::<Prepared>(&step.key, EntryKind::Prepared) {
         Some(ready) => ready,
         None => {
-            let ready = prepare_data(step)?;
+            let ready = prepare_data(step, plan.limits)?;
             cache.store(&step.key, EntryKind::Prepared, &ready);
             ready
         }

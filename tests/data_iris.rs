@@ -1,7 +1,10 @@
 //! Data preparation on a real table: Fisher's Iris data (see tests/data/README.md
 //! for source and licence), 150 rows, 50 per species.
 
-use stet::data::{DataSettings, Missing, Prepared, Scale, Split, Table, Task, prepare, read_table};
+use stet::data::{
+    DEFAULT_MAX_CATEGORIES, DataSettings, Missing, Prepared, Scale, Split, Table, Task, prepare,
+    read_table,
+};
 
 fn iris() -> Table {
     read_table(include_bytes!("data/iris.csv").as_slice()).expect("iris.csv reads")
@@ -20,7 +23,7 @@ fn settings(split: Split, seed: u64) -> DataSettings {
 }
 
 fn prepared(split: Split, seed: u64) -> Prepared {
-    prepare(&iris(), &settings(split, seed)).expect("iris prepares")
+    prepare(&iris(), &settings(split, seed), DEFAULT_MAX_CATEGORIES).expect("iris prepares")
 }
 
 #[test]
@@ -131,7 +134,7 @@ fn minmax_scaler_uses_training_rows_and_maps_them_to_the_unit_interval() {
         scale: Scale::Minmax,
         ..settings(Split::Folds(5), 5)
     };
-    let p = prepare(&iris(), &s).unwrap();
+    let p = prepare(&iris(), &s, DEFAULT_MAX_CATEGORIES).unwrap();
     for (i, part) in p.partitions.iter().enumerate() {
         let data = p.split(i);
         for j in 0..4 {
@@ -175,7 +178,12 @@ fn six_folds_on_iris_balance_fold_sizes() {
 
 #[test]
 fn fifty_one_folds_exceed_the_smallest_species() {
-    let err = prepare(&iris(), &settings(Split::Folds(51), 1)).unwrap_err();
+    let err = prepare(
+        &iris(),
+        &settings(Split::Folds(51), 1),
+        DEFAULT_MAX_CATEGORIES,
+    )
+    .unwrap_err();
     assert_eq!(
         err.to_string(),
         "51 folds asked for, but class `setosa` has only 50 rows: each fold must hold out \

@@ -1,6 +1,9 @@
 //! The invented demo data in demo-data/ prepare as the demo experiments expect.
 
-use stet::data::{ColumnKind, DataSettings, Missing, Scale, Split, Task, prepare, read_table};
+use stet::data::{
+    ColumnKind, DEFAULT_MAX_CATEGORIES, DataSettings, Missing, Scale, Split, Task, prepare,
+    read_table,
+};
 
 fn read(name: &str) -> stet::data::Table {
     let path = format!("{}/demo-data/{name}", env!("CARGO_MANIFEST_DIR"));
@@ -29,7 +32,7 @@ fn hives_prepare_as_three_class_classification_with_one_hot_sites() {
         split: Split::Holdout(0.25),
         seed: 1,
     };
-    let p = prepare(&read("hives.csv"), &settings).unwrap();
+    let p = prepare(&read("hives.csv"), &settings, DEFAULT_MAX_CATEGORIES).unwrap();
     assert_eq!(p.encoding.task, Task::Classify);
     assert_eq!(
         p.encoding.classes,
@@ -69,7 +72,7 @@ fn greenhouse_prepares_as_regression_with_one_hot_crops() {
         split: Split::Folds(5),
         seed: 1,
     };
-    let p = prepare(&read("greenhouse.csv"), &settings).unwrap();
+    let p = prepare(&read("greenhouse.csv"), &settings, DEFAULT_MAX_CATEGORIES).unwrap();
     assert_eq!(p.encoding.task, Task::Regress);
     assert_eq!(
         p.encoding.feature_names,

@@ -18,7 +18,7 @@
 #![no_main]
 
 use libfuzzer_sys::fuzz_target;
-use stet::data::{DataSettings, Missing, Scale, Split, Task, prepare, read_table};
+use stet::data::{DEFAULT_MAX_CATEGORIES, DataSettings, Missing, Scale, Split, Task, prepare, read_table};
 
 fuzz_target!(|bytes: &[u8]| {
     let Some((control, csv)) = bytes.split_first_chunk::<5>() else {
@@ -34,7 +34,7 @@ fuzz_target!(|bytes: &[u8]| {
     let Some(settings) = settings(control, &table.headers) else {
         return;
     };
-    let prepared = match prepare(&table, &settings) {
+    let prepared = match prepare(&table, &settings, DEFAULT_MAX_CATEGORIES) {
         Ok(prepared) => prepared,
         Err(error) => {
             let _ = error.to_string();

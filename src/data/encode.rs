@@ -27,6 +27,18 @@ pub fn is_missing(cell: &str) -> bool {
     MISSING_MARKERS.iter().any(|m| m.eq_ignore_ascii_case(cell))
 }
 
+/// Whether a cell reads as a number that is not finite: `inf`, `-Infinity`, or one too
+/// large for a double (`1e999`). Such a cell is neither a value nor text to one-hot: it
+/// is refused, or left out with the missing values under `missing: drop`.
+pub fn is_non_finite(cell: &str) -> bool {
+    !is_missing(cell) && cell.trim().parse::<f64>().is_ok_and(|v| !v.is_finite())
+}
+
+/// Most distinct texts a text input, or classes a target, may have unless
+/// `--max-categories` says otherwise: one-hot encoding makes a feature of each, so a
+/// column of identifiers would ask for rows × distinct numbers.
+pub const DEFAULT_MAX_CATEGORIES: usize = 1000;
+
 /// The cell as a finite number, or `None`. Infinities are not accepted: they
 /// would turn every scaled value of their column into NaN.
 pub fn parse_number(cell: &str) -> Option<f64> {
@@ -157,11 +169,12 @@ pub fn fit(
     used: &UsedColumns,
     kept: &[usize],
     requested: Option<Task>,
+    max_categories: usize,
 ) -> Result<Encoded, DataError> {
     let columns: Vec<InputColumn> = used
         .inputs
         .iter()
-        .map(|&c| describe_input(table, c, kept))
+        .map(|&c| describe_input(table, c, kept, max_categories))
         .collect::<Result<_, _>>()?;
     let x = encode_rows(table, &columns, &used.inputs, kept)?;
     let target_names: Vec<String> = used
@@ -190,7 +203,7 @@ pub fn fit(
                     implied: requested.is_none(),
                 });
             }
-            let (classes, labels) = class_labels(table, used.targets[0], kept)?;
+            let (classes, labels) = class_labels(table, used.targets[0], kept, max_categories)?;
             (
                 one_hot_labels(&labels, classes.len()),
                 Some(classes),
@@ -384,7 +397,12 @@ const MOSTLY_NUMERIC: f64 = 0.8;
 /// Decide the kind of input column `col` from the kept rows. A column that is mostly
 /// numbers with a few text cells is an error naming the first such cell: one-hot
 /// encoding it would silently turn a measurement into hundreds of categories.
-fn describe_input(table: &Table, col: usize, kept: &[usize]) -> Result<InputColumn, DataError> {
+fn describe_input(
+    table: &Table,
+    col: usize,
+    kept: &[usize],
+    max_categories: usize,
+) -> Result<InputColumn, DataError> {
     let column = ParsedColumn::new(table, col);
     let numeric = kept.iter().filter(|&&r| column.number(r).is_some()).count();
     let (kind, constant) = if numeric == kept.len() {
@@ -406,6 +424,14 @@ fn describe_input(table: &Table, col: usize, kept: &[usize]) -> Result<InputColu
             });
         }
         let categories = column.sorted_distinct(kept);
+        // Checked before the rows × categories matrix is made.
+        if categories.len() > max_categories {
+            return Err(DataError::TooManyCategories {
+                column: table.headers[col].clone(),
+                distinct: categories.len(),
+                limit: max_categories,
+            });
+        }
         let constant = categories.len() <= 1;
         (ColumnKind::Categorical { categories }, constant)
     };
@@ -445,9 +471,17 @@ fn class_labels(
     table: &Table,
     col: usize,
     kept: &[usize],
+    max_categories: usize,
 ) -> Result<(Vec<String>, Vec<usize>), DataError> {
     let column = ParsedColumn::new(table, col);
     let mut classes = column.sorted_distinct(kept);
+    if classes.len() > max_categories {
+        return Err(DataError::TooManyClasses {
+            column: table.headers[col].clone(),
+            distinct: classes.len(),
+            limit: max_categories,
+        });
+    }
     if kept.iter().all(|&r| column.number(r).is_some()) {
         // Numeric labels sort by value ("2" before "10"); equal values written
         // differently stay distinct classes, ordered by their text.
@@ -510,7 +544,7 @@ mod tests {
             split: super::super::Split::Holdout(0.2),
             seed: 1,
         };
-        let error = super::super::prepare(&table, &settings)
+        let error = super::super::prepare(&table, &settings, super::super::DEFAULT_MAX_CATEGORIES)
             .unwrap_err()
             .to_string();
         assert_eq!(
@@ -567,6 +601,7 @@ mod tests {
             &used(&t, &["site", "temp_c"], &["status"]),
             &all_rows(&t),
             None,
+            DEFAULT_MAX_CATEGORIES,
         )
         .unwrap();
         assert_eq!(
@@ -593,7 +628,14 @@ mod tests {
     #[test]
     fn text_target_means_classify_with_sorted_classes_and_one_hot_y() {
         let t = read_table(HIVES).unwrap();
-        let e = fit(&t, &used(&t, &["temp_c"], &["status"]), &all_rows(&t), None).unwrap();
+        let e = fit(
+            &t,
+            &used(&t, &["temp_c"], &["status"]),
+            &all_rows(&t),
+            None,
+            DEFAULT_MAX_CATEGORIES,
+        )
+        .unwrap();
         assert_eq!(e.encoding.task, Task::Classify);
         assert_eq!(
             e.encoding.classes,
@@ -622,7 +664,14 @@ mod tests {
     #[test]
     fn two_classes_give_a_single_zero_one_column() {
         let t = read_table(b"x,ok\n1,yes\n2,no\n3,yes\n".as_slice()).unwrap();
-        let e = fit(&t, &used(&t, &["x"], &["ok"]), &all_rows(&t), None).unwrap();
+        let e = fit(
+            &t,
+            &used(&t, &["x"], &["ok"]),
+            &all_rows(&t),
+            None,
+            DEFAULT_MAX_CATEGORIES,
+        )
+        .unwrap();
         assert_eq!(e.encoding.classes, Some(vec!["no".into(), "yes".into()]));
         assert_eq!(e.y, ndarray::array![[1.0], [0.0], [1.0]]);
         assert_eq!(e.encoding.output_names(), vec!["ok"]);
@@ -636,6 +685,7 @@ mod tests {
             &used(&t, &["x"], &["grade"]),
             &all_rows(&t),
             Some(Task::Classify),
+            DEFAULT_MAX_CATEGORIES,
         )
         .unwrap();
         // Text order would be "1", "10", "2".
@@ -654,6 +704,7 @@ mod tests {
             &used(&t, &["a", "b"], &["y1", "y2"]),
             &all_rows(&t),
             None,
+            DEFAULT_MAX_CATEGORIES,
         )
         .unwrap();
         assert_eq!(e.encoding.task, Task::Regress);
@@ -671,6 +722,7 @@ mod tests {
             &used(&t, &["x"], &["y"]),
             &all_rows(&t),
             Some(Task::Regress),
+            DEFAULT_MAX_CATEGORIES,
         )
         .unwrap_err();
         assert_eq!(
@@ -682,7 +734,14 @@ mod tests {
     #[test]
     fn classify_with_two_targets_is_an_error() {
         let t = read_table(b"x,a,b\n1,p,q\n2,r,s\n".as_slice()).unwrap();
-        let err = fit(&t, &used(&t, &["x"], &["a", "b"]), &all_rows(&t), None).unwrap_err();
+        let err = fit(
+            &t,
+            &used(&t, &["x"], &["a", "b"]),
+            &all_rows(&t),
+            None,
+            DEFAULT_MAX_CATEGORIES,
+        )
+        .unwrap_err();
         assert!(matches!(
             err,
             DataError::ClassifyNeedsOneTarget {
@@ -698,6 +757,7 @@ mod tests {
             &used(&t, &["x"], &["a", "b"]),
             &all_rows(&t),
             Some(Task::Classify),
+            DEFAULT_MAX_CATEGORIES,
         )
         .unwrap_err();
         assert_eq!(
@@ -709,7 +769,14 @@ mod tests {
     #[test]
     fn single_class_is_an_error() {
         let t = read_table(b"x,y\n1,a\n2,a\n".as_slice()).unwrap();
-        let err = fit(&t, &used(&t, &["x"], &["y"]), &all_rows(&t), None).unwrap_err();
+        let err = fit(
+            &t,
+            &used(&t, &["x"], &["y"]),
+            &all_rows(&t),
+            None,
+            DEFAULT_MAX_CATEGORIES,
+        )
+        .unwrap_err();
         assert_eq!(
             err,
             DataError::SingleClass {
@@ -722,7 +789,14 @@ mod tests {
     #[test]
     fn constant_columns_are_flagged() {
         let t = read_table(b"a,b,c,y\n1,k,1,0\n1.0,k,2,1\n1,k,3,0\n".as_slice()).unwrap();
-        let e = fit(&t, &used(&t, &["a", "b", "c"], &["y"]), &all_rows(&t), None).unwrap();
+        let e = fit(
+            &t,
+            &used(&t, &["a", "b", "c"], &["y"]),
+            &all_rows(&t),
+            None,
+            DEFAULT_MAX_CATEGORIES,
+        )
+        .unwrap();
         let constant: Vec<bool> = e.encoding.columns.iter().map(|c| c.constant).collect();
         assert_eq!(constant, vec![true, true, false]);
     }
@@ -731,7 +805,14 @@ mod tests {
     fn kind_and_categories_come_from_kept_rows_only() {
         // Row 1 (line 3) is left out, so `a` is numeric and `b` has no "zz".
         let t = read_table(b"a,b,y\n1,p,0\nx,zz,1\n3,q,1\n".as_slice()).unwrap();
-        let e = fit(&t, &used(&t, &["a", "b"], &["y"]), &[0, 2], None).unwrap();
+        let e = fit(
+            &t,
+            &used(&t, &["a", "b"], &["y"]),
+            &[0, 2],
+            None,
+            DEFAULT_MAX_CATEGORIES,
+        )
+        .unwrap();
         assert_eq!(e.encoding.feature_names, vec!["a", "b=p", "b=q"]);
         assert_eq!(e.x, ndarray::array![[1.0, 1.0, 0.0], [3.0, 0.0, 1.0]]);
     }
@@ -743,6 +824,7 @@ mod tests {
             &used(&t, &["site", "temp_c"], &["status"]),
             &all_rows(&t),
             None,
+            DEFAULT_MAX_CATEGORIES,
         )
         .unwrap()
         .encoding

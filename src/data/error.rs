@@ -139,6 +139,62 @@ pub enum DataError {
         implied: bool,
     },
 
+    /// A text input has more distinct values than it may have one-hot features.
+    #[error(
+        "column `{column}` holds {distinct} distinct texts, over the limit of {limit} \
+         categories: one-hot encoding makes a feature of each. It looks like an identifier \
+         or free text; list `inputs:` without it (or raise the limit with --max-categories)"
+    )]
+    TooManyCategories {
+        /// The input column.
+        column: String,
+        /// Its distinct texts in the rows used.
+        distinct: usize,
+        /// `--max-categories`.
+        limit: usize,
+    },
+
+    /// A target to classify has more classes than the limit allows.
+    #[error(
+        "target `{column}` holds {distinct} distinct classes, over the limit of {limit}: \
+         is it the column to predict? (raise the limit with --max-categories)"
+    )]
+    TooManyClasses {
+        /// The target column.
+        column: String,
+        /// Its distinct classes in the rows used.
+        distinct: usize,
+        /// `--max-categories`.
+        limit: usize,
+    },
+
+    /// A used cell reads as an infinite number and `missing: error` is set.
+    #[error(
+        "line {line}, column `{column}`: `{value}` is not a finite number{}; \
+         write a finite value, or set `missing: drop` to leave such rows out",
+        if *more_rows > 0 { format!(", and {more_rows} more rows have missing or non-finite values") } else { String::new() }
+    )]
+    NonFinite {
+        /// 1-based line in the file of the first row with a missing or non-finite value.
+        line: u64,
+        /// The column.
+        column: String,
+        /// The cell as written (trimmed).
+        value: String,
+        /// Further rows that also have a missing or non-finite value in a used column.
+        more_rows: usize,
+    },
+
+    /// Fitting the scaling overflowed: the values are too large for double precision.
+    #[error(
+        "column `{column}`: its values are too large to scale (the scaling's sums \
+         overflow double precision); rescale the column in the file, e.g. into other units"
+    )]
+    ScaleOverflow {
+        /// The feature whose offset or divisor is not finite.
+        column: String,
+    },
+
     /// A used cell is empty or holds a missing-value marker and `missing: error` is set.
     #[error(
         "line {line}, column `{column}`: the value is missing ({}){}; \

@@ -18,7 +18,10 @@ mod settings;
 mod split;
 mod table;
 
-pub use encode::{ColumnKind, Encoding, InputColumn, MISSING_MARKERS, is_missing, parse_number};
+pub use encode::{
+    ColumnKind, DEFAULT_MAX_CATEGORIES, Encoding, InputColumn, MISSING_MARKERS, is_missing,
+    is_non_finite, parse_number,
+};
 pub use error::DataError;
 pub use prepare::{Partition, Prepared, SplitData, prepare};
 pub use scale::Scaler;

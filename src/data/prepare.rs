@@ -11,7 +11,7 @@ use serde::{Deserialize, Serialize};
 
 use super::coded_column::CodedColumn;
 use super::columns::{self, UsedColumns};
-use super::encode::{self, Encoding, is_missing};
+use super::encode::{self, Encoding, is_missing, is_non_finite};
 use super::error::DataError;
 use super::scale::Scaler;
 use super::settings::{DataSettings, Missing};
@@ -102,7 +102,13 @@ impl Prepared {
 }
 
 /// Prepare `table` for training as `settings` say.
-pub fn prepare(table: &Table, settings: &DataSettings) -> Result<Prepared, DataError> {
+/// `max_categories` bounds the distinct texts of a text input and the classes of a
+/// target (`--max-categories`).
+pub fn prepare(
+    table: &Table,
+    settings: &DataSettings,
+    max_categories: usize,
+) -> Result<Prepared, DataError> {
     let used = columns::resolve(table, settings)?;
     let kept = kept_rows(table, &used, settings.missing)?;
     let rows_read = table.row_count();
@@ -119,7 +125,7 @@ pub fn prepare(table: &Table, settings: &DataSettings) -> Result<Prepared, DataE
         });
     }
 
-    let encoded = encode::fit(table, &used, &kept, settings.task)?;
+    let encoded = encode::fit(table, &used, &kept, settings.task, max_categories)?;
     let strata = match (&encoded.labels, &encoded.encoding.classes) {
         (Some(labels), Some(classes)) => Some(Strata { labels, classes }),
         _ => None,
@@ -127,12 +133,20 @@ pub fn prepare(table: &Table, settings: &DataSettings) -> Result<Prepared, DataE
     let numeric = encoded.encoding.numeric_mask();
     let partitions = split::split_rows(settings.split, kept.len(), strata, settings.seed)?
         .into_iter()
-        .map(|s| Partition {
-            scaler: Scaler::fit(settings.scale, encoded.x.view(), &s.train, &numeric),
-            train_rows: s.train,
-            test_rows: s.test,
+        .map(|s| {
+            let scaler = Scaler::fit(settings.scale, encoded.x.view(), &s.train, &numeric);
+            if let Some(feature) = scaler.first_overflow() {
+                return Err(DataError::ScaleOverflow {
+                    column: encoded.encoding.feature_names[feature].clone(),
+                });
+            }
+            Ok(Partition {
+                scaler,
+                train_rows: s.train,
+                test_rows: s.test,
+            })
         })
-        .collect();
+        .collect::<Result<_, _>>()?;
 
     Ok(Prepared {
         encoding: encoded.encoding,
@@ -146,18 +160,19 @@ pub fn prepare(table: &Table, settings: &DataSettings) -> Result<Prepared, DataE
     })
 }
 
-/// Rows with no missing value in a used column; with `Missing::Error` the
-/// first other row is an error naming its line and column.
+/// Rows with no missing or non-finite value in a used column; with `Missing::Error`
+/// the first other row is an error naming its line and column.
 fn kept_rows(table: &Table, used: &UsedColumns, missing: Missing) -> Result<Vec<usize>, DataError> {
     // In file order, so the column named is the leftmost one a person would see.
     let mut checked: Vec<usize> = used.all().collect();
     checked.sort_unstable();
-    // Whether each distinct text of each checked column is a missing marker.
+    // Whether each distinct text of each checked column is missing or not finite.
     let markers: Vec<(&CodedColumn, Vec<bool>)> = checked
         .iter()
         .map(|&c| {
             let column = table.coded(c);
-            (column, column.texts().map(is_missing).collect())
+            let gap = |text: &str| is_missing(text) || is_non_finite(text);
+            (column, column.texts().map(gap).collect())
         })
         .collect();
     let first_missing = |row: usize| {
@@ -172,11 +187,23 @@ fn kept_rows(table: &Table, used: &UsedColumns, missing: Missing) -> Result<Vec<
         && let Some(&row) = with_missing.first()
     {
         let col = first_missing(row).expect("row was found to have a missing value");
-        return Err(DataError::MissingValue {
-            line: table.line(row),
-            column: table.headers[col].clone(),
-            value: table.cell(row, col).trim().to_string(),
-            more_rows: with_missing.len() - 1,
+        let (line, column) = (table.line(row), table.headers[col].clone());
+        let value = table.cell(row, col).trim().to_string();
+        let more_rows = with_missing.len() - 1;
+        return Err(if is_non_finite(&value) {
+            DataError::NonFinite {
+                line,
+                column,
+                value,
+                more_rows,
+            }
+        } else {
+            DataError::MissingValue {
+                line,
+                column,
+                value,
+                more_rows,
+            }
         });
     }
     Ok(kept)
@@ -185,6 +212,7 @@ fn kept_rows(table: &Table, used: &UsedColumns, missing: Missing) -> Result<Vec<
 #[cfg(test)]
 mod tests {
     use super::*;
+    use crate::data::DEFAULT_MAX_CATEGORIES;
     use crate::data::settings::{Scale, Split, Task};
     use crate::data::table::read_table;
 
@@ -209,7 +237,12 @@ mod tests {
 
     #[test]
     fn missing_error_names_first_line_column_and_how_many_more() {
-        let err = prepare(&read_table(GAPS).unwrap(), &settings("y")).unwrap_err();
+        let err = prepare(
+            &read_table(GAPS).unwrap(),
+            &settings("y"),
+            DEFAULT_MAX_CATEGORIES,
+        )
+        .unwrap_err();
         assert_eq!(
             err,
             DataError::MissingValue {
@@ -234,7 +267,7 @@ mod tests {
         };
         let t = read_table(b"a,b,y\n1,p,0\nNA,,1\n".as_slice()).unwrap();
         assert!(matches!(
-            prepare(&t, &s).unwrap_err(),
+            prepare(&t, &s, DEFAULT_MAX_CATEGORIES).unwrap_err(),
             DataError::MissingValue { line: 3, column, more_rows: 0, .. } if column == "a"
         ));
     }
@@ -245,7 +278,7 @@ mod tests {
             missing: Missing::Drop,
             ..settings("y")
         };
-        let p = prepare(&read_table(GAPS).unwrap(), &s).unwrap();
+        let p = prepare(&read_table(GAPS).unwrap(), &s, DEFAULT_MAX_CATEGORIES).unwrap();
         assert_eq!((p.rows_read, p.rows_dropped), (5, 3));
         assert_eq!(p.lines, vec![2, 6]);
         assert_eq!(p.x, ndarray::array![[1.0, 1.0, 0.0], [5.0, 0.0, 1.0]]);
@@ -259,7 +292,7 @@ mod tests {
             ..settings("b")
         };
         let t = read_table(b"a,b,notes\n1,x,\n2,y,?\n".as_slice()).unwrap();
-        let p = prepare(&t, &s).unwrap();
+        let p = prepare(&t, &s, DEFAULT_MAX_CATEGORIES).unwrap();
         assert_eq!(p.rows_dropped, 0);
         assert_eq!(p.encoding.classes, Some(vec!["x".into(), "y".into()]));
     }
@@ -271,14 +304,14 @@ mod tests {
             ..settings("y")
         };
         let t = read_table(b"x,y\n1,2\nNA,3\n".as_slice()).unwrap();
-        let err = prepare(&t, &s).unwrap_err();
+        let err = prepare(&t, &s, DEFAULT_MAX_CATEGORIES).unwrap_err();
         assert_eq!(
             err.to_string(),
             "too few rows: 1 left of 2 read (1 dropped for missing values); at least 2 are needed"
         );
         let header_only = read_table(b"x,y\n".as_slice()).unwrap();
         assert!(matches!(
-            prepare(&header_only, &settings("y")).unwrap_err(),
+            prepare(&header_only, &settings("y"), DEFAULT_MAX_CATEGORIES).unwrap_err(),
             DataError::TooFewRows {
                 rows: 0,
                 read: 0,
@@ -296,7 +329,7 @@ mod tests {
             scale: Scale::Minmax,
             ..settings("y")
         };
-        let p = prepare(&t, &s).unwrap();
+        let p = prepare(&t, &s, DEFAULT_MAX_CATEGORIES).unwrap();
         for (i, part) in p.partitions.iter().enumerate() {
             let train: Vec<f64> = part.train_rows.iter().map(|&r| p.x[[r, 0]]).collect();
             let min = train.iter().copied().fold(f64::INFINITY, f64::min);
@@ -315,7 +348,7 @@ mod tests {
             split: Split::Holdout(0.34),
             ..settings("c")
         };
-        let p = prepare(&t, &s).unwrap();
+        let p = prepare(&t, &s, DEFAULT_MAX_CATEGORIES).unwrap();
         let part = &p.partitions[0];
         // round(0.34 · 3) = 1 test row per class.
         assert_eq!(p.class_counts(&part.test_rows), vec![1, 1]);
@@ -333,14 +366,14 @@ mod tests {
     #[test]
     fn class_counts_are_empty_for_regression() {
         let t = read_table(b"x,y\n1,2\n3,4\n".as_slice()).unwrap();
-        let p = prepare(&t, &settings("y")).unwrap();
+        let p = prepare(&t, &settings("y"), DEFAULT_MAX_CATEGORIES).unwrap();
         assert!(p.class_counts(&[0, 1]).is_empty());
     }
 
     #[test]
     fn prepared_round_trips_through_json() {
         let t = read_table(b"x,c\n1,a\n2,b\n3,a\n4,b\n".as_slice()).unwrap();
-        let p = prepare(&t, &settings("c")).unwrap();
+        let p = prepare(&t, &settings("c"), DEFAULT_MAX_CATEGORIES).unwrap();
         let json = serde_json::to_string(&p).unwrap();
         let back: Prepared = serde_json::from_str(&json).unwrap();
         assert_eq!(back, p);

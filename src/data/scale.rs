@@ -101,6 +101,13 @@ impl Scaler {
         }
     }
 
+    /// The first feature whose offset or divisor overflowed (values near 1e308 make
+    /// the sum, the squares or the range infinite), which would scale it to NaN or 0.
+    pub fn first_overflow(&self) -> Option<usize> {
+        (0..self.offset.len())
+            .find(|&j| !(self.offset[j].is_finite() && self.divisor[j].is_finite()))
+    }
+
     /// Apply the fitted map to the rows of `x`.
     ///
     /// # Panics

@@ -78,6 +78,23 @@ pub fn markdown_options() -> Options {
         | Options::ENABLE_TASKLISTS
 }
 
+/// The document text as the parser reads it: a leading UTF-8 byte-order mark removed
+/// (some editors write one, and it would hide the front matter), and each CR not
+/// followed by LF (old Mac line ends) made an LF. That swap keeps every byte where it
+/// was, so positions in problems are positions in the file, with the mark zero-width.
+pub fn normalised(source: String) -> String {
+    let mut bytes = match source.strip_prefix('\u{FEFF}') {
+        Some(rest) => rest.as_bytes().to_vec(),
+        None => source.into_bytes(),
+    };
+    for i in 0..bytes.len() {
+        if bytes[i] == b'\r' && bytes.get(i + 1) != Some(&b'\n') {
+            bytes[i] = b'\n';
+        }
+    }
+    String::from_utf8(bytes).expect("swapping one ASCII byte for another keeps UTF-8")
+}
+
 /// Splits a document into front matter, prose and step blocks. Every problem found is
 /// collected rather than stopping at the first; the document is still returned (without
 /// the blocks that could not be read) so that its steps can be checked too. Only an
@@ -338,6 +355,19 @@ mod tests {
         let (document, problems) = parse("  \n");
         assert!(document.is_none());
         assert!(problems[0].message.contains("empty"));
+    }
+
+    #[test]
+    fn a_byte_order_mark_and_lone_carriage_returns_are_normalised() {
+        let source = "\u{FEFF}---\rtitle: T\r---\r\r```yaml net n\r\nhidden: [2]\r```\r";
+        let text = normalised(source.to_string());
+        assert_eq!(
+            text,
+            "---\ntitle: T\n---\n\n```yaml net n\r\nhidden: [2]\n```\n"
+        );
+        let doc = parsed(&text);
+        assert_eq!(doc.front.title.as_deref(), Some("T"));
+        assert_eq!(doc.steps().count(), 1);
     }
 
     #[test]

@@ -5,7 +5,10 @@ use std::fmt;
 use std::ops::Range;
 use std::path::Path;
 
-use miette::{Diagnostic, LabeledSpan, NamedSource, SourceSpan};
+use miette::{
+    Diagnostic, LabeledSpan, MietteError, MietteSpanContents, NamedSource, SourceCode, SourceSpan,
+    SpanContents,
+};
 
 /// One thing wrong with a document: where it is and what was expected there.
 #[derive(Clone, Debug, PartialEq, Eq)]
@@ -21,15 +24,31 @@ impl Problem {
     pub fn new(span: Range<usize>, message: impl Into<String>) -> Problem {
         Problem {
             span,
-            message: message.into(),
+            message: shortened(message.into()),
             help: None,
         }
     }
 
     pub fn with_help(mut self, help: impl Into<String>) -> Problem {
-        self.help = Some(help.into());
+        self.help = Some(shortened(help.into()));
         self
     }
+}
+
+/// Longest message or help kept whole: they quote what the document says, which may
+/// be a 70,000-character key.
+const MESSAGE_CHARS: usize = 300;
+
+/// `text` with its middle replaced by an ellipsis when it is longer than [`MESSAGE_CHARS`].
+fn shortened(text: String) -> String {
+    let count = text.chars().count();
+    if count <= MESSAGE_CHARS {
+        return text;
+    }
+    let keep = MESSAGE_CHARS / 2;
+    let head: String = text.chars().take(keep).collect();
+    let tail: String = text.chars().skip(count - keep).collect();
+    format!("{head}…{tail}")
 }
 
 /// 1-based line and column of a byte offset, counting columns in characters.
@@ -58,7 +77,7 @@ impl DocumentErrors {
             .map(|problem| ProblemDiagnostic {
                 location: self.location(problem),
                 problem: problem.clone(),
-                source: NamedSource::new(self.path.clone(), self.source.clone()),
+                source: NamedSource::new(self.path.clone(), Excerpt::new(&self.source, problem)),
             })
             .collect()
     }
@@ -94,7 +113,7 @@ impl std::error::Error for DocumentErrors {}
 pub struct ProblemDiagnostic {
     problem: Problem,
     location: String,
-    source: NamedSource<String>,
+    source: NamedSource<Excerpt>,
 }
 
 impl fmt::Display for ProblemDiagnostic {
@@ -111,18 +130,9 @@ impl Diagnostic for ProblemDiagnostic {
     }
 
     fn labels(&self) -> Option<Box<dyn Iterator<Item = LabeledSpan> + '_>> {
-        let span = &self.problem.span;
-        // miette draws no marker at the very end of the source, where an unclosed
-        // block or a missing step is found, so such a problem marks the last character.
-        let source = self.source.inner();
-        let start = if span.start < source.len() {
-            span.start
-        } else {
-            source.char_indices().next_back().map_or(0, |(i, _)| i)
-        };
-        let length = span.end.saturating_sub(start).max(1);
-        let label =
-            LabeledSpan::new_with_span(Some("here".into()), SourceSpan::new(start.into(), length));
+        let label = &self.source.inner().label;
+        let span = SourceSpan::new(label.start.into(), label.len());
+        let label = LabeledSpan::new_with_span(Some("here".into()), span);
         Some(Box::new(std::iter::once(label)))
     }
 
@@ -131,6 +141,123 @@ impl Diagnostic for ProblemDiagnostic {
             .help
             .as_ref()
             .map(|help| Box::new(help) as Box<dyn fmt::Display>)
+    }
+}
+
+/// Longest line shown whole under a problem. A longer one is cut, around the
+/// problem's column on its own line: miette pads its markers with a width argument,
+/// which panics past 65,535 columns, and a screen of one line helps nobody.
+const SHOWN_LINE_CHARS: usize = 160;
+/// Characters shown before the problem's column when its line is cut.
+const CHARS_BEFORE_PROBLEM: usize = 60;
+
+/// The source as a problem's diagnostic shows it: every line that is too long cut
+/// short with an ellipsis, the problem's own line cut to a window around the problem.
+/// Lines keep their numbers, and the header shows the problem's true column.
+#[derive(Debug)]
+struct Excerpt {
+    text: String,
+    /// Where the marker goes in `text`; never wider than the problem's shown line.
+    label: Range<usize>,
+    /// 0-based column of the problem in the real line, in characters.
+    column: usize,
+}
+
+impl Excerpt {
+    fn new(source: &str, problem: &Problem) -> Excerpt {
+        // miette draws no marker at the very end of the source, where an unclosed
+        // block or a missing step is found, so such a problem marks the last character.
+        let start = if problem.span.start < source.len() {
+            problem.span.start
+        } else {
+            source.char_indices().next_back().map_or(0, |(i, _)| i)
+        };
+        let end = problem.span.end.max(start + 1);
+        let mut excerpt = Excerpt {
+            text: String::with_capacity(source.len().min(1 << 16)),
+            label: 0..0,
+            column: 0,
+        };
+        let mut line_start = 0;
+        for line in source.split_inclusive('\n') {
+            let body = line.trim_end_matches('\n');
+            let ending = &line[body.len()..];
+            if (line_start..line_start + line.len()).contains(&start) {
+                excerpt.push_problem_line(body, start - line_start, end - line_start);
+            } else {
+                excerpt.push_cut(body);
+            }
+            excerpt.text.push_str(ending);
+            line_start += line.len();
+        }
+        excerpt
+    }
+
+    /// Appends `line` cut to [`SHOWN_LINE_CHARS`].
+    fn push_cut(&mut self, line: &str) {
+        match line.char_indices().nth(SHOWN_LINE_CHARS) {
+            Some((cut, _)) => {
+                self.text.push_str(&line[..cut]);
+                self.text.push('…');
+            }
+            None => self.text.push_str(line),
+        }
+    }
+
+    /// Appends the problem's line, cut to a window around the marker from byte
+    /// `start` to byte `end` of the line, and records where the marker falls.
+    fn push_problem_line(&mut self, line: &str, start: usize, end: usize) {
+        self.column = line[..start].chars().count();
+        let chars = line.chars().count();
+        let first = if chars <= SHOWN_LINE_CHARS {
+            0
+        } else {
+            self.column.saturating_sub(CHARS_BEFORE_PROBLEM)
+        };
+        let last = chars.min(first + SHOWN_LINE_CHARS);
+        let byte_of = |char_index: usize| {
+            line.char_indices()
+                .nth(char_index)
+                .map_or(line.len(), |(i, _)| i)
+        };
+        let (from, to) = (byte_of(first), byte_of(last));
+        if first > 0 {
+            self.text.push('…');
+        }
+        let shown_start = self.text.len();
+        self.text.push_str(&line[from..to]);
+        // A marker at the line's end (an empty line, a problem at the end of the
+        // source) keeps its one column.
+        let marker_end = end.clamp(start + 1, to.max(start + 1));
+        self.label = shown_start + (start - from)..shown_start + (marker_end - from);
+        if to < line.len() {
+            self.text.push('…');
+        }
+    }
+}
+
+impl SourceCode for Excerpt {
+    fn read_span<'a>(
+        &'a self,
+        span: &SourceSpan,
+        context_lines_before: usize,
+        context_lines_after: usize,
+    ) -> Result<Box<dyn SpanContents<'a> + 'a>, MietteError> {
+        let contents = self
+            .text
+            .read_span(span, context_lines_before, context_lines_after)?;
+        // The header's `file:line:column` reads the marker's span with no context;
+        // miette would count bytes of the cut line, where the real column is wanted.
+        if context_lines_before == 0 && span.offset() == self.label.start {
+            return Ok(Box::new(MietteSpanContents::new(
+                contents.data(),
+                *contents.span(),
+                contents.line(),
+                self.column,
+                contents.line_count(),
+            )));
+        }
+        Ok(contents)
     }
 }
 

@@ -20,6 +20,17 @@ pub fn deserialize<T: DeserializeOwned>(
     known: &[&str],
     problems: &mut Vec<Problem>,
 ) -> Option<T> {
+    if let Some(at) = first_too_deep(block.text) {
+        let start = block.offset + at;
+        problems.push(
+            Problem::new(
+                start..start + 1,
+                format!("the settings nest more than {MAX_NESTING} levels deep here"),
+            )
+            .with_help("settings nest a few levels at most: a list, or a map of lists"),
+        );
+        return None;
+    }
     match serde_yaml::from_str::<T>(block.text) {
         Ok(value) => Some(value),
         Err(error) => {
@@ -27,6 +38,97 @@ pub fn deserialize<T: DeserializeOwned>(
             None
         }
     }
+}
+
+/// Deepest nesting of lists and maps a block may have. Settings nest two or three
+/// levels; the YAML parser's time grows with the square of the depth (100,000 nested
+/// brackets took a minute), so deeper text is refused before it is parsed.
+pub const MAX_NESTING: usize = 32;
+
+/// The byte offset in `text` where nesting first goes deeper than [`MAX_NESTING`],
+/// found in one pass over the raw text: block levels by indentation (and `- ` entries
+/// opened on one line), plus open flow brackets outside quotes and comments. It may
+/// count a level too many in odd places (a multi-line quoted text), never too few for
+/// the brackets and indentation that make the parser slow.
+fn first_too_deep(text: &str) -> Option<usize> {
+    let mut blocks: Vec<usize> = Vec::new();
+    let mut flow = 0usize;
+    // Inside a `|` or `>` text: lines indented more than this are its content.
+    let mut literal_parent: Option<usize> = None;
+    let mut line_start = 0;
+    for line in text.split_inclusive('\n') {
+        let start = line_start;
+        line_start += line.len();
+        let indent = line.len() - line.trim_start_matches(' ').len();
+        let content = line[indent..].trim_end();
+        if let Some(parent) = literal_parent {
+            if content.is_empty() || indent > parent {
+                continue;
+            }
+            literal_parent = None;
+        }
+        if content.is_empty() || content.starts_with('#') {
+            continue;
+        }
+        let mut column = indent;
+        if flow == 0 {
+            blocks.retain(|&open| open < indent);
+            blocks.push(indent);
+            // `- - x` opens a level per dash.
+            while let Some(after) = line[column..].strip_prefix("- ") {
+                let next = column + 2 + (after.len() - after.trim_start_matches(' ').len());
+                blocks.push(next);
+                column = next;
+            }
+            if blocks.len() > MAX_NESTING {
+                return Some(start + column);
+            }
+        }
+        if let Some(at) = scan_flow(&line[column..], &mut flow, blocks.len()) {
+            return Some(start + column + at);
+        }
+        if flow == 0 && opens_literal(content) {
+            literal_parent = Some(indent);
+        }
+    }
+    None
+}
+
+/// Follows flow brackets through `text` (one line), skipping quoted texts and a
+/// comment; returns where the depth first passes [`MAX_NESTING`].
+fn scan_flow(text: &str, flow: &mut usize, blocks: usize) -> Option<usize> {
+    let mut quote: Option<char> = None;
+    let mut previous = ' ';
+    for (i, c) in text.char_indices() {
+        match quote {
+            Some(q) if c == q && !(q == '"' && previous == '\\') => quote = None,
+            Some(_) => {}
+            None => match c {
+                '#' if previous.is_whitespace() => break,
+                '"' | '\'' if " \t[{,:".contains(previous) => quote = Some(c),
+                '[' | '{' => {
+                    *flow += 1;
+                    if blocks + *flow > MAX_NESTING {
+                        return Some(i);
+                    }
+                }
+                ']' | '}' => *flow = flow.saturating_sub(1),
+                _ => {}
+            },
+        }
+        previous = c;
+    }
+    None
+}
+
+/// Whether a line ends in a literal or folded text's indicator (`|`, `>-`, `|+2`, …).
+fn opens_literal(content: &str) -> bool {
+    content.split_whitespace().next_back().is_some_and(|last| {
+        last.starts_with(['|', '>'])
+            && last[1..]
+                .chars()
+                .all(|c| c == '+' || c == '-' || c.is_ascii_digit())
+    })
 }
 
 fn problem_from(error: &serde_yaml::Error, block: Block<'_>, known: &[&str]) -> Problem {
@@ -127,6 +229,50 @@ mod tests {
             drop_positions("bad at line 2 column 7 at line x, at line 3 column 1"),
             "bad at line x,"
         );
+    }
+
+    #[test]
+    fn nesting_past_the_limit_is_found_in_brackets_and_indentation() {
+        let brackets = format!("data: {}{}", "[".repeat(40), "]".repeat(40));
+        // The block's one level and 31 brackets are allowed; the 32nd bracket is not.
+        assert_eq!(first_too_deep(&brackets), Some("data: ".len() + 31));
+        let mut indented = String::new();
+        for level in 0..40 {
+            indented.push_str(&format!("{}k{level}:\n", " ".repeat(level)));
+        }
+        let line_33 = indented
+            .lines()
+            .take(32)
+            .map(|l| l.len() + 1)
+            .sum::<usize>();
+        assert_eq!(first_too_deep(&indented), Some(line_33 + 32));
+        let dashes = format!("data:\n{}x\n", "- ".repeat(40));
+        assert!(first_too_deep(&dashes).is_some());
+    }
+
+    #[test]
+    fn brackets_in_quotes_comments_and_literal_texts_do_not_nest() {
+        let deep = "[".repeat(40);
+        for text in [
+            format!("data: '{deep}'\n"),
+            format!("data: \"{deep}\"\n"),
+            format!("data: x # {deep}\n"),
+            format!("notes: |\n  {deep}\n  more\ntitle: t\n"),
+            "a:\n  b:\n    c: [[1, 2], {k: [3]}]\nd: 1\n".repeat(50),
+        ] {
+            assert_eq!(first_too_deep(&text), None, "{text}");
+        }
+    }
+
+    #[test]
+    fn a_block_nested_too_deep_is_one_problem_at_its_place() {
+        let text = format!("data: {}", "[".repeat(100_000));
+        let problem = problem_of(&text, 7);
+        assert!(
+            problem.message.contains("more than 32 levels"),
+            "{problem:?}"
+        );
+        assert_eq!(problem.span.start, 7 + "data: ".len() + 31);
     }
 
     #[test]

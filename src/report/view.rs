@@ -37,29 +37,41 @@ pub struct ClassRow {
     pub test: usize,
 }
 
+/// Fewest categories at which a text input whose values are mostly unique to a row
+/// is flagged as looking like an identifier (below it, a small table's few texts).
+const IDENTIFIER_LIKE_CATEGORIES: usize = 20;
+
 pub fn data_view(summary: &DataSummary) -> DataView {
+    let rows_used = summary.rows_read - summary.rows_dropped;
     let columns = summary
         .columns
         .iter()
         .map(|column| {
-            let (kind, note) = match &column.kind {
-                crate::data::ColumnKind::Numeric => ("numeric".to_string(), String::new()),
-                crate::data::ColumnKind::Categorical { categories } => (
-                    format!("text, {} categories", categories.len()),
-                    format!("one-hot: {}", categories.join(", ")),
-                ),
-            };
-            let note = if column.constant {
-                let constant =
-                    "constant on the training rows: carries no information, left unscaled";
-                if note.is_empty() {
-                    constant.to_string()
-                } else {
-                    format!("{note}; {constant}")
+            let mut notes = Vec::new();
+            let kind = match &column.kind {
+                crate::data::ColumnKind::Numeric => "numeric".to_string(),
+                crate::data::ColumnKind::Categorical { categories } => {
+                    notes.push(format!("one-hot: {}", categories.join(", ")));
+                    if categories.len() >= IDENTIFIER_LIKE_CATEGORIES
+                        && 2 * categories.len() > rows_used
+                    {
+                        notes.push(
+                            "most values occur on one row only, like an identifier or free \
+                             text: each adds an input with little to learn from; consider \
+                             listing `inputs:` without it"
+                                .to_string(),
+                        );
+                    }
+                    format!("text, {} categories", categories.len())
                 }
-            } else {
-                note
             };
+            if column.constant {
+                notes.push(
+                    "constant on the training rows: carries no information, left unscaled"
+                        .to_string(),
+                );
+            }
+            let note = notes.join("; ");
             ColumnView {
                 name: column.name.clone(),
                 kind,
