@@ -287,17 +287,19 @@ pub fn plan(
     let mut steps: Vec<PlannedStep> = parsed
         .iter()
         .zip(resolved)
-        .map(|((piece, block, spec), (upstream, files, output))| PlannedStep {
-            id: block.id.clone(),
-            kind: block.kind,
-            spec: spec.clone(),
-            piece: *piece,
-            upstream,
-            files,
-            output,
-            key: String::new(),
-            fits: Vec::new(),
-        })
+        .map(
+            |((piece, block, spec), (upstream, files, output))| PlannedStep {
+                id: block.id.clone(),
+                kind: block.kind,
+                spec: spec.clone(),
+                piece: *piece,
+                upstream,
+                files,
+                output,
+                key: String::new(),
+                fits: Vec::new(),
+            },
+        )
         .collect();
     for (index, refusal) in outputs::step_clashes(&steps) {
         problems.push(refusal.at(setting_span(parsed[index].1, "write")));
