@@ -29,9 +29,8 @@ const SEED_BYTES: usize = 8 * 1024;
 const LIST_SEED: u64 = 2027;
 
 #[test]
-fn every_generated_project_builds_without_a_panic_a_hang_an_unlocated_error_or_a_lost_file()
-{
-    oracle::quiet_panics();
+fn every_generated_project_builds_without_a_panic_a_hang_an_unlocated_error_or_a_lost_file() {
+    let quiet = oracle::quiet_panics();
     let count = std::env::var("STET_GENERATED_PROJECTS")
         .ok()
         .and_then(|n| n.parse().ok())
@@ -57,9 +56,10 @@ fn every_generated_project_builds_without_a_panic_a_hang_an_unlocated_error_or_a
         located += verdict.located;
         for failure in verdict.failures {
             let shown = describe(case, &project, &failure);
-            let entry = classes
-                .entry(failure.class())
-                .or_insert((0, usize::MAX, failure, String::new()));
+            let entry =
+                classes
+                    .entry(failure.class())
+                    .or_insert((0, usize::MAX, failure, String::new()));
             entry.0 += 1;
             if project.document.len() < entry.1 {
                 entry.1 = project.document.len();
@@ -67,6 +67,7 @@ fn every_generated_project_builds_without_a_panic_a_hang_an_unlocated_error_or_a
             }
         }
     }
+    drop(quiet);
     eprintln!(
         "{count} generated projects: exit 0 {}, exit 1 {}, exit 2 {} ({located} problems, each located)",
         exits[0], exits[1], exits[2]
@@ -95,7 +96,10 @@ fn describe(case: usize, project: &project_gen::Project, failure: &Failure) -> S
     for (name, bytes) in &project.files {
         let shown = String::from_utf8_lossy(bytes);
         let head: Vec<&str> = shown.lines().take(4).collect();
-        text.push_str(&format!("\n--- {name} (first lines)\n{}\n", head.join("\n")));
+        text.push_str(&format!(
+            "\n--- {name} (first lines)\n{}\n",
+            head.join("\n")
+        ));
     }
     text
 }

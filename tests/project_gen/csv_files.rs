@@ -15,9 +15,17 @@ pub struct Table {
     pub columns: Vec<String>,
 }
 
-/// Column names, with repeats so that a header can name one column twice.
+/// Column names; a flawed header repeats one or leaves one empty.
 const COLUMN_NAMES: &[&str] = &[
-    "x", "y", "size", "weight", "colour", "label", "status", "temp", "x", "ünïcode", "",
+    "x",
+    "y",
+    "size",
+    "weight",
+    "colour",
+    "label",
+    "status",
+    "temp",
+    "ünïcode",
 ];
 
 /// Texts that break a cell in one of the ways a real export does.
@@ -51,14 +59,12 @@ enum Column {
 
 /// One CSV file named `name` and the columns its header lists.
 pub fn csv_file(u: &mut Unstructured<'_>, name: &str) -> arbitrary::Result<(Table, Vec<u8>)> {
-    let columns: Vec<String> = (0..u.int_in_range(2..=5)?)
-        .map(|_| u.choose(COLUMN_NAMES).map(|s| s.to_string()))
-        .collect::<Result<_, _>>()?;
+    let columns = header(u)?;
     let table = Table {
         name: name.to_string(),
         columns: columns.clone(),
     };
-    let shape = u.int_in_range(0..=19)?;
+    let shape = u.int_in_range(0..=29)?;
     if shape == 0 {
         return Ok((table, Vec::new()));
     }
@@ -76,6 +82,24 @@ pub fn csv_file(u: &mut Unstructured<'_>, name: &str) -> arbitrary::Result<(Tabl
         text.push_str(line_end);
     }
     Ok((table, text.into_bytes()))
+}
+
+/// Two to five distinct column names; one header in twenty repeats a name or leaves one
+/// empty.
+fn header(u: &mut Unstructured<'_>) -> arbitrary::Result<Vec<String>> {
+    let mut pool: Vec<&str> = COLUMN_NAMES.to_vec();
+    let mut columns = Vec::new();
+    for _ in 0..u.int_in_range(2..=5)? {
+        columns.push(pool.remove(u.choose_index(pool.len())?).to_string());
+    }
+    if u.ratio(1, 20)? {
+        let last = columns.len() - 1;
+        columns[last] = match u.arbitrary()? {
+            true => columns[0].clone(),
+            false => String::new(),
+        };
+    }
+    Ok(columns)
 }
 
 /// The rows under the header, with a few cells and rows broken.
@@ -97,12 +121,17 @@ fn body(u: &mut Unstructured<'_>, width: usize) -> arbitrary::Result<Vec<Vec<Str
     let mut rows: Vec<Vec<String>> = (0..row_count)
         .map(|_| kinds.iter().map(|&kind| cell(kind, &mut values)).collect())
         .collect();
-    for _ in 0..u.int_in_range(0..=4)? {
+    let broken = if u.ratio(1, 6)? {
+        u.int_in_range(1..=3)?
+    } else {
+        0
+    };
+    for _ in 0..broken {
         let row = u.choose_index(rows.len())?;
         let column = u.choose_index(width)?;
         rows[row][column] = u.choose(BROKEN_CELLS)?.to_string();
     }
-    if u.ratio(1, 8)? {
+    if u.ratio(1, 25)? {
         let row = u.choose_index(rows.len())?;
         if u.arbitrary()? {
             rows[row].pop();

@@ -28,14 +28,21 @@ const SECRET: &str = "secret.csv";
 /// One way a build broke a promise.
 #[derive(Clone, Debug)]
 pub enum Failure {
-    Panic { message: String, location: String },
+    Panic {
+        message: String,
+        location: String,
+    },
     Hang,
     /// Exit 2 for a reason that names no line of the document.
     Unlocated(String),
     /// A problem whose span does not lie inside the document (on character boundaries).
-    SpanOutside { message: String },
+    SpanOutside {
+        message: String,
+    },
     /// Drawing a problem's diagnostic as the command line does panicked.
-    DiagnosticPanic { message: String },
+    DiagnosticPanic {
+        message: String,
+    },
     /// Exit 2, but files appeared or changed in the project.
     WroteOnRefusal(Vec<String>),
     NoReport,
@@ -54,7 +61,9 @@ impl Failure {
                 format!("panic at {location}: {}", generalise(message))
             }
             Failure::Hang => "no result within the deadline".into(),
-            Failure::Unlocated(message) => format!("exit 2 without a line: {}", generalise(message)),
+            Failure::Unlocated(message) => {
+                format!("exit 2 without a line: {}", generalise(message))
+            }
             Failure::SpanOutside { message } => format!("span outside: {}", generalise(message)),
             Failure::DiagnosticPanic { message } => {
                 format!("diagnostic panicked: {}", generalise(message))
@@ -214,11 +223,21 @@ fn judge_result(result: Built, root: &Path) -> Verdict {
         Ok(Ok(summary)) => {
             let exit = if summary.failed.is_empty() { 0 } else { 1 };
             let written = root.join("report.html").is_file() && root.join("summary.json").is_file();
-            (Some(exit), 0, if written { vec![] } else { vec![Failure::NoReport] })
+            (
+                Some(exit),
+                0,
+                if written {
+                    vec![]
+                } else {
+                    vec![Failure::NoReport]
+                },
+            )
         }
         Ok(Err(Error::Document(errors))) => (Some(2), errors.problems.len(), located(&errors)),
         Ok(Err(other)) => {
-            let message = other.to_string().replace(&root.display().to_string(), "<project>");
+            let message = other
+                .to_string()
+                .replace(&root.display().to_string(), "<project>");
             (Some(2), 0, vec![Failure::Unlocated(message)])
         }
     };
@@ -265,15 +284,26 @@ fn located(errors: &stet::document::DocumentErrors) -> Vec<Failure> {
 /// Where the last panic happened, recorded by [`quiet_panics`]' hook.
 static LAST_PANIC: Mutex<Option<String>> = Mutex::new(None);
 
-/// Replaces the panic message printed for every expected panic by a note of where it
-/// happened, which [`check`] reads back. For the test; libFuzzer needs its own hook.
-pub fn quiet_panics() {
+/// Until dropped, a panic prints nothing and leaves a note of where it happened, which
+/// [`check`] reads back: the test expects panics by the dozen on broken code and lists
+/// them at the end. The fuzz target keeps libFuzzer's hook instead.
+pub struct QuietPanics;
+
+pub fn quiet_panics() -> QuietPanics {
     std::panic::set_hook(Box::new(|info| {
         let location = info
             .location()
             .map_or_else(|| "?".into(), |l| format!("{}:{}", l.file(), l.line()));
         *LAST_PANIC.lock().unwrap_or_else(|e| e.into_inner()) = Some(location);
     }));
+    QuietPanics
+}
+
+impl Drop for QuietPanics {
+    fn drop(&mut self) {
+        // Back to the default hook, so the test's own failure is printed.
+        let _ = std::panic::take_hook();
+    }
 }
 
 fn panic_failure(payload: &(dyn std::any::Any + Send)) -> Failure {
