@@ -6,8 +6,8 @@
 //!
 //! `STET_GENERATED_PROJECTS=N` runs N projects instead of the default; with
 //! `STET_GENERATED_TRACE=1` each project's number goes to standard error before it
-//! builds (unbuffered, so it survives an abort), to find the one that took a process
-//! down.
+//! builds (unbuffered, so it survives an abort), to find the one that took the process
+//! down; `STET_GENERATED_SKIP=K` draws and skips the first K, to go on past it.
 
 mod project_gen;
 
@@ -31,10 +31,8 @@ const LIST_SEED: u64 = 2027;
 #[test]
 fn every_generated_project_builds_without_a_panic_a_hang_an_unlocated_error_or_a_lost_file() {
     let quiet = oracle::quiet_panics();
-    let count = std::env::var("STET_GENERATED_PROJECTS")
-        .ok()
-        .and_then(|n| n.parse().ok())
-        .unwrap_or(DEFAULT_PROJECTS);
+    let count = number_from_env("STET_GENERATED_PROJECTS").unwrap_or(DEFAULT_PROJECTS);
+    let skip = number_from_env("STET_GENERATED_SKIP").unwrap_or(0);
     let trace = std::env::var_os("STET_GENERATED_TRACE").is_some();
     let mut seeds = ChaCha8Rng::seed_from_u64(LIST_SEED);
     let mut exits = [0usize; 3];
@@ -44,6 +42,9 @@ fn every_generated_project_builds_without_a_panic_a_hang_an_unlocated_error_or_a
     for case in 0..count {
         let mut bytes = vec![0u8; SEED_BYTES];
         seeds.fill_bytes(&mut bytes);
+        if case < skip {
+            continue;
+        }
         let project = project_gen::project(&mut Unstructured::new(&bytes))
             .expect("the grammar draws from any bytes");
         if trace {
@@ -69,8 +70,11 @@ fn every_generated_project_builds_without_a_panic_a_hang_an_unlocated_error_or_a
     }
     drop(quiet);
     eprintln!(
-        "{count} generated projects: exit 0 {}, exit 1 {}, exit 2 {} ({located} problems, each located)",
-        exits[0], exits[1], exits[2]
+        "{} generated projects: exit 0 {}, exit 1 {}, exit 2 {} ({located} problems, each located)",
+        count.saturating_sub(skip),
+        exits[0],
+        exits[1],
+        exits[2]
     );
     let report: Vec<String> = classes
         .iter()
@@ -84,6 +88,10 @@ fn every_generated_project_builds_without_a_panic_a_hang_an_unlocated_error_or_a
         report.len(),
         report.join("\n")
     );
+}
+
+fn number_from_env(name: &str) -> Option<usize> {
+    std::env::var(name).ok().and_then(|n| n.parse().ok())
 }
 
 /// A failure with the project that caused it, ready to paste into a test.

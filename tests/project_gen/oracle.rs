@@ -2,7 +2,7 @@
 //! inside a folder that stands for the rest of the disk), built through `stet::build`
 //! with its own cache, and judged. A build must finish within the deadline without a
 //! panic; exit 2 must come with problems that each lie inside the document, rendered
-//! without a panic, and with nothing written; exit 0 or 1 must write the report; and
+//! without a panic, and with nothing written but cache entries; exit 0 or 1 must write the report; and
 //! whatever happens, the document and the CSV files keep their bytes and nothing
 //! appears outside the project.
 
@@ -43,7 +43,7 @@ pub enum Failure {
     DiagnosticPanic {
         message: String,
     },
-    /// Exit 2, but files appeared or changed in the project.
+    /// Exit 2, but files outside the cache appeared or changed in the project.
     WroteOnRefusal(Vec<String>),
     NoReport,
     /// The document or a CSV file lost its bytes.
@@ -141,7 +141,12 @@ pub fn check(project: &Project) -> Verdict {
     let mut verdict = judge_result(result, &root);
     let after = Listing::of(outer.path());
     if verdict.exit == Some(2) {
-        let changed = before.changed_in(&after, Path::new("project"));
+        // The cache may keep what was computed before the refusal; nothing else may change.
+        let changed: Vec<String> = before
+            .changed_in(&after, Path::new("project"))
+            .into_iter()
+            .filter(|path| !Path::new(path).starts_with("project/.stet"))
+            .collect();
         if !changed.is_empty() {
             verdict.failures.push(Failure::WroteOnRefusal(changed));
         }
