@@ -107,7 +107,7 @@ fn body(u: &mut Unstructured<'_>, width: usize) -> arbitrary::Result<Vec<Vec<Str
     let kinds: Vec<Column> = (0..width)
         .map(|_| {
             Ok(match u.int_in_range(0..=5)? {
-                0 | 1 | 2 => Column::Numeric,
+                0..=2 => Column::Numeric,
                 3 => Column::Classes(u.int_in_range(2..=4)?),
                 4 => Column::Words,
                 _ => Column::Constant,
