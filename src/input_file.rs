@@ -107,6 +107,19 @@ impl io::Write for HashAndCount {
     }
 }
 
+/// Reads a whole regular file of at most `limit` bytes: the document itself, which
+/// must not block the build (a named pipe) or never end (a device) either.
+pub fn read_regular(path: &Path, limit: u64) -> Result<Vec<u8>, InputError> {
+    let mut bytes = Vec::new();
+    open_regular(path)?
+        .take(limit + 1)
+        .read_to_end(&mut bytes)?;
+    if bytes.len() as u64 > limit {
+        return Err(InputError::TooLarge { limit });
+    }
+    Ok(bytes)
+}
+
 /// Opens `path` (following symbolic links) only if it is a regular file: opening a
 /// named pipe waits for a writer, and a device may never end. Checked before opening,
 /// and again on what was opened in case the path was swapped in between.

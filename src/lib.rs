@@ -31,6 +31,7 @@ use std::time::Duration;
 
 use cache::Cache;
 use document::{Document, DocumentErrors, Problem};
+use input_file::InputError;
 use plan::Plan;
 use run::{RunOptions, StepRecord};
 
@@ -96,10 +97,16 @@ pub struct Loaded {
 
 /// Reads, parses and plans a document; every problem found is reported together.
 pub fn load(path: &Path, options: &plan::PlanOptions) -> Result<Loaded, Error> {
-    let bytes = std::fs::read(path).map_err(|source| Error::Io {
-        context: format!("reading {}", path.display()),
-        source,
-    })?;
+    let bytes =
+        input_file::read_regular(path, options.limits.max_file_bytes).map_err(
+            |error| match error {
+                InputError::Io(source) => Error::Io {
+                    context: format!("reading {}", path.display()),
+                    source,
+                },
+                refused => Error::Usage(format!("cannot read {}: {refused}", path.display())),
+            },
+        )?;
     let name = path.display().to_string();
     let source = match String::from_utf8(bytes) {
         Ok(source) => source,

@@ -204,6 +204,22 @@ fn a_named_pipe_as_a_file_to_predict_is_refused() {
 }
 
 #[test]
+fn a_named_pipe_as_the_document_is_refused_by_build_status_and_clean() {
+    let ws = Workspace::new();
+    named_pipe(&ws, "doc.md");
+    for command in ["build", "status", "clean"] {
+        let output = stet_within(&ws, &[command, "doc.md"], PROMPTLY);
+        assert_eq!(output.status.code(), Some(2), "{command}");
+        let text = stderr(&output);
+        assert!(
+            text.contains("doc.md: it is not a regular file"),
+            "{command}: {text}"
+        );
+    }
+    assert!(!ws.path("doc.html").exists());
+}
+
+#[test]
 fn a_device_as_a_data_file_is_refused_even_outside_the_limits() {
     let ws = Workspace::new();
     ws.write(
