@@ -170,6 +170,21 @@ fn owners<'k>(tasks: &[RunTask<'k>]) -> HashMap<&'k Key, usize> {
 
 /// Runs every step of the plan, reusing what the cache holds.
 pub fn execute(plan: &Plan, cache: &Cache, options: &RunOptions) -> Vec<StepRecord> {
+    arithmetic_pool(options.jobs).install(|| execute_steps(plan, cache, options))
+}
+
+/// A pool of at most `jobs` threads and never more than the cores. Everything that
+/// computes runs inside it (training, and the large products of predict and export,
+/// which split over the current pool), so `--jobs` bounds every arithmetic thread.
+fn arithmetic_pool(jobs: usize) -> rayon::ThreadPool {
+    let cores = std::thread::available_parallelism().map_or(1, |n| n.get());
+    rayon::ThreadPoolBuilder::new()
+        .num_threads(jobs.clamp(1, cores))
+        .build()
+        .expect("a thread pool")
+}
+
+fn execute_steps(plan: &Plan, cache: &Cache, options: &RunOptions) -> Vec<StepRecord> {
     let Stage {
         mut records,
         mut prepared,
@@ -493,6 +508,15 @@ pub fn execute_share(
     options: &RunOptions,
     share: Share,
 ) -> ShareSummary {
+    arithmetic_pool(options.jobs).install(|| execute_share_in_pool(plan, cache, options, share))
+}
+
+fn execute_share_in_pool(
+    plan: &Plan,
+    cache: &Cache,
+    options: &RunOptions,
+    share: Share,
+) -> ShareSummary {
     let Stage {
         records,
         mut prepared,
@@ -535,7 +559,7 @@ pub fn execute_share(
     }
 }
 
-/// Fits the queued runs `unique` picks (one per key) on a pool of `jobs` threads. A
+/// Fits the queued runs `unique` picks (one per key) on the current thread pool. A
 /// run whose data cannot be prepared again (its file changed during the build) is an
 /// error naming the data step.
 fn fit_all<'t>(
@@ -565,30 +589,25 @@ fn fit_all<'t>(
     if let Some(bar) = &options.progress {
         bar.set_length(unique.len() as u64);
     }
-    let pool = rayon::ThreadPoolBuilder::new()
-        .num_threads(pool_threads(options.jobs))
-        .build()
-        .expect("a thread pool");
-    let results = pool.install(|| {
-        unique
-            .par_iter()
-            .map(|&i| {
-                let task = &tasks[i];
-                let result = fit(
-                    &prepared[&task.data],
-                    task.partition,
-                    &task.shape,
-                    task.net,
-                    &task.train,
-                );
-                cache.store(task.key, EntryKind::Run, &result);
-                if let Some(bar) = &options.progress {
-                    bar.inc(1);
-                }
-                (task.key, Ok(result))
-            })
-            .collect::<HashMap<_, _>>()
-    });
+    // On the caller's pool (`arithmetic_pool`).
+    let results = unique
+        .par_iter()
+        .map(|&i| {
+            let task = &tasks[i];
+            let result = fit(
+                &prepared[&task.data],
+                task.partition,
+                &task.shape,
+                task.net,
+                &task.train,
+            );
+            cache.store(task.key, EntryKind::Run, &result);
+            if let Some(bar) = &options.progress {
+                bar.inc(1);
+            }
+            (task.key, Ok(result))
+        })
+        .collect::<HashMap<_, _>>();
     if let Some(bar) = &options.progress {
         bar.finish_and_clear();
     }
@@ -596,15 +615,6 @@ fn fit_all<'t>(
         .iter()
         .map(|&i| (tasks[i].key, Err(unprepared[&tasks[i].data].clone())));
     results.into_iter().chain(failed).collect()
-}
-
-/// Threads for the training pool: `--jobs`, but never more than the cores, since
-/// training is arithmetic and a thread per job is started up front. Not capped at the
-/// number of runs: the large products of a run split over the pool's threads, so a
-/// lone run still uses every core it is given.
-fn pool_threads(jobs: usize) -> usize {
-    let cores = std::thread::available_parallelism().map_or(1, |n| n.get());
-    jobs.clamp(1, cores)
 }
 
 /// A train step's or sweep's record from its fitted and reused runs.
