@@ -2,6 +2,7 @@
 //! error is reported at its place in the document rather than in the block.
 
 use serde::de::DeserializeOwned;
+use serde_yaml::Value;
 
 use super::problem::{Problem, nearest};
 
@@ -26,6 +27,31 @@ pub fn deserialize<T: DeserializeOwned>(
             problems.push(problem_from(&error, block, known));
             None
         }
+    }
+}
+
+/// Parses `block` as one YAML value; on a syntax error records a problem at its place.
+pub fn parse_value(block: Block<'_>, problems: &mut Vec<Problem>) -> Option<Value> {
+    match serde_yaml::from_str::<Value>(block.text) {
+        Ok(value) => Some(value),
+        Err(error) => {
+            problems.push(problem_from(&error, block, &[]));
+            None
+        }
+    }
+}
+
+/// The first YAML tag (`!name`) anywhere in `value`, with the value it marks. Settings
+/// are plain values: serde would read `activation: !tanh` as the word `tanh`, and a
+/// tag the document's reader cannot see should not change what a step computes.
+pub fn first_tag(value: &Value) -> Option<(String, &Value)> {
+    match value {
+        Value::Tagged(tagged) => Some((tagged.tag.to_string(), &tagged.value)),
+        Value::Sequence(items) => items.iter().find_map(first_tag),
+        Value::Mapping(map) => map
+            .iter()
+            .find_map(|(key, value)| first_tag(key).or_else(|| first_tag(value))),
+        _ => None,
     }
 }
 
@@ -54,7 +80,12 @@ fn problem_from(error: &serde_yaml::Error, block: Block<'_>, known: &[&str]) -> 
 /// key at line 2 column 1"). The diagnostic already says where, in document
 /// coordinates, so every block-relative position is dropped.
 fn plain_message(error: &serde_yaml::Error) -> String {
-    let text = drop_positions(&error.to_string());
+    plain_text(&error.to_string())
+}
+
+/// A serde_yaml message without positions, in the document's words for settings.
+pub(crate) fn plain_text(message: &str) -> String {
+    let text = drop_positions(message);
     let text = text.replace("unknown field", "unknown setting");
     text.replacen("missing field", "missing setting", 1)
 }
@@ -80,7 +111,7 @@ fn drop_positions(text: &str) -> String {
     kept
 }
 
-fn unknown_key(message: &str) -> Option<&str> {
+pub(crate) fn unknown_key(message: &str) -> Option<&str> {
     let rest = message.strip_prefix("unknown setting `")?;
     rest.split('`').next()
 }
