@@ -19,6 +19,7 @@ pub mod manifest;
 pub mod nn;
 pub mod outcome;
 pub mod plan;
+mod plan_checks;
 pub mod prune;
 pub mod report;
 pub mod run;

@@ -244,6 +244,7 @@ pub fn plan(
         steps[i].fits = fits(&steps, &blocks, i, default_seed, &mut problems);
         check_sweep_size(blocks[i], &steps[i], options.limits, &mut problems);
     }
+    crate::plan_checks::check(document, &steps, &mut problems);
     if !problems.is_empty() {
         return Err(problems);
     }

@@ -334,6 +334,7 @@ pub fn parse_step(
         }
         StepKind::Train => {
             let raw: RawTrain = deserialize(block, TRAIN_KEYS, &step.info_span, check.problems)?;
+            refuse_momentum_with_adam(&raw, &mut check);
             StepSpec::Train(validate_train(raw, default_seed, &mut check))
         }
         StepKind::Sweep => {
@@ -566,6 +567,16 @@ pub(crate) fn validate_net(raw: RawNet, check: &mut Checker<'_>) -> NetSpec {
         output: raw.output.unwrap_or(OutputChoice::Auto),
         init: raw.init.unwrap_or(Init::Xavier),
     }
+}
+
+/// Adam keeps its own moment estimates, so a written `momentum` would silently do
+/// nothing. Only a written train step is checked: a sweep that varies the optimizer
+/// may try adam from a base that sets momentum for sgd (see `plan_checks`).
+fn refuse_momentum_with_adam(raw: &RawTrain, check: &mut Checker<'_>) {
+    let adam = matches!(raw.optimizer, Some(OptimizerKind::Adam));
+    check.require(!(adam && raw.momentum.is_some()), "momentum", || {
+        "momentum applies to sgd only, and this step trains with adam, which keeps its own moment estimates".into()
+    });
 }
 
 pub(crate) fn validate_train(

@@ -93,7 +93,15 @@ pub(super) fn validate_sweep(raw: RawSweep, check: &mut Checker<'_>) -> SweepSpe
             continue;
         }
         match values {
-            Value::Sequence(values) if !values.is_empty() => vary.push((name, values)),
+            Value::Sequence(values) if !values.is_empty() => {
+                if let Some(twice) = repeated(&values) {
+                    let twice = value_text(twice);
+                    check.require(false, "vary", || {
+                        format!("vary: {name} lists {twice} twice; each value is run once")
+                    });
+                }
+                vary.push((name, values))
+            }
             _ => check.require(false, "vary", || {
                 format!("vary: {name} needs a non-empty list of values")
             }),
@@ -110,6 +118,15 @@ pub(super) fn validate_sweep(raw: RawSweep, check: &mut Checker<'_>) -> SweepSpe
         repeat,
         rank_by: raw.rank_by,
     }
+}
+
+/// The first value that appears again later in `values`.
+pub(super) fn repeated<T: PartialEq>(values: &[T]) -> Option<&T> {
+    values
+        .iter()
+        .enumerate()
+        .find(|(i, value)| values[i + 1..].contains(value))
+        .map(|(_, value)| value)
 }
 
 impl SweepSpec {
