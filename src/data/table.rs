@@ -152,6 +152,9 @@ pub fn read_header(reader: impl Read) -> Result<Vec<String>, DataError> {
     let header = reader.byte_headers().map_err(|error| DataError::Read {
         message: error.to_string(),
     })?;
+    if header.is_empty() {
+        return Err(DataError::EmptyFile);
+    }
     Ok(header
         .iter()
         .map(|cell| String::from_utf8_lossy(cell).trim().to_string())

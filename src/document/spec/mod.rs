@@ -479,10 +479,12 @@ fn misfit_problem(
         );
     }
     let (setting, message, help) = describe_misfit(settings, error);
-    let problem = Problem::new(
-        key_span(block, setting).unwrap_or(info_span.clone()),
-        message,
-    );
+    // A missing setting has no line of its own; the step's info string stands for it.
+    let span = match setting {
+        "" => None,
+        setting => key_span(block, setting),
+    };
+    let problem = Problem::new(span.unwrap_or(info_span.clone()), message);
     match help {
         Some(help) => problem.with_help(help),
         None => problem,
