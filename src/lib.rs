@@ -20,6 +20,7 @@ pub mod nn;
 pub mod outcome;
 pub mod outputs;
 pub mod plan;
+mod plan_checks;
 pub mod prune;
 pub mod report;
 pub mod run;

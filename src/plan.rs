@@ -328,6 +328,7 @@ pub fn plan(
             &mut problems,
         );
     }
+    crate::plan_checks::check(document, &steps, &mut problems);
     if !problems.is_empty() {
         return Err(problems);
     }

@@ -26,4 +26,4 @@ pub use error::DataError;
 pub use prepare::{Partition, Prepared, SplitData, prepare};
 pub use scale::Scaler;
 pub use settings::{DataSettings, Missing, Scale, Split, Task};
-pub use table::{Table, read_table};
+pub use table::{Table, read_header, read_table};

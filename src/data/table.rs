@@ -141,6 +141,26 @@ const READ_BUFFER: usize = 1 << 16;
 
 /// The stream with a leading UTF-8 byte-order mark removed: spreadsheet programs
 /// often write one, which would otherwise become part of the first column's name.
+/// The column names of a CSV file's header row, read as `read_table` reads them
+/// (byte-order mark dropped, names trimmed) without reading any data row: the plan
+/// checks a document's column names against them.
+pub fn read_header(reader: impl Read) -> Result<Vec<String>, DataError> {
+    let mut reader = csv::ReaderBuilder::new()
+        .has_headers(true)
+        .flexible(true)
+        .from_reader(without_byte_order_mark(reader)?);
+    let header = reader.byte_headers().map_err(|error| DataError::Read {
+        message: error.to_string(),
+    })?;
+    if header.is_empty() {
+        return Err(DataError::EmptyFile);
+    }
+    Ok(header
+        .iter()
+        .map(|cell| String::from_utf8_lossy(cell).trim().to_string())
+        .collect())
+}
+
 fn without_byte_order_mark(mut reader: impl Read) -> Result<impl Read, DataError> {
     const MARK: &[u8] = b"\xEF\xBB\xBF";
     let mut head = Vec::with_capacity(MARK.len());

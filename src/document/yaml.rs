@@ -2,6 +2,7 @@
 //! error is reported at its place in the document rather than in the block.
 
 use serde::de::DeserializeOwned;
+use serde_yaml::Value;
 
 use super::problem::{Problem, nearest};
 
@@ -20,15 +21,7 @@ pub fn deserialize<T: DeserializeOwned>(
     known: &[&str],
     problems: &mut Vec<Problem>,
 ) -> Option<T> {
-    if let Some(at) = first_too_deep(block.text) {
-        let start = block.offset + at;
-        problems.push(
-            Problem::new(
-                start..start + 1,
-                format!("the settings nest more than {MAX_NESTING} levels deep here"),
-            )
-            .with_help("settings nest a few levels at most: a list, or a map of lists"),
-        );
+    if !shallow_enough(block, problems) {
         return None;
     }
     match serde_yaml::from_str::<T>(block.text) {
@@ -38,6 +31,50 @@ pub fn deserialize<T: DeserializeOwned>(
             None
         }
     }
+}
+
+/// Parses `block` as one YAML value; on a syntax error records a problem at its place.
+pub fn parse_value(block: Block<'_>, problems: &mut Vec<Problem>) -> Option<Value> {
+    if !shallow_enough(block, problems) {
+        return None;
+    }
+    match serde_yaml::from_str::<Value>(block.text) {
+        Ok(value) => Some(value),
+        Err(error) => {
+            problems.push(problem_from(&error, block, &[]));
+            None
+        }
+    }
+}
+
+/// The first YAML tag (`!name`) anywhere in `value`, with the value it marks. Settings
+/// are plain values: serde would read `activation: !tanh` as the word `tanh`, and a
+/// tag the document's reader cannot see should not change what a step computes.
+pub fn first_tag(value: &Value) -> Option<(String, &Value)> {
+    match value {
+        Value::Tagged(tagged) => Some((tagged.tag.to_string(), &tagged.value)),
+        Value::Sequence(items) => items.iter().find_map(first_tag),
+        Value::Mapping(map) => map
+            .iter()
+            .find_map(|(key, value)| first_tag(key).or_else(|| first_tag(value))),
+        _ => None,
+    }
+}
+
+/// Whether `block` nests within [`MAX_NESTING`]; records a problem where it does not.
+fn shallow_enough(block: Block<'_>, problems: &mut Vec<Problem>) -> bool {
+    let Some(at) = first_too_deep(block.text) else {
+        return true;
+    };
+    let start = block.offset + at;
+    problems.push(
+        Problem::new(
+            start..start + 1,
+            format!("the settings nest more than {MAX_NESTING} levels deep here"),
+        )
+        .with_help("settings nest a few levels at most: a list, or a map of lists"),
+    );
+    false
 }
 
 /// Deepest nesting of lists and maps a block may have. Settings nest two or three
@@ -156,7 +193,12 @@ fn problem_from(error: &serde_yaml::Error, block: Block<'_>, known: &[&str]) -> 
 /// key at line 2 column 1"). The diagnostic already says where, in document
 /// coordinates, so every block-relative position is dropped.
 fn plain_message(error: &serde_yaml::Error) -> String {
-    let text = drop_positions(&error.to_string());
+    plain_text(&error.to_string())
+}
+
+/// A serde_yaml message without positions, in the document's words for settings.
+pub(crate) fn plain_text(message: &str) -> String {
+    let text = drop_positions(message);
     let text = text.replace("unknown field", "unknown setting");
     text.replacen("missing field", "missing setting", 1)
 }
@@ -182,7 +224,7 @@ fn drop_positions(text: &str) -> String {
     kept
 }
 
-fn unknown_key(message: &str) -> Option<&str> {
+pub(crate) fn unknown_key(message: &str) -> Option<&str> {
     let rest = message.strip_prefix("unknown setting `")?;
     rest.split('`').next()
 }

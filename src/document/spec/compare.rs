@@ -3,7 +3,7 @@
 use serde::{Deserialize, Serialize};
 
 use super::Checker;
-use super::sweep::MetricName;
+use super::sweep::{MetricName, repeated};
 
 /// What the compare card charts.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize)]
@@ -40,6 +40,11 @@ pub(super) fn validate_compare(raw: RawCompare, check: &mut Checker<'_>) -> Comp
     check.require(!raw.runs.is_empty(), "runs", || {
         "runs must list at least one train or sweep step".into()
     });
+    if let Some(twice) = repeated(&raw.runs) {
+        check.require(false, "runs", || {
+            format!("runs lists '{twice}' twice; each run is one row of the table")
+        });
+    }
     if let Some(metrics) = &raw.metrics {
         check.require(!metrics.is_empty(), "metrics", || {
             "metrics must list at least one metric".into()

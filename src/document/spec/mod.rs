@@ -3,14 +3,16 @@
 //! module sees raw YAML. A validated spec serialises canonically (fixed field order),
 //! which is what enters a step's cache key.
 
+mod accepts;
 pub mod compare;
 pub mod model_use;
 pub mod sweep;
 
 use serde::{Deserialize, Deserializer, Serialize};
+use serde_yaml::{Mapping, Value};
 
 use super::StepBlock;
-use super::problem::Problem;
+use super::problem::{Problem, nearest};
 use super::yaml::{self, Block};
 use crate::data::{DataSettings, Missing, Scale, Split, Task};
 use crate::nn::{Activation, BatchSize, Init, Optimizer, Precision};
@@ -332,6 +334,7 @@ pub fn parse_step(
         }
         StepKind::Train => {
             let raw: RawTrain = deserialize(block, TRAIN_KEYS, &step.info_span, check.problems)?;
+            refuse_momentum_with_adam(&raw, &mut check);
             StepSpec::Train(validate_train(raw, default_seed, &mut check))
         }
         StepKind::Sweep => {
@@ -369,21 +372,140 @@ pub fn parse_step(
     (problems.len() == before).then_some(spec)
 }
 
-/// An empty block deserialises as YAML null; report it as missing settings instead.
+/// Reads a block's settings into its raw struct. Every problem names the setting and
+/// points at its line: the block is parsed as a YAML map first, tags are refused, and
+/// a value that does not fit is described in the document's words (see `accepts`).
 fn deserialize<T: serde::de::DeserializeOwned>(
     block: Block<'_>,
     known: &[&str],
     info_span: &std::ops::Range<usize>,
     problems: &mut Vec<Problem>,
 ) -> Option<T> {
+    let no_settings = || {
+        Problem::new(info_span.clone(), "the step has no settings")
+            .with_help(format!("settings of this kind: {}", known.join(", ")))
+    };
     if block.text.trim().is_empty() {
-        problems.push(
-            Problem::new(info_span.clone(), "the step has no settings")
-                .with_help(format!("settings of this kind: {}", known.join(", "))),
-        );
+        problems.push(no_settings());
         return None;
     }
-    yaml::deserialize(block, known, problems)
+    let settings = match yaml::parse_value(block, problems)? {
+        Value::Mapping(settings) => settings,
+        // A block of comments only.
+        Value::Null => {
+            problems.push(no_settings());
+            return None;
+        }
+        other => {
+            let span = block.offset..block.offset + block.text.trim_end().len();
+            problems.push(
+                Problem::new(
+                    span,
+                    format!(
+                        "settings are written as `name: value` lines, not as {}",
+                        shape_of(&other)
+                    ),
+                )
+                .with_help(format!("settings of this kind: {}", known.join(", "))),
+            );
+            return None;
+        }
+    };
+    if refuse_tags(block, &settings, problems) {
+        return None;
+    }
+    match serde_path_to_error::deserialize(Value::Mapping(settings.clone())) {
+        Ok(raw) => Some(raw),
+        Err(error) => {
+            problems.push(misfit_problem(block, info_span, known, &settings, &error));
+            None
+        }
+    }
+}
+
+fn shape_of(value: &Value) -> &'static str {
+    match value {
+        Value::Sequence(_) => "a list",
+        Value::Tagged(_) => "a tagged value",
+        _ => "a single value",
+    }
+}
+
+/// Records a problem for every setting that carries a YAML tag; whether there was one.
+fn refuse_tags(block: Block<'_>, settings: &Mapping, problems: &mut Vec<Problem>) -> bool {
+    let before = problems.len();
+    for (key, value) in settings {
+        let name = key.as_str().unwrap_or_default();
+        if let Some((tag, tagged)) = yaml::first_tag(key).or_else(|| yaml::first_tag(value)) {
+            let span = key_span(block, name).unwrap_or(block.offset..block.offset);
+            let plain = match tagged {
+                Value::Null => tag.trim_start_matches('!').to_string(),
+                other => sweep::value_text(other),
+            };
+            let help = if matches!(value, Value::Tagged(_)) {
+                format!("write the value itself: {name}: {plain}")
+            } else {
+                format!("write {plain} without the tag")
+            };
+            problems.push(
+                Problem::new(
+                    span,
+                    format!("{name}: YAML tags such as `{tag}` are not setting values"),
+                )
+                .with_help(help),
+            );
+        }
+    }
+    problems.len() > before
+}
+
+/// The problem for settings that did not deserialise: an unknown or missing setting,
+/// or a value that does not fit its setting, at that setting's line.
+fn misfit_problem(
+    block: Block<'_>,
+    info_span: &std::ops::Range<usize>,
+    known: &[&str],
+    settings: &Mapping,
+    error: &serde_path_to_error::Error<serde_yaml::Error>,
+) -> Problem {
+    let message = error.inner().to_string();
+    if let Some(unknown) = yaml::unknown_key(&yaml::plain_text(&message)) {
+        let span = key_span(block, unknown).unwrap_or(info_span.clone());
+        return Problem::new(span, yaml::plain_text(&message)).with_help(
+            match nearest(unknown, known.iter().copied()) {
+                Some(suggestion) => format!("did you mean '{suggestion}'?"),
+                None => format!("known settings here: {}", known.join(", ")),
+            },
+        );
+    }
+    let (setting, message, help) = describe_misfit(settings, error);
+    // A missing setting has no line of its own; the step's info string stands for it.
+    let span = match setting {
+        "" => None,
+        setting => key_span(block, setting),
+    };
+    let problem = Problem::new(span.unwrap_or(info_span.clone()), message);
+    match help {
+        Some(help) => problem.with_help(help),
+        None => problem,
+    }
+}
+
+/// The setting whose value did not deserialise, the message naming it and what it
+/// accepts, and a suggestion.
+pub(crate) fn describe_misfit<'a>(
+    settings: &Mapping,
+    error: &'a serde_path_to_error::Error<serde_yaml::Error>,
+) -> (&'a str, String, Option<String>) {
+    let setting = match error.path().iter().next() {
+        Some(serde_path_to_error::Segment::Map { key }) => key.as_str(),
+        _ => "",
+    };
+    let value = settings.get(setting).unwrap_or(&Value::Null);
+    match accepts::misfit(setting, value) {
+        Some((message, help)) => (setting, message, help),
+        None => (setting, yaml::plain_text(&error.inner().to_string()), None),
+    }
 }
 
 fn validate_data(raw: RawData, default_seed: u64, check: &mut Checker<'_>) -> DataSpec {
@@ -447,6 +569,16 @@ pub(crate) fn validate_net(raw: RawNet, check: &mut Checker<'_>) -> NetSpec {
         output: raw.output.unwrap_or(OutputChoice::Auto),
         init: raw.init.unwrap_or(Init::Xavier),
     }
+}
+
+/// Adam keeps its own moment estimates, so a written `momentum` would silently do
+/// nothing. Only a written train step is checked: a sweep that varies the optimizer
+/// may try adam from a base that sets momentum for sgd (see `plan_checks`).
+fn refuse_momentum_with_adam(raw: &RawTrain, check: &mut Checker<'_>) {
+    let adam = matches!(raw.optimizer, Some(OptimizerKind::Adam));
+    check.require(!(adam && raw.momentum.is_some()), "momentum", || {
+        "momentum applies to sgd only, and this step trains with adam, which keeps its own moment estimates".into()
+    });
 }
 
 pub(crate) fn validate_train(

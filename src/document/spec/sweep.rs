@@ -5,8 +5,8 @@ use serde::{Deserialize, Serialize};
 use serde_yaml::{Mapping, Value};
 
 use super::{
-    Checker, NET_KEYS, NetSpec, RawNet, RawTrain, TRAIN_KEYS, TrainSpec, validate_net,
-    validate_train,
+    Checker, NET_KEYS, NetSpec, RawNet, RawTrain, TRAIN_KEYS, TrainSpec, describe_misfit,
+    validate_net, validate_train,
 };
 use crate::document::StepBlock;
 use crate::document::problem::{Problem, nearest};
@@ -93,7 +93,15 @@ pub(super) fn validate_sweep(raw: RawSweep, check: &mut Checker<'_>) -> SweepSpe
             continue;
         }
         match values {
-            Value::Sequence(values) if !values.is_empty() => vary.push((name, values)),
+            Value::Sequence(values) if !values.is_empty() => {
+                if let Some(twice) = repeated(&values) {
+                    let twice = value_text(twice);
+                    check.require(false, "vary", || {
+                        format!("vary: {name} lists {twice} twice; each value is run once")
+                    });
+                }
+                vary.push((name, values))
+            }
             _ => check.require(false, "vary", || {
                 format!("vary: {name} needs a non-empty list of values")
             }),
@@ -110,6 +118,15 @@ pub(super) fn validate_sweep(raw: RawSweep, check: &mut Checker<'_>) -> SweepSpe
         repeat,
         rank_by: raw.rank_by,
     }
+}
+
+/// The first value that appears again later in `values`.
+pub(super) fn repeated<T: PartialEq>(values: &[T]) -> Option<&T> {
+    values
+        .iter()
+        .enumerate()
+        .find(|(i, value)| values[i + 1..].contains(value))
+        .map(|(_, value)| value)
 }
 
 impl SweepSpec {
@@ -200,18 +217,16 @@ pub fn variant(
         prefix: format!("with {described}: "),
         problems,
     };
-    let raw_train: Result<RawTrain, _> = serde_yaml::from_value(Value::Mapping(train_map));
-    let raw_net: Result<RawNet, _> = serde_yaml::from_value(Value::Mapping(net_map));
-    let (raw_train, raw_net) = match (raw_train, raw_net) {
+    let raw_train = serde_path_to_error::deserialize(Value::Mapping(train_map.clone()))
+        .map_err(|error| describe_misfit(&train_map, &error).1);
+    let raw_net = serde_path_to_error::deserialize(Value::Mapping(net_map.clone()))
+        .map_err(|error| describe_misfit(&net_map, &error).1);
+    let (raw_train, raw_net): (RawTrain, RawNet) = match (raw_train, raw_net) {
         (Ok(t), Ok(n)) => (t, n),
-        (Err(error), _) | (_, Err(error)) => {
-            let message = error.to_string();
-            let message = message
-                .split(" at line ")
-                .next()
-                .unwrap_or(&message)
-                .to_string();
-            check.require(false, "vary", || message);
+        (train, net) => {
+            for message in [train.err(), net.err()].into_iter().flatten() {
+                check.require(false, "vary", || message);
+            }
             return None;
         }
     };
