@@ -246,6 +246,27 @@ fn writes_that_name_no_file_are_refused_when_planning() {
 }
 
 #[test]
+fn a_predict_write_of_yaml_empty_value_is_refused_not_taken_as_no_file() {
+    for write in ["~", "null", "Null", ""] {
+        let step =
+            format!("```yaml predict again\nmodel: quick\nfile: new.csv\nwrite: {write}\n```");
+        let ws = victim(&document(&step));
+        let output = run(&ws, &["build", "victim.md"]);
+        let err = stderr(&output);
+        assert_eq!(output.status.code(), Some(2), "write: {write}: {err}");
+        let line = line_of(
+            &std::fs::read_to_string(ws.path("victim.md")).unwrap(),
+            &format!("write: {write}"),
+        );
+        assert!(
+            err.contains(&format!("victim.md:{line}:1")) && err.contains("write must name a file"),
+            "write: {write}: {err}"
+        );
+        assert!(!ws.path("victim.html").exists());
+    }
+}
+
+#[test]
 fn a_write_that_fails_at_the_end_fails_its_step_and_the_report_is_still_written() {
     // /proc takes no new files, not even from root: the path passes every check when
     // planning and fails only when written.

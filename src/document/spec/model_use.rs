@@ -9,7 +9,10 @@ use super::Checker;
 pub(super) struct RawPredict {
     model: String,
     file: String,
-    write: Option<String>,
+    /// `Some(None)` when `write:` is present but empty (`~`, `null`): YAML's empty
+    /// value, which must not quietly mean "write nothing".
+    #[serde(default, deserialize_with = "present")]
+    write: Option<Option<String>>,
 }
 pub(super) const PREDICT_KEYS: &[&str] = &["model", "file", "write"];
 
@@ -28,15 +31,25 @@ pub(super) fn validate_predict(raw: RawPredict, check: &mut Checker<'_>) -> Pred
         "file must name a CSV file".into()
     });
     if let Some(write) = &raw.write {
-        check.require(!write.trim().is_empty(), "write", || {
-            "write must name a file".into()
+        let named = write.as_deref().is_some_and(|name| !name.trim().is_empty());
+        check.require(named, "write", || {
+            "write must name a file (`~` and `null` are YAML's empty value: quote a file \
+             of that name, or leave write out to keep the predictions in the report only)"
+                .into()
         });
     }
     PredictSpec {
         model: raw.model,
         file: raw.file,
-        write: raw.write,
+        write: raw.write.flatten(),
     }
+}
+
+/// Deserialises a setting that is present, whatever its value, as `Some`.
+fn present<'de, D: serde::Deserializer<'de>>(
+    deserializer: D,
+) -> Result<Option<Option<String>>, D::Error> {
+    Option::<String>::deserialize(deserializer).map(Some)
 }
 
 #[derive(Deserialize)]
