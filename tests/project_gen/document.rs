@@ -98,16 +98,26 @@ fn one_of(g: &mut Draw<'_, '_>, usual: &[&str], odd: &[&str]) -> Drawn<String> {
     Ok(g.u.choose(pool)?.to_string())
 }
 
-/// A YAML flow list of `count` values drawn by `item`.
+/// A YAML flow list of `count` values drawn by `item`; a value drawn twice is kept
+/// twice only when the document breaks there (stet refuses repeated values).
 fn list(
     g: &mut Draw<'_, '_>,
     count: std::ops::RangeInclusive<usize>,
     mut item: impl FnMut(&mut Draw<'_, '_>) -> Drawn<String>,
 ) -> Drawn<String> {
-    let items: Vec<String> = (0..g.u.int_in_range(count)?)
+    let mut items: Vec<String> = (0..g.u.int_in_range(count)?)
         .map(|_| item(g))
         .collect::<Drawn<_>>()?;
+    if !g.breaks()? {
+        distinct(&mut items, |item| item.clone());
+    }
     Ok(format!("[{}]", items.join(", ")))
+}
+
+/// Keeps the first of each group of items with the same `key`.
+fn distinct(items: &mut Vec<String>, key: impl Fn(&String) -> String) {
+    let mut seen = std::collections::HashSet::new();
+    items.retain(|item| seen.insert(key(item)));
 }
 
 /// An id of a step of one of `kinds`; sometimes one that dangles or names another kind.
@@ -370,7 +380,13 @@ fn train_settings(g: &mut Draw<'_, '_>, skeleton: &Skeleton, out: &mut Lines) ->
         LEARNING_RATES,
         ODD_LEARNING_RATES,
     )?;
-    maybe(g, out, (1, 3), "momentum", MOMENTA, ODD_MOMENTA)?;
+    // Momentum under adam is refused; written there only when the document breaks.
+    let adam = out
+        .iter()
+        .any(|(key, value)| key == "optimizer" && value == "adam");
+    if !adam || g.breaks()? {
+        maybe(g, out, (1, 3), "momentum", MOMENTA, ODD_MOMENTA)?;
+    }
     maybe(g, out, (1, 2), "batch", BATCHES, ODD_BATCHES)?;
     maybe(g, out, (19, 20), "epochs", EPOCHS, ODD_EPOCHS)?;
     maybe(
@@ -427,9 +443,14 @@ fn sweep_settings(g: &mut Draw<'_, '_>, skeleton: &Skeleton, out: &mut Lines) ->
     let vary = match g.breaks()? {
         true => g.u.choose(&["[]", "{}", "x"])?.to_string(),
         false => {
-            let entries: Vec<String> = (0..g.u.int_in_range(1..=2)?)
+            let mut entries: Vec<String> = (0..g.u.int_in_range(1..=2)?)
                 .map(|_| varied(g))
                 .collect::<Drawn<_>>()?;
+            if !g.breaks()? {
+                distinct(&mut entries, |entry| {
+                    entry.split(':').next().unwrap_or_default().to_string()
+                });
+            }
             format!("{{{}}}", entries.join(", "))
         }
     };
