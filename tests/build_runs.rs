@@ -45,7 +45,9 @@ fn runs_trained(summary: &Value, id: &str) -> u64 {
 fn two_train_steps_with_equal_settings_share_one_run_trained_once() {
     let ws = Workspace::new();
     let train = |id: &str| {
-        format!("```yaml train {id}\ndata: iris\nnet: small\nlearning_rate: 0.05\nepochs: 20\n```\n\n")
+        format!(
+            "```yaml train {id}\ndata: iris\nnet: small\nlearning_rate: 0.05\nepochs: 20\n```\n\n"
+        )
     };
     let doc = ws.write(
         "twins.md",
@@ -235,7 +237,11 @@ fn over_one_two_or_three_shares_every_run_is_trained_exactly_once() {
         let trained: Vec<usize> = (1..=count)
             .map(|index| trained_by_share(&ws, &doc, &cache, &format!("{index}/{count}")))
             .collect();
-        assert_eq!(trained.iter().sum::<usize>(), all, "{count} shares: {trained:?}");
+        assert_eq!(
+            trained.iter().sum::<usize>(),
+            all,
+            "{count} shares: {trained:?}"
+        );
         let (fewest, most) = (trained.iter().min().unwrap(), trained.iter().max().unwrap());
         assert!(most - fewest <= 1, "{count} shares: {trained:?}");
         assert_eq!(run_entries(&cache), all, "{count} shares");

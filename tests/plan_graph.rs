@@ -92,7 +92,15 @@ fn independent_steps_keep_document_order() {
     // Each time, the first step in the document whose inputs are done runs next.
     assert_eq!(
         order_ids(&plan),
-        ["iris", "small", "first", "iris_again", "second", "both", "unused"]
+        [
+            "iris",
+            "small",
+            "first",
+            "iris_again",
+            "second",
+            "both",
+            "unused"
+        ]
     );
 }
 
@@ -105,7 +113,11 @@ fn a_demo_document_written_in_reading_order_runs_in_document_order() {
             .unwrap_or_else(|error| panic!("{demo}: {error}"))
             .plan;
         assert_every_step_follows_what_it_reads(&plan);
-        assert_eq!(plan.order, (0..plan.steps.len()).collect::<Vec<_>>(), "{demo}");
+        assert_eq!(
+            plan.order,
+            (0..plan.steps.len()).collect::<Vec<_>>(),
+            "{demo}"
+        );
     }
 }
 
