@@ -74,9 +74,12 @@ mod tests {
     }
 
     #[test]
-    fn the_same_inputs_give_the_same_shares() {
-        assert_eq!(shares(13, 4), shares(13, 4));
-        assert_eq!(shares(10, 4)[1], vec![1, 5, 9]);
+    fn share_k_takes_every_nth_run_from_position_k_minus_one() {
+        assert_eq!(
+            shares(10, 4),
+            [vec![0, 4, 8], vec![1, 5, 9], vec![2, 6], vec![3, 7]]
+        );
+        assert_eq!(shares(2, 3), [vec![0], vec![1], vec![]]);
     }
 
     #[test]

@@ -1,0 +1,165 @@
+//! The `--json` summary against its documented JSON Schema, `schema/stet-summary.json`
+//! (draft 2020-12): the demo documents' summaries, built and rebuilt, and a summary with
+//! a failed step match it, and a summary the schema would let through wrongly is refused.
+
+mod common;
+
+use common::{Workspace, project, step};
+use jsonschema::Validator;
+use serde_json::Value;
+
+fn schema() -> Value {
+    let text = std::fs::read_to_string(project().join("schema/stet-summary.json"))
+        .expect("schema/stet-summary.json is readable");
+    serde_json::from_str(&text).expect("the summary schema is JSON")
+}
+
+fn validator() -> Validator {
+    jsonschema::draft202012::new(&schema()).expect("the summary schema compiles")
+}
+
+fn assert_matches_schema(summary: &Value, what: &str) {
+    let validator = validator();
+    let errors: Vec<String> = validator
+        .iter_errors(summary)
+        .map(|error| format!("{}: {error}", error.instance_path()))
+        .collect();
+    assert!(errors.is_empty(), "{what}: {errors:#?}");
+}
+
+#[test]
+fn the_summary_schema_is_itself_a_valid_draft_2020_12_schema() {
+    let schema = schema();
+    assert_eq!(
+        schema["$schema"],
+        "https://json-schema.org/draft/2020-12/schema"
+    );
+    jsonschema::draft202012::meta::validate(&schema).expect("a valid schema");
+}
+
+#[test]
+fn the_demo_documents_summaries_match_the_summary_schema_built_and_reused() {
+    let ws = Workspace::new();
+    for demo in ["hives.md", "greenhouse.md"] {
+        let doc = ws.demo(demo);
+        let built = ws.build_ok(&doc, &[]);
+        assert_matches_schema(&built, &format!("{demo}, first build"));
+        let reused = ws.build_ok(&doc, &[]);
+        assert!(
+            reused["steps"]
+                .as_array()
+                .unwrap()
+                .iter()
+                .all(|step| step["status"] == "reused"),
+            "{reused}"
+        );
+        assert_matches_schema(&reused, &format!("{demo}, rebuilt"));
+    }
+}
+
+/// Fisher's Iris data (tests/data/README.md) beside a CSV whose second row is short of a
+/// cell, which fails its data step and the train reading it when the build runs.
+const WITH_A_FAILURE: &str = "\
+```yaml data iris
+file: iris.csv
+target: species
+```
+
+```yaml net small
+hidden: [3]
+```
+
+```yaml train fit
+data: iris
+net: small
+epochs: 10
+```
+
+```yaml data broken
+file: broken.csv
+target: colour
+```
+
+```yaml train on_broken
+data: broken
+net: small
+epochs: 10
+```
+";
+
+/// The summary of a build whose `broken` and `on_broken` steps failed.
+fn summary_with_a_failure(ws: &Workspace) -> Value {
+    ws.write("broken.csv", "size,colour\n1,red\n2\n3,blue\n");
+    let doc = ws.write("failing.md", WITH_A_FAILURE);
+    let (output, summary) = ws.build(&doc, &[]);
+    assert_eq!(output.status.code(), Some(1));
+    let summary = summary.expect("a summary");
+    assert_eq!(step(&summary, "on_broken")["status"], "failed");
+    summary
+}
+
+#[test]
+fn a_summary_with_a_failed_step_matches_the_summary_schema() {
+    let ws = Workspace::new();
+    assert_matches_schema(&summary_with_a_failure(&ws), "a failed step");
+}
+
+/// The index in `steps` of the step with `id`.
+fn step_index(summary: &Value, id: &str) -> usize {
+    summary["steps"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .position(|step| step["id"] == id)
+        .unwrap()
+}
+
+#[test]
+fn a_summary_with_a_wrong_status_word_fails_the_summary_schema() {
+    let ws = Workspace::new();
+    let mut summary = summary_with_a_failure(&ws);
+    let at = step_index(&summary, "fit");
+    summary["steps"][at]["status"] = "skipped".into();
+    let validator = validator();
+    let paths: Vec<String> = validator
+        .iter_errors(&summary)
+        .map(|error| error.instance_path().to_string())
+        .collect();
+    assert!(
+        paths.contains(&format!("/steps/{at}/status")),
+        "the status word was not refused: {paths:?}"
+    );
+}
+
+#[test]
+fn a_failed_step_without_its_error_or_a_train_without_metrics_fails_the_schema() {
+    let ws = Workspace::new();
+    let summary = summary_with_a_failure(&ws);
+    let validator = validator();
+    for (id, field) in [
+        ("on_broken", "error"),
+        ("fit", "metrics"),
+        ("fit", "seconds"),
+    ] {
+        let mut changed = summary.clone();
+        let at = step_index(&changed, id);
+        changed["steps"][at].as_object_mut().unwrap().remove(field);
+        assert!(
+            !validator.is_valid(&changed),
+            "'{id}' without {field} passed"
+        );
+    }
+}
+
+#[test]
+fn a_step_with_a_field_the_schema_does_not_describe_fails_the_summary_schema() {
+    let ws = Workspace::new();
+    let summary = summary_with_a_failure(&ws);
+    let validator = validator();
+    for id in ["iris", "fit", "on_broken"] {
+        let mut changed = summary.clone();
+        let at = step_index(&changed, id);
+        changed["steps"][at]["colour"] = "red".into();
+        assert!(!validator.is_valid(&changed), "'{id}' with colour passed");
+    }
+}
