@@ -3,7 +3,7 @@
 //! with its own cache, and judged. A build must finish within the deadline without a
 //! panic; exit 2 must come with problems that each lie inside the document, rendered
 //! without a panic, and with nothing written but cache entries; exit 0 or 1 must write the report; and
-//! whatever happens, the document and the CSV files keep their bytes and nothing
+//! whatever happens, the document and the CSV files its steps read keep their bytes and nothing
 //! appears outside the project.
 
 use std::collections::BTreeMap;
@@ -46,7 +46,7 @@ pub enum Failure {
     /// Exit 2, but files outside the cache appeared or changed in the project.
     WroteOnRefusal(Vec<String>),
     NoReport,
-    /// The document or a CSV file lost its bytes.
+    /// The document or a CSV file named in a `file:` line lost its bytes.
     InputChanged(String),
     /// Something was written outside the project folder.
     WroteOutside(Vec<String>),
@@ -156,11 +156,23 @@ pub fn check(project: &Project) -> Verdict {
         verdict.failures.push(Failure::WroteOutside(outside));
     }
     for (path, bytes) in &inputs {
-        if std::fs::read(root.join(path)).ok().as_ref() != Some(bytes) {
+        let read = path == DOCUMENT || named_as_file(&project.document, path);
+        if read && std::fs::read(root.join(path)).ok().as_ref() != Some(bytes) {
             verdict.failures.push(Failure::InputChanged(path.clone()));
         }
     }
     verdict
+}
+
+/// Whether a `file:` line of the document names `path` (by its last component, so any
+/// spelling of the path counts). A CSV no step reads is the document's to overwrite
+/// with a `write:`, as a rebuild overwrites its last predictions.
+fn named_as_file(document: &[u8], path: &str) -> bool {
+    let name = path.rsplit('/').next().unwrap_or(path);
+    String::from_utf8_lossy(document)
+        .split(['\n', '\r'])
+        .filter_map(|line| line.trim_start().strip_prefix("file:"))
+        .any(|value| value.contains(name))
 }
 
 /// Writes the project under `root` and a secret file and a link beside and into it;
