@@ -1,40 +1,30 @@
 //! stet: run a Markdown experiment document and render its report.
 //!
 //! The flow is document → plan → run → report: [`document`] parses the Markdown and
-//! the step settings, [`plan`] resolves references and computes cache keys, [`run`]
-//! executes what the [`cache`] does not hold, and [`report`] renders HTML and JSON.
+//! the step settings, [`plan`] resolves references and computes cache keys, [`build`]
+//! executes what the [`cache`] does not hold, and [`report`] renders HTML and JSON;
+//! [`cluster`] spreads a build's runs over a Slurm job array.
 //! The command layer (`main.rs`) only parses flags, calls [`build`] and maps errors
 //! to exit codes.
 
-pub mod atomic;
+pub mod build;
 pub mod cache;
-pub mod confine;
+pub mod cluster;
 pub mod data;
-pub mod dispatch;
 pub mod document;
-pub mod fit;
-pub mod freshness;
-pub mod input_file;
-pub mod manifest;
 pub mod nn;
-pub mod outcome;
-pub mod outputs;
 pub mod plan;
-mod plan_checks;
-pub mod prune;
 pub mod report;
-pub mod run;
-pub mod shard;
-pub mod use_model;
 
 use std::path::{Path, PathBuf};
 use std::time::Duration;
 
-use cache::Cache;
+use build::{RunOptions, StepRecord, outcome, share};
+use cache::{Cache, atomic, freshness, manifest, pruning};
 use document::{Document, DocumentErrors, Problem};
-use input_file::InputError;
 use plan::Plan;
-use run::{RunOptions, StepRecord};
+use plan::input_file::{self, InputError};
+use plan::outputs;
 
 /// Where the cache lives.
 #[derive(Clone, Debug)]
@@ -186,7 +176,7 @@ pub fn build(options: &BuildOptions) -> Result<BuildSummary, Error> {
         jobs: options.jobs,
         progress: Some(progress),
     };
-    let mut records = run::execute(&loaded.plan, &cache, &run_options);
+    let mut records = build::execute(&loaded.plan, &cache, &run_options);
     manifest::store(&cache, &options.document, &loaded.plan);
     write_model_files(&loaded.plan, &mut records);
     let built_at = build_time();
@@ -293,8 +283,8 @@ fn remove_stale_temporaries(plan: &Plan, targets: &outputs::BuildTargets) {
 /// cache and renders nothing; what a cluster task runs.
 pub fn build_share(
     options: &BuildOptions,
-    share: shard::Share,
-) -> Result<run::ShareSummary, Error> {
+    share: share::Share,
+) -> Result<build::ShareSummary, Error> {
     let loaded = load(&options.document, &options.plan)?;
     let cache = open_cache(&options.cache, &options.document);
     if cache.dir().is_none() {
@@ -304,7 +294,7 @@ pub fn build_share(
         jobs: options.jobs,
         progress: None,
     };
-    Ok(run::execute_share(
+    Ok(build::execute_share(
         &loaded.plan,
         &cache,
         &run_options,
@@ -334,7 +324,7 @@ pub fn dispatch(
     if tasks == 0 {
         return Err(Error::Usage("--tasks must be at least 1".into()));
     }
-    let slurm = dispatch::Slurm::locate(wait.is_some()).map_err(Error::Usage)?;
+    let slurm = cluster::Slurm::locate(wait.is_some()).map_err(Error::Usage)?;
     let loaded = load(&options.document, &options.plan)?;
     let cache = open_cache(&options.cache, &options.document);
     let Some(dir) = cache.dir() else {
@@ -351,19 +341,19 @@ pub fn dispatch(
         .document
         .canonicalize()
         .map_err(io(format!("resolving {}", options.document.display())))?;
-    if let Some((id, error)) = run::prepare_only(&loaded.plan, &cache).into_iter().next() {
+    if let Some((id, error)) = build::prepare_only(&loaded.plan, &cache).into_iter().next() {
         return Err(Error::Usage(format!(
             "step '{id}' failed before any training: {error}"
         )));
     }
-    let request = dispatch::DispatchRequest {
+    let request = cluster::DispatchRequest {
         document: &document,
         cache_dir: &cache_dir,
         tasks,
         sbatch_options,
         plan: &options.plan,
     };
-    let (job, script) = dispatch::submit(&request, &slurm.sbatch).map_err(Error::Usage)?;
+    let (job, script) = cluster::submit(&request, &slurm.sbatch).map_err(Error::Usage)?;
     let (Some(timeout), Some(squeue)) = (wait, &slurm.squeue) else {
         return Ok(Dispatched {
             job,
@@ -372,7 +362,7 @@ pub fn dispatch(
         });
     };
     eprintln!("submitted job {job} ({tasks} tasks); waiting for it");
-    dispatch::wait_for(&job, squeue, timeout).map_err(Error::Usage)?;
+    cluster::wait_for(&job, squeue, timeout).map_err(Error::Usage)?;
     let (cached, all) = freshness::run_totals(&loaded.plan, &cache);
     let missing = all - cached;
     let finished = if missing > 0 {
@@ -411,7 +401,7 @@ pub struct StatusReport {
 }
 
 /// `stet clean`: removes the cache entries no document still uses (see
-/// `prune::entries_in_use`); with no document, the whole cache. The cache is the one
+/// `pruning::entries_in_use`); with no document, the whole cache. The cache is the one
 /// the first document (or the current folder) would use. With `dry_run` nothing is
 /// removed and the result lists what would be.
 pub fn clean(
@@ -419,14 +409,14 @@ pub fn clean(
     cache: &CacheChoice,
     options: &plan::PlanOptions,
     dry_run: bool,
-) -> Result<prune::Cleaning, Error> {
+) -> Result<pruning::Cleaning, Error> {
     let anchor = documents
         .first()
         .cloned()
         .unwrap_or_else(|| PathBuf::from("stet.md"));
     let cache = open_cache(cache, &anchor);
     let Some(dir) = cache.dir().map(Path::to_path_buf) else {
-        return Ok(prune::Cleaning::default());
+        return Ok(pruning::Cleaning::default());
     };
     let loaded = documents
         .iter()
@@ -436,7 +426,7 @@ pub fn clean(
     let keep = if documents.is_empty() {
         None
     } else {
-        let in_use = prune::entries_in_use(&cache, documents, &plans).map_err(|error| {
+        let in_use = pruning::entries_in_use(&cache, documents, &plans).map_err(|error| {
             Error::Usage(format!(
                 "{error}; nothing was removed, since what its document uses is unknown \
                  (remove that record, or clean the whole cache with `stet clean --cache {}`)",
@@ -445,7 +435,7 @@ pub fn clean(
         })?;
         Some(in_use)
     };
-    Ok(prune::remove_unused(&dir, keep.as_ref(), dry_run))
+    Ok(pruning::remove_unused(&dir, keep.as_ref(), dry_run))
 }
 
 fn summarise(
@@ -454,13 +444,13 @@ fn summarise(
     records: &[StepRecord],
     warnings: Vec<String>,
 ) -> BuildSummary {
-    let tally = run::tally(records);
+    let tally = build::tally(records);
     BuildSummary {
         report,
         steps: records.len(),
         ran: tally.ran,
         reused: tally.reused,
-        failed: run::failures(plan, records.iter().map(Some)),
+        failed: build::failures(plan, records.iter().map(Some)),
         warnings,
     }
 }
@@ -474,7 +464,7 @@ fn write_model_files(plan: &Plan, records: &mut [StepRecord]) {
             continue;
         };
         if let Err(error) = atomic::write(&output.path, bytes) {
-            record.status = run::Status::Failed {
+            record.status = build::Status::Failed {
                 error: format!("writing {}: {error}", output.path.display()),
             };
         }

@@ -6,8 +6,8 @@ use std::process::ExitCode;
 use std::time::Duration;
 
 use clap::{Parser, Subcommand};
+use stet::build::share::Share;
 use stet::plan::{Limits, PlanOptions};
-use stet::shard::Share;
 use stet::{BuildOptions, CacheChoice, Error};
 
 #[derive(Parser)]
@@ -275,7 +275,7 @@ fn run(command: Command) -> Result<ExitCode, Error> {
 }
 
 /// Prints what a clean removed (or would remove) and what it passed over.
-fn report_clean(cleaning: &stet::prune::Cleaning, dry_run: bool) {
+fn report_clean(cleaning: &stet::cache::pruning::Cleaning, dry_run: bool) {
     for skipped in &cleaning.skipped {
         eprintln!(
             "warning: left {} in place: {}",

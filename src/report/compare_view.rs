@@ -5,8 +5,8 @@ use serde::Serialize;
 
 use super::chart::{self, Axes, Series};
 use super::view::{mean_curve, stat_text, stop_counts};
+use crate::build::outcome::{FitResult, RowSet, SetMetrics, SweepResult};
 use crate::document::spec::{ChartChoice, CompareSpec, MetricName};
-use crate::outcome::{FitResult, RowSet, SetMetrics, SweepResult};
 use crate::plan::describe;
 
 /// Lines a chart of several fits draws at most, so that it stays legible.

@@ -17,10 +17,10 @@ use minijinja::Environment;
 use pulldown_cmark::{Event, Parser, Tag};
 use serde::Serialize;
 
+use crate::build::outcome::Outcome;
+use crate::build::{Status, StepRecord};
 use crate::document::{Document, Piece, StepSpec};
-use crate::outcome::Outcome;
 use crate::plan::{Plan, short_key};
-use crate::run::{Status, StepRecord};
 use compare_view::{CompareView, Compared, SweepView, compare_view, sweep_view};
 use format::seconds;
 use model_view::{ExportView, PredictView, export_view, predict_view};
@@ -167,7 +167,7 @@ fn title(input: &ReportInput<'_>) -> String {
 
 /// Steps, how many ran and were reused (and failed), and the time spent training.
 fn run_summary(records: &[StepRecord]) -> String {
-    let tally = crate::run::tally(records);
+    let tally = crate::build::tally(records);
     let mut summary = format!(
         "{} steps · {} ran · {} reused",
         records.len(),

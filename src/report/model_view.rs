@@ -3,7 +3,7 @@
 use serde::Serialize;
 
 use super::format::number;
-use crate::outcome::{ExportResult, PredictResult};
+use crate::build::outcome::{ExportResult, PredictResult};
 
 /// Rows a predict card shows; the written CSV has them all.
 const SHOWN_ROWS: usize = 50;

@@ -4,9 +4,9 @@
 use serde_json::{Map, Value, json};
 
 use super::format::stop_code;
-use crate::outcome::{FitResult, MetricStat, Outcome, RowSet, RunResult, SetMetrics};
+use crate::build::outcome::{FitResult, MetricStat, Outcome, RowSet, RunResult, SetMetrics};
+use crate::build::{Status, StepRecord};
 use crate::plan::Plan;
-use crate::run::{Status, StepRecord};
 
 /// The summary as a JSON value.
 pub fn summary(

@@ -5,9 +5,9 @@ use serde::Serialize;
 
 use super::chart::{self, Series};
 use super::format::{mean_sd, number, seconds, stop_reason};
+use crate::build::outcome::{DataSummary, FitResult, MetricStat, RowSet, SetMetrics};
 use crate::document::spec::word;
 use crate::nn::ClassificationMetrics;
-use crate::outcome::{DataSummary, FitResult, MetricStat, RowSet, SetMetrics};
 
 /// What a data step's card shows.
 #[derive(Serialize)]
@@ -244,7 +244,7 @@ pub fn stat_text(stat: &MetricStat) -> String {
 }
 
 /// A fold's row in the per-fold table: its held-out metrics.
-fn fold_row(index: usize, run: &crate::outcome::RunResult) -> FoldRow {
+fn fold_row(index: usize, run: &crate::build::outcome::RunResult) -> FoldRow {
     let set = run.test.as_ref().unwrap_or(&run.train);
     FoldRow {
         fold: index + 1,
@@ -386,7 +386,7 @@ fn ratio(part: usize, whole: usize) -> String {
 
 /// The mean loss per epoch over runs (each epoch over the runs that reached it), thinned
 /// for drawing; the validation loss when `validation`, else the training loss.
-pub fn mean_curve(runs: &[crate::outcome::RunResult], validation: bool) -> Vec<(f64, f64)> {
+pub fn mean_curve(runs: &[crate::build::outcome::RunResult], validation: bool) -> Vec<(f64, f64)> {
     let longest = runs
         .iter()
         .map(|run| run.fit.history.len())

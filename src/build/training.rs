@@ -3,10 +3,10 @@
 
 use std::time::Instant;
 
+use crate::build::outcome::{DataSummary, ModelShape, RunResult, SetMetrics};
 use crate::data::{Prepared, Task};
 use crate::document::spec::{LossChoice, NetSpec, OutputChoice, TrainSpec, word};
 use crate::nn::{self, Activation, Loss, Network, TrainConfig};
-use crate::outcome::{DataSummary, ModelShape, RunResult, SetMetrics};
 
 /// The network shape, output activation and loss a train step uses on this data.
 pub fn model_shape(

@@ -4,12 +4,12 @@
 
 use serde_json::json;
 
+use crate::build::outcome::{ExportResult, FitResult, PredictResult};
 use crate::data::{self, ColumnKind, Prepared, Task};
 use crate::document::spec::word;
-use crate::input_file::InputFile;
 use crate::nn::activation::LEAKY_SLOPE;
 use crate::nn::{Activation, Network};
-use crate::outcome::{ExportResult, FitResult, PredictResult};
+use crate::plan::input_file::InputFile;
 
 /// Version of the export format; bumped when its meaning changes.
 pub const EXPORT_FORMAT_VERSION: u32 = 1;
@@ -123,7 +123,7 @@ pub fn predict(
 pub fn export(
     model: &FitResult,
     prepared: &Prepared,
-) -> Result<crate::outcome::ExportResult, String> {
+) -> Result<crate::build::outcome::ExportResult, String> {
     let network = single_network(model)?;
     let encoding = &prepared.encoding;
     let scaler = &prepared.partitions[0].scaler;

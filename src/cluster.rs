@@ -125,7 +125,7 @@ pub fn submit(request: &DispatchRequest<'_>, sbatch: &Path) -> Result<(String, P
     let script_path = folder.join(format!("{stem}.sh"));
     let stet = std::env::current_exe().map_err(|e| format!("locating the stet binary: {e}"))?;
     let script = job_script(request, &stet, &folder);
-    crate::atomic::write(&script_path, script.as_bytes())
+    crate::cache::atomic::write(&script_path, script.as_bytes())
         .map_err(|e| format!("writing {}: {e}", script_path.display()))?;
     let output = Command::new(sbatch)
         .arg("--parsable")

@@ -11,15 +11,15 @@
 use std::ops::Range;
 use std::path::{Component, Path, PathBuf};
 
-use crate::confine;
 use crate::document::Problem;
 use crate::plan::PlannedStep;
+use crate::plan::confinement;
 
 /// Words a YAML reader takes for "no value"; as a file name they are a slip.
 const EMPTY_WORDS: &[&str] = &["~", "null", "Null", "NULL"];
 /// Folders that belong to version control: writing there can wreck a repository.
 const VERSION_CONTROL: &[&str] = &[".git", ".hg", ".svn"];
-/// The file that marks a project's root (see `confine`).
+/// The file that marks a project's root (see `confinement`).
 const PROJECT_MARKER: &str = ".stet-project";
 
 /// Why a path may not be written.
@@ -89,7 +89,7 @@ pub fn step_output(
     check_name(written)?;
     let base = absolute_folder(base_dir);
     let path = resolve(&base.join(written));
-    let project = confine::project_root(&base);
+    let project = confinement::project_root(&base);
     check_place(&path, written, &project)?;
     if let Some(root) = confine_to
         && !path.starts_with(root)
@@ -233,7 +233,7 @@ pub fn check_build(
     steps: &[PlannedStep],
     paths: &BuildPaths<'_>,
 ) -> Result<BuildTargets, BuildRefusal> {
-    let project = confine::project_root(paths.document.parent().unwrap_or(Path::new("")));
+    let project = confinement::project_root(paths.document.parent().unwrap_or(Path::new("")));
     let inputs = input_claims(steps);
     // What the build's own files may not take; each file found joins it.
     let mut claims = vec![Claim::new(absolute(paths.document), "this document")];

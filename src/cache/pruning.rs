@@ -6,8 +6,8 @@ use std::collections::HashSet;
 use std::fs;
 use std::path::{Path, PathBuf};
 
+use crate::cache::manifest::{self, UnreadableRecord};
 use crate::cache::{Cache, is_entry_name, is_leftover_name};
-use crate::manifest::{self, UnreadableRecord};
 use crate::plan::Plan;
 
 /// A file a clean removed (or, in a dry run, would remove).

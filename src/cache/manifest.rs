@@ -102,7 +102,7 @@ pub fn store(cache: &Cache, document: &Path, plan: &Plan) {
         entries: entries_of(plan),
     };
     let bytes = serde_json::to_vec_pretty(&manifest).expect("a manifest serialises");
-    let _ = crate::atomic::write(&path, &bytes);
+    let _ = crate::cache::atomic::write(&path, &bytes);
 }
 
 /// A record that exists but cannot be read, so what its document uses is unknown.

@@ -3,6 +3,14 @@
 //! step and sweep combination) are independent, so all uncached runs are gathered and
 //! fitted in parallel; each is deterministic, so the results are the same for any
 //! number of jobs. Steps that use trained models run after the training.
+//!
+//! One run is `training`; predictions and exports are `model_use`; the results each
+//! step kind produces are `outcome`; a cluster task's part of the runs is `share`.
+
+pub mod model_use;
+pub mod outcome;
+pub mod share;
+pub mod training;
 
 use std::collections::HashMap;
 use std::sync::Arc;
@@ -15,14 +23,13 @@ use crate::cache::{Cache, EntryKind};
 use crate::data::{self, Prepared, Task};
 use crate::document::StepSpec;
 use crate::document::spec::MetricName;
-use crate::fit::{fit, model_shape};
-use crate::outcome::{
+use crate::plan::{Key, Limits, Plan, PlannedStep, Upstream, describe, weights_between};
+use outcome::{
     DataSummary, FitResult, ModelShape, Outcome, PartitionSummary, RunResult, Seconds, SweepResult,
     rank,
 };
-use crate::plan::{Key, Limits, Plan, PlannedStep, Upstream, describe, weights_between};
-use crate::shard::Share;
-use crate::use_model;
+use share::Share;
+use training::{fit, model_shape};
 
 /// Whether a step ran, was reused, or failed.
 #[derive(Clone, Debug, PartialEq, Serialize)]
@@ -716,9 +723,9 @@ fn use_model_step(
         .expect("a model is a train step's");
     let computed = prepared_for(plan, data, cache, prepared).and_then(|ready| match &step.spec {
         StepSpec::Predict(_) => {
-            use_model::predict(model, &ready, &step.files[0]).map(Outcome::Predict)
+            model_use::predict(model, &ready, &step.files[0]).map(Outcome::Predict)
         }
-        _ => use_model::export(model, &ready).map(Outcome::Export),
+        _ => model_use::export(model, &ready).map(Outcome::Export),
     });
     match computed {
         Ok(outcome) => {

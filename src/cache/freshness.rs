@@ -2,9 +2,9 @@
 
 use serde::Serialize;
 
+use crate::cache::manifest::{Manifest, StepInputs};
 use crate::cache::{Cache, EntryKind};
 use crate::document::StepKind;
-use crate::manifest::{Manifest, StepInputs};
 use crate::plan::{Plan, PlannedStep, short_key};
 
 /// What a build would do with one step.

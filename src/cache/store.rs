@@ -11,7 +11,7 @@ use std::sync::atomic::{AtomicBool, Ordering};
 use serde::Serialize;
 use serde::de::DeserializeOwned;
 
-use crate::input_file::Hashed;
+use crate::plan::input_file::Hashed;
 
 /// Marks the entry layout; a different one (an older stet's) is another format, not
 /// damage. Changed from `stet\0ent` when the checksum started covering the entry's name.
@@ -73,7 +73,7 @@ pub fn is_entry_name(name: &str) -> bool {
 
 /// Whether a file name is a temporary file an interrupted write left behind.
 pub fn is_leftover_name(name: &str) -> bool {
-    name.starts_with(crate::atomic::TEMPORARY_PREFIX)
+    name.starts_with(crate::cache::atomic::TEMPORARY_PREFIX)
 }
 
 /// The cache, or no cache at all (`--no-cache`, or a folder that cannot be used).
@@ -158,7 +158,8 @@ impl Cache {
         let Some(path) = self.entry_path(key, kind) else {
             return;
         };
-        if let Err(error) = crate::atomic::write_with(&path, |file| encode(value, key, kind, file))
+        if let Err(error) =
+            crate::cache::atomic::write_with(&path, |file| encode(value, key, kind, file))
             && !self.write_failed.swap(true, Ordering::Relaxed)
         {
             let dir = self
