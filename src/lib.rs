@@ -19,7 +19,7 @@ pub mod report;
 use std::path::{Path, PathBuf};
 use std::time::Duration;
 
-use build::{RunOptions, StepRecord, outcome, share};
+use build::{BuildResult, RunOptions, StepResult, outcome, share};
 use cache::{Cache, atomic, freshness, manifest, pruning};
 use document::{Document, DocumentErrors, Problem};
 use plan::Plan;
@@ -176,9 +176,9 @@ pub fn build(options: &BuildOptions) -> Result<BuildSummary, Error> {
         jobs: options.jobs,
         progress: Some(progress),
     };
-    let mut records = build::execute(&loaded.plan, &cache, &run_options);
+    let mut results = build::execute(&loaded.plan, &cache, &run_options);
     manifest::store(&cache, &options.document, &loaded.plan);
-    write_model_files(&loaded.plan, &mut records);
+    write_model_files(&loaded.plan, &mut results.steps);
     let built_at = build_time();
     let html = report::render(
         &report::ReportInput {
@@ -186,7 +186,7 @@ pub fn build(options: &BuildOptions) -> Result<BuildSummary, Error> {
             document_name: &loaded.name,
             document_hash: &loaded.hash,
             plan: &loaded.plan,
-            records: &records,
+            results: &results,
             allow_html: options.allow_html,
             built_at: &built_at,
         },
@@ -195,14 +195,14 @@ pub fn build(options: &BuildOptions) -> Result<BuildSummary, Error> {
     .map_err(|error| Error::Usage(format!("rendering the report: {error:#}")))?;
     write_output(&targets.report, html.as_bytes())?;
     if let Some(json_path) = &targets.json {
-        let summary = report::summary::summary(&loaded.name, &loaded.hash, &loaded.plan, &records);
+        let summary = report::summary::summary(&loaded.name, &loaded.hash, &loaded.plan, &results);
         let text = serde_json::to_string_pretty(&summary).expect("a JSON value serialises");
         write_output(json_path, text.as_bytes())?;
     }
     Ok(summarise(
         report_path(options),
         &loaded.plan,
-        &records,
+        &results,
         cache.take_warnings(),
     ))
 }
@@ -441,16 +441,16 @@ pub fn clean(
 fn summarise(
     report: PathBuf,
     plan: &Plan,
-    records: &[StepRecord],
+    results: &BuildResult,
     warnings: Vec<String>,
 ) -> BuildSummary {
-    let tally = build::tally(records);
+    let tally = results.tally();
     BuildSummary {
         report,
-        steps: records.len(),
+        steps: results.steps.len(),
         ran: tally.ran,
         reused: tally.reused,
-        failed: build::failures(plan, records.iter().map(Some)),
+        failed: results.failures(plan),
         warnings,
     }
 }
@@ -458,7 +458,7 @@ fn summarise(
 /// Writes the file each predict and export step asked for. A write that fails (the
 /// plan checked every path, but the disk may still refuse) fails its step in place, so
 /// the report is still written and shows why.
-fn write_model_files(plan: &Plan, records: &mut [StepRecord]) {
+fn write_model_files(plan: &Plan, records: &mut [StepResult]) {
     for (step, record) in plan.steps.iter().zip(records.iter_mut()) {
         let (Some(output), Some(bytes)) = (&step.output, model_file(record)) else {
             continue;
@@ -472,7 +472,7 @@ fn write_model_files(plan: &Plan, records: &mut [StepRecord]) {
 }
 
 /// The bytes a predict or export step's result saves.
-fn model_file(record: &StepRecord) -> Option<&[u8]> {
+fn model_file(record: &StepResult) -> Option<&[u8]> {
     match &record.outcome {
         Some(outcome::Outcome::Predict(result)) => Some(result.csv.as_bytes()),
         Some(outcome::Outcome::Export(result)) => Some(result.json.as_bytes()),

@@ -9,6 +9,7 @@
 
 pub mod model_use;
 pub mod outcome;
+mod result;
 pub mod share;
 pub mod training;
 
@@ -17,7 +18,6 @@ use std::sync::Arc;
 use std::time::Instant;
 
 use rayon::prelude::*;
-use serde::Serialize;
 
 use crate::cache::{Cache, EntryKind};
 use crate::data::{self, Prepared, Task};
@@ -28,45 +28,10 @@ use outcome::{
     DataSummary, FitResult, ModelShape, Outcome, PartitionSummary, RunResult, Seconds, SweepResult,
     rank,
 };
+use result::failures;
+pub use result::{BuildResult, Status, StepResult, Tally};
 use share::Share;
 use training::{fit, model_shape};
-
-/// Whether a step ran, was reused, or failed.
-#[derive(Clone, Debug, PartialEq, Serialize)]
-#[serde(tag = "status", rename_all = "snake_case")]
-pub enum Status {
-    Ran { seconds: Seconds },
-    Reused,
-    Failed { error: String },
-}
-
-/// A step's status and, unless it failed, its result.
-#[derive(Clone, Debug)]
-pub struct StepRecord {
-    pub status: Status,
-    pub outcome: Option<Outcome>,
-    /// For train steps and sweeps: how many runs of each fit trained in this build
-    /// (the rest were reused).
-    pub trained: Vec<usize>,
-}
-
-impl StepRecord {
-    fn new(status: Status, outcome: Outcome) -> StepRecord {
-        StepRecord {
-            status,
-            outcome: Some(outcome),
-            trained: Vec::new(),
-        }
-    }
-
-    fn failed(error: String) -> StepRecord {
-        StepRecord {
-            status: Status::Failed { error },
-            outcome: None,
-            trained: Vec::new(),
-        }
-    }
-}
 
 /// What a build may use.
 #[derive(Clone, Debug)]
@@ -101,13 +66,13 @@ struct PendingFits {
 /// The state after the steps that need no training: their records, the prepared data,
 /// and each train step's and sweep's fits with their cached runs.
 struct Stage {
-    records: Vec<Option<StepRecord>>,
+    records: Vec<Option<StepResult>>,
     prepared: HashMap<usize, Arc<Prepared>>,
     pending: HashMap<usize, PendingFits>,
 }
 
 fn stage(plan: &Plan, cache: &Cache) -> Stage {
-    let mut records: Vec<Option<StepRecord>> = vec![None; plan.steps.len()];
+    let mut records: Vec<Option<StepResult>> = vec![None; plan.steps.len()];
     let mut prepared: HashMap<usize, Arc<Prepared>> = HashMap::new();
     let mut pending: HashMap<usize, PendingFits> = HashMap::new();
     for &index in &plan.order {
@@ -121,7 +86,7 @@ fn stage(plan: &Plan, cache: &Cache) -> Stage {
                     pending.insert(index, fits);
                     continue;
                 }
-                Err(error) => StepRecord::failed(error),
+                Err(error) => StepResult::failed(error),
             },
             // These read trained models, so they wait for the training.
             StepSpec::Compare(_) | StepSpec::Predict(_) | StepSpec::Export(_) => continue,
@@ -176,7 +141,7 @@ fn owners<'k>(tasks: &[RunTask<'k>]) -> HashMap<&'k Key, usize> {
 }
 
 /// Runs every step of the plan, reusing what the cache holds.
-pub fn execute(plan: &Plan, cache: &Cache, options: &RunOptions) -> Vec<StepRecord> {
+pub fn execute(plan: &Plan, cache: &Cache, options: &RunOptions) -> BuildResult {
     arithmetic_pool(options.jobs).install(|| execute_steps(plan, cache, options))
 }
 
@@ -191,7 +156,7 @@ fn arithmetic_pool(jobs: usize) -> rayon::ThreadPool {
         .expect("a thread pool")
 }
 
-fn execute_steps(plan: &Plan, cache: &Cache, options: &RunOptions) -> Vec<StepRecord> {
+fn execute_steps(plan: &Plan, cache: &Cache, options: &RunOptions) -> BuildResult {
     let Stage {
         mut records,
         mut prepared,
@@ -221,7 +186,7 @@ fn execute_steps(plan: &Plan, cache: &Cache, options: &RunOptions) -> Vec<StepRe
     }
     for (index, fits) in pending {
         if let Some(error) = unfitted.remove(&index) {
-            records[index] = Some(StepRecord::failed(error));
+            records[index] = Some(StepResult::failed(error));
             continue;
         }
         let status = match trained_seconds.get(&index) {
@@ -240,7 +205,7 @@ fn execute_steps(plan: &Plan, cache: &Cache, options: &RunOptions) -> Vec<StepRe
                 .into_iter()
                 .find(|&u| failed(&records[u]))
             {
-                Some(u) => StepRecord::failed(format!("not run: '{}' failed", plan.steps[u].id)),
+                Some(u) => StepResult::failed(format!("not run: '{}' failed", plan.steps[u].id)),
                 None => marker_step(step, cache),
             },
             StepSpec::Predict(_) | StepSpec::Export(_) => {
@@ -250,16 +215,17 @@ fn execute_steps(plan: &Plan, cache: &Cache, options: &RunOptions) -> Vec<StepRe
         };
         records[index] = Some(record);
     }
-    records
+    let steps = records
         .into_iter()
         .map(|r| r.expect("every step recorded"))
-        .collect()
+        .collect();
+    BuildResult { steps }
 }
 
-fn failed(record: &Option<StepRecord>) -> bool {
+fn failed(record: &Option<StepResult>) -> bool {
     !matches!(
         record,
-        Some(StepRecord {
+        Some(StepResult {
             outcome: Some(_),
             ..
         })
@@ -272,9 +238,9 @@ fn run_data_step(
     cache: &Cache,
     prepared: &mut HashMap<usize, Arc<Prepared>>,
     index: usize,
-) -> StepRecord {
+) -> StepResult {
     if let Some(summary) = cache.load::<DataSummary>(&step.key, EntryKind::DataSummary) {
-        return StepRecord::new(Status::Reused, Outcome::Data(summary));
+        return StepResult::new(Status::Reused, Outcome::Data(summary));
     }
     let started = Instant::now();
     match prepare_data(step, limits) {
@@ -283,14 +249,14 @@ fn run_data_step(
             cache.store(&step.key, EntryKind::Prepared, &ready);
             cache.store(&step.key, EntryKind::DataSummary, &summary);
             prepared.insert(index, Arc::new(ready));
-            StepRecord::new(
+            StepResult::new(
                 Status::Ran {
                     seconds: started.elapsed().as_secs_f64(),
                 },
                 Outcome::Data(summary),
             )
         }
-        Err(error) => StepRecord::failed(error),
+        Err(error) => StepResult::failed(error),
     }
 }
 
@@ -365,7 +331,7 @@ fn summarise(step: &PlannedStep, prepared: &Prepared) -> DataSummary {
 
 /// A step with nothing to compute beyond its settings (net, compare): its entry only
 /// records that these settings were built, so it reports as reused next time.
-fn marker_step(step: &PlannedStep, cache: &Cache) -> StepRecord {
+fn marker_step(step: &PlannedStep, cache: &Cache) -> StepResult {
     let outcome = match step.spec {
         StepSpec::Compare(_) => Outcome::Compare,
         _ => Outcome::Net,
@@ -376,12 +342,12 @@ fn marker_step(step: &PlannedStep, cache: &Cache) -> StepRecord {
         cache.store(&step.key, EntryKind::Marker, &());
         Status::Ran { seconds: 0.0 }
     };
-    StepRecord::new(status, outcome)
+    StepResult::new(status, outcome)
 }
 
 fn data_summary<'a>(
     plan: &Plan,
-    records: &'a [Option<StepRecord>],
+    records: &'a [Option<StepResult>],
     data: usize,
 ) -> Result<&'a DataSummary, String> {
     match records[data].as_ref().and_then(|r| r.outcome.as_ref()) {
@@ -397,7 +363,7 @@ fn data_summary<'a>(
 fn plan_fits(
     plan: &Plan,
     step: &PlannedStep,
-    records: &[Option<StepRecord>],
+    records: &[Option<StepResult>],
     cache: &Cache,
 ) -> Result<PendingFits, String> {
     let mut shapes = Vec::new();
@@ -449,50 +415,6 @@ fn within_weight_limit(shape: ModelShape, limits: Limits) -> Result<ModelShape, 
 /// steps that failed.
 pub fn prepare_only(plan: &Plan, cache: &Cache) -> Vec<(String, String)> {
     failures(plan, stage(plan, cache).records.iter().map(Option::as_ref))
-}
-
-/// The id and error of every failed step; `records` are in plan order, `None` for a
-/// step not yet run.
-pub fn failures<'a>(
-    plan: &Plan,
-    records: impl IntoIterator<Item = Option<&'a StepRecord>>,
-) -> Vec<(String, String)> {
-    plan.steps
-        .iter()
-        .zip(records)
-        .filter_map(|(step, record)| match record {
-            Some(StepRecord {
-                status: Status::Failed { error },
-                ..
-            }) => Some((step.id.clone(), error.clone())),
-            _ => None,
-        })
-        .collect()
-}
-
-/// How many steps ran, were reused or failed, and the seconds spent training.
-#[derive(Clone, Copy, Debug, Default, PartialEq)]
-pub struct Tally {
-    pub ran: usize,
-    pub reused: usize,
-    pub failed: usize,
-    pub training: Seconds,
-}
-
-pub fn tally(records: &[StepRecord]) -> Tally {
-    records.iter().fold(Tally::default(), |mut tally, record| {
-        match &record.status {
-            Status::Ran { seconds } => {
-                tally.ran += 1;
-                if matches!(record.outcome, Some(Outcome::Train(_) | Outcome::Sweep(_))) {
-                    tally.training += seconds;
-                }
-            }
-            Status::Reused => tally.reused += 1,
-            Status::Failed { .. } => tally.failed += 1,
-        }
-        tally
-    })
 }
 
 /// What one share of a sharded build did.
@@ -629,9 +551,9 @@ fn assemble(
     step: &PlannedStep,
     fits: PendingFits,
     status: Status,
-    records: &[Option<StepRecord>],
+    records: &[Option<StepResult>],
     plan: &Plan,
-) -> StepRecord {
+) -> StepResult {
     let trained = fits.trained;
     let results: Vec<FitResult> = step
         .fits
@@ -651,7 +573,7 @@ fn assemble(
         StepSpec::Sweep(sweep) => {
             let task = match data_summary(plan, records, step.fits[0].data) {
                 Ok(summary) => summary.task,
-                Err(error) => return StepRecord::failed(error),
+                Err(error) => return StepResult::failed(error),
             };
             let rank_by = sweep.rank_by.unwrap_or(match task {
                 Task::Classify => MetricName::Accuracy,
@@ -659,7 +581,7 @@ fn assemble(
             });
             let rank_rows = results[0].report_rows();
             if results[0].metric(rank_by, rank_rows).is_none() {
-                return StepRecord::failed(format!(
+                return StepResult::failed(format!(
                     "rank_by {} is not a metric of this {} task",
                     rank_by.key(),
                     crate::document::spec::word(&task)
@@ -680,9 +602,9 @@ fn assemble(
                 .expect("a train step has one fit"),
         ),
     };
-    StepRecord {
+    StepResult {
         trained,
-        ..StepRecord::new(status, outcome)
+        ..StepResult::new(status, outcome)
     }
 }
 
@@ -691,16 +613,16 @@ fn assemble(
 fn use_model_step(
     plan: &Plan,
     step: &PlannedStep,
-    records: &[Option<StepRecord>],
+    records: &[Option<StepResult>],
     cache: &Cache,
     prepared: &mut HashMap<usize, Arc<Prepared>>,
-) -> StepRecord {
+) -> StepResult {
     let kind = match step.spec {
         StepSpec::Predict(_) => EntryKind::Predict,
         _ => EntryKind::Export,
     };
     if let Some(outcome) = cache.load::<Outcome>(&step.key, kind) {
-        return StepRecord::new(Status::Reused, outcome);
+        return StepResult::new(Status::Reused, outcome);
     }
     let Upstream::Model { model: model_index } = step.upstream else {
         unreachable!("predict and export read a model")
@@ -711,7 +633,7 @@ fn use_model_step(
     {
         Some(Outcome::Train(fit)) => fit,
         _ => {
-            return StepRecord::failed(format!(
+            return StepResult::failed(format!(
                 "not run: its model '{}' failed",
                 plan.steps[model_index].id
             ));
@@ -730,13 +652,13 @@ fn use_model_step(
     match computed {
         Ok(outcome) => {
             cache.store(&step.key, kind, &outcome);
-            StepRecord::new(
+            StepResult::new(
                 Status::Ran {
                     seconds: started.elapsed().as_secs_f64(),
                 },
                 outcome,
             )
         }
-        Err(error) => StepRecord::failed(error),
+        Err(error) => StepResult::failed(error),
     }
 }

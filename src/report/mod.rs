@@ -18,7 +18,7 @@ use pulldown_cmark::{Event, Parser, Tag};
 use serde::Serialize;
 
 use crate::build::outcome::Outcome;
-use crate::build::{Status, StepRecord};
+use crate::build::{BuildResult, Status};
 use crate::document::{Document, Piece, StepSpec};
 use crate::plan::{Plan, short_key};
 use compare_view::{CompareView, Compared, SweepView, compare_view, sweep_view};
@@ -77,7 +77,7 @@ pub struct ReportInput<'a> {
     pub document_name: &'a str,
     pub document_hash: &'a str,
     pub plan: &'a Plan,
-    pub records: &'a [StepRecord],
+    pub results: &'a BuildResult,
     pub allow_html: bool,
     /// When the build ran, already formatted.
     pub built_at: &'a str,
@@ -131,7 +131,7 @@ pub fn render(input: &ReportInput<'_>, templates: &Templates) -> Result<String, 
         author: input.document.front.author.as_deref(),
         notes: input.document.front.notes.as_deref(),
         built_at: input.built_at,
-        run_summary: run_summary(input.records),
+        run_summary: run_summary(input.results),
         version: env!("CARGO_PKG_VERSION"),
         document_name: input.document_name,
         document_hash: input.document_hash,
@@ -166,11 +166,11 @@ fn title(input: &ReportInput<'_>) -> String {
 }
 
 /// Steps, how many ran and were reused (and failed), and the time spent training.
-fn run_summary(records: &[StepRecord]) -> String {
-    let tally = crate::build::tally(records);
+fn run_summary(results: &BuildResult) -> String {
+    let tally = results.tally();
     let mut summary = format!(
         "{} steps · {} ran · {} reused",
-        records.len(),
+        results.steps.len(),
         tally.ran,
         tally.reused
     );
@@ -241,7 +241,7 @@ fn split_lead(markdown: &str) -> (&str, &str) {
 
 fn step_view(input: &ReportInput<'_>, index: usize, yaml: &str, beside_html: String) -> StepView {
     let step = &input.plan.steps[index];
-    let record = &input.records[index];
+    let record = &input.results.steps[index];
     let (status, status_text, error) = match &record.status {
         Status::Ran { seconds: s } => ("ran", format!("ran in {}", seconds(*s)), None),
         Status::Reused => ("reused", "reused from the cache".to_string(), None),
@@ -251,7 +251,7 @@ fn step_view(input: &ReportInput<'_>, index: usize, yaml: &str, beside_html: Str
         StepSpec::Train(train) => match input
             .plan
             .index_of(&train.data)
-            .and_then(|d| input.records[d].outcome.as_ref())
+            .and_then(|d| input.results.steps[d].outcome.as_ref())
         {
             Some(Outcome::Data(summary)) => summary.classes.clone(),
             _ => None,
@@ -312,7 +312,7 @@ fn compared<'a>(
         .into_iter()
         .filter_map(|u| {
             let id = input.plan.steps[u].id.as_str();
-            match input.records[u].outcome.as_ref()? {
+            match input.results.steps[u].outcome.as_ref()? {
                 Outcome::Train(fit) => Some(Compared {
                     id,
                     what: String::new(),

@@ -5,7 +5,7 @@ use serde_json::{Map, Value, json};
 
 use super::format::stop_code;
 use crate::build::outcome::{FitResult, MetricStat, Outcome, RowSet, RunResult, SetMetrics};
-use crate::build::{Status, StepRecord};
+use crate::build::{BuildResult, Status};
 use crate::plan::Plan;
 
 /// The summary as a JSON value.
@@ -13,12 +13,12 @@ pub fn summary(
     document_name: &str,
     document_hash: &str,
     plan: &Plan,
-    records: &[StepRecord],
+    results: &BuildResult,
 ) -> Value {
     let steps: Vec<Value> = plan
         .steps
         .iter()
-        .zip(records)
+        .zip(&results.steps)
         .map(|(step, record)| {
             let mut object = Map::new();
             object.insert("id".into(), json!(step.id));
