@@ -10,6 +10,7 @@
 pub mod build;
 pub mod cache;
 pub mod cluster;
+pub mod console;
 pub mod data;
 pub mod document;
 pub mod nn;
