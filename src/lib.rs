@@ -1,21 +1,29 @@
 //! stet: run a Markdown experiment document and render its report.
 //!
-//! The flow is document → plan → run → report: [`document`] parses the Markdown and
-//! the step settings, [`plan`] resolves references and computes cache keys, [`build`]
-//! executes what the [`cache`] does not hold, and [`report`] renders HTML and JSON;
-//! [`cluster`] spreads a build's runs over a Slurm job array.
-//! The command layer (`main.rs`) only parses flags, calls [`build`] and maps errors
-//! to exit codes.
+//! The flow is document → plan → build → report: [`document`] parses the Markdown and
+//! the step settings, [`plan`] resolves references and computes cache keys, `build`
+//! executes what the `cache` does not hold, and `report` renders HTML and JSON;
+//! `cluster` spreads a document's runs over a Slurm job array. The command layer
+//! (`main.rs`) only parses flags, calls the entry points here, prints the lines
+//! [`console`] formats and maps the outcome to an exit code.
 
-pub mod build;
-pub mod cache;
-pub mod cluster;
+// Only what the command, the tests and the fuzz targets use is public.
+#![warn(unreachable_pub)]
+
+pub(crate) mod build;
+pub(crate) mod cache;
+mod cluster;
 pub mod console;
 pub mod data;
 pub mod document;
 pub mod nn;
 pub mod plan;
-pub mod report;
+pub(crate) mod report;
+
+pub use build::ShareSummary;
+pub use build::share::Share;
+pub use cache::freshness::StepStatus;
+pub use cache::pruning::Cleaning;
 
 use std::path::{Path, PathBuf};
 use std::time::Duration;
@@ -81,9 +89,9 @@ pub struct BuildSummary {
 
 /// A document read from disk and planned.
 pub struct Loaded {
-    pub name: String,
+    pub(crate) name: String,
     pub document: Document,
-    pub hash: String,
+    pub(crate) hash: String,
     pub plan: Plan,
 }
 
@@ -143,7 +151,7 @@ pub fn load(path: &Path, options: &plan::PlanOptions) -> Result<Loaded, Error> {
 }
 
 /// The cache a command uses for a document.
-pub fn open_cache(choice: &CacheChoice, document: &Path) -> Cache {
+fn open_cache(choice: &CacheChoice, document: &Path) -> Cache {
     match choice {
         CacheChoice::Off => Cache::disabled(),
         CacheChoice::Dir(dir) => Cache::at(dir.clone()),

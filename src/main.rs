@@ -6,9 +6,8 @@ use std::process::ExitCode;
 use std::time::Duration;
 
 use clap::{Parser, Subcommand};
-use stet::build::share::Share;
 use stet::plan::{Limits, PlanOptions};
-use stet::{BuildOptions, CacheChoice, Error, console};
+use stet::{BuildOptions, CacheChoice, Error, Share, console};
 
 #[derive(Parser)]
 #[command(

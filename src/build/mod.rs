@@ -7,11 +7,11 @@
 //! One run is `training`; predictions and exports are `model_use`; the results each
 //! step kind produces are `outcome`; a cluster task's part of the runs is `share`.
 
-pub mod model_use;
-pub mod outcome;
+mod model_use;
+pub(crate) mod outcome;
 mod result;
-pub mod share;
-pub mod training;
+pub(crate) mod share;
+mod training;
 
 use std::collections::HashMap;
 use std::sync::Arc;
@@ -29,13 +29,13 @@ use outcome::{
     rank,
 };
 use result::failures;
-pub use result::{BuildResult, Status, StepResult, Tally};
+pub(crate) use result::{BuildResult, Status, StepResult};
 use share::Share;
 use training::{fit, model_shape};
 
 /// What a build may use.
 #[derive(Clone, Debug)]
-pub struct RunOptions {
+pub(crate) struct RunOptions {
     /// Threads for training runs.
     pub jobs: usize,
     /// Shown while runs train; hidden when stderr is not a terminal.
@@ -141,7 +141,7 @@ fn owners<'k>(tasks: &[RunTask<'k>]) -> HashMap<&'k Key, usize> {
 }
 
 /// Runs every step of the plan, reusing what the cache holds.
-pub fn execute(plan: &Plan, cache: &Cache, options: &RunOptions) -> BuildResult {
+pub(crate) fn execute(plan: &Plan, cache: &Cache, options: &RunOptions) -> BuildResult {
     arithmetic_pool(options.jobs).install(|| execute_steps(plan, cache, options))
 }
 
@@ -413,7 +413,7 @@ fn within_weight_limit(shape: ModelShape, limits: Limits) -> Result<ModelShape, 
 /// Runs the steps that need no training (data preparation above all) into the cache,
 /// so that cluster tasks load prepared data instead of each preparing it; returns the
 /// steps that failed.
-pub fn prepare_only(plan: &Plan, cache: &Cache) -> Vec<(String, String)> {
+pub(crate) fn prepare_only(plan: &Plan, cache: &Cache) -> Vec<(String, String)> {
     failures(plan, stage(plan, cache).records.iter().map(Option::as_ref))
 }
 
@@ -431,7 +431,7 @@ pub struct ShareSummary {
 /// Trains the uncached runs of share `share` into the cache. Shares are cut from all of
 /// the document's runs sorted by key, so every task agrees on them without talking to
 /// the others, whenever it starts.
-pub fn execute_share(
+pub(crate) fn execute_share(
     plan: &Plan,
     cache: &Cache,
     options: &RunOptions,

@@ -9,7 +9,7 @@ use crate::plan::Plan;
 /// Whether a step ran, was reused, or failed.
 #[derive(Clone, Debug, PartialEq, Serialize)]
 #[serde(tag = "status", rename_all = "snake_case")]
-pub enum Status {
+pub(crate) enum Status {
     Ran { seconds: Seconds },
     Reused,
     Failed { error: String },
@@ -17,7 +17,7 @@ pub enum Status {
 
 /// A step's status and, unless it failed, its result.
 #[derive(Clone, Debug)]
-pub struct StepResult {
+pub(crate) struct StepResult {
     pub status: Status,
     pub outcome: Option<Outcome>,
     /// For train steps and sweeps: how many runs of each fit trained in this build
@@ -45,13 +45,13 @@ impl StepResult {
 
 /// Every step's result, in the order of `Plan::steps`.
 #[derive(Clone, Debug)]
-pub struct BuildResult {
+pub(crate) struct BuildResult {
     pub steps: Vec<StepResult>,
 }
 
 impl BuildResult {
     /// How many steps ran, were reused or failed, and the seconds spent training.
-    pub fn tally(&self) -> Tally {
+    pub(crate) fn tally(&self) -> Tally {
         self.steps.iter().fold(Tally::default(), |mut tally, step| {
             match &step.status {
                 Status::Ran { seconds } => {
@@ -68,14 +68,14 @@ impl BuildResult {
     }
 
     /// The id and error of every failed step.
-    pub fn failures(&self, plan: &Plan) -> Vec<(String, String)> {
+    pub(crate) fn failures(&self, plan: &Plan) -> Vec<(String, String)> {
         failures(plan, self.steps.iter().map(Some))
     }
 }
 
 /// How many steps ran, were reused or failed, and the seconds spent training.
 #[derive(Clone, Copy, Debug, Default, PartialEq)]
-pub struct Tally {
+pub(crate) struct Tally {
     pub ran: usize,
     pub reused: usize,
     pub failed: usize,

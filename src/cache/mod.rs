@@ -3,10 +3,10 @@
 //! manifest (`manifest`), and what `stet status` and `stet clean` read from them
 //! (`freshness`, `pruning`).
 
-pub mod atomic;
-pub mod freshness;
-pub mod manifest;
-pub mod pruning;
+pub(crate) mod atomic;
+pub(crate) mod freshness;
+pub(crate) mod manifest;
+pub(crate) mod pruning;
 mod store;
 
-pub use store::{Cache, EntryKind, entry_name, is_entry_name, is_leftover_name};
+pub(crate) use store::{Cache, EntryKind, entry_name, is_entry_name, is_leftover_name};

@@ -7,11 +7,11 @@ use super::{Key, PlannedStep};
 
 /// Bumped whenever the meaning of a cached result changes, so old entries miss.
 /// 2: entries' checksums cover their names, and keys hold the crate version.
-pub const CACHE_FORMAT_VERSION: u32 = 2;
+pub(crate) const CACHE_FORMAT_VERSION: u32 = 2;
 
 /// A run's key depends on what it computes, not on step names, so identical runs in
 /// different steps share one entry.
-pub fn run_key(data_key: &str, net: &NetSpec, train: &TrainSpec, partition: usize) -> Key {
+pub(super) fn run_key(data_key: &str, net: &NetSpec, train: &TrainSpec, partition: usize) -> Key {
     let settings = TrainSpec {
         data: String::new(),
         net: String::new(),

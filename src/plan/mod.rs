@@ -8,28 +8,28 @@ use std::collections::HashMap;
 use std::path::{Path, PathBuf};
 
 mod checks;
-pub mod confinement;
+mod confinement;
 mod fits;
-pub mod input_file;
+pub(crate) mod input_file;
 mod keys;
-pub mod outputs;
+pub(crate) mod outputs;
 
 use crate::cache::EntryKind;
 use crate::document::problem::nearest;
-pub use crate::document::spec::sweep::describe;
+pub(crate) use crate::document::spec::sweep::describe;
 use crate::document::spec::{NetSpec, TrainSpec, key_span, parse_step};
 use crate::document::{Document, Problem, StepBlock, StepKind, StepSpec};
 use fits::fits;
 use input_file::InputFile;
 use keys::step_key;
-pub use keys::{CACHE_FORMAT_VERSION, run_key};
+
 use outputs::Output;
 
 /// A step's cache key: the BLAKE3 hash of everything its result depends on, in hex.
-pub type Key = String;
+pub(crate) type Key = String;
 
 /// The first 10 hex digits of a key, as shown in reports and `stet status`.
-pub fn short_key(key: &str) -> &str {
+pub(crate) fn short_key(key: &str) -> &str {
     &key[..10.min(key.len())]
 }
 
@@ -37,15 +37,15 @@ pub fn short_key(key: &str) -> &str {
 #[derive(Clone, Debug)]
 pub struct PlannedStep {
     pub id: String,
-    pub kind: StepKind,
-    pub spec: StepSpec,
+    pub(crate) kind: StepKind,
+    pub(crate) spec: StepSpec,
     /// Index of the step's block among the document's pieces.
-    pub piece: usize,
+    pub(crate) piece: usize,
     /// The steps this one reads, each named by the setting that names it.
-    pub upstream: Upstream,
-    pub files: Vec<InputFile>,
+    pub(crate) upstream: Upstream,
+    pub(crate) files: Vec<InputFile>,
     /// The file a predict or export step writes, checked against every other use.
-    pub output: Option<Output>,
+    pub(crate) output: Option<Output>,
     pub key: Key,
     /// The networks a train step (one) or a sweep (one per combination) fits.
     pub fits: Vec<FitPlan>,
@@ -55,7 +55,7 @@ pub struct PlannedStep {
 /// names each: a plan holds one only when every reference resolved to a step of the
 /// right kind, so no stage reads an upstream step by position.
 #[derive(Clone, Debug, PartialEq, Eq)]
-pub enum Upstream {
+pub(crate) enum Upstream {
     /// Data and net steps read no other step.
     Nothing,
     Train {
@@ -76,7 +76,7 @@ pub enum Upstream {
 
 impl Upstream {
     /// Every step read, in the order their keys enter this step's key.
-    pub fn all(&self) -> Vec<usize> {
+    pub(crate) fn all(&self) -> Vec<usize> {
         match self {
             Upstream::Nothing => Vec::new(),
             Upstream::Train { data, net } => vec![*data, *net],
@@ -91,11 +91,11 @@ impl Upstream {
 #[derive(Clone, Debug)]
 pub struct FitPlan {
     /// The varied settings and their values as text (empty for a train step).
-    pub settings: Vec<(String, String)>,
+    pub(crate) settings: Vec<(String, String)>,
     /// Index of the data step the runs read.
-    pub data: usize,
-    pub net: NetSpec,
-    pub train: TrainSpec,
+    pub(crate) data: usize,
+    pub(crate) net: NetSpec,
+    pub(crate) train: TrainSpec,
     pub runs: Vec<RunPlan>,
 }
 
@@ -103,13 +103,13 @@ pub struct FitPlan {
 #[derive(Clone, Debug)]
 pub struct RunPlan {
     pub key: Key,
-    pub partition: usize,
-    pub seed: u64,
+    pub(crate) partition: usize,
+    pub(crate) seed: u64,
 }
 
 impl PlannedStep {
     /// The data and net steps of a train step; `None` for every other kind.
-    pub fn train_inputs(&self) -> Option<(usize, usize)> {
+    pub(crate) fn train_inputs(&self) -> Option<(usize, usize)> {
         match self.upstream {
             Upstream::Train { data, net } => Some((data, net)),
             _ => None,
@@ -118,7 +118,7 @@ impl PlannedStep {
 
     /// The cache entries that hold this step's result: all present means a build
     /// reuses it. (A data step also keeps its prepared matrices, loaded only to train.)
-    pub fn result_entries(&self) -> Vec<(&str, EntryKind)> {
+    pub(crate) fn result_entries(&self) -> Vec<(&str, EntryKind)> {
         match self.kind {
             StepKind::Data => vec![(self.key.as_str(), EntryKind::DataSummary)],
             StepKind::Net | StepKind::Compare => vec![(self.key.as_str(), EntryKind::Marker)],
@@ -142,10 +142,10 @@ impl PlannedStep {
 pub struct Plan {
     pub steps: Vec<PlannedStep>,
     /// Indices into `steps` such that every step comes after the steps it reads.
-    pub order: Vec<usize>,
+    pub(crate) order: Vec<usize>,
     /// The limits the plan was made under; a run checks against them what only the
     /// data decides (the network's input and output widths).
-    pub limits: Limits,
+    pub(crate) limits: Limits,
 }
 
 impl Plan {
@@ -213,7 +213,7 @@ struct Place<'a> {
 }
 
 /// Builds the plan of a parsed document whose data paths are relative to `base_dir`.
-pub fn plan(
+pub(crate) fn plan(
     document: &Document,
     base_dir: &Path,
     options: &PlanOptions,
@@ -557,7 +557,7 @@ pub(super) fn check_net_size(
 
 /// Weights and biases between consecutive layers of sizes `sizes` (in a type wide
 /// enough that no list of widths overflows it).
-pub fn weights_between(sizes: &[usize]) -> u128 {
+pub(crate) fn weights_between(sizes: &[usize]) -> u128 {
     sizes
         .windows(2)
         .map(|pair| (pair[0] as u128 + 1) * pair[1] as u128)

@@ -2,14 +2,14 @@
 //! from minijinja templates compiled into the binary (or read from `--templates DIR`).
 //! Renderers return strings; only the command layer writes files.
 
-pub mod chart;
-pub mod compare_view;
-pub mod format;
-pub mod model_view;
-pub mod prose;
-pub mod settings;
-pub mod summary;
-pub mod view;
+pub(crate) mod chart;
+pub(crate) mod compare_view;
+pub(crate) mod format;
+pub(crate) mod model_view;
+pub(crate) mod prose;
+pub(crate) mod settings;
+pub(crate) mod summary;
+pub(crate) mod view;
 
 use std::path::Path;
 
@@ -35,13 +35,13 @@ const BUILT_IN: &[(&str, &str)] = &[
 ];
 
 /// A loaded set of templates.
-pub struct Templates {
+pub(crate) struct Templates {
     env: Environment<'static>,
 }
 
 impl Templates {
     /// The templates compiled into the binary.
-    pub fn built_in() -> Templates {
+    pub(crate) fn built_in() -> Templates {
         let mut env = Environment::new();
         for (name, text) in BUILT_IN {
             env.add_template(name, text)
@@ -51,7 +51,7 @@ impl Templates {
     }
 
     /// The built-in templates, each replaced by a file of the same name in `dir` if present.
-    pub fn with_overrides(dir: &Path) -> Result<Templates, String> {
+    pub(crate) fn with_overrides(dir: &Path) -> Result<Templates, String> {
         if !dir.is_dir() {
             return Err(format!("--templates {}: no such folder", dir.display()));
         }
@@ -71,7 +71,7 @@ impl Templates {
 }
 
 /// Everything a report is made from.
-pub struct ReportInput<'a> {
+pub(crate) struct ReportInput<'a> {
     pub document: &'a Document,
     /// The document's path as the user gave it.
     pub document_name: &'a str,
@@ -125,7 +125,10 @@ struct StepView {
 }
 
 /// Renders the report to a string.
-pub fn render(input: &ReportInput<'_>, templates: &Templates) -> Result<String, minijinja::Error> {
+pub(crate) fn render(
+    input: &ReportInput<'_>,
+    templates: &Templates,
+) -> Result<String, minijinja::Error> {
     let view = ReportView {
         title: title(input),
         author: input.document.front.author.as_deref(),

@@ -9,7 +9,7 @@ use crate::build::{BuildResult, Status};
 use crate::plan::Plan;
 
 /// The summary as a JSON value.
-pub fn summary(
+pub(crate) fn summary(
     document_name: &str,
     document_hash: &str,
     plan: &Plan,

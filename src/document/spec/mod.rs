@@ -280,7 +280,7 @@ pub(crate) struct Checker<'a> {
 }
 
 impl Checker<'_> {
-    pub fn require(&mut self, ok: bool, key: &str, message: impl FnOnce() -> String) {
+    pub(crate) fn require(&mut self, ok: bool, key: &str, message: impl FnOnce() -> String) {
         if !ok {
             let span = self
                 .block
