@@ -1,40 +1,39 @@
 //! stet: run a Markdown experiment document and render its report.
 //!
-//! The flow is document → plan → run → report: [`document`] parses the Markdown and
-//! the step settings, [`plan`] resolves references and computes cache keys, [`run`]
-//! executes what the [`cache`] does not hold, and [`report`] renders HTML and JSON.
-//! The command layer (`main.rs`) only parses flags, calls [`build`] and maps errors
-//! to exit codes.
+//! The flow is document → plan → build → report: [`document`] parses the Markdown and
+//! the step settings, [`plan`] resolves references and computes cache keys, `build`
+//! executes what the `cache` does not hold, and `report` renders HTML and JSON;
+//! `cluster` spreads a document's runs over a Slurm job array. The command layer
+//! (`main.rs`) only parses flags, calls the entry points here, prints the lines
+//! [`console`] formats and maps the outcome to an exit code.
 
-pub mod atomic;
-pub mod cache;
-pub mod confine;
+// Only what the command, the tests and the fuzz targets use is public.
+#![warn(unreachable_pub)]
+
+pub(crate) mod build;
+pub(crate) mod cache;
+mod cluster;
+pub mod console;
 pub mod data;
-pub mod dispatch;
 pub mod document;
-pub mod fit;
-pub mod freshness;
-pub mod input_file;
-pub mod manifest;
 pub mod nn;
-pub mod outcome;
-pub mod outputs;
 pub mod plan;
-mod plan_checks;
-pub mod prune;
-pub mod report;
-pub mod run;
-pub mod shard;
-pub mod use_model;
+pub(crate) mod report;
+
+pub use build::ShareSummary;
+pub use build::share::Share;
+pub use cache::freshness::StepStatus;
+pub use cache::pruning::Cleaning;
 
 use std::path::{Path, PathBuf};
 use std::time::Duration;
 
-use cache::Cache;
+use build::{BuildResult, RunOptions, StepResult, outcome, share};
+use cache::{Cache, atomic, freshness, manifest, pruning};
 use document::{Document, DocumentErrors, Problem};
-use input_file::InputError;
 use plan::Plan;
-use run::{RunOptions, StepRecord};
+use plan::input_file::{self, InputError};
+use plan::outputs;
 
 /// Where the cache lives.
 #[derive(Clone, Debug)]
@@ -90,9 +89,9 @@ pub struct BuildSummary {
 
 /// A document read from disk and planned.
 pub struct Loaded {
-    pub name: String,
+    pub(crate) name: String,
     pub document: Document,
-    pub hash: String,
+    pub(crate) hash: String,
     pub plan: Plan,
 }
 
@@ -152,7 +151,7 @@ pub fn load(path: &Path, options: &plan::PlanOptions) -> Result<Loaded, Error> {
 }
 
 /// The cache a command uses for a document.
-pub fn open_cache(choice: &CacheChoice, document: &Path) -> Cache {
+fn open_cache(choice: &CacheChoice, document: &Path) -> Cache {
     match choice {
         CacheChoice::Off => Cache::disabled(),
         CacheChoice::Dir(dir) => Cache::at(dir.clone()),
@@ -186,9 +185,9 @@ pub fn build(options: &BuildOptions) -> Result<BuildSummary, Error> {
         jobs: options.jobs,
         progress: Some(progress),
     };
-    let mut records = run::execute(&loaded.plan, &cache, &run_options);
+    let mut results = build::execute(&loaded.plan, &cache, &run_options);
     manifest::store(&cache, &options.document, &loaded.plan);
-    write_model_files(&loaded.plan, &mut records);
+    write_model_files(&loaded.plan, &mut results.steps);
     let built_at = build_time();
     let html = report::render(
         &report::ReportInput {
@@ -196,7 +195,7 @@ pub fn build(options: &BuildOptions) -> Result<BuildSummary, Error> {
             document_name: &loaded.name,
             document_hash: &loaded.hash,
             plan: &loaded.plan,
-            records: &records,
+            results: &results,
             allow_html: options.allow_html,
             built_at: &built_at,
         },
@@ -205,14 +204,14 @@ pub fn build(options: &BuildOptions) -> Result<BuildSummary, Error> {
     .map_err(|error| Error::Usage(format!("rendering the report: {error:#}")))?;
     write_output(&targets.report, html.as_bytes())?;
     if let Some(json_path) = &targets.json {
-        let summary = report::summary::summary(&loaded.name, &loaded.hash, &loaded.plan, &records);
+        let summary = report::summary::summary(&loaded.name, &loaded.hash, &loaded.plan, &results);
         let text = serde_json::to_string_pretty(&summary).expect("a JSON value serialises");
         write_output(json_path, text.as_bytes())?;
     }
     Ok(summarise(
         report_path(options),
         &loaded.plan,
-        &records,
+        &results,
         cache.take_warnings(),
     ))
 }
@@ -293,8 +292,8 @@ fn remove_stale_temporaries(plan: &Plan, targets: &outputs::BuildTargets) {
 /// cache and renders nothing; what a cluster task runs.
 pub fn build_share(
     options: &BuildOptions,
-    share: shard::Share,
-) -> Result<run::ShareSummary, Error> {
+    share: share::Share,
+) -> Result<build::ShareSummary, Error> {
     let loaded = load(&options.document, &options.plan)?;
     let cache = open_cache(&options.cache, &options.document);
     if cache.dir().is_none() {
@@ -304,7 +303,7 @@ pub fn build_share(
         jobs: options.jobs,
         progress: None,
     };
-    Ok(run::execute_share(
+    Ok(build::execute_share(
         &loaded.plan,
         &cache,
         &run_options,
@@ -334,7 +333,7 @@ pub fn dispatch(
     if tasks == 0 {
         return Err(Error::Usage("--tasks must be at least 1".into()));
     }
-    let slurm = dispatch::Slurm::locate(wait.is_some()).map_err(Error::Usage)?;
+    let slurm = cluster::Slurm::locate(wait.is_some()).map_err(Error::Usage)?;
     let loaded = load(&options.document, &options.plan)?;
     let cache = open_cache(&options.cache, &options.document);
     let Some(dir) = cache.dir() else {
@@ -351,19 +350,19 @@ pub fn dispatch(
         .document
         .canonicalize()
         .map_err(io(format!("resolving {}", options.document.display())))?;
-    if let Some((id, error)) = run::prepare_only(&loaded.plan, &cache).into_iter().next() {
+    if let Some((id, error)) = build::prepare_only(&loaded.plan, &cache).into_iter().next() {
         return Err(Error::Usage(format!(
             "step '{id}' failed before any training: {error}"
         )));
     }
-    let request = dispatch::DispatchRequest {
+    let request = cluster::DispatchRequest {
         document: &document,
         cache_dir: &cache_dir,
         tasks,
         sbatch_options,
         plan: &options.plan,
     };
-    let (job, script) = dispatch::submit(&request, &slurm.sbatch).map_err(Error::Usage)?;
+    let (job, script) = cluster::submit(&request, &slurm.sbatch).map_err(Error::Usage)?;
     let (Some(timeout), Some(squeue)) = (wait, &slurm.squeue) else {
         return Ok(Dispatched {
             job,
@@ -372,7 +371,7 @@ pub fn dispatch(
         });
     };
     eprintln!("submitted job {job} ({tasks} tasks); waiting for it");
-    dispatch::wait_for(&job, squeue, timeout).map_err(Error::Usage)?;
+    cluster::wait_for(&job, squeue, timeout).map_err(Error::Usage)?;
     let (cached, all) = freshness::run_totals(&loaded.plan, &cache);
     let missing = all - cached;
     let finished = if missing > 0 {
@@ -411,7 +410,7 @@ pub struct StatusReport {
 }
 
 /// `stet clean`: removes the cache entries no document still uses (see
-/// `prune::entries_in_use`); with no document, the whole cache. The cache is the one
+/// `pruning::entries_in_use`); with no document, the whole cache. The cache is the one
 /// the first document (or the current folder) would use. With `dry_run` nothing is
 /// removed and the result lists what would be.
 pub fn clean(
@@ -419,14 +418,14 @@ pub fn clean(
     cache: &CacheChoice,
     options: &plan::PlanOptions,
     dry_run: bool,
-) -> Result<prune::Cleaning, Error> {
+) -> Result<pruning::Cleaning, Error> {
     let anchor = documents
         .first()
         .cloned()
         .unwrap_or_else(|| PathBuf::from("stet.md"));
     let cache = open_cache(cache, &anchor);
     let Some(dir) = cache.dir().map(Path::to_path_buf) else {
-        return Ok(prune::Cleaning::default());
+        return Ok(pruning::Cleaning::default());
     };
     let loaded = documents
         .iter()
@@ -436,7 +435,7 @@ pub fn clean(
     let keep = if documents.is_empty() {
         None
     } else {
-        let in_use = prune::entries_in_use(&cache, documents, &plans).map_err(|error| {
+        let in_use = pruning::entries_in_use(&cache, documents, &plans).map_err(|error| {
             Error::Usage(format!(
                 "{error}; nothing was removed, since what its document uses is unknown \
                  (remove that record, or clean the whole cache with `stet clean --cache {}`)",
@@ -445,22 +444,22 @@ pub fn clean(
         })?;
         Some(in_use)
     };
-    Ok(prune::remove_unused(&dir, keep.as_ref(), dry_run))
+    Ok(pruning::remove_unused(&dir, keep.as_ref(), dry_run))
 }
 
 fn summarise(
     report: PathBuf,
     plan: &Plan,
-    records: &[StepRecord],
+    results: &BuildResult,
     warnings: Vec<String>,
 ) -> BuildSummary {
-    let tally = run::tally(records);
+    let tally = results.tally();
     BuildSummary {
         report,
-        steps: records.len(),
+        steps: results.steps.len(),
         ran: tally.ran,
         reused: tally.reused,
-        failed: run::failures(plan, records.iter().map(Some)),
+        failed: results.failures(plan),
         warnings,
     }
 }
@@ -468,13 +467,13 @@ fn summarise(
 /// Writes the file each predict and export step asked for. A write that fails (the
 /// plan checked every path, but the disk may still refuse) fails its step in place, so
 /// the report is still written and shows why.
-fn write_model_files(plan: &Plan, records: &mut [StepRecord]) {
+fn write_model_files(plan: &Plan, records: &mut [StepResult]) {
     for (step, record) in plan.steps.iter().zip(records.iter_mut()) {
         let (Some(output), Some(bytes)) = (&step.output, model_file(record)) else {
             continue;
         };
         if let Err(error) = atomic::write(&output.path, bytes) {
-            record.status = run::Status::Failed {
+            record.status = build::Status::Failed {
                 error: format!("writing {}: {error}", output.path.display()),
             };
         }
@@ -482,7 +481,7 @@ fn write_model_files(plan: &Plan, records: &mut [StepRecord]) {
 }
 
 /// The bytes a predict or export step's result saves.
-fn model_file(record: &StepRecord) -> Option<&[u8]> {
+fn model_file(record: &StepResult) -> Option<&[u8]> {
     match &record.outcome {
         Some(outcome::Outcome::Predict(result)) => Some(result.csv.as_bytes()),
         Some(outcome::Outcome::Export(result)) => Some(result.json.as_bytes()),

@@ -7,8 +7,7 @@ use std::time::Duration;
 
 use clap::{Parser, Subcommand};
 use stet::plan::{Limits, PlanOptions};
-use stet::shard::Share;
-use stet::{BuildOptions, CacheChoice, Error};
+use stet::{BuildOptions, CacheChoice, Error, Share, console};
 
 #[derive(Parser)]
 #[command(
@@ -150,7 +149,7 @@ fn main() -> ExitCode {
     match run(cli.command) {
         Ok(code) => code,
         Err(error) => {
-            report_error(&error);
+            console::print(&console::error(&error));
             ExitCode::from(2)
         }
     }
@@ -186,20 +185,16 @@ fn run(command: Command) -> Result<ExitCode, Error> {
             };
             if let Some(share) = shard {
                 let done = stet::build_share(&options, share)?;
-                for (id, error) in &done.failed {
-                    eprintln!("step '{id}' failed: {error}");
-                }
-                println!(
-                    "share {share}: trained {} runs; {} of the document's runs were uncached when it started",
-                    done.trained, done.uncached
-                );
+                console::print(&console::share(share, &done));
                 return Ok(if done.failed.is_empty() {
                     ExitCode::SUCCESS
                 } else {
                     ExitCode::from(1)
                 });
             }
-            Ok(report_build(&stet::build(&options)?))
+            let summary = stet::build(&options)?;
+            console::print(&console::build(&summary));
+            Ok(build_exit_code(&summary))
         }
         Command::Dispatch {
             document,
@@ -222,17 +217,11 @@ fn run(command: Command) -> Result<ExitCode, Error> {
             };
             let dispatched =
                 stet::dispatch(&options, tasks, wait.then_some(wait_timeout), &sbatch)?;
-            println!("{}", dispatched.job);
-            eprintln!("job script: {}", dispatched.script.display());
-            Ok(match dispatched.finished {
+            console::print(&console::dispatched(&dispatched));
+            Ok(match &dispatched.finished {
                 None => ExitCode::SUCCESS,
-                Some(Ok(summary)) => report_build(&summary),
-                Some(Err(missing)) => {
-                    eprintln!(
-                        "{missing} runs are still not in the cache: a task failed (its log is beside the job script); dispatch again to run only those"
-                    );
-                    ExitCode::from(1)
-                }
+                Some(Ok(summary)) => build_exit_code(summary),
+                Some(Err(_missing)) => ExitCode::from(1),
             })
         }
         Command::Status {
@@ -241,23 +230,7 @@ fn run(command: Command) -> Result<ExitCode, Error> {
             flags,
         } => {
             let report = stet::status(&document, &cache_choice(cache), &flags.options())?;
-            for step in &report.steps {
-                let decision = match step.run_reason {
-                    None => "reuse".to_string(),
-                    Some(reason) => format!("run ({reason})"),
-                };
-                let runs = step.runs.map_or(String::new(), |(done, all)| {
-                    format!("  {done}/{all} runs cached")
-                });
-                println!(
-                    "{:<16} {:<7} {}  {decision}{runs}",
-                    step.id,
-                    step.kind.word(),
-                    step.short_key
-                );
-            }
-            let (done, all) = report.runs;
-            println!("training runs: {done} cached, {} to train", all - done);
+            console::print(&console::status(&report));
             Ok(ExitCode::SUCCESS)
         }
         Command::Clean {
@@ -268,52 +241,14 @@ fn run(command: Command) -> Result<ExitCode, Error> {
         } => {
             let cleaning =
                 stet::clean(&documents, &cache_choice(cache), &flags.options(), dry_run)?;
-            report_clean(&cleaning, dry_run);
+            console::print(&console::clean(&cleaning, dry_run));
             Ok(ExitCode::SUCCESS)
         }
     }
 }
 
-/// Prints what a clean removed (or would remove) and what it passed over.
-fn report_clean(cleaning: &stet::prune::Cleaning, dry_run: bool) {
-    for skipped in &cleaning.skipped {
-        eprintln!(
-            "warning: left {} in place: {}",
-            skipped.path.display(),
-            skipped.reason
-        );
-    }
-    let (count, bytes) = (cleaning.removed.len(), cleaning.bytes());
-    if dry_run {
-        for removal in &cleaning.removed {
-            println!(
-                "would remove {} ({} bytes)",
-                removal.path.display(),
-                removal.bytes
-            );
-        }
-        println!("would remove {count} cache entries, {bytes} bytes");
-    } else {
-        println!("removed {count} cache entries, {bytes} bytes freed");
-    }
-}
-
-/// Prints what a finished build did; exit code 1 when a step failed.
-fn report_build(summary: &stet::BuildSummary) -> ExitCode {
-    for warning in &summary.warnings {
-        eprintln!("warning: {warning}");
-    }
-    for (id, error) in &summary.failed {
-        eprintln!("step '{id}' failed: {error}");
-    }
-    eprintln!(
-        "{}: {} steps, {} ran, {} reused, {} failed",
-        summary.report.display(),
-        summary.steps,
-        summary.ran,
-        summary.reused,
-        summary.failed.len()
-    );
+/// Exit code 1 when a step failed.
+fn build_exit_code(summary: &stet::BuildSummary) -> ExitCode {
     if summary.failed.is_empty() {
         ExitCode::SUCCESS
     } else {
@@ -327,26 +262,4 @@ fn cache_choice(dir: Option<PathBuf>) -> CacheChoice {
 
 fn default_jobs() -> usize {
     std::thread::available_parallelism().map_or(1, |n| n.get())
-}
-
-/// Document problems print with their source line marked; others as one line.
-fn report_error(error: &Error) {
-    match error {
-        Error::Document(errors) => {
-            let handler = miette::GraphicalReportHandler::new();
-            for diagnostic in errors.diagnostics() {
-                let mut out = String::new();
-                match handler.render_report(&mut out, &diagnostic) {
-                    Ok(()) => eprint!("{out}"),
-                    Err(_) => eprintln!("error: {diagnostic}"),
-                }
-            }
-            eprintln!(
-                "{}: {} problem(s); nothing was written",
-                errors.path,
-                errors.problems.len()
-            );
-        }
-        other => eprintln!("error: {other}"),
-    }
 }

@@ -12,7 +12,7 @@ use hashbrown::{DefaultHashBuilder, HashTable};
 
 /// A column's distinct texts, in order of first appearance, and each row's code.
 #[derive(Clone, Debug, Default)]
-pub struct CodedColumn {
+pub(crate) struct CodedColumn {
     /// Every distinct text, one after another.
     text: String,
     /// Where each distinct text ends in `text`; text `i` starts where `i - 1` ends.
@@ -22,28 +22,28 @@ pub struct CodedColumn {
 
 impl CodedColumn {
     /// Number of distinct texts; codes run from 0 to this minus one.
-    pub fn distinct(&self) -> usize {
+    pub(crate) fn distinct(&self) -> usize {
         self.ends.len()
     }
 
     /// The code of row `row`'s text.
-    pub fn code(&self, row: usize) -> usize {
+    pub(crate) fn code(&self, row: usize) -> usize {
         self.codes.get(row)
     }
 
     /// The distinct text numbered `code`.
-    pub fn text(&self, code: usize) -> &str {
+    pub(crate) fn text(&self, code: usize) -> &str {
         let start = if code == 0 { 0 } else { self.ends[code - 1] };
         &self.text[start..self.ends[code]]
     }
 
     /// Row `row`'s text.
-    pub fn cell(&self, row: usize) -> &str {
+    pub(crate) fn cell(&self, row: usize) -> &str {
         self.text(self.code(row))
     }
 
     /// The distinct texts in code order.
-    pub fn texts(&self) -> impl Iterator<Item = &str> {
+    pub(crate) fn texts(&self) -> impl Iterator<Item = &str> {
         (0..self.distinct()).map(|code| self.text(code))
     }
 }
@@ -94,7 +94,7 @@ impl Codes {
 
 /// Why a cell could not be added to a column.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
-pub enum PushError {
+pub(super) enum PushError {
     /// The cell's bytes are not UTF-8 text.
     InvalidUtf8,
     /// The column already holds 2³² distinct texts, the most a code can number.
@@ -103,7 +103,7 @@ pub enum PushError {
 
 /// Builds a [`CodedColumn`] row by row, finding each cell's code by hash.
 #[derive(Default)]
-pub struct ColumnBuilder {
+pub(super) struct ColumnBuilder {
     column: CodedColumn,
     /// The codes of the distinct texts, hashed by their bytes.
     lookup: HashTable<u32>,
@@ -113,7 +113,7 @@ pub struct ColumnBuilder {
 impl ColumnBuilder {
     /// Appends a row whose cell holds `bytes`. Only a text not seen before is checked
     /// for UTF-8 and stored; a repeated one costs a hash look-up.
-    pub fn push(&mut self, bytes: &[u8]) -> Result<(), PushError> {
+    pub(super) fn push(&mut self, bytes: &[u8]) -> Result<(), PushError> {
         let column = &mut self.column;
         let hash = self.hasher.hash_one(bytes);
         let found = self
@@ -139,7 +139,7 @@ impl ColumnBuilder {
     }
 
     /// The column, without the look-up table, which reading alone needs.
-    pub fn finish(self) -> CodedColumn {
+    pub(super) fn finish(self) -> CodedColumn {
         let mut column = self.column;
         column.text.shrink_to_fit();
         column.ends.shrink_to_fit();

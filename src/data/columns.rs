@@ -9,7 +9,7 @@ use super::table::Table;
 
 /// Positions, in the table, of the columns an experiment uses.
 #[derive(Clone, Debug, PartialEq, Eq)]
-pub struct UsedColumns {
+pub(super) struct UsedColumns {
     /// Input columns in the order the settings list them (table order when not listed).
     pub inputs: Vec<usize>,
     /// Target columns in the order the settings list them.
@@ -18,13 +18,13 @@ pub struct UsedColumns {
 
 impl UsedColumns {
     /// Inputs then targets: every column whose cells matter.
-    pub fn all(&self) -> impl Iterator<Item = usize> + '_ {
+    pub(super) fn all(&self) -> impl Iterator<Item = usize> + '_ {
         self.inputs.iter().chain(&self.targets).copied()
     }
 }
 
 /// Check the settings' column names against the table.
-pub fn resolve(table: &Table, settings: &DataSettings) -> Result<UsedColumns, DataError> {
+pub(super) fn resolve(table: &Table, settings: &DataSettings) -> Result<UsedColumns, DataError> {
     if settings.target.is_empty() {
         return Err(DataError::NoTarget);
     }
@@ -47,7 +47,7 @@ pub fn resolve(table: &Table, settings: &DataSettings) -> Result<UsedColumns, Da
 }
 
 /// Positions of `names`, which must all exist and not repeat.
-pub fn find_all(
+pub(super) fn find_all(
     table: &Table,
     names: &[String],
     role: &'static str,
@@ -66,7 +66,7 @@ pub fn find_all(
 }
 
 /// Position of the column `name`, or an error listing the columns and the nearest name.
-pub fn find(table: &Table, name: &str, role: &'static str) -> Result<usize, DataError> {
+pub(super) fn find(table: &Table, name: &str, role: &'static str) -> Result<usize, DataError> {
     table.column(name).ok_or_else(|| DataError::UnknownColumn {
         role,
         name: name.to_string(),

@@ -151,7 +151,7 @@ impl Encoding {
 
 /// The result of fitting an encoding to the kept rows of a table.
 #[derive(Clone, Debug, PartialEq)]
-pub struct Encoded {
+pub(super) struct Encoded {
     /// The decisions made.
     pub encoding: Encoding,
     /// Unscaled inputs, one row per kept row.
@@ -164,7 +164,7 @@ pub struct Encoded {
 
 /// Learn the encoding from the `kept` rows (none of which has a missing value
 /// in a used column) and encode them.
-pub fn fit(
+pub(super) fn fit(
     table: &Table,
     used: &UsedColumns,
     kept: &[usize],

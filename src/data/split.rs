@@ -16,7 +16,7 @@ use super::settings::Split;
 
 /// Row indices of one training/test division, each list sorted.
 #[derive(Clone, Debug, PartialEq, Eq)]
-pub struct RowSplit {
+pub(super) struct RowSplit {
     /// Rows to fit on.
     pub train: Vec<usize>,
     /// Rows held out.
@@ -25,7 +25,7 @@ pub struct RowSplit {
 
 /// The class of every row, for stratified splits.
 #[derive(Clone, Copy, Debug)]
-pub struct Strata<'a> {
+pub(super) struct Strata<'a> {
     /// Class index per row.
     pub labels: &'a [usize],
     /// Class names, indexed by label (for messages).
@@ -45,7 +45,7 @@ impl Strata<'_> {
 
 /// Divide `n_rows` rows as `split` says: one division for a holdout, one per
 /// fold for k-fold. `strata` is given for classification.
-pub fn split_rows(
+pub(super) fn split_rows(
     split: Split,
     n_rows: usize,
     strata: Option<Strata>,

@@ -20,7 +20,7 @@
 /// fdlibm's). `2^k` is applied as two factors so that results near overflow
 /// and in the subnormal range are rounded once, correctly.
 #[inline(always)]
-pub fn exp(x: f64) -> f64 {
+pub(super) fn exp(x: f64) -> f64 {
     // ln 2 = LN2_HI + LN2_LO, the first with its low 32 bits zero.
     const LN2_HI: f64 = f64::from_bits(0x3FE6_2E42_FEE0_0000);
     const LN2_LO: f64 = f64::from_bits(0x3DEA_39EF_3579_3C76);
@@ -57,7 +57,7 @@ pub fn exp(x: f64) -> f64 {
 /// pay; the results do not depend on which path runs (each lane does the same
 /// IEEE operations, and Rust never fuses them).
 #[inline]
-pub fn map<F: Copy>(values: &mut [F], f: impl Fn(F) -> F) {
+pub(super) fn map<F: Copy>(values: &mut [F], f: impl Fn(F) -> F) {
     #[cfg(target_arch = "x86_64")]
     if std::arch::is_x86_feature_detected!("avx512f") {
         // SAFETY: AVX-512 F was detected.

@@ -3,7 +3,7 @@
 use plotters::prelude::*;
 
 /// One line on a chart.
-pub struct Series {
+pub(crate) struct Series {
     pub label: String,
     /// (epoch, value) pairs, epochs counted from 1.
     pub points: Vec<(f64, f64)>,
@@ -24,7 +24,7 @@ const COLOURS: [RGBColor; 6] = [
 const MAX_POINTS: usize = 240;
 
 /// Thins a history to at most `MAX_POINTS` points, keeping the first and last.
-pub fn thin(points: Vec<(f64, f64)>) -> Vec<(f64, f64)> {
+pub(crate) fn thin(points: Vec<(f64, f64)>) -> Vec<(f64, f64)> {
     if points.len() <= MAX_POINTS {
         return points;
     }
@@ -38,7 +38,7 @@ pub fn thin(points: Vec<(f64, f64)>) -> Vec<(f64, f64)> {
 }
 
 /// Axis labels and scales of a line chart.
-pub struct Axes<'a> {
+pub(crate) struct Axes<'a> {
     pub x_label: &'a str,
     pub y_label: &'a str,
     /// Logarithmic x axis: values are plotted as log10 and labelled as themselves.
@@ -48,7 +48,7 @@ pub struct Axes<'a> {
 
 impl Axes<'_> {
     /// Epochs against loss.
-    pub fn loss(log_y: bool) -> Axes<'static> {
+    pub(crate) fn loss(log_y: bool) -> Axes<'static> {
         Axes {
             x_label: "epoch",
             y_label: "loss",
@@ -60,7 +60,7 @@ impl Axes<'_> {
 
 /// Draws the series; non-finite values (a diverged run), and values that a log axis
 /// cannot show, are left out of the lines.
-pub fn line_chart(series: &[Series], axes: &Axes<'_>) -> String {
+pub(crate) fn line_chart(series: &[Series], axes: &Axes<'_>) -> String {
     let log_y = axes.log_y;
     let finite = |&(x, y): &(f64, f64)| {
         y.is_finite() && x.is_finite() && (!log_y || y > 0.0) && (!axes.log_x || x > 0.0)
@@ -135,7 +135,7 @@ fn padded(values: impl Iterator<Item = f64>, log: bool, fallback: (f64, f64)) ->
 }
 
 /// A bar per label, for a metric across runs.
-pub fn bar_chart(bars: &[(String, f64)], y_label: &str) -> String {
+pub(crate) fn bar_chart(bars: &[(String, f64)], y_label: &str) -> String {
     let values: Vec<f64> = bars.iter().map(|b| b.1).filter(|v| v.is_finite()).collect();
     let top = values.iter().fold(0.0f64, |a, &b| a.max(b));
     let bottom = values.iter().fold(0.0f64, |a, &b| a.min(b));

@@ -5,8 +5,8 @@ use serde::Serialize;
 
 use super::chart::{self, Axes, Series};
 use super::view::{mean_curve, stat_text, stop_counts};
+use crate::build::outcome::{FitResult, RowSet, SetMetrics, SweepResult};
 use crate::document::spec::{ChartChoice, CompareSpec, MetricName};
-use crate::outcome::{FitResult, RowSet, SetMetrics, SweepResult};
 use crate::plan::describe;
 
 /// Lines a chart of several fits draws at most, so that it stays legible.
@@ -14,7 +14,7 @@ const MAX_LINES: usize = 8;
 
 /// A sweep's card.
 #[derive(Serialize)]
-pub struct SweepView {
+pub(crate) struct SweepView {
     pub setting_names: Vec<String>,
     pub metric_names: Vec<String>,
     pub rows_label: &'static str,
@@ -29,7 +29,7 @@ pub struct SweepView {
 }
 
 #[derive(Serialize)]
-pub struct SweepRow {
+pub(crate) struct SweepRow {
     pub rank: usize,
     pub best: bool,
     pub settings: Vec<String>,
@@ -44,7 +44,7 @@ fn rows_label(rows: RowSet) -> &'static str {
     }
 }
 
-pub fn sweep_view(result: &SweepResult) -> SweepView {
+pub(crate) fn sweep_view(result: &SweepResult) -> SweepView {
     let first = &result.fits[0];
     let stats_names: Vec<&'static str> = first
         .metric_stats(result.rank_rows)
@@ -189,7 +189,7 @@ fn capitalise(text: &str) -> String {
 
 /// A compare step's card.
 #[derive(Serialize)]
-pub struct CompareView {
+pub(crate) struct CompareView {
     pub metric_names: Vec<String>,
     pub rows: Vec<CompareRow>,
     pub chart: Option<String>,
@@ -197,7 +197,7 @@ pub struct CompareView {
 }
 
 #[derive(Serialize)]
-pub struct CompareRow {
+pub(crate) struct CompareRow {
     pub id: String,
     pub what: String,
     pub rows_label: &'static str,
@@ -205,7 +205,7 @@ pub struct CompareRow {
 }
 
 /// One entry of a comparison: an id and the fit it stands for.
-pub struct Compared<'a> {
+pub(crate) struct Compared<'a> {
     pub id: &'a str,
     /// For a sweep, which combination (its best) is shown.
     pub what: String,
@@ -220,7 +220,7 @@ fn default_metrics(fit: &FitResult) -> Vec<MetricName> {
     }
 }
 
-pub fn compare_view(spec: &CompareSpec, entries: &[Compared<'_>]) -> CompareView {
+pub(crate) fn compare_view(spec: &CompareSpec, entries: &[Compared<'_>]) -> CompareView {
     let metrics = spec.metrics.clone().unwrap_or_else(|| {
         entries
             .first()

@@ -3,7 +3,7 @@
 use crate::nn::StopReason;
 
 /// A number with four significant digits; non-finite values as a dash.
-pub fn number(value: f64) -> String {
+pub(crate) fn number(value: f64) -> String {
     if !value.is_finite() {
         return "—".into();
     }
@@ -19,12 +19,12 @@ pub fn number(value: f64) -> String {
 }
 
 /// Mean ± standard deviation.
-pub fn mean_sd(mean: f64, sd: f64) -> String {
+pub(crate) fn mean_sd(mean: f64, sd: f64) -> String {
     format!("{} ± {}", number(mean), number(sd))
 }
 
 /// Seconds for people: milliseconds under one second.
-pub fn seconds(value: f64) -> String {
+pub(crate) fn seconds(value: f64) -> String {
     if value < 1.0 {
         format!("{:.0} ms", value * 1000.0)
     } else {
@@ -33,7 +33,7 @@ pub fn seconds(value: f64) -> String {
 }
 
 /// The stop reason in words, as the report shows it.
-pub fn stop_reason(reason: StopReason) -> &'static str {
+pub(crate) fn stop_reason(reason: StopReason) -> &'static str {
     match reason {
         StopReason::TargetLoss => "target loss reached",
         StopReason::EpochLimit => "epoch limit",
@@ -43,7 +43,7 @@ pub fn stop_reason(reason: StopReason) -> &'static str {
 }
 
 /// The stop reason as the JSON summary names it.
-pub fn stop_code(reason: StopReason) -> &'static str {
+pub(crate) fn stop_code(reason: StopReason) -> &'static str {
     match reason {
         StopReason::TargetLoss => "target_loss",
         StopReason::EpochLimit => "epoch_limit",

@@ -2,14 +2,14 @@
 //! from minijinja templates compiled into the binary (or read from `--templates DIR`).
 //! Renderers return strings; only the command layer writes files.
 
-pub mod chart;
-pub mod compare_view;
-pub mod format;
-pub mod model_view;
-pub mod prose;
-pub mod settings;
-pub mod summary;
-pub mod view;
+pub(crate) mod chart;
+pub(crate) mod compare_view;
+pub(crate) mod format;
+pub(crate) mod model_view;
+pub(crate) mod prose;
+pub(crate) mod settings;
+pub(crate) mod summary;
+pub(crate) mod view;
 
 use std::path::Path;
 
@@ -17,10 +17,10 @@ use minijinja::Environment;
 use pulldown_cmark::{Event, Parser, Tag};
 use serde::Serialize;
 
+use crate::build::outcome::Outcome;
+use crate::build::{BuildResult, Status};
 use crate::document::{Document, Piece, StepSpec};
-use crate::outcome::Outcome;
 use crate::plan::{Plan, short_key};
-use crate::run::{Status, StepRecord};
 use compare_view::{CompareView, Compared, SweepView, compare_view, sweep_view};
 use format::seconds;
 use model_view::{ExportView, PredictView, export_view, predict_view};
@@ -35,13 +35,13 @@ const BUILT_IN: &[(&str, &str)] = &[
 ];
 
 /// A loaded set of templates.
-pub struct Templates {
+pub(crate) struct Templates {
     env: Environment<'static>,
 }
 
 impl Templates {
     /// The templates compiled into the binary.
-    pub fn built_in() -> Templates {
+    pub(crate) fn built_in() -> Templates {
         let mut env = Environment::new();
         for (name, text) in BUILT_IN {
             env.add_template(name, text)
@@ -51,7 +51,7 @@ impl Templates {
     }
 
     /// The built-in templates, each replaced by a file of the same name in `dir` if present.
-    pub fn with_overrides(dir: &Path) -> Result<Templates, String> {
+    pub(crate) fn with_overrides(dir: &Path) -> Result<Templates, String> {
         if !dir.is_dir() {
             return Err(format!("--templates {}: no such folder", dir.display()));
         }
@@ -71,13 +71,13 @@ impl Templates {
 }
 
 /// Everything a report is made from.
-pub struct ReportInput<'a> {
+pub(crate) struct ReportInput<'a> {
     pub document: &'a Document,
     /// The document's path as the user gave it.
     pub document_name: &'a str,
     pub document_hash: &'a str,
     pub plan: &'a Plan,
-    pub records: &'a [StepRecord],
+    pub results: &'a BuildResult,
     pub allow_html: bool,
     /// When the build ran, already formatted.
     pub built_at: &'a str,
@@ -125,13 +125,16 @@ struct StepView {
 }
 
 /// Renders the report to a string.
-pub fn render(input: &ReportInput<'_>, templates: &Templates) -> Result<String, minijinja::Error> {
+pub(crate) fn render(
+    input: &ReportInput<'_>,
+    templates: &Templates,
+) -> Result<String, minijinja::Error> {
     let view = ReportView {
         title: title(input),
         author: input.document.front.author.as_deref(),
         notes: input.document.front.notes.as_deref(),
         built_at: input.built_at,
-        run_summary: run_summary(input.records),
+        run_summary: run_summary(input.results),
         version: env!("CARGO_PKG_VERSION"),
         document_name: input.document_name,
         document_hash: input.document_hash,
@@ -166,11 +169,11 @@ fn title(input: &ReportInput<'_>) -> String {
 }
 
 /// Steps, how many ran and were reused (and failed), and the time spent training.
-fn run_summary(records: &[StepRecord]) -> String {
-    let tally = crate::run::tally(records);
+fn run_summary(results: &BuildResult) -> String {
+    let tally = results.tally();
     let mut summary = format!(
         "{} steps · {} ran · {} reused",
-        records.len(),
+        results.steps.len(),
         tally.ran,
         tally.reused
     );
@@ -241,7 +244,7 @@ fn split_lead(markdown: &str) -> (&str, &str) {
 
 fn step_view(input: &ReportInput<'_>, index: usize, yaml: &str, beside_html: String) -> StepView {
     let step = &input.plan.steps[index];
-    let record = &input.records[index];
+    let record = &input.results.steps[index];
     let (status, status_text, error) = match &record.status {
         Status::Ran { seconds: s } => ("ran", format!("ran in {}", seconds(*s)), None),
         Status::Reused => ("reused", "reused from the cache".to_string(), None),
@@ -251,7 +254,7 @@ fn step_view(input: &ReportInput<'_>, index: usize, yaml: &str, beside_html: Str
         StepSpec::Train(train) => match input
             .plan
             .index_of(&train.data)
-            .and_then(|d| input.records[d].outcome.as_ref())
+            .and_then(|d| input.results.steps[d].outcome.as_ref())
         {
             Some(Outcome::Data(summary)) => summary.classes.clone(),
             _ => None,
@@ -312,7 +315,7 @@ fn compared<'a>(
         .into_iter()
         .filter_map(|u| {
             let id = input.plan.steps[u].id.as_str();
-            match input.records[u].outcome.as_ref()? {
+            match input.results.steps[u].outcome.as_ref()? {
                 Outcome::Train(fit) => Some(Compared {
                     id,
                     what: String::new(),

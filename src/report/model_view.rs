@@ -3,13 +3,13 @@
 use serde::Serialize;
 
 use super::format::number;
-use crate::outcome::{ExportResult, PredictResult};
+use crate::build::outcome::{ExportResult, PredictResult};
 
 /// Rows a predict card shows; the written CSV has them all.
 const SHOWN_ROWS: usize = 50;
 
 #[derive(Serialize)]
-pub struct PredictView {
+pub(crate) struct PredictView {
     /// Whether rows have a predicted class label (classification) besides the values.
     pub labelled: bool,
     pub output_names: Vec<String>,
@@ -19,13 +19,13 @@ pub struct PredictView {
 }
 
 #[derive(Serialize)]
-pub struct PredictRow {
+pub(crate) struct PredictRow {
     pub line: u64,
     pub predicted: String,
     pub values: Vec<String>,
 }
 
-pub fn predict_view(result: &PredictResult) -> PredictView {
+pub(crate) fn predict_view(result: &PredictResult) -> PredictView {
     let rows: Vec<PredictRow> = result
         .lines
         .iter()
@@ -48,12 +48,12 @@ pub fn predict_view(result: &PredictResult) -> PredictView {
 }
 
 #[derive(Serialize)]
-pub struct ExportView {
+pub(crate) struct ExportView {
     pub bytes: usize,
     pub layers: usize,
 }
 
-pub fn export_view(result: &ExportResult) -> ExportView {
+pub(crate) fn export_view(result: &ExportResult) -> ExportView {
     let layers = serde_json::from_str::<serde_json::Value>(&result.json)
         .ok()
         .and_then(|doc| doc["layers"].as_array().map(Vec::len))

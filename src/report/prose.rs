@@ -11,7 +11,7 @@ use crate::document::markdown_options;
 
 /// Renders Markdown; with `allow_html` false, raw HTML blocks and inline tags are escaped.
 /// Link destinations are filtered and images shown as links whatever `allow_html` says.
-pub fn render(markdown: &str, allow_html: bool) -> String {
+pub(crate) fn render(markdown: &str, allow_html: bool) -> String {
     let events = Parser::new_ext(markdown, markdown_options()).map(|event| match event {
         Event::Html(raw) | Event::InlineHtml(raw) if !allow_html => Event::Text(raw),
         other => other,

@@ -13,7 +13,7 @@ use crate::nn::{BatchSize, Optimizer};
 
 /// One row of a settings table.
 #[derive(Clone, Debug, Serialize)]
-pub struct SettingRow {
+pub(crate) struct SettingRow {
     pub name: &'static str,
     pub value: String,
     /// Not written in the block: the default applies.
@@ -21,7 +21,7 @@ pub struct SettingRow {
 }
 
 /// The settings rows of a step; `yaml` is the block as written, to tell defaults apart.
-pub fn rows(spec: &StepSpec, yaml: &str) -> Vec<SettingRow> {
+pub(crate) fn rows(spec: &StepSpec, yaml: &str) -> Vec<SettingRow> {
     let written = written_keys(yaml);
     let row = |name: &'static str, value: String| SettingRow {
         default: !written.contains(name),

@@ -4,21 +4,21 @@
 use serde_json::{Map, Value, json};
 
 use super::format::stop_code;
-use crate::outcome::{FitResult, MetricStat, Outcome, RowSet, RunResult, SetMetrics};
+use crate::build::outcome::{FitResult, MetricStat, Outcome, RowSet, RunResult, SetMetrics};
+use crate::build::{BuildResult, Status};
 use crate::plan::Plan;
-use crate::run::{Status, StepRecord};
 
 /// The summary as a JSON value.
-pub fn summary(
+pub(crate) fn summary(
     document_name: &str,
     document_hash: &str,
     plan: &Plan,
-    records: &[StepRecord],
+    results: &BuildResult,
 ) -> Value {
     let steps: Vec<Value> = plan
         .steps
         .iter()
-        .zip(records)
+        .zip(&results.steps)
         .map(|(step, record)| {
             let mut object = Map::new();
             object.insert("id".into(), json!(step.id));

@@ -5,13 +5,13 @@ use serde::Serialize;
 
 use super::chart::{self, Series};
 use super::format::{mean_sd, number, seconds, stop_reason};
+use crate::build::outcome::{DataSummary, FitResult, MetricStat, RowSet, SetMetrics};
 use crate::document::spec::word;
 use crate::nn::ClassificationMetrics;
-use crate::outcome::{DataSummary, FitResult, MetricStat, RowSet, SetMetrics};
 
 /// What a data step's card shows.
 #[derive(Serialize)]
-pub struct DataView {
+pub(crate) struct DataView {
     pub task: String,
     pub rows_read: usize,
     pub rows_dropped: usize,
@@ -24,14 +24,14 @@ pub struct DataView {
 }
 
 #[derive(Serialize)]
-pub struct ColumnView {
+pub(crate) struct ColumnView {
     pub name: String,
     pub kind: String,
     pub note: String,
 }
 
 #[derive(Serialize)]
-pub struct ClassRow {
+pub(crate) struct ClassRow {
     pub label: String,
     pub train: usize,
     pub test: usize,
@@ -41,7 +41,7 @@ pub struct ClassRow {
 /// is flagged as looking like an identifier (below it, a small table's few texts).
 const IDENTIFIER_LIKE_CATEGORIES: usize = 20;
 
-pub fn data_view(summary: &DataSummary) -> DataView {
+pub(crate) fn data_view(summary: &DataSummary) -> DataView {
     let rows_used = summary.rows_read - summary.rows_dropped;
     let columns = summary
         .columns
@@ -118,7 +118,7 @@ pub fn data_view(summary: &DataSummary) -> DataView {
 
 /// What a train step's card shows.
 #[derive(Serialize)]
-pub struct TrainView {
+pub(crate) struct TrainView {
     pub layers: String,
     pub loss: String,
     pub metric_names: Vec<String>,
@@ -133,13 +133,13 @@ pub struct TrainView {
 }
 
 #[derive(Serialize)]
-pub struct MetricRow {
+pub(crate) struct MetricRow {
     pub rows: &'static str,
     pub values: Vec<String>,
 }
 
 #[derive(Serialize)]
-pub struct FoldRow {
+pub(crate) struct FoldRow {
     pub fold: usize,
     pub stop: String,
     pub epochs: usize,
@@ -147,14 +147,14 @@ pub struct FoldRow {
 }
 
 #[derive(Serialize)]
-pub struct ConfusionView {
+pub(crate) struct ConfusionView {
     pub rows_label: &'static str,
     pub labels: Vec<String>,
     pub rows: Vec<ConfusionRow>,
 }
 
 #[derive(Serialize)]
-pub struct ConfusionRow {
+pub(crate) struct ConfusionRow {
     pub label: String,
     pub cells: Vec<ConfusionCell>,
     pub precision: String,
@@ -162,12 +162,12 @@ pub struct ConfusionRow {
 }
 
 #[derive(Serialize)]
-pub struct ConfusionCell {
+pub(crate) struct ConfusionCell {
     pub count: usize,
     pub diagonal: bool,
 }
 
-pub fn train_view(result: &FitResult, classes: Option<&[String]>) -> TrainView {
+pub(crate) fn train_view(result: &FitResult, classes: Option<&[String]>) -> TrainView {
     let shape = &result.shape;
     let last = shape.sizes.len() - 1;
     let layers = shape
@@ -236,7 +236,7 @@ fn stat_values(stats: &[MetricStat]) -> Vec<String> {
 }
 
 /// A metric as `mean ± sd` over several runs, or its value for one.
-pub fn stat_text(stat: &MetricStat) -> String {
+pub(crate) fn stat_text(stat: &MetricStat) -> String {
     match stat.sd {
         Some(sd) => mean_sd(stat.mean, sd),
         None => number(stat.mean),
@@ -244,7 +244,7 @@ pub fn stat_text(stat: &MetricStat) -> String {
 }
 
 /// A fold's row in the per-fold table: its held-out metrics.
-fn fold_row(index: usize, run: &crate::outcome::RunResult) -> FoldRow {
+fn fold_row(index: usize, run: &crate::build::outcome::RunResult) -> FoldRow {
     let set = run.test.as_ref().unwrap_or(&run.train);
     FoldRow {
         fold: index + 1,
@@ -259,7 +259,7 @@ fn fold_row(index: usize, run: &crate::outcome::RunResult) -> FoldRow {
 }
 
 /// The stop reasons of a fit's runs: one reason, or each with its count.
-pub fn stop_counts(result: &FitResult) -> String {
+pub(crate) fn stop_counts(result: &FitResult) -> String {
     let mut counts: Vec<(&str, usize)> = Vec::new();
     for run in &result.runs {
         let reason = stop_reason(run.fit.stop);
@@ -386,7 +386,10 @@ fn ratio(part: usize, whole: usize) -> String {
 
 /// The mean loss per epoch over runs (each epoch over the runs that reached it), thinned
 /// for drawing; the validation loss when `validation`, else the training loss.
-pub fn mean_curve(runs: &[crate::outcome::RunResult], validation: bool) -> Vec<(f64, f64)> {
+pub(crate) fn mean_curve(
+    runs: &[crate::build::outcome::RunResult],
+    validation: bool,
+) -> Vec<(f64, f64)> {
     let longest = runs
         .iter()
         .map(|run| run.fit.history.len())

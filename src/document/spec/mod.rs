@@ -280,7 +280,7 @@ pub(crate) struct Checker<'a> {
 }
 
 impl Checker<'_> {
-    pub fn require(&mut self, ok: bool, key: &str, message: impl FnOnce() -> String) {
+    pub(crate) fn require(&mut self, ok: bool, key: &str, message: impl FnOnce() -> String) {
         if !ok {
             let span = self
                 .block
@@ -573,7 +573,7 @@ pub(crate) fn validate_net(raw: RawNet, check: &mut Checker<'_>) -> NetSpec {
 
 /// Adam keeps its own moment estimates, so a written `momentum` would silently do
 /// nothing. Only a written train step is checked: a sweep that varies the optimizer
-/// may try adam from a base that sets momentum for sgd (see `plan_checks`).
+/// may try adam from a base that sets momentum for sgd (see `plan::checks`).
 fn refuse_momentum_with_adam(raw: &RawTrain, check: &mut Checker<'_>) {
     let adam = matches!(raw.optimizer, Some(OptimizerKind::Adam));
     check.require(!(adam && raw.momentum.is_some()), "momentum", || {

@@ -3,13 +3,13 @@
 
 use std::time::Instant;
 
+use crate::build::outcome::{DataSummary, ModelShape, RunResult, SetMetrics};
 use crate::data::{Prepared, Task};
 use crate::document::spec::{LossChoice, NetSpec, OutputChoice, TrainSpec, word};
 use crate::nn::{self, Activation, Loss, Network, TrainConfig};
-use crate::outcome::{DataSummary, ModelShape, RunResult, SetMetrics};
 
 /// The network shape, output activation and loss a train step uses on this data.
-pub fn model_shape(
+pub(super) fn model_shape(
     data: &DataSummary,
     net: &NetSpec,
     train: &TrainSpec,
@@ -66,7 +66,7 @@ pub fn model_shape(
 /// usual published source is Heaton, Introduction to Neural Networks for Java, 2008):
 /// a width between the output and input sizes, near two thirds of the input size plus
 /// the output size, and under twice the input size.
-pub fn hidden_width_hints(inputs: usize, outputs: usize, hidden: &[usize]) -> Vec<String> {
+pub(super) fn hidden_width_hints(inputs: usize, outputs: usize, hidden: &[usize]) -> Vec<String> {
     let low = inputs.min(outputs);
     let high = inputs.max(outputs);
     let suggested = suggested_width(inputs, outputs);
@@ -103,7 +103,7 @@ fn suggested_width(inputs: usize, outputs: usize) -> usize {
 }
 
 /// Trains one network on partition `partition` and measures it on both sets of rows.
-pub fn fit(
+pub(super) fn fit(
     prepared: &Prepared,
     partition: usize,
     shape: &ModelShape,

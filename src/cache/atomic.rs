@@ -9,7 +9,7 @@ use std::time::Duration;
 
 /// How every temporary file of ours begins, so leftovers (for `remove_stale` and
 /// `stet clean`) can be told from others' files.
-pub const TEMPORARY_PREFIX: &str = ".stet-tmp-";
+pub(crate) const TEMPORARY_PREFIX: &str = ".stet-tmp-";
 /// The random part `tempfile` adds to the prefix.
 const TEMPORARY_RANDOM_CHARS: usize = 6;
 /// A temporary file untouched this long belongs to no live write: writes fill their
@@ -18,13 +18,13 @@ const STALE_AFTER: Duration = Duration::from_secs(60);
 
 /// Writes `bytes` to `path` atomically, creating its folder if needed. The file is
 /// readable by others (0644 on Unix), since reports and shared caches are meant to be.
-pub fn write(path: &Path, bytes: &[u8]) -> std::io::Result<()> {
+pub(crate) fn write(path: &Path, bytes: &[u8]) -> std::io::Result<()> {
     write_with(path, |file| file.write_all(bytes))
 }
 
 /// Like [`write`], with the contents written by `fill` into the temporary file, so
 /// that a large file need not be assembled in memory first.
-pub fn write_with(
+pub(crate) fn write_with(
     path: &Path,
     fill: impl FnOnce(&mut File) -> std::io::Result<()>,
 ) -> std::io::Result<()> {
@@ -55,7 +55,7 @@ pub fn write_with(
 /// Removes the temporary files of ours in `dir` that a killed process left: named as
 /// [`write`] names them and not modified for [`STALE_AFTER`]. Best effort: a file that
 /// cannot be removed is left for the next build.
-pub fn remove_stale(dir: &Path) {
+pub(crate) fn remove_stale(dir: &Path) {
     let Ok(entries) = std::fs::read_dir(dir) else {
         return;
     };

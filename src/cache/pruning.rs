@@ -6,8 +6,8 @@ use std::collections::HashSet;
 use std::fs;
 use std::path::{Path, PathBuf};
 
+use crate::cache::manifest::{self, UnreadableRecord};
 use crate::cache::{Cache, is_entry_name, is_leftover_name};
-use crate::manifest::{self, UnreadableRecord};
 use crate::plan::Plan;
 
 /// A file a clean removed (or, in a dry run, would remove).
@@ -48,7 +48,7 @@ impl Cleaning {
 /// plans use, and every entry the build record of any *other* document lists. The
 /// named documents' own records do not protect anything, so what only their earlier
 /// builds used goes.
-pub fn entries_in_use(
+pub(crate) fn entries_in_use(
     cache: &Cache,
     named: &[PathBuf],
     plans: &[&Plan],
@@ -72,7 +72,11 @@ pub fn entries_in_use(
 /// Removes every entry whose name is not in `keep` (all of them, and every build
 /// record, when `keep` is `None`) and any temporary file a killed writer left behind.
 /// With `dry_run` nothing is removed; the result lists what would be.
-pub fn remove_unused(cache_dir: &Path, keep: Option<&HashSet<String>>, dry_run: bool) -> Cleaning {
+pub(crate) fn remove_unused(
+    cache_dir: &Path,
+    keep: Option<&HashSet<String>>,
+    dry_run: bool,
+) -> Cleaning {
     let mut cleaning = Cleaning::default();
     let entries = cache_dir.join("entries");
     if entries.is_dir() {

@@ -13,7 +13,7 @@ use crate::plan::{Key, Plan, PlannedStep};
 
 /// What went into one step's key at the last build.
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
-pub struct StepInputs {
+pub(crate) struct StepInputs {
     pub key: Key,
     pub settings: String,
     pub files: Vec<String>,
@@ -21,7 +21,7 @@ pub struct StepInputs {
 }
 
 impl StepInputs {
-    pub fn of(plan: &Plan, step: &PlannedStep) -> StepInputs {
+    pub(crate) fn of(plan: &Plan, step: &PlannedStep) -> StepInputs {
         let settings = serde_json::to_vec(&step.spec).expect("specs serialise");
         StepInputs {
             key: step.key.clone(),
@@ -43,7 +43,7 @@ impl StepInputs {
 
 /// Step id → its inputs at the last build of one document, and the entries it used.
 #[derive(Clone, Debug, Default, PartialEq, Serialize, Deserialize)]
-pub struct Manifest {
+pub(crate) struct Manifest {
     pub steps: BTreeMap<String, StepInputs>,
     /// File names of the cache entries the build used (see `entries_of`). Records
     /// written before this list existed read as using none.
@@ -53,7 +53,7 @@ pub struct Manifest {
 
 /// The file names of every cache entry a plan's steps use: their results, and a data
 /// step's prepared matrices.
-pub fn entries_of(plan: &Plan) -> BTreeSet<String> {
+pub(crate) fn entries_of(plan: &Plan) -> BTreeSet<String> {
     let mut names = BTreeSet::new();
     for step in &plan.steps {
         for (key, kind) in step.result_entries() {
@@ -67,7 +67,7 @@ pub fn entries_of(plan: &Plan) -> BTreeSet<String> {
 }
 
 /// Where a document's record lives in the cache.
-pub fn record_path(cache: &Cache, document: &Path) -> Option<PathBuf> {
+pub(crate) fn record_path(cache: &Cache, document: &Path) -> Option<PathBuf> {
     let canonical = document
         .canonicalize()
         .unwrap_or_else(|_| document.to_path_buf());
@@ -81,7 +81,7 @@ pub fn record_path(cache: &Cache, document: &Path) -> Option<PathBuf> {
 }
 
 /// The manifest of a document's last build, if there was one.
-pub fn load(cache: &Cache, document: &Path) -> Manifest {
+pub(crate) fn load(cache: &Cache, document: &Path) -> Manifest {
     record_path(cache, document)
         .and_then(|path| std::fs::read(path).ok())
         .and_then(|bytes| serde_json::from_slice(&bytes).ok())
@@ -89,7 +89,7 @@ pub fn load(cache: &Cache, document: &Path) -> Manifest {
 }
 
 /// Records a build; failing to write it only loses `status` reasons, so it is silent.
-pub fn store(cache: &Cache, document: &Path, plan: &Plan) {
+pub(crate) fn store(cache: &Cache, document: &Path, plan: &Plan) {
     let Some(path) = record_path(cache, document) else {
         return;
     };
@@ -102,20 +102,20 @@ pub fn store(cache: &Cache, document: &Path, plan: &Plan) {
         entries: entries_of(plan),
     };
     let bytes = serde_json::to_vec_pretty(&manifest).expect("a manifest serialises");
-    let _ = crate::atomic::write(&path, &bytes);
+    let _ = crate::cache::atomic::write(&path, &bytes);
 }
 
 /// A record that exists but cannot be read, so what its document uses is unknown.
 #[derive(Debug, thiserror::Error)]
 #[error("cannot read the build record {}: {reason}", path.display())]
-pub struct UnreadableRecord {
+pub(crate) struct UnreadableRecord {
     pub path: PathBuf,
     pub reason: String,
 }
 
 /// Every build record in the cache, by path. Anything in the records' folder that is
 /// not a `.json` file is not a record and is passed over.
-pub fn records(cache: &Cache) -> Result<Vec<(PathBuf, Manifest)>, UnreadableRecord> {
+pub(crate) fn records(cache: &Cache) -> Result<Vec<(PathBuf, Manifest)>, UnreadableRecord> {
     let Some(dir) = cache.dir().map(|d| d.join("documents")) else {
         return Ok(Vec::new());
     };

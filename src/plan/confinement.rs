@@ -8,7 +8,7 @@
 use std::path::{Path, PathBuf};
 
 /// The folder a document's data paths must stay inside.
-pub fn project_root(document_dir: &Path) -> PathBuf {
+pub(super) fn project_root(document_dir: &Path) -> PathBuf {
     // A document named without a folder ("doc.md") has the empty path as its parent.
     let document_dir = if document_dir.as_os_str().is_empty() {
         Path::new(".")
@@ -30,7 +30,7 @@ pub fn project_root(document_dir: &Path) -> PathBuf {
 }
 
 /// Whether an existing file, with links resolved, lies inside `root`.
-pub fn is_inside(path: &Path, root: &Path) -> bool {
+pub(super) fn is_inside(path: &Path, root: &Path) -> bool {
     match path.canonicalize() {
         Ok(real) => real.starts_with(root),
         // A file that cannot be resolved is reported by the read itself.

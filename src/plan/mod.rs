@@ -1,30 +1,35 @@
 //! The step graph: parsed specs, references resolved, execution order, file inputs
-//! hashed, and each step's cache key.
+//! hashed, and each step's cache key (`keys`). Each train step's and sweep's fits and
+//! runs are listed in `fits`; the rules for files a document reads and writes are in
+//! `confinement`, `input_file` and `outputs`; checks of settings against their
+//! upstream steps in `checks`.
 
 use std::collections::HashMap;
 use std::path::{Path, PathBuf};
 
+mod checks;
+mod confinement;
+mod fits;
+pub(crate) mod input_file;
+mod keys;
+pub(crate) mod outputs;
+
 use crate::cache::EntryKind;
-use crate::confine;
-use crate::data::Split;
 use crate::document::problem::nearest;
-use crate::document::spec::sweep::SweepSpec;
-pub use crate::document::spec::sweep::describe;
-use crate::document::spec::sweep::{settings_text, variant};
+pub(crate) use crate::document::spec::sweep::describe;
 use crate::document::spec::{NetSpec, TrainSpec, key_span, parse_step};
 use crate::document::{Document, Problem, StepBlock, StepKind, StepSpec};
-use crate::input_file::InputFile;
-use crate::outputs::{self, Output};
+use fits::fits;
+use input_file::InputFile;
+use keys::step_key;
 
-/// Bumped whenever the meaning of a cached result changes, so old entries miss.
-/// 2: entries' checksums cover their names, and keys hold the crate version.
-pub const CACHE_FORMAT_VERSION: u32 = 2;
+use outputs::Output;
 
 /// A step's cache key: the BLAKE3 hash of everything its result depends on, in hex.
-pub type Key = String;
+pub(crate) type Key = String;
 
 /// The first 10 hex digits of a key, as shown in reports and `stet status`.
-pub fn short_key(key: &str) -> &str {
+pub(crate) fn short_key(key: &str) -> &str {
     &key[..10.min(key.len())]
 }
 
@@ -32,15 +37,15 @@ pub fn short_key(key: &str) -> &str {
 #[derive(Clone, Debug)]
 pub struct PlannedStep {
     pub id: String,
-    pub kind: StepKind,
-    pub spec: StepSpec,
+    pub(crate) kind: StepKind,
+    pub(crate) spec: StepSpec,
     /// Index of the step's block among the document's pieces.
-    pub piece: usize,
+    pub(crate) piece: usize,
     /// The steps this one reads, each named by the setting that names it.
-    pub upstream: Upstream,
-    pub files: Vec<InputFile>,
+    pub(crate) upstream: Upstream,
+    pub(crate) files: Vec<InputFile>,
     /// The file a predict or export step writes, checked against every other use.
-    pub output: Option<Output>,
+    pub(crate) output: Option<Output>,
     pub key: Key,
     /// The networks a train step (one) or a sweep (one per combination) fits.
     pub fits: Vec<FitPlan>,
@@ -50,7 +55,7 @@ pub struct PlannedStep {
 /// names each: a plan holds one only when every reference resolved to a step of the
 /// right kind, so no stage reads an upstream step by position.
 #[derive(Clone, Debug, PartialEq, Eq)]
-pub enum Upstream {
+pub(crate) enum Upstream {
     /// Data and net steps read no other step.
     Nothing,
     Train {
@@ -71,7 +76,7 @@ pub enum Upstream {
 
 impl Upstream {
     /// Every step read, in the order their keys enter this step's key.
-    pub fn all(&self) -> Vec<usize> {
+    pub(crate) fn all(&self) -> Vec<usize> {
         match self {
             Upstream::Nothing => Vec::new(),
             Upstream::Train { data, net } => vec![*data, *net],
@@ -86,11 +91,11 @@ impl Upstream {
 #[derive(Clone, Debug)]
 pub struct FitPlan {
     /// The varied settings and their values as text (empty for a train step).
-    pub settings: Vec<(String, String)>,
+    pub(crate) settings: Vec<(String, String)>,
     /// Index of the data step the runs read.
-    pub data: usize,
-    pub net: NetSpec,
-    pub train: TrainSpec,
+    pub(crate) data: usize,
+    pub(crate) net: NetSpec,
+    pub(crate) train: TrainSpec,
     pub runs: Vec<RunPlan>,
 }
 
@@ -98,13 +103,13 @@ pub struct FitPlan {
 #[derive(Clone, Debug)]
 pub struct RunPlan {
     pub key: Key,
-    pub partition: usize,
-    pub seed: u64,
+    pub(crate) partition: usize,
+    pub(crate) seed: u64,
 }
 
 impl PlannedStep {
     /// The data and net steps of a train step; `None` for every other kind.
-    pub fn train_inputs(&self) -> Option<(usize, usize)> {
+    pub(crate) fn train_inputs(&self) -> Option<(usize, usize)> {
         match self.upstream {
             Upstream::Train { data, net } => Some((data, net)),
             _ => None,
@@ -113,7 +118,7 @@ impl PlannedStep {
 
     /// The cache entries that hold this step's result: all present means a build
     /// reuses it. (A data step also keeps its prepared matrices, loaded only to train.)
-    pub fn result_entries(&self) -> Vec<(&str, EntryKind)> {
+    pub(crate) fn result_entries(&self) -> Vec<(&str, EntryKind)> {
         match self.kind {
             StepKind::Data => vec![(self.key.as_str(), EntryKind::DataSummary)],
             StepKind::Net | StepKind::Compare => vec![(self.key.as_str(), EntryKind::Marker)],
@@ -137,10 +142,10 @@ impl PlannedStep {
 pub struct Plan {
     pub steps: Vec<PlannedStep>,
     /// Indices into `steps` such that every step comes after the steps it reads.
-    pub order: Vec<usize>,
+    pub(crate) order: Vec<usize>,
     /// The limits the plan was made under; a run checks against them what only the
     /// data decides (the network's input and output widths).
-    pub limits: Limits,
+    pub(crate) limits: Limits,
 }
 
 impl Plan {
@@ -208,7 +213,7 @@ struct Place<'a> {
 }
 
 /// Builds the plan of a parsed document whose data paths are relative to `base_dir`.
-pub fn plan(
+pub(crate) fn plan(
     document: &Document,
     base_dir: &Path,
     options: &PlanOptions,
@@ -217,7 +222,7 @@ pub fn plan(
     let mut problems = Vec::new();
     let place = Place {
         base_dir,
-        root: (!options.allow_outside).then(|| confine::project_root(base_dir)),
+        root: (!options.allow_outside).then(|| confinement::project_root(base_dir)),
         limits: options.limits,
     };
     let mut parsed: Vec<(usize, &StepBlock, StepSpec)> = Vec::new();
@@ -328,7 +333,7 @@ pub fn plan(
             &mut problems,
         );
     }
-    crate::plan_checks::check(document, &steps, &mut problems);
+    checks::check(document, &steps, &mut problems);
     if !problems.is_empty() {
         return Err(problems);
     }
@@ -424,7 +429,7 @@ fn missing_reference(
 }
 
 /// The span of `setting:` in the block, or its info string.
-fn setting_span(block: &StepBlock, setting: &str) -> std::ops::Range<usize> {
+pub(super) fn setting_span(block: &StepBlock, setting: &str) -> std::ops::Range<usize> {
     key_span(block.yaml_block(), setting).unwrap_or_else(|| block.info_span.clone())
 }
 
@@ -442,7 +447,7 @@ fn read_files(
     let path = place.base_dir.join(written);
     let span = setting_span(block, "file");
     if let Some(root) = &place.root
-        && !confine::is_inside(&path, root)
+        && !confinement::is_inside(&path, root)
     {
         problems.push(
                 Problem::new(span, format!("'{written}' is outside this document's project ({})", root.display()))
@@ -507,7 +512,7 @@ fn check_writes(
 /// A network's hidden layers against the width, depth and weight limits. The
 /// weights between hidden layers are counted here; those to the inputs and outputs
 /// depend on the data and are checked when the run's shape is known.
-fn check_net_size(
+pub(super) fn check_net_size(
     block: &StepBlock,
     hidden: &[usize],
     limits: Limits,
@@ -552,7 +557,7 @@ fn check_net_size(
 
 /// Weights and biases between consecutive layers of sizes `sizes` (in a type wide
 /// enough that no list of widths overflows it).
-pub fn weights_between(sizes: &[usize]) -> u128 {
+pub(crate) fn weights_between(sizes: &[usize]) -> u128 {
     sizes
         .windows(2)
         .map(|pair| (pair[0] as u128 + 1) * pair[1] as u128)
@@ -572,249 +577,4 @@ fn execution_order(steps: &[PlannedStep]) -> Vec<usize> {
         order.push(ready);
     }
     order
-}
-
-/// Planning resolves a train step's references to a data and a net step, and a
-/// sweep's `from` to a train step, or makes no plan.
-const TRAIN_READS: &str = "a train step reads a data and a net step";
-
-/// One fit's settings, before its runs are listed.
-struct FitSettings {
-    settings: Vec<(String, String)>,
-    net: NetSpec,
-    train: TrainSpec,
-}
-
-/// The fits of a train step (its own settings) or a sweep (one per combination, each
-/// checked as if its values were written in the base train and net steps). The
-/// number of runs and the work are checked against the limits before any list of
-/// runs is made, so no setting sizes an allocation unchecked.
-fn fits(
-    steps: &[PlannedStep],
-    blocks: &[&StepBlock],
-    index: usize,
-    default_seed: u64,
-    limits: Limits,
-    problems: &mut Vec<Problem>,
-) -> Vec<FitPlan> {
-    let step = &steps[index];
-    let (data, fits, repeat) = match &step.spec {
-        StepSpec::Train(train) => {
-            let (data, net) = step.train_inputs().expect(TRAIN_READS);
-            let StepSpec::Net(net) = &steps[net].spec else {
-                unreachable!("{TRAIN_READS}")
-            };
-            let own = FitSettings {
-                settings: Vec::new(),
-                net: net.clone(),
-                train: train.clone(),
-            };
-            (data, vec![own], 1)
-        }
-        StepSpec::Sweep(sweep) => {
-            let Upstream::Sweep { from: base } = step.upstream else {
-                unreachable!("a sweep's upstream is its from step")
-            };
-            let (data, net) = steps[base].train_inputs().expect(TRAIN_READS);
-            let runs = sweep_runs(sweep, partitions(&steps[data]));
-            if runs > limits.max_sweep_runs as u128 {
-                problems.push(too_many_runs(blocks[index], sweep, runs, limits));
-                return Vec::new();
-            }
-            let span = setting_span(blocks[index], "vary");
-            let fits = sweep
-                .combinations()
-                .iter()
-                .filter_map(|combination| {
-                    let (net, train) = variant(
-                        blocks[base],
-                        blocks[net],
-                        combination,
-                        default_seed,
-                        span.clone(),
-                        problems,
-                    )?;
-                    let settings = settings_text(combination);
-                    let prefix = format!("with {}: ", describe(&settings));
-                    check_net_size(blocks[index], &net.hidden, limits, &prefix, problems);
-                    Some(FitSettings {
-                        settings,
-                        net,
-                        train,
-                    })
-                })
-                .collect();
-            (data, fits, sweep.repeat)
-        }
-        _ => return Vec::new(),
-    };
-    let work = Work::of(&steps[data], &fits, repeat);
-    if work.row_passes > u128::from(limits.max_work) {
-        problems.push(too_much_work(blocks[index], step.kind, &work, limits));
-        return Vec::new();
-    }
-    fits.into_iter()
-        .map(|fit| fit_plan(steps, data, fit, repeat))
-        .collect()
-}
-
-/// How many partitions (folds, or the one holdout split) a data step makes.
-fn partitions(data: &PlannedStep) -> usize {
-    let StepSpec::Data(spec) = &data.spec else {
-        unreachable!("{TRAIN_READS}")
-    };
-    match spec.settings.split {
-        Split::Holdout(_) => 1,
-        Split::Folds(folds) => folds,
-    }
-}
-
-/// A sweep's combinations, counted without listing them.
-fn combinations(sweep: &SweepSpec) -> u128 {
-    sweep.vary.iter().fold(1u128, |product, (_, values)| {
-        product.saturating_mul(values.len() as u128)
-    })
-}
-
-/// A sweep's runs (combinations × repeats × partitions), counted without listing them.
-fn sweep_runs(sweep: &SweepSpec, partitions: usize) -> u128 {
-    combinations(sweep)
-        .saturating_mul(sweep.repeat as u128)
-        .saturating_mul(partitions as u128)
-}
-
-fn too_many_runs(block: &StepBlock, sweep: &SweepSpec, runs: u128, limits: Limits) -> Problem {
-    let combinations = combinations(sweep);
-    Problem::new(
-        setting_span(block, "vary"),
-        format!(
-            "this sweep asks for {runs} training runs ({combinations} combinations), over the limit of {}",
-            limits.max_sweep_runs
-        ),
-    )
-    .with_help("raise the limit with --max-sweep-runs")
-}
-
-/// The training a step asks for, in row passes: one row forward and back through a
-/// network once. An upper estimate, as the data file's line breaks stand for its
-/// rows and every row is counted, held out or not.
-struct Work {
-    row_passes: u128,
-    runs: u128,
-    most_epochs: usize,
-    rows: u64,
-}
-
-impl Work {
-    fn of(data: &PlannedStep, fits: &[FitSettings], repeat: usize) -> Work {
-        let rows: u64 = data.files.iter().map(|file| file.lines).sum();
-        let runs_per_fit = (repeat as u128).saturating_mul(partitions(data) as u128);
-        let row_passes = fits.iter().fold(0u128, |total, fit| {
-            let per_run = (fit.train.epochs as u128).saturating_mul(u128::from(rows));
-            total.saturating_add(runs_per_fit.saturating_mul(per_run))
-        });
-        Work {
-            row_passes,
-            runs: runs_per_fit.saturating_mul(fits.len() as u128),
-            most_epochs: fits.iter().map(|fit| fit.train.epochs).max().unwrap_or(0),
-            rows,
-        }
-    }
-}
-
-/// Located at a train step's `epochs` (the default when the block has none) or a
-/// sweep's `vary`.
-fn too_much_work(block: &StepBlock, kind: StepKind, work: &Work, limits: Limits) -> Problem {
-    let (what, setting) = match kind {
-        StepKind::Sweep => ("this sweep", "vary"),
-        _ => ("this train step", "epochs"),
-    };
-    Problem::new(
-        setting_span(block, setting),
-        format!(
-            "{what} asks for up to {} row passes ({} runs of up to {} epochs over up to {} rows), over the limit of {}",
-            work.row_passes,
-            work.runs,
-            work.most_epochs,
-            work.rows,
-            limits.max_work
-        ),
-    )
-    .with_help("raise the limit with --max-work, or ask for fewer epochs or runs")
-}
-
-fn fit_plan(steps: &[PlannedStep], data: usize, fit: FitSettings, repeat: usize) -> FitPlan {
-    let FitSettings {
-        settings,
-        net,
-        train,
-    } = fit;
-    let partitions = partitions(&steps[data]);
-    let mut runs = Vec::new();
-    for r in 0..repeat as u64 {
-        // The first repeat is the train step's own seed, so it shares the train's entry.
-        let seed = train.seed.wrapping_add(r);
-        let seeded = TrainSpec {
-            seed,
-            ..train.clone()
-        };
-        for partition in 0..partitions {
-            runs.push(RunPlan {
-                key: run_key(&steps[data].key, &net, &seeded, partition),
-                partition,
-                seed,
-            });
-        }
-    }
-    FitPlan {
-        settings,
-        data,
-        net,
-        train,
-        runs,
-    }
-}
-
-/// A run's key depends on what it computes, not on step names, so identical runs in
-/// different steps share one entry.
-pub fn run_key(data_key: &str, net: &NetSpec, train: &TrainSpec, partition: usize) -> Key {
-    let settings = TrainSpec {
-        data: String::new(),
-        net: String::new(),
-        ..train.clone()
-    };
-    let mut hasher = engine_hasher();
-    hasher.update(b"run\0");
-    hasher.update(data_key.as_bytes());
-    hasher.update(&serde_json::to_vec(&(net, &settings, partition)).expect("specs serialise"));
-    hasher.finalize().to_hex().to_string()
-}
-
-/// The start of every key: the cache format and the crate version, so that results
-/// of another engine (whose numbers may differ) never answer for this one's, even
-/// when nobody remembered to bump `CACHE_FORMAT_VERSION`.
-fn engine_hasher() -> blake3::Hasher {
-    let mut hasher = blake3::Hasher::new();
-    hasher.update(&CACHE_FORMAT_VERSION.to_le_bytes());
-    hasher.update(env!("CARGO_PKG_VERSION").as_bytes());
-    hasher.update(b"\0");
-    hasher
-}
-
-/// BLAKE3 over the engine, the kind, the canonical settings, the upstream keys and
-/// the hash of every file read. Prose never enters.
-fn step_key(step: &PlannedStep, upstream_keys: &[Key]) -> Key {
-    let mut hasher = engine_hasher();
-    hasher.update(step.kind.word().as_bytes());
-    hasher.update(b"\0");
-    let settings = serde_json::to_vec(&step.spec).expect("specs serialise");
-    hasher.update(&(settings.len() as u64).to_le_bytes());
-    hasher.update(&settings);
-    for key in upstream_keys {
-        hasher.update(key.as_bytes());
-    }
-    for file in &step.files {
-        hasher.update(file.hash.as_bytes());
-    }
-    hasher.finalize().to_hex().to_string()
 }

@@ -11,7 +11,7 @@ use std::sync::atomic::{AtomicBool, Ordering};
 use serde::Serialize;
 use serde::de::DeserializeOwned;
 
-use crate::input_file::Hashed;
+use crate::plan::input_file::Hashed;
 
 /// Marks the entry layout; a different one (an older stet's) is another format, not
 /// damage. Changed from `stet\0ent` when the checksum started covering the entry's name.
@@ -20,7 +20,7 @@ const HEADER_LEN: usize = MAGIC.len() + 32;
 
 /// What kind of result an entry holds; part of the file name so kinds never collide.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
-pub enum EntryKind {
+pub(crate) enum EntryKind {
     /// A data step's summary for the report.
     DataSummary,
     /// A data step's prepared matrices, loaded only when a run must train.
@@ -58,12 +58,12 @@ impl EntryKind {
 }
 
 /// The file name of an entry: `<key>.<kind>`.
-pub fn entry_name(key: &str, kind: EntryKind) -> String {
+pub(crate) fn entry_name(key: &str, kind: EntryKind) -> String {
     format!("{key}.{}", kind.suffix())
 }
 
 /// Whether a file name is one `entry_name` gives: a 64-digit hex key and a kind.
-pub fn is_entry_name(name: &str) -> bool {
+pub(crate) fn is_entry_name(name: &str) -> bool {
     name.split_once('.').is_some_and(|(key, suffix)| {
         key.len() == 64
             && key.bytes().all(|b| b.is_ascii_hexdigit())
@@ -72,13 +72,13 @@ pub fn is_entry_name(name: &str) -> bool {
 }
 
 /// Whether a file name is a temporary file an interrupted write left behind.
-pub fn is_leftover_name(name: &str) -> bool {
-    name.starts_with(crate::atomic::TEMPORARY_PREFIX)
+pub(crate) fn is_leftover_name(name: &str) -> bool {
+    name.starts_with(crate::cache::atomic::TEMPORARY_PREFIX)
 }
 
 /// The cache, or no cache at all (`--no-cache`, or a folder that cannot be used).
 #[derive(Debug)]
-pub struct Cache {
+pub(crate) struct Cache {
     dir: Option<PathBuf>,
     /// Set once a write failed, so the warning is printed once per build.
     write_failed: AtomicBool,
@@ -87,7 +87,7 @@ pub struct Cache {
 
 impl Cache {
     /// A cache in `dir`, created on first write.
-    pub fn at(dir: PathBuf) -> Cache {
+    pub(crate) fn at(dir: PathBuf) -> Cache {
         Cache {
             dir: Some(dir),
             write_failed: AtomicBool::new(false),
@@ -96,7 +96,7 @@ impl Cache {
     }
 
     /// A cache that finds nothing and keeps nothing.
-    pub fn disabled() -> Cache {
+    pub(crate) fn disabled() -> Cache {
         Cache {
             dir: None,
             write_failed: AtomicBool::new(false),
@@ -104,12 +104,12 @@ impl Cache {
         }
     }
 
-    pub fn dir(&self) -> Option<&Path> {
+    pub(crate) fn dir(&self) -> Option<&Path> {
         self.dir.as_deref()
     }
 
     /// Warnings gathered while loading and storing (corrupt entries, failed writes).
-    pub fn take_warnings(&self) -> Vec<String> {
+    pub(crate) fn take_warnings(&self) -> Vec<String> {
         std::mem::take(&mut self.warnings.lock().expect("warnings lock"))
     }
 
@@ -118,7 +118,7 @@ impl Cache {
     }
 
     /// The path of an entry.
-    pub fn entry_path(&self, key: &str, kind: EntryKind) -> Option<PathBuf> {
+    pub(crate) fn entry_path(&self, key: &str, kind: EntryKind) -> Option<PathBuf> {
         let dir = self.dir.as_ref()?;
         Some(
             dir.join("entries")
@@ -128,14 +128,14 @@ impl Cache {
     }
 
     /// Whether an entry exists (without verifying it).
-    pub fn contains(&self, key: &str, kind: EntryKind) -> bool {
+    pub(crate) fn contains(&self, key: &str, kind: EntryKind) -> bool {
         self.entry_path(key, kind)
             .is_some_and(|path| path.is_file())
     }
 
     /// Loads an entry; a missing one is `None`, and so is one that fails its checksum
     /// or was written in another format, which is then removed with a warning.
-    pub fn load<T: DeserializeOwned>(&self, key: &str, kind: EntryKind) -> Option<T> {
+    pub(crate) fn load<T: DeserializeOwned>(&self, key: &str, kind: EntryKind) -> Option<T> {
         let path = self.entry_path(key, kind)?;
         let file = fs::File::open(&path).ok()?;
         let problem = match decode(file, key, kind) {
@@ -154,11 +154,12 @@ impl Cache {
     }
 
     /// Stores an entry; a failure (read-only or full disk) is a warning, not an error.
-    pub fn store<T: Serialize>(&self, key: &str, kind: EntryKind, value: &T) {
+    pub(crate) fn store<T: Serialize>(&self, key: &str, kind: EntryKind, value: &T) {
         let Some(path) = self.entry_path(key, kind) else {
             return;
         };
-        if let Err(error) = crate::atomic::write_with(&path, |file| encode(value, key, kind, file))
+        if let Err(error) =
+            crate::cache::atomic::write_with(&path, |file| encode(value, key, kind, file))
             && !self.write_failed.swap(true, Ordering::Relaxed)
         {
             let dir = self

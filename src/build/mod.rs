@@ -3,67 +3,39 @@
 //! step and sweep combination) are independent, so all uncached runs are gathered and
 //! fitted in parallel; each is deterministic, so the results are the same for any
 //! number of jobs. Steps that use trained models run after the training.
+//!
+//! One run is `training`; predictions and exports are `model_use`; the results each
+//! step kind produces are `outcome`; a cluster task's part of the runs is `share`.
+
+mod model_use;
+pub(crate) mod outcome;
+mod result;
+pub(crate) mod share;
+mod training;
 
 use std::collections::HashMap;
 use std::sync::Arc;
 use std::time::Instant;
 
 use rayon::prelude::*;
-use serde::Serialize;
 
 use crate::cache::{Cache, EntryKind};
 use crate::data::{self, Prepared, Task};
 use crate::document::StepSpec;
 use crate::document::spec::MetricName;
-use crate::fit::{fit, model_shape};
-use crate::outcome::{
+use crate::plan::{Key, Limits, Plan, PlannedStep, Upstream, describe, weights_between};
+use outcome::{
     DataSummary, FitResult, ModelShape, Outcome, PartitionSummary, RunResult, Seconds, SweepResult,
     rank,
 };
-use crate::plan::{Key, Limits, Plan, PlannedStep, Upstream, describe, weights_between};
-use crate::shard::Share;
-use crate::use_model;
-
-/// Whether a step ran, was reused, or failed.
-#[derive(Clone, Debug, PartialEq, Serialize)]
-#[serde(tag = "status", rename_all = "snake_case")]
-pub enum Status {
-    Ran { seconds: Seconds },
-    Reused,
-    Failed { error: String },
-}
-
-/// A step's status and, unless it failed, its result.
-#[derive(Clone, Debug)]
-pub struct StepRecord {
-    pub status: Status,
-    pub outcome: Option<Outcome>,
-    /// For train steps and sweeps: how many runs of each fit trained in this build
-    /// (the rest were reused).
-    pub trained: Vec<usize>,
-}
-
-impl StepRecord {
-    fn new(status: Status, outcome: Outcome) -> StepRecord {
-        StepRecord {
-            status,
-            outcome: Some(outcome),
-            trained: Vec::new(),
-        }
-    }
-
-    fn failed(error: String) -> StepRecord {
-        StepRecord {
-            status: Status::Failed { error },
-            outcome: None,
-            trained: Vec::new(),
-        }
-    }
-}
+use result::failures;
+pub(crate) use result::{BuildResult, Status, StepResult};
+use share::Share;
+use training::{fit, model_shape};
 
 /// What a build may use.
 #[derive(Clone, Debug)]
-pub struct RunOptions {
+pub(crate) struct RunOptions {
     /// Threads for training runs.
     pub jobs: usize,
     /// Shown while runs train; hidden when stderr is not a terminal.
@@ -94,13 +66,13 @@ struct PendingFits {
 /// The state after the steps that need no training: their records, the prepared data,
 /// and each train step's and sweep's fits with their cached runs.
 struct Stage {
-    records: Vec<Option<StepRecord>>,
+    records: Vec<Option<StepResult>>,
     prepared: HashMap<usize, Arc<Prepared>>,
     pending: HashMap<usize, PendingFits>,
 }
 
 fn stage(plan: &Plan, cache: &Cache) -> Stage {
-    let mut records: Vec<Option<StepRecord>> = vec![None; plan.steps.len()];
+    let mut records: Vec<Option<StepResult>> = vec![None; plan.steps.len()];
     let mut prepared: HashMap<usize, Arc<Prepared>> = HashMap::new();
     let mut pending: HashMap<usize, PendingFits> = HashMap::new();
     for &index in &plan.order {
@@ -114,7 +86,7 @@ fn stage(plan: &Plan, cache: &Cache) -> Stage {
                     pending.insert(index, fits);
                     continue;
                 }
-                Err(error) => StepRecord::failed(error),
+                Err(error) => StepResult::failed(error),
             },
             // These read trained models, so they wait for the training.
             StepSpec::Compare(_) | StepSpec::Predict(_) | StepSpec::Export(_) => continue,
@@ -169,7 +141,7 @@ fn owners<'k>(tasks: &[RunTask<'k>]) -> HashMap<&'k Key, usize> {
 }
 
 /// Runs every step of the plan, reusing what the cache holds.
-pub fn execute(plan: &Plan, cache: &Cache, options: &RunOptions) -> Vec<StepRecord> {
+pub(crate) fn execute(plan: &Plan, cache: &Cache, options: &RunOptions) -> BuildResult {
     arithmetic_pool(options.jobs).install(|| execute_steps(plan, cache, options))
 }
 
@@ -184,7 +156,7 @@ fn arithmetic_pool(jobs: usize) -> rayon::ThreadPool {
         .expect("a thread pool")
 }
 
-fn execute_steps(plan: &Plan, cache: &Cache, options: &RunOptions) -> Vec<StepRecord> {
+fn execute_steps(plan: &Plan, cache: &Cache, options: &RunOptions) -> BuildResult {
     let Stage {
         mut records,
         mut prepared,
@@ -214,7 +186,7 @@ fn execute_steps(plan: &Plan, cache: &Cache, options: &RunOptions) -> Vec<StepRe
     }
     for (index, fits) in pending {
         if let Some(error) = unfitted.remove(&index) {
-            records[index] = Some(StepRecord::failed(error));
+            records[index] = Some(StepResult::failed(error));
             continue;
         }
         let status = match trained_seconds.get(&index) {
@@ -233,7 +205,7 @@ fn execute_steps(plan: &Plan, cache: &Cache, options: &RunOptions) -> Vec<StepRe
                 .into_iter()
                 .find(|&u| failed(&records[u]))
             {
-                Some(u) => StepRecord::failed(format!("not run: '{}' failed", plan.steps[u].id)),
+                Some(u) => StepResult::failed(format!("not run: '{}' failed", plan.steps[u].id)),
                 None => marker_step(step, cache),
             },
             StepSpec::Predict(_) | StepSpec::Export(_) => {
@@ -243,16 +215,17 @@ fn execute_steps(plan: &Plan, cache: &Cache, options: &RunOptions) -> Vec<StepRe
         };
         records[index] = Some(record);
     }
-    records
+    let steps = records
         .into_iter()
         .map(|r| r.expect("every step recorded"))
-        .collect()
+        .collect();
+    BuildResult { steps }
 }
 
-fn failed(record: &Option<StepRecord>) -> bool {
+fn failed(record: &Option<StepResult>) -> bool {
     !matches!(
         record,
-        Some(StepRecord {
+        Some(StepResult {
             outcome: Some(_),
             ..
         })
@@ -265,9 +238,9 @@ fn run_data_step(
     cache: &Cache,
     prepared: &mut HashMap<usize, Arc<Prepared>>,
     index: usize,
-) -> StepRecord {
+) -> StepResult {
     if let Some(summary) = cache.load::<DataSummary>(&step.key, EntryKind::DataSummary) {
-        return StepRecord::new(Status::Reused, Outcome::Data(summary));
+        return StepResult::new(Status::Reused, Outcome::Data(summary));
     }
     let started = Instant::now();
     match prepare_data(step, limits) {
@@ -276,14 +249,14 @@ fn run_data_step(
             cache.store(&step.key, EntryKind::Prepared, &ready);
             cache.store(&step.key, EntryKind::DataSummary, &summary);
             prepared.insert(index, Arc::new(ready));
-            StepRecord::new(
+            StepResult::new(
                 Status::Ran {
                     seconds: started.elapsed().as_secs_f64(),
                 },
                 Outcome::Data(summary),
             )
         }
-        Err(error) => StepRecord::failed(error),
+        Err(error) => StepResult::failed(error),
     }
 }
 
@@ -358,7 +331,7 @@ fn summarise(step: &PlannedStep, prepared: &Prepared) -> DataSummary {
 
 /// A step with nothing to compute beyond its settings (net, compare): its entry only
 /// records that these settings were built, so it reports as reused next time.
-fn marker_step(step: &PlannedStep, cache: &Cache) -> StepRecord {
+fn marker_step(step: &PlannedStep, cache: &Cache) -> StepResult {
     let outcome = match step.spec {
         StepSpec::Compare(_) => Outcome::Compare,
         _ => Outcome::Net,
@@ -369,12 +342,12 @@ fn marker_step(step: &PlannedStep, cache: &Cache) -> StepRecord {
         cache.store(&step.key, EntryKind::Marker, &());
         Status::Ran { seconds: 0.0 }
     };
-    StepRecord::new(status, outcome)
+    StepResult::new(status, outcome)
 }
 
 fn data_summary<'a>(
     plan: &Plan,
-    records: &'a [Option<StepRecord>],
+    records: &'a [Option<StepResult>],
     data: usize,
 ) -> Result<&'a DataSummary, String> {
     match records[data].as_ref().and_then(|r| r.outcome.as_ref()) {
@@ -390,7 +363,7 @@ fn data_summary<'a>(
 fn plan_fits(
     plan: &Plan,
     step: &PlannedStep,
-    records: &[Option<StepRecord>],
+    records: &[Option<StepResult>],
     cache: &Cache,
 ) -> Result<PendingFits, String> {
     let mut shapes = Vec::new();
@@ -440,52 +413,8 @@ fn within_weight_limit(shape: ModelShape, limits: Limits) -> Result<ModelShape, 
 /// Runs the steps that need no training (data preparation above all) into the cache,
 /// so that cluster tasks load prepared data instead of each preparing it; returns the
 /// steps that failed.
-pub fn prepare_only(plan: &Plan, cache: &Cache) -> Vec<(String, String)> {
+pub(crate) fn prepare_only(plan: &Plan, cache: &Cache) -> Vec<(String, String)> {
     failures(plan, stage(plan, cache).records.iter().map(Option::as_ref))
-}
-
-/// The id and error of every failed step; `records` are in plan order, `None` for a
-/// step not yet run.
-pub fn failures<'a>(
-    plan: &Plan,
-    records: impl IntoIterator<Item = Option<&'a StepRecord>>,
-) -> Vec<(String, String)> {
-    plan.steps
-        .iter()
-        .zip(records)
-        .filter_map(|(step, record)| match record {
-            Some(StepRecord {
-                status: Status::Failed { error },
-                ..
-            }) => Some((step.id.clone(), error.clone())),
-            _ => None,
-        })
-        .collect()
-}
-
-/// How many steps ran, were reused or failed, and the seconds spent training.
-#[derive(Clone, Copy, Debug, Default, PartialEq)]
-pub struct Tally {
-    pub ran: usize,
-    pub reused: usize,
-    pub failed: usize,
-    pub training: Seconds,
-}
-
-pub fn tally(records: &[StepRecord]) -> Tally {
-    records.iter().fold(Tally::default(), |mut tally, record| {
-        match &record.status {
-            Status::Ran { seconds } => {
-                tally.ran += 1;
-                if matches!(record.outcome, Some(Outcome::Train(_) | Outcome::Sweep(_))) {
-                    tally.training += seconds;
-                }
-            }
-            Status::Reused => tally.reused += 1,
-            Status::Failed { .. } => tally.failed += 1,
-        }
-        tally
-    })
 }
 
 /// What one share of a sharded build did.
@@ -502,7 +431,7 @@ pub struct ShareSummary {
 /// Trains the uncached runs of share `share` into the cache. Shares are cut from all of
 /// the document's runs sorted by key, so every task agrees on them without talking to
 /// the others, whenever it starts.
-pub fn execute_share(
+pub(crate) fn execute_share(
     plan: &Plan,
     cache: &Cache,
     options: &RunOptions,
@@ -622,9 +551,9 @@ fn assemble(
     step: &PlannedStep,
     fits: PendingFits,
     status: Status,
-    records: &[Option<StepRecord>],
+    records: &[Option<StepResult>],
     plan: &Plan,
-) -> StepRecord {
+) -> StepResult {
     let trained = fits.trained;
     let results: Vec<FitResult> = step
         .fits
@@ -644,7 +573,7 @@ fn assemble(
         StepSpec::Sweep(sweep) => {
             let task = match data_summary(plan, records, step.fits[0].data) {
                 Ok(summary) => summary.task,
-                Err(error) => return StepRecord::failed(error),
+                Err(error) => return StepResult::failed(error),
             };
             let rank_by = sweep.rank_by.unwrap_or(match task {
                 Task::Classify => MetricName::Accuracy,
@@ -652,7 +581,7 @@ fn assemble(
             });
             let rank_rows = results[0].report_rows();
             if results[0].metric(rank_by, rank_rows).is_none() {
-                return StepRecord::failed(format!(
+                return StepResult::failed(format!(
                     "rank_by {} is not a metric of this {} task",
                     rank_by.key(),
                     crate::document::spec::word(&task)
@@ -673,9 +602,9 @@ fn assemble(
                 .expect("a train step has one fit"),
         ),
     };
-    StepRecord {
+    StepResult {
         trained,
-        ..StepRecord::new(status, outcome)
+        ..StepResult::new(status, outcome)
     }
 }
 
@@ -684,16 +613,16 @@ fn assemble(
 fn use_model_step(
     plan: &Plan,
     step: &PlannedStep,
-    records: &[Option<StepRecord>],
+    records: &[Option<StepResult>],
     cache: &Cache,
     prepared: &mut HashMap<usize, Arc<Prepared>>,
-) -> StepRecord {
+) -> StepResult {
     let kind = match step.spec {
         StepSpec::Predict(_) => EntryKind::Predict,
         _ => EntryKind::Export,
     };
     if let Some(outcome) = cache.load::<Outcome>(&step.key, kind) {
-        return StepRecord::new(Status::Reused, outcome);
+        return StepResult::new(Status::Reused, outcome);
     }
     let Upstream::Model { model: model_index } = step.upstream else {
         unreachable!("predict and export read a model")
@@ -704,7 +633,7 @@ fn use_model_step(
     {
         Some(Outcome::Train(fit)) => fit,
         _ => {
-            return StepRecord::failed(format!(
+            return StepResult::failed(format!(
                 "not run: its model '{}' failed",
                 plan.steps[model_index].id
             ));
@@ -716,20 +645,20 @@ fn use_model_step(
         .expect("a model is a train step's");
     let computed = prepared_for(plan, data, cache, prepared).and_then(|ready| match &step.spec {
         StepSpec::Predict(_) => {
-            use_model::predict(model, &ready, &step.files[0]).map(Outcome::Predict)
+            model_use::predict(model, &ready, &step.files[0]).map(Outcome::Predict)
         }
-        _ => use_model::export(model, &ready).map(Outcome::Export),
+        _ => model_use::export(model, &ready).map(Outcome::Export),
     });
     match computed {
         Ok(outcome) => {
             cache.store(&step.key, kind, &outcome);
-            StepRecord::new(
+            StepResult::new(
                 Status::Ran {
                     seconds: started.elapsed().as_secs_f64(),
                 },
                 outcome,
             )
         }
-        Err(error) => StepRecord::failed(error),
+        Err(error) => StepResult::failed(error),
     }
 }

@@ -20,7 +20,7 @@ use crate::nn::Optimizer;
 use crate::plan::{FitPlan, PlannedStep, describe};
 
 /// Every check of this module over a planned document's steps.
-pub fn check(document: &Document, steps: &[PlannedStep], problems: &mut Vec<Problem>) {
+pub(super) fn check(document: &Document, steps: &[PlannedStep], problems: &mut Vec<Problem>) {
     let lookup = Lookup { document, steps };
     for step in steps {
         let at = |setting: &str| lookup.span(&step.id, setting);

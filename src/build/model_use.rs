@@ -4,15 +4,15 @@
 
 use serde_json::json;
 
+use crate::build::outcome::{ExportResult, FitResult, PredictResult};
 use crate::data::{self, ColumnKind, Prepared, Task};
 use crate::document::spec::word;
-use crate::input_file::InputFile;
 use crate::nn::activation::LEAKY_SLOPE;
 use crate::nn::{Activation, Network};
-use crate::outcome::{ExportResult, FitResult, PredictResult};
+use crate::plan::input_file::InputFile;
 
 /// Version of the export format; bumped when its meaning changes.
-pub const EXPORT_FORMAT_VERSION: u32 = 1;
+pub(super) const EXPORT_FORMAT_VERSION: u32 = 1;
 
 /// The single network of a model; with folds there are several, which is refused.
 fn single_network(model: &FitResult) -> Result<&Network, String> {
@@ -27,7 +27,7 @@ fn single_network(model: &FitResult) -> Result<&Network, String> {
 }
 
 /// Applies the model, with its data step's encoding and scaling, to the rows of `file`.
-pub fn predict(
+pub(super) fn predict(
     model: &FitResult,
     prepared: &Prepared,
     file: &InputFile,
@@ -120,10 +120,10 @@ pub fn predict(
 
 /// The model as JSON: input columns and their encoding, scaling, layers with weights,
 /// biases and activations, and class labels (the format is described in the README).
-pub fn export(
+pub(super) fn export(
     model: &FitResult,
     prepared: &Prepared,
-) -> Result<crate::outcome::ExportResult, String> {
+) -> Result<crate::build::outcome::ExportResult, String> {
     let network = single_network(model)?;
     let encoding = &prepared.encoding;
     let scaler = &prepared.partitions[0].scaler;

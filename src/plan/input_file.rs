@@ -8,7 +8,7 @@ use std::path::{Path, PathBuf};
 
 /// A file a step reads, with the hash of its bytes when the build was planned.
 #[derive(Clone, Debug)]
-pub struct InputFile {
+pub(crate) struct InputFile {
     /// The path as written in the document.
     pub written: String,
     pub path: PathBuf,
@@ -23,7 +23,7 @@ pub struct InputFile {
 
 /// Why a step's file could not be hashed.
 #[derive(Debug, thiserror::Error)]
-pub enum InputError {
+pub(crate) enum InputError {
     /// A named pipe, device or folder: reading it could block or never end.
     #[error("it is not a regular file (a named pipe, device or folder)")]
     NotRegular,
@@ -36,7 +36,7 @@ pub enum InputError {
 
 impl InputError {
     /// What the document's author can do about it.
-    pub fn help(&self) -> &'static str {
+    pub(crate) fn help(&self) -> &'static str {
         match self {
             InputError::NotRegular => "a step reads an ordinary file; save the data into one",
             InputError::TooLarge { .. } => "raise the limit with --max-file-mb",
@@ -47,7 +47,11 @@ impl InputError {
 
 impl InputFile {
     /// Hashes the file at `path` as a stream, reading at most `limit` bytes.
-    pub fn planned(written: &str, path: PathBuf, limit: u64) -> Result<InputFile, InputError> {
+    pub(crate) fn planned(
+        written: &str,
+        path: PathBuf,
+        limit: u64,
+    ) -> Result<InputFile, InputError> {
         let mut sink = HashAndCount::default();
         let bytes = io::copy(&mut open_regular(&path)?.take(limit + 1), &mut sink)?;
         if bytes > limit {
@@ -65,7 +69,7 @@ impl InputFile {
     /// Reads the file through `parse`. Errors name the file; so does the refusal when
     /// the file changed since the build was planned, since the result would then be
     /// stored under a key made from other bytes.
-    pub fn read<T, E: std::fmt::Display>(
+    pub(crate) fn read<T, E: std::fmt::Display>(
         &self,
         parse: impl FnOnce(&mut Hashed<io::Take<File>>) -> Result<T, E>,
     ) -> Result<T, String> {
@@ -109,7 +113,7 @@ impl io::Write for HashAndCount {
 
 /// Reads a whole regular file of at most `limit` bytes: the document itself, which
 /// must not block the build (a named pipe) or never end (a device) either.
-pub fn read_regular(path: &Path, limit: u64) -> Result<Vec<u8>, InputError> {
+pub(crate) fn read_regular(path: &Path, limit: u64) -> Result<Vec<u8>, InputError> {
     let mut bytes = Vec::new();
     open_regular(path)?
         .take(limit + 1)
@@ -135,23 +139,23 @@ fn open_regular(path: &Path) -> Result<File, InputError> {
 }
 
 /// A reader that hashes every byte it hands out.
-pub struct Hashed<R> {
+pub(crate) struct Hashed<R> {
     inner: R,
     hasher: blake3::Hasher,
 }
 
 impl<R: Read> Hashed<R> {
-    pub fn new(inner: R) -> Hashed<R> {
+    pub(crate) fn new(inner: R) -> Hashed<R> {
         Hashed::continuing(inner, blake3::Hasher::new())
     }
 
     /// Hashes the bytes read after whatever `hasher` has already been given.
-    pub fn continuing(inner: R, hasher: blake3::Hasher) -> Hashed<R> {
+    pub(crate) fn continuing(inner: R, hasher: blake3::Hasher) -> Hashed<R> {
         Hashed { inner, hasher }
     }
 
     /// The hash of the bytes read so far.
-    pub fn finish(&self) -> blake3::Hash {
+    pub(crate) fn finish(&self) -> blake3::Hash {
         self.hasher.finalize()
     }
 }

@@ -8,11 +8,11 @@ use crate::document::spec::MetricName;
 use crate::nn::{Activation, ClassificationMetrics, Loss, RegressionMetrics, TrainOutcome};
 
 /// Wall-clock seconds.
-pub type Seconds = f64;
+pub(crate) type Seconds = f64;
 
 /// A data step's result as the report shows it.
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
-pub struct DataSummary {
+pub(crate) struct DataSummary {
     pub file: String,
     pub task: Task,
     pub rows_read: usize,
@@ -29,7 +29,7 @@ pub struct DataSummary {
 impl DataSummary {
     /// Output units a network needs: one for two classes, one per class for more,
     /// one per target column for regression.
-    pub fn output_count(&self) -> usize {
+    pub(crate) fn output_count(&self) -> usize {
         match (&self.task, &self.classes) {
             (Task::Classify, Some(classes)) if classes.len() == 2 => 1,
             (Task::Classify, Some(classes)) => classes.len(),
@@ -40,7 +40,7 @@ impl DataSummary {
 
 /// Row counts of one partition, with class balance for classification.
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
-pub struct PartitionSummary {
+pub(crate) struct PartitionSummary {
     pub train_rows: usize,
     pub test_rows: usize,
     pub train_classes: Vec<usize>,
@@ -50,7 +50,7 @@ pub struct PartitionSummary {
 /// Metrics of a fitted network on one set of rows.
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
 #[serde(rename_all = "snake_case")]
-pub enum SetMetrics {
+pub(crate) enum SetMetrics {
     Classification {
         loss: f64,
         metrics: ClassificationMetrics,
@@ -63,7 +63,7 @@ pub enum SetMetrics {
 
 impl SetMetrics {
     /// The headline numbers by name, as the JSON summary and tables list them.
-    pub fn named(&self) -> Vec<(&'static str, f64)> {
+    pub(crate) fn named(&self) -> Vec<(&'static str, f64)> {
         match self {
             SetMetrics::Classification { loss, metrics } => vec![
                 ("loss", *loss),
@@ -82,7 +82,7 @@ impl SetMetrics {
 
 /// One network fitted on one partition.
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
-pub struct RunResult {
+pub(crate) struct RunResult {
     pub fit: TrainOutcome,
     pub seconds: Seconds,
     pub train: SetMetrics,
@@ -91,7 +91,7 @@ pub struct RunResult {
 
 /// How a train step's networks were built, shared by all its runs.
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
-pub struct ModelShape {
+pub(crate) struct ModelShape {
     /// Layer widths from inputs to outputs.
     pub sizes: Vec<usize>,
     pub hidden: Activation,
@@ -104,7 +104,7 @@ pub struct ModelShape {
 /// One fit's result: a network per seed and partition, all with the same settings.
 /// A train step has one fit; a sweep has one per combination.
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
-pub struct FitResult {
+pub(crate) struct FitResult {
     /// A sweep's varied settings and their values (empty for a train step).
     pub settings: Vec<(String, String)>,
     pub shape: ModelShape,
@@ -113,7 +113,7 @@ pub struct FitResult {
 
 /// A sweep's result: its fits in grid order and their ranking.
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
-pub struct SweepResult {
+pub(crate) struct SweepResult {
     pub fits: Vec<FitResult>,
     pub rank_by: MetricName,
     /// Which rows the ranking metric is measured on.
@@ -124,14 +124,14 @@ pub struct SweepResult {
 
 impl SweepResult {
     /// The best-ranked fit.
-    pub fn best(&self) -> &FitResult {
+    pub(crate) fn best(&self) -> &FitResult {
         &self.fits[self.ranking[0]]
     }
 }
 
 /// A predict step's result: one row of outputs per input row.
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
-pub struct PredictResult {
+pub(crate) struct PredictResult {
     /// Whether `predicted` holds class labels (classification) rather than values.
     pub labelled: bool,
     /// File line of each predicted row.
@@ -147,14 +147,14 @@ pub struct PredictResult {
 
 /// An export step's result: the model as JSON text.
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
-pub struct ExportResult {
+pub(crate) struct ExportResult {
     pub json: String,
 }
 
 /// A step's result.
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
 #[serde(rename_all = "snake_case")]
-pub enum Outcome {
+pub(crate) enum Outcome {
     Data(DataSummary),
     Net,
     Train(FitResult),
@@ -168,7 +168,7 @@ pub enum Outcome {
 /// A metric over a train step's runs: the mean and, with several runs, the sample
 /// standard deviation (n − 1).
 #[derive(Clone, Debug, PartialEq, Serialize)]
-pub struct MetricStat {
+pub(crate) struct MetricStat {
     pub name: &'static str,
     pub mean: f64,
     pub sd: Option<f64>,
@@ -176,26 +176,26 @@ pub struct MetricStat {
 
 /// Which rows metrics are measured on.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize)]
-pub enum RowSet {
+pub(crate) enum RowSet {
     Train,
     Test,
 }
 
 impl FitResult {
     /// Each headline metric on `rows`, over all runs; `None` when there are no such rows.
-    pub fn metric_stats(&self, rows: RowSet) -> Option<Vec<MetricStat>> {
+    pub(crate) fn metric_stats(&self, rows: RowSet) -> Option<Vec<MetricStat>> {
         metric_stats(self.runs.iter(), rows)
     }
 
     /// One metric's statistics by name; `None` when the rows or the metric are absent.
-    pub fn metric(&self, name: MetricName, rows: RowSet) -> Option<MetricStat> {
+    pub(crate) fn metric(&self, name: MetricName, rows: RowSet) -> Option<MetricStat> {
         self.metric_stats(rows)?
             .into_iter()
             .find(|stat| stat.name == name.key())
     }
 
     /// Held-out rows when every run has them, else training rows.
-    pub fn report_rows(&self) -> RowSet {
+    pub(crate) fn report_rows(&self) -> RowSet {
         if self.runs.iter().all(|run| run.test.is_some()) {
             RowSet::Test
         } else {
@@ -205,7 +205,7 @@ impl FitResult {
 }
 
 /// Ranks fits by a metric's mean, best first; fits without a finite value go last.
-pub fn rank(fits: &[FitResult], metric: MetricName, rows: RowSet) -> Vec<usize> {
+pub(crate) fn rank(fits: &[FitResult], metric: MetricName, rows: RowSet) -> Vec<usize> {
     let value = |fit: &FitResult| {
         fit.metric(metric, rows)
             .map(|stat| stat.mean)
@@ -248,7 +248,7 @@ fn metric_stats<'a>(
 }
 
 /// Mean and sample standard deviation; no deviation for a single value.
-pub fn mean_and_sd(values: &[f64]) -> (f64, Option<f64>) {
+pub(crate) fn mean_and_sd(values: &[f64]) -> (f64, Option<f64>) {
     let n = values.len() as f64;
     let mean = values.iter().sum::<f64>() / n;
     if values.len() < 2 {

@@ -11,20 +11,20 @@
 use std::ops::Range;
 use std::path::{Component, Path, PathBuf};
 
-use crate::confine;
 use crate::document::Problem;
 use crate::plan::PlannedStep;
+use crate::plan::confinement;
 
 /// Words a YAML reader takes for "no value"; as a file name they are a slip.
 const EMPTY_WORDS: &[&str] = &["~", "null", "Null", "NULL"];
 /// Folders that belong to version control: writing there can wreck a repository.
 const VERSION_CONTROL: &[&str] = &[".git", ".hg", ".svn"];
-/// The file that marks a project's root (see `confine`).
+/// The file that marks a project's root (see `confinement`).
 const PROJECT_MARKER: &str = ".stet-project";
 
 /// Why a path may not be written.
 #[derive(Clone, Debug, PartialEq, Eq, thiserror::Error)]
-pub enum Refusal {
+pub(crate) enum Refusal {
     #[error("'{0}' names no file")]
     NoFile(String),
     #[error("{0:?} contains a NUL character")]
@@ -52,7 +52,7 @@ pub enum Refusal {
 
 impl Refusal {
     /// What to do instead.
-    pub fn help(&self) -> &'static str {
+    pub(crate) fn help(&self) -> &'static str {
         match self {
             Refusal::NoFile(_) | Refusal::Nul(_) | Refusal::Folder(_) | Refusal::NotRegular(_) => {
                 "name a file, such as predictions.csv"
@@ -73,7 +73,7 @@ impl Refusal {
     }
 
     /// The refusal as a document problem at `span` (the `write:` line).
-    pub fn at(&self, span: Range<usize>) -> Problem {
+    pub(crate) fn at(&self, span: Range<usize>) -> Problem {
         Problem::new(span, self.to_string()).with_help(self.help())
     }
 }
@@ -81,7 +81,7 @@ impl Refusal {
 /// Resolves a step's `write:` (relative to the document's folder) and checks that it
 /// names a file that may be written: inside `confine_to` when given (the project,
 /// unless `--allow-outside`).
-pub fn step_output(
+pub(crate) fn step_output(
     base_dir: &Path,
     written: &str,
     confine_to: Option<&Path>,
@@ -89,7 +89,7 @@ pub fn step_output(
     check_name(written)?;
     let base = absolute_folder(base_dir);
     let path = resolve(&base.join(written));
-    let project = confine::project_root(&base);
+    let project = confinement::project_root(&base);
     check_place(&path, written, &project)?;
     if let Some(root) = confine_to
         && !path.starts_with(root)
@@ -105,7 +105,7 @@ pub fn step_output(
 /// Resolves a path named on the command line (`-o`, `--json`; relative to the current
 /// folder) and checks that it names a file that may be written. It may lie outside
 /// `project`, but a missing folder is created only inside it.
-pub fn command_output(written: &Path, project: &Path) -> Result<PathBuf, Refusal> {
+pub(crate) fn command_output(written: &Path, project: &Path) -> Result<PathBuf, Refusal> {
     let text = written.display().to_string();
     check_name(&text)?;
     let path = absolute(written);
@@ -115,7 +115,7 @@ pub fn command_output(written: &Path, project: &Path) -> Result<PathBuf, Refusal
 
 /// A step's `write:`, resolved.
 #[derive(Clone, Debug, PartialEq, Eq)]
-pub struct Output {
+pub(crate) struct Output {
     pub path: PathBuf,
     /// As the document wrote it, for messages.
     pub written: String,
@@ -123,14 +123,14 @@ pub struct Output {
 
 /// Another use of a path, which no output may take.
 #[derive(Clone, Debug)]
-pub struct Claim {
+pub(crate) struct Claim {
     pub path: PathBuf,
     /// The use, as it reads after "would overwrite": "the report", "the file step 'hives' reads".
     pub what: String,
 }
 
 impl Claim {
-    pub fn new(path: PathBuf, what: impl Into<String>) -> Claim {
+    pub(crate) fn new(path: PathBuf, what: impl Into<String>) -> Claim {
         Claim {
             path,
             what: what.into(),
@@ -140,7 +140,7 @@ impl Claim {
 
 /// The first claim that `path` would overwrite: the same file, or a file inside a
 /// claimed folder, or a folder around a claimed file.
-pub fn check_free(path: &Path, written: &str, claims: &[Claim]) -> Result<(), Refusal> {
+pub(crate) fn check_free(path: &Path, written: &str, claims: &[Claim]) -> Result<(), Refusal> {
     match claims
         .iter()
         .find(|claim| path.starts_with(&claim.path) || claim.path.starts_with(path))
@@ -154,7 +154,7 @@ pub fn check_free(path: &Path, written: &str, claims: &[Claim]) -> Result<(), Re
 }
 
 /// The files the plan's steps read, each named by its step.
-pub fn input_claims(steps: &[PlannedStep]) -> Vec<Claim> {
+pub(crate) fn input_claims(steps: &[PlannedStep]) -> Vec<Claim> {
     steps
         .iter()
         .flat_map(|step| {
@@ -170,7 +170,7 @@ pub fn input_claims(steps: &[PlannedStep]) -> Vec<Claim> {
 
 /// Steps whose `write:` takes a file another step reads or writes: each step's index
 /// and why. The planner places each at the step's `write:` line.
-pub fn step_clashes(steps: &[PlannedStep]) -> Vec<(usize, Refusal)> {
+pub(crate) fn step_clashes(steps: &[PlannedStep]) -> Vec<(usize, Refusal)> {
     let inputs = input_claims(steps);
     steps
         .iter()
@@ -193,20 +193,20 @@ pub fn step_clashes(steps: &[PlannedStep]) -> Vec<(usize, Refusal)> {
 }
 
 /// A path relative to the current folder, resolved (see [`resolve`]).
-pub fn absolute(path: &Path) -> PathBuf {
+pub(crate) fn absolute(path: &Path) -> PathBuf {
     resolve(&absolute_folder(Path::new(".")).join(path))
 }
 
 /// Where a build writes its report and summary, resolved.
 #[derive(Clone, Debug)]
-pub struct BuildTargets {
+pub(crate) struct BuildTargets {
     pub report: PathBuf,
     pub json: Option<PathBuf>,
 }
 
 /// What a build may not write.
 #[derive(Debug)]
-pub enum BuildRefusal {
+pub(crate) enum BuildRefusal {
     /// The report or summary path, named by its flag.
     Flag {
         flag: &'static str,
@@ -218,7 +218,7 @@ pub enum BuildRefusal {
 }
 
 /// The paths a build is about to use besides its steps' files.
-pub struct BuildPaths<'a> {
+pub(crate) struct BuildPaths<'a> {
     pub document: &'a Path,
     /// The report path, and the flag that named it (or how it was chosen).
     pub report: (&'a Path, &'static str),
@@ -229,11 +229,11 @@ pub struct BuildPaths<'a> {
 /// Checks the report and summary paths against the document, the files the steps read,
 /// the cache and each other, then every step's `write:` against the document, the
 /// report, the summary and the cache.
-pub fn check_build(
+pub(crate) fn check_build(
     steps: &[PlannedStep],
     paths: &BuildPaths<'_>,
 ) -> Result<BuildTargets, BuildRefusal> {
-    let project = confine::project_root(paths.document.parent().unwrap_or(Path::new("")));
+    let project = confinement::project_root(paths.document.parent().unwrap_or(Path::new("")));
     let inputs = input_claims(steps);
     // What the build's own files may not take; each file found joins it.
     let mut claims = vec![Claim::new(absolute(paths.document), "this document")];
@@ -283,7 +283,7 @@ fn checked_command_output(
 
 /// The absolute, resolved form of a folder; "" (a document named without a folder)
 /// is the current one.
-pub fn absolute_folder(dir: &Path) -> PathBuf {
+pub(crate) fn absolute_folder(dir: &Path) -> PathBuf {
     let dir = if dir.as_os_str().is_empty() {
         Path::new(".")
     } else {
@@ -297,7 +297,7 @@ pub fn absolute_folder(dir: &Path) -> PathBuf {
 /// `path` (absolute) with every existing prefix resolved through its links and the
 /// rest applied as written. A part that does not exist cannot be a link, so a `..`
 /// after it simply steps back.
-pub fn resolve(path: &Path) -> PathBuf {
+pub(crate) fn resolve(path: &Path) -> PathBuf {
     let mut resolved = PathBuf::new();
     for component in path.components() {
         match component {

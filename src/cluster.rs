@@ -12,7 +12,7 @@ use crate::plan::PlanOptions;
 
 /// What to submit.
 #[derive(Clone, Debug)]
-pub struct DispatchRequest<'a> {
+pub(crate) struct DispatchRequest<'a> {
     /// The document, as an absolute path.
     pub document: &'a Path,
     /// The shared cache folder, as an absolute path.
@@ -24,7 +24,7 @@ pub struct DispatchRequest<'a> {
 }
 
 /// The job-array script: task K of N builds share K/N into the shared cache.
-pub fn job_script(request: &DispatchRequest<'_>, stet: &Path, log_dir: &Path) -> String {
+pub(crate) fn job_script(request: &DispatchRequest<'_>, stet: &Path, log_dir: &Path) -> String {
     let quote = |path: &Path| shell_quote(&path.display().to_string());
     let mut flags = String::new();
     if request.plan.allow_outside {
@@ -73,7 +73,7 @@ fn shell_quote(text: &str) -> String {
 
 /// The Slurm programs a dispatch runs, found on PATH before anything is written.
 #[derive(Clone, Debug)]
-pub struct Slurm {
+pub(crate) struct Slurm {
     pub sbatch: PathBuf,
     /// Needed only to wait for the job.
     pub squeue: Option<PathBuf>,
@@ -81,7 +81,7 @@ pub struct Slurm {
 
 impl Slurm {
     /// Finds `sbatch`, and `squeue` when the dispatch will wait.
-    pub fn locate(wait: bool) -> Result<Slurm, String> {
+    pub(crate) fn locate(wait: bool) -> Result<Slurm, String> {
         let find = |name: &str| {
             find_on_path(name)
                 .ok_or_else(|| format!("{name} is not on PATH: stet dispatch needs Slurm"))
@@ -115,7 +115,10 @@ fn is_executable(metadata: &std::fs::Metadata) -> bool {
 
 /// Writes the script beside the cache and submits it; returns the job id and the
 /// script's path.
-pub fn submit(request: &DispatchRequest<'_>, sbatch: &Path) -> Result<(String, PathBuf), String> {
+pub(crate) fn submit(
+    request: &DispatchRequest<'_>,
+    sbatch: &Path,
+) -> Result<(String, PathBuf), String> {
     let folder = request.cache_dir.join("dispatch");
     std::fs::create_dir_all(&folder).map_err(|e| format!("creating {}: {e}", folder.display()))?;
     let stem = request
@@ -125,7 +128,7 @@ pub fn submit(request: &DispatchRequest<'_>, sbatch: &Path) -> Result<(String, P
     let script_path = folder.join(format!("{stem}.sh"));
     let stet = std::env::current_exe().map_err(|e| format!("locating the stet binary: {e}"))?;
     let script = job_script(request, &stet, &folder);
-    crate::atomic::write(&script_path, script.as_bytes())
+    crate::cache::atomic::write(&script_path, script.as_bytes())
         .map_err(|e| format!("writing {}: {e}", script_path.display()))?;
     let output = Command::new(sbatch)
         .arg("--parsable")
@@ -167,7 +170,7 @@ const SQUEUE_ATTEMPTS: u32 = 6;
 const FIRST_RETRY_AFTER: Duration = Duration::from_secs(1);
 
 /// Waits until no task of the job is queued or running, for at most `timeout`.
-pub fn wait_for(job: &str, squeue: &Path, timeout: Duration) -> Result<(), String> {
+pub(crate) fn wait_for(job: &str, squeue: &Path, timeout: Duration) -> Result<(), String> {
     let started = std::time::Instant::now();
     while asked_with_retries(job, squeue)? {
         let waited = started.elapsed();

@@ -2,9 +2,9 @@
 
 use serde::Serialize;
 
+use crate::cache::manifest::{Manifest, StepInputs};
 use crate::cache::{Cache, EntryKind};
 use crate::document::StepKind;
-use crate::manifest::{Manifest, StepInputs};
 use crate::plan::{Plan, PlannedStep, short_key};
 
 /// What a build would do with one step.
@@ -21,7 +21,7 @@ pub struct StepStatus {
 
 /// Whether each step's result is in the cache, and if not, what changed since the
 /// document was last built.
-pub fn status(plan: &Plan, cache: &Cache, previous: &Manifest) -> Vec<StepStatus> {
+pub(crate) fn status(plan: &Plan, cache: &Cache, previous: &Manifest) -> Vec<StepStatus> {
     plan.steps
         .iter()
         .map(|step| {
@@ -39,7 +39,7 @@ pub fn status(plan: &Plan, cache: &Cache, previous: &Manifest) -> Vec<StepStatus
 
 /// Training runs over the whole document, each counted once however many steps share
 /// it: (cached, all).
-pub fn run_totals(plan: &Plan, cache: &Cache) -> (usize, usize) {
+pub(crate) fn run_totals(plan: &Plan, cache: &Cache) -> (usize, usize) {
     let keys: std::collections::BTreeSet<&str> = plan
         .steps
         .iter()

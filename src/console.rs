@@ -1,0 +1,230 @@
+//! The lines each command prints when it finishes: results on standard output,
+//! warnings, failures and the closing summary on standard error. They are formatted
+//! here, beside the values they describe, so that `main.rs` only prints them and the
+//! wording can be tested without running the binary.
+
+use crate::build::ShareSummary;
+use crate::build::share::Share;
+use crate::cache::pruning::Cleaning;
+use crate::document::DocumentErrors;
+use crate::{BuildSummary, Dispatched, Error, StatusReport};
+
+/// One line for one of the two streams.
+#[derive(Clone, Debug, PartialEq, Eq)]
+pub enum Line {
+    Out(String),
+    Err(String),
+}
+
+/// Prints `lines` in order, each on its stream.
+pub fn print(lines: &[Line]) {
+    for line in lines {
+        match line {
+            Line::Out(text) => println!("{text}"),
+            Line::Err(text) => eprintln!("{text}"),
+        }
+    }
+}
+
+/// `stet build`: cache warnings, each failed step, then the tally.
+pub fn build(summary: &BuildSummary) -> Vec<Line> {
+    let mut lines: Vec<Line> = summary
+        .warnings
+        .iter()
+        .map(|warning| Line::Err(format!("warning: {warning}")))
+        .collect();
+    lines.extend(failed_steps(&summary.failed));
+    lines.push(Line::Err(format!(
+        "{}: {} steps, {} ran, {} reused, {} failed",
+        summary.report.display(),
+        summary.steps,
+        summary.ran,
+        summary.reused,
+        summary.failed.len()
+    )));
+    lines
+}
+
+/// `stet build --shard K/N`: each failed step, then what the share trained.
+pub fn share(share: Share, done: &ShareSummary) -> Vec<Line> {
+    let mut lines = failed_steps(&done.failed);
+    lines.push(Line::Out(format!(
+        "share {share}: trained {} runs; {} of the document's runs were uncached when it started",
+        done.trained, done.uncached
+    )));
+    lines
+}
+
+/// `stet dispatch`: the job id (for scripts), the job script, and with `--wait` what
+/// the final build did or how many runs a failed task left.
+pub fn dispatched(dispatched: &Dispatched) -> Vec<Line> {
+    let mut lines = vec![
+        Line::Out(dispatched.job.clone()),
+        Line::Err(format!("job script: {}", dispatched.script.display())),
+    ];
+    match &dispatched.finished {
+        None => {}
+        Some(Ok(summary)) => lines.extend(build(summary)),
+        Some(Err(missing)) => lines.push(Line::Err(format!(
+            "{missing} runs are still not in the cache: a task failed (its log is beside the job script); dispatch again to run only those"
+        ))),
+    }
+    lines
+}
+
+/// `stet status`: one line per step (id, kind, short key, reuse or why it runs), then
+/// the document's training runs.
+pub fn status(report: &StatusReport) -> Vec<Line> {
+    let mut lines: Vec<Line> = report
+        .steps
+        .iter()
+        .map(|step| {
+            let decision = match step.run_reason {
+                None => "reuse".to_string(),
+                Some(reason) => format!("run ({reason})"),
+            };
+            let runs = step.runs.map_or(String::new(), |(done, all)| {
+                format!("  {done}/{all} runs cached")
+            });
+            Line::Out(format!(
+                "{:<16} {:<7} {}  {decision}{runs}",
+                step.id,
+                step.kind.word(),
+                step.short_key
+            ))
+        })
+        .collect();
+    let (done, all) = report.runs;
+    lines.push(Line::Out(format!(
+        "training runs: {done} cached, {} to train",
+        all - done
+    )));
+    lines
+}
+
+/// `stet clean`: what was passed over, then what was removed (or, with `dry_run`, each
+/// entry that would be and their total).
+pub fn clean(cleaning: &Cleaning, dry_run: bool) -> Vec<Line> {
+    let mut lines: Vec<Line> = cleaning
+        .skipped
+        .iter()
+        .map(|skipped| {
+            Line::Err(format!(
+                "warning: left {} in place: {}",
+                skipped.path.display(),
+                skipped.reason
+            ))
+        })
+        .collect();
+    let (count, bytes) = (cleaning.removed.len(), cleaning.bytes());
+    if dry_run {
+        lines.extend(cleaning.removed.iter().map(|removal| {
+            Line::Out(format!(
+                "would remove {} ({} bytes)",
+                removal.path.display(),
+                removal.bytes
+            ))
+        }));
+        lines.push(Line::Out(format!(
+            "would remove {count} cache entries, {bytes} bytes"
+        )));
+    } else {
+        lines.push(Line::Out(format!(
+            "removed {count} cache entries, {bytes} bytes freed"
+        )));
+    }
+    lines
+}
+
+/// Why a command could not be carried out: document problems with their source line
+/// marked (miette), anything else as one line.
+pub fn error(error: &Error) -> Vec<Line> {
+    match error {
+        Error::Document(errors) => document_problems(errors),
+        other => vec![Line::Err(format!("error: {other}"))],
+    }
+}
+
+fn document_problems(errors: &DocumentErrors) -> Vec<Line> {
+    let handler = miette::GraphicalReportHandler::new();
+    let mut lines: Vec<Line> = errors
+        .diagnostics()
+        .into_iter()
+        .map(|diagnostic| {
+            let mut out = String::new();
+            match handler.render_report(&mut out, &diagnostic) {
+                // The rendering ends with its own line break.
+                Ok(()) => Line::Err(out.strip_suffix('\n').unwrap_or(&out).to_string()),
+                Err(_) => Line::Err(format!("error: {diagnostic}")),
+            }
+        })
+        .collect();
+    lines.push(Line::Err(format!(
+        "{}: {} problem(s); nothing was written",
+        errors.path,
+        errors.problems.len()
+    )));
+    lines
+}
+
+fn failed_steps(failed: &[(String, String)]) -> Vec<Line> {
+    failed
+        .iter()
+        .map(|(id, error)| Line::Err(format!("step '{id}' failed: {error}")))
+        .collect()
+}
+
+#[cfg(test)]
+mod tests {
+    use std::path::PathBuf;
+
+    use super::*;
+    use crate::cache::freshness::StepStatus;
+    use crate::document::StepKind;
+
+    // Expected lines: the wording and padding `stet status` and `stet build` printed
+    // before their formatting moved out of main.rs.
+    #[test]
+    fn a_status_line_pads_the_id_and_kind_and_says_why_the_step_runs() {
+        let report = StatusReport {
+            steps: vec![StepStatus {
+                id: "fit".into(),
+                kind: StepKind::Train,
+                short_key: "0123456789".into(),
+                run_reason: Some("settings changed"),
+                runs: Some((1, 3)),
+            }],
+            runs: (1, 3),
+        };
+        assert_eq!(
+            status(&report),
+            [
+                Line::Out(
+                    "fit              train   0123456789  run (settings changed)  1/3 runs cached"
+                        .into()
+                ),
+                Line::Out("training runs: 1 cached, 2 to train".into()),
+            ]
+        );
+    }
+
+    #[test]
+    fn a_build_closes_with_its_warnings_and_failures_before_the_tally() {
+        let summary = BuildSummary {
+            report: PathBuf::from("doc.html"),
+            steps: 3,
+            ran: 1,
+            reused: 1,
+            failed: vec![("fit".into(), "the data file changed".into())],
+            warnings: vec!["an entry failed its integrity check".into()],
+        };
+        assert_eq!(
+            build(&summary),
+            [
+                Line::Err("warning: an entry failed its integrity check".into()),
+                Line::Err("step 'fit' failed: the data file changed".into()),
+                Line::Err("doc.html: 3 steps, 1 ran, 1 reused, 1 failed".into()),
+            ]
+        );
+    }
+}

@@ -1,0 +1,54 @@
+//! Cache keys: every step key and run key starts from the engine (the cache format
+//! and the crate version), so results of another engine never answer for this one's.
+
+use crate::document::spec::{NetSpec, TrainSpec};
+
+use super::{Key, PlannedStep};
+
+/// Bumped whenever the meaning of a cached result changes, so old entries miss.
+/// 2: entries' checksums cover their names, and keys hold the crate version.
+pub(crate) const CACHE_FORMAT_VERSION: u32 = 2;
+
+/// A run's key depends on what it computes, not on step names, so identical runs in
+/// different steps share one entry.
+pub(super) fn run_key(data_key: &str, net: &NetSpec, train: &TrainSpec, partition: usize) -> Key {
+    let settings = TrainSpec {
+        data: String::new(),
+        net: String::new(),
+        ..train.clone()
+    };
+    let mut hasher = engine_hasher();
+    hasher.update(b"run\0");
+    hasher.update(data_key.as_bytes());
+    hasher.update(&serde_json::to_vec(&(net, &settings, partition)).expect("specs serialise"));
+    hasher.finalize().to_hex().to_string()
+}
+
+/// The start of every key: the cache format and the crate version, so that results
+/// of another engine (whose numbers may differ) never answer for this one's, even
+/// when nobody remembered to bump `CACHE_FORMAT_VERSION`.
+fn engine_hasher() -> blake3::Hasher {
+    let mut hasher = blake3::Hasher::new();
+    hasher.update(&CACHE_FORMAT_VERSION.to_le_bytes());
+    hasher.update(env!("CARGO_PKG_VERSION").as_bytes());
+    hasher.update(b"\0");
+    hasher
+}
+
+/// BLAKE3 over the engine, the kind, the canonical settings, the upstream keys and
+/// the hash of every file read. Prose never enters.
+pub(super) fn step_key(step: &PlannedStep, upstream_keys: &[Key]) -> Key {
+    let mut hasher = engine_hasher();
+    hasher.update(step.kind.word().as_bytes());
+    hasher.update(b"\0");
+    let settings = serde_json::to_vec(&step.spec).expect("specs serialise");
+    hasher.update(&(settings.len() as u64).to_le_bytes());
+    hasher.update(&settings);
+    for key in upstream_keys {
+        hasher.update(key.as_bytes());
+    }
+    for file in &step.files {
+        hasher.update(file.hash.as_bytes());
+    }
+    hasher.finalize().to_hex().to_string()
+}
