@@ -24,6 +24,7 @@ mod plan_checks;
 pub mod prune;
 pub mod report;
 pub mod run;
+pub use document::spec::schema;
 pub mod shard;
 pub mod use_model;
 

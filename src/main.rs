@@ -143,6 +143,8 @@ enum Command {
         #[command(flatten)]
         flags: DocumentFlags,
     },
+    /// Print the JSON Schema of step blocks and front matter, for editors.
+    Schema,
 }
 
 fn main() -> ExitCode {
@@ -269,6 +271,10 @@ fn run(command: Command) -> Result<ExitCode, Error> {
             let cleaning =
                 stet::clean(&documents, &cache_choice(cache), &flags.options(), dry_run)?;
             report_clean(&cleaning, dry_run);
+            Ok(ExitCode::SUCCESS)
+        }
+        Command::Schema => {
+            print!("{}", stet::schema::steps_json());
             Ok(ExitCode::SUCCESS)
         }
     }
