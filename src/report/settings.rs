@@ -97,7 +97,7 @@ pub fn rows(spec: &StepSpec, yaml: &str) -> Vec<SettingRow> {
                 "batch",
                 match train.batch {
                     BatchSize::Rows(rows) => rows.to_string(),
-                    BatchSize::Full => "full".into(),
+                    BatchSize::Full => word(&BatchSize::Full).into(),
                 },
             ));
             rows.push(row("epochs", train.epochs.to_string()));

@@ -24,7 +24,7 @@ use crate::data::{DataSettings, Missing, Scale, Split, Task};
 use crate::nn::{Activation, BatchSize, Init, Optimizer, Precision};
 pub use compare::{ChartChoice, CompareSpec};
 pub use model_use::{ExportSpec, PredictSpec};
-use schema::{BatchSchema, Word};
+use schema::{BatchSchema, Word, no_default};
 pub use sweep::{MetricName, SweepSpec};
 
 /// The kinds of step a document can declare.
@@ -239,7 +239,7 @@ pub(crate) struct RawTrain {
     learning_rate: Option<f64>,
     momentum: Option<f64>,
     #[serde(default, deserialize_with = "batch_size")]
-    #[schemars(with = "Option<BatchSchema>")]
+    #[schemars(with = "BatchSchema", transform = no_default)]
     batch: Option<BatchSize>,
     epochs: Option<usize>,
     target_loss: Option<f64>,

@@ -4,6 +4,7 @@ use schemars::JsonSchema;
 use serde::{Deserialize, Serialize};
 
 use super::Checker;
+use super::schema::no_default;
 
 #[derive(Deserialize, JsonSchema)]
 #[serde(deny_unknown_fields)]
@@ -15,7 +16,7 @@ pub(super) struct RawPredict {
     // value, which must not quietly mean "write nothing". The schema therefore tells
     // editors it is a file name.
     #[serde(default, deserialize_with = "present")]
-    #[schemars(with = "String")]
+    #[schemars(with = "String", transform = no_default)]
     write: Option<Option<String>>,
 }
 

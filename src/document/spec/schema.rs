@@ -84,6 +84,13 @@ impl<T: DeserializeOwned> JsonSchema for Word<T> {
     }
 }
 
+/// Drops the `default` schemars takes from a field's `#[serde(default)]`: for the
+/// settings read with a function of their own it is the empty value (`null`), which
+/// an editor would offer and stet refuses.
+pub(crate) fn no_default(schema: &mut Schema) {
+    schema.remove("default");
+}
+
 /// `batch`: a number of rows or the word `full` (read by `super::batch_size`).
 pub(crate) struct BatchSchema;
 
@@ -127,5 +134,60 @@ impl JsonSchema for VarySchema {
             "propertyNames": { "enum": variable },
             "additionalProperties": { "type": "array", "minItems": 1 },
         })
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::document::names::fields;
+
+    /// The property names of one definition, in the schema's order.
+    fn properties(schema: &Value, definition: &str) -> Vec<String> {
+        schema[DEFINITIONS][definition]["properties"]
+            .as_object()
+            .unwrap_or_else(|| panic!("no definition '{definition}'"))
+            .keys()
+            .cloned()
+            .collect()
+    }
+
+    // Two derivations of the same structs, schemars' and serde's, must agree: what
+    // "did you mean" offers and sweeps accept is what editors are told.
+    #[test]
+    fn each_key_list_is_its_structs_fields_as_the_schema_lists_them() {
+        let schema = steps_schema();
+        for kind in StepKind::ALL {
+            assert_eq!(
+                properties(&schema, kind.word()),
+                kind.settings(),
+                "{kind:?}"
+            );
+        }
+        assert_eq!(properties(&schema, "train"), *TRAIN_KEYS);
+        assert_eq!(properties(&schema, "net"), *NET_KEYS);
+        assert_eq!(properties(&schema, "front_matter"), fields::<FrontMatter>());
+    }
+
+    #[test]
+    fn there_is_one_closed_definition_per_kind_and_one_for_the_front_matter() {
+        let schema = steps_schema();
+        let definitions = schema[DEFINITIONS].as_object().unwrap();
+        let mut expected: Vec<&str> = StepKind::ALL.iter().map(|kind| kind.word()).collect();
+        expected.push("front_matter");
+        assert_eq!(definitions.keys().collect::<Vec<_>>(), expected);
+        for (name, definition) in definitions {
+            assert_eq!(definition["additionalProperties"], false, "{name}");
+        }
+    }
+
+    #[test]
+    fn enum_settings_list_their_words_and_batch_takes_a_number_or_full() {
+        let schema = steps_schema();
+        let activation = &schema[DEFINITIONS]["net"]["properties"]["activation"]["enum"];
+        assert_eq!(activation[1], "tanh");
+        let batch = &schema[DEFINITIONS]["train"]["properties"]["batch"];
+        assert_eq!(batch["anyOf"][0]["type"], "integer", "{batch}");
+        assert_eq!(batch["anyOf"][1]["const"], "full", "{batch}");
     }
 }

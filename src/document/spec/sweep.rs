@@ -28,14 +28,7 @@ pub enum MetricName {
 impl MetricName {
     /// The name used in summaries and the metric tables.
     pub fn key(self) -> &'static str {
-        match self {
-            MetricName::Loss => "loss",
-            MetricName::Accuracy => "accuracy",
-            MetricName::LogLoss => "log_loss",
-            MetricName::Mse => "mse",
-            MetricName::Mae => "mae",
-            MetricName::R2 => "r2",
-        }
+        super::word(&self)
     }
 
     /// Whether a larger value is better (accuracy, R²) or worse (the losses and errors).
