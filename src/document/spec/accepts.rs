@@ -79,6 +79,15 @@ fn accepts(setting: &str) -> Option<Accepts> {
     })
 }
 
+/// What `setting` takes, in the words messages use, unless it is one word (or a list
+/// of words) from a fixed list; the schema gives it to editors as the setting's help.
+pub(crate) fn described(setting: &str) -> Option<&'static str> {
+    match accepts(setting)? {
+        Accepts::Described(what) => Some(what),
+        Accepts::Word(_) | Accepts::Words(_) => None,
+    }
+}
+
 /// Settings whose values are names (of columns, files or steps).
 const NAMES: &[&str] = &[
     "file", "write", "target", "inputs", "data", "net", "from", "model", "runs",
