@@ -19,6 +19,7 @@ pub mod document;
 pub mod nn;
 pub mod plan;
 pub(crate) mod report;
+pub use document::spec::schema;
 
 pub use build::ShareSummary;
 pub use build::share::Share;

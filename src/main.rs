@@ -142,6 +142,8 @@ enum Command {
         #[command(flatten)]
         flags: DocumentFlags,
     },
+    /// Print the JSON Schema of step blocks and front matter, for editors.
+    Schema,
 }
 
 fn main() -> ExitCode {
@@ -242,6 +244,10 @@ fn run(command: Command) -> Result<ExitCode, Error> {
             let cleaning =
                 stet::clean(&documents, &cache_choice(cache), &flags.options(), dry_run)?;
             console::print(&console::clean(&cleaning, dry_run));
+            Ok(ExitCode::SUCCESS)
+        }
+        Command::Schema => {
+            print!("{}", stet::schema::steps_json());
             Ok(ExitCode::SUCCESS)
         }
     }

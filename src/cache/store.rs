@@ -19,9 +19,12 @@ const MAGIC: &[u8; 8] = b"stet\0en2";
 const HEADER_LEN: usize = MAGIC.len() + 32;
 
 /// What kind of result an entry holds; part of the file name so kinds never collide.
-#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+/// Its serde word is the file name's suffix.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "snake_case")]
 pub(crate) enum EntryKind {
     /// A data step's summary for the report.
+    #[serde(rename = "data")]
     DataSummary,
     /// A data step's prepared matrices, loaded only when a run must train.
     Prepared,
@@ -46,14 +49,7 @@ impl EntryKind {
     ];
 
     fn suffix(self) -> &'static str {
-        match self {
-            EntryKind::DataSummary => "data",
-            EntryKind::Prepared => "prepared",
-            EntryKind::Marker => "marker",
-            EntryKind::Predict => "predict",
-            EntryKind::Export => "export",
-            EntryKind::Run => "run",
-        }
+        crate::document::names::word(&self)
     }
 }
 

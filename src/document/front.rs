@@ -1,13 +1,15 @@
 //! The optional YAML front matter between `---` lines at the very top of a document.
 
+use schemars::JsonSchema;
 use serde::{Deserialize, Serialize};
 
 use super::problem::Problem;
 use super::yaml::{self, Block};
 
 /// Document-wide settings and facts shown in the report header.
-#[derive(Clone, Debug, Default, PartialEq, Serialize, Deserialize)]
+#[derive(Clone, Debug, Default, PartialEq, Serialize, Deserialize, JsonSchema)]
 #[serde(deny_unknown_fields)]
+#[schemars(rename = "front_matter")]
 pub struct FrontMatter {
     pub title: Option<String>,
     pub author: Option<String>,
@@ -60,7 +62,7 @@ pub fn parse(block: Option<Block<'_>>, problems: &mut Vec<Problem>) -> FrontMatt
     if block.text.trim().is_empty() {
         return FrontMatter::default();
     }
-    yaml::deserialize(block, &["title", "author", "seed", "notes"], problems).unwrap_or_default()
+    yaml::deserialize(block, problems).unwrap_or_default()
 }
 
 #[cfg(test)]

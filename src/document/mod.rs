@@ -5,6 +5,7 @@
 //! source so that the report renders it and so that it never enters a cache key.
 
 pub mod front;
+pub mod names;
 pub mod problem;
 pub mod spec;
 pub mod yaml;

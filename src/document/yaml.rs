@@ -4,6 +4,7 @@
 use serde::de::DeserializeOwned;
 use serde_yaml::Value;
 
+use super::names::fields;
 use super::problem::{Problem, nearest};
 
 /// A YAML text and the byte offset where it starts in the document.
@@ -14,11 +15,10 @@ pub struct Block<'a> {
 }
 
 /// Deserialises `block` into `T` (whose serde derive rejects unknown keys); on failure
-/// records one problem at the error's position, suggesting the nearest of `known` keys
-/// for a misspelt one.
+/// records one problem at the error's position, suggesting the nearest of the keys
+/// `T` reads for a misspelt one.
 pub fn deserialize<T: DeserializeOwned>(
     block: Block<'_>,
-    known: &[&str],
     problems: &mut Vec<Problem>,
 ) -> Option<T> {
     if !shallow_enough(block, problems) {
@@ -27,7 +27,7 @@ pub fn deserialize<T: DeserializeOwned>(
     match serde_yaml::from_str::<T>(block.text) {
         Ok(value) => Some(value),
         Err(error) => {
-            problems.push(problem_from(&error, block, known));
+            problems.push(problem_from(&error, block, fields::<T>()));
             None
         }
     }
@@ -244,8 +244,7 @@ mod tests {
 
     fn problem_of(text: &str, offset: usize) -> Problem {
         let mut problems = Vec::new();
-        let parsed: Option<Settings> =
-            deserialize(Block { text, offset }, &["data"], &mut problems);
+        let parsed: Option<Settings> = deserialize(Block { text, offset }, &mut problems);
         assert!(parsed.is_none());
         assert_eq!(problems.len(), 1);
         problems.remove(0)

@@ -42,7 +42,7 @@ pub struct PlannedStep {
     /// Index of the step's block among the document's pieces.
     pub(crate) piece: usize,
     /// The steps this one reads, each named by the setting that names it.
-    pub(crate) upstream: Upstream,
+    pub upstream: Upstream,
     pub(crate) files: Vec<InputFile>,
     /// The file a predict or export step writes, checked against every other use.
     pub(crate) output: Option<Output>,
@@ -55,7 +55,7 @@ pub struct PlannedStep {
 /// names each: a plan holds one only when every reference resolved to a step of the
 /// right kind, so no stage reads an upstream step by position.
 #[derive(Clone, Debug, PartialEq, Eq)]
-pub(crate) enum Upstream {
+pub enum Upstream {
     /// Data and net steps read no other step.
     Nothing,
     Train {
@@ -76,7 +76,7 @@ pub(crate) enum Upstream {
 
 impl Upstream {
     /// Every step read, in the order their keys enter this step's key.
-    pub(crate) fn all(&self) -> Vec<usize> {
+    pub fn all(&self) -> Vec<usize> {
         match self {
             Upstream::Nothing => Vec::new(),
             Upstream::Train { data, net } => vec![*data, *net],
@@ -142,7 +142,7 @@ impl PlannedStep {
 pub struct Plan {
     pub steps: Vec<PlannedStep>,
     /// Indices into `steps` such that every step comes after the steps it reads.
-    pub(crate) order: Vec<usize>,
+    pub order: Vec<usize>,
     /// The limits the plan was made under; a run checks against them what only the
     /// data decides (the network's input and output widths).
     pub(crate) limits: Limits,

@@ -44,12 +44,7 @@ pub(crate) fn stop_reason(reason: StopReason) -> &'static str {
 
 /// The stop reason as the JSON summary names it.
 pub(crate) fn stop_code(reason: StopReason) -> &'static str {
-    match reason {
-        StopReason::TargetLoss => "target_loss",
-        StopReason::EpochLimit => "epoch_limit",
-        StopReason::NoImprovement => "no_improvement",
-        StopReason::Diverged => "diverged",
-    }
+    crate::document::names::word(&reason)
 }
 
 #[cfg(test)]

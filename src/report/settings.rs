@@ -45,10 +45,10 @@ pub(crate) fn rows(spec: &StepSpec, yaml: &str) -> Vec<SettingRow> {
                     "task",
                     settings
                         .task
-                        .map_or("from the target column".into(), |task| word(&task)),
+                        .map_or("from the target column".into(), |task| word(&task).into()),
                 ),
-                row("scale", word(&settings.scale)),
-                row("missing", word(&settings.missing)),
+                row("scale", word(&settings.scale).into()),
+                row("missing", word(&settings.missing).into()),
             ];
             rows.push(match settings.split {
                 Split::Holdout(fraction) => row("holdout", fraction.to_string()),
@@ -69,16 +69,16 @@ pub(crate) fn rows(spec: &StepSpec, yaml: &str) -> Vec<SettingRow> {
                         .join(", ")
                 ),
             ),
-            row("activation", word(&net.activation)),
-            row("output", word(&net.output)),
-            row("init", word(&net.init)),
+            row("activation", word(&net.activation).into()),
+            row("output", word(&net.output).into()),
+            row("init", word(&net.init).into()),
         ],
         StepSpec::Train(train) => {
             let mut rows = vec![
                 row("data", train.data.clone()),
                 row("net", train.net.clone()),
             ];
-            rows.push(row("loss", word(&train.loss)));
+            rows.push(row("loss", word(&train.loss).into()));
             match &train.optimizer {
                 Optimizer::Sgd {
                     learning_rate,
@@ -97,7 +97,7 @@ pub(crate) fn rows(spec: &StepSpec, yaml: &str) -> Vec<SettingRow> {
                 "batch",
                 match train.batch {
                     BatchSize::Rows(rows) => rows.to_string(),
-                    BatchSize::Full => "full".into(),
+                    BatchSize::Full => word(&BatchSize::Full).into(),
                 },
             ));
             rows.push(row("epochs", train.epochs.to_string()));
@@ -110,7 +110,7 @@ pub(crate) fn rows(spec: &StepSpec, yaml: &str) -> Vec<SettingRow> {
             rows.push(row("l2", train.l2.to_string()));
             rows.push(row("shuffle", train.shuffle.to_string()));
             rows.push(row("seed", train.seed.to_string()));
-            rows.push(row("precision", word(&train.precision)));
+            rows.push(row("precision", word(&train.precision).into()));
             rows
         }
         StepSpec::Sweep(sweep) => {
@@ -147,7 +147,7 @@ pub(crate) fn rows(spec: &StepSpec, yaml: &str) -> Vec<SettingRow> {
                             .join(", ")
                     }),
             ),
-            row("chart", word(&compare.chart)),
+            row("chart", word(&compare.chart).into()),
             row("log_scale", compare.log_scale.to_string()),
         ],
         StepSpec::Predict(predict) => vec![

@@ -104,7 +104,7 @@ pub(crate) fn data_view(summary: &DataSummary) -> DataView {
         })
         .collect();
     DataView {
-        task: word(&summary.task),
+        task: word(&summary.task).into(),
         rows_read: summary.rows_read,
         rows_dropped: summary.rows_dropped,
         features: summary.feature_count,
@@ -112,7 +112,7 @@ pub(crate) fn data_view(summary: &DataSummary) -> DataView {
         targets: summary.target_names.join(", "),
         split,
         classes,
-        scale: word(&summary.scale),
+        scale: word(&summary.scale).into(),
     }
 }
 
@@ -218,7 +218,7 @@ pub(crate) fn train_view(result: &FitResult, classes: Option<&[String]>) -> Trai
     };
     TrainView {
         layers,
-        loss: word(&shape.loss),
+        loss: word(&shape.loss).into(),
         metric_names,
         metric_rows,
         stop,

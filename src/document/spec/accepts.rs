@@ -2,23 +2,27 @@
 //! that does not fit: the setting's name, what it takes, and what was written instead,
 //! never the parser's own vocabulary (untagged enums, YAML tags, struct names).
 
+use std::sync::LazyLock;
+
 use serde_yaml::Value;
 
-use super::sweep::value_text;
+use super::compare::ChartChoice;
+use super::sweep::{MetricName, value_text};
+use super::{LossChoice, OptimizerKind, OutputChoice};
+use crate::data::{Missing, Scale, Task};
+use crate::document::names::{word, words};
 use crate::document::problem::nearest;
+use crate::nn::{Activation, Init, Precision};
 
-/// The activations a hidden layer may use (softmax is an output activation only).
-const HIDDEN_ACTIVATIONS: &[&str] = &["sigmoid", "tanh", "relu", "leaky_relu", "linear"];
-const OUTPUTS: &[&str] = &["auto", "sigmoid", "softmax", "linear", "tanh"];
-const INITS: &[&str] = &["xavier", "he", "uniform"];
-const LOSSES: &[&str] = &["auto", "mse", "cross_entropy"];
-const OPTIMIZERS: &[&str] = &["sgd", "adam"];
-const PRECISIONS: &[&str] = &["f64", "f32"];
-const TASKS: &[&str] = &["classify", "regress"];
-const SCALES: &[&str] = &["standard", "minmax", "none"];
-const MISSING: &[&str] = &["error", "drop"];
-const METRICS: &[&str] = &["loss", "accuracy", "log_loss", "mse", "mae", "r2"];
-const CHARTS: &[&str] = &["loss", "metric", "none"];
+/// The activations a hidden layer may use: softmax is an output activation only.
+static HIDDEN_ACTIVATIONS: LazyLock<Vec<&str>> = LazyLock::new(|| {
+    let softmax = word(&Activation::Softmax);
+    words::<Activation>()
+        .iter()
+        .copied()
+        .filter(|activation| *activation != softmax)
+        .collect()
+});
 
 /// The shape of value a setting takes.
 enum Accepts {
@@ -35,18 +39,18 @@ enum Accepts {
 fn accepts(setting: &str) -> Option<Accepts> {
     use Accepts::{Described, Word, Words};
     Some(match setting {
-        "activation" => Word(HIDDEN_ACTIVATIONS),
-        "output" => Word(OUTPUTS),
-        "init" => Word(INITS),
-        "loss" => Word(LOSSES),
-        "optimizer" => Word(OPTIMIZERS),
-        "precision" => Word(PRECISIONS),
-        "task" => Word(TASKS),
-        "scale" => Word(SCALES),
-        "missing" => Word(MISSING),
-        "rank_by" => Word(METRICS),
-        "chart" => Word(CHARTS),
-        "metrics" => Words(METRICS),
+        "activation" => Word(HIDDEN_ACTIVATIONS.as_slice()),
+        "output" => Word(words::<OutputChoice>()),
+        "init" => Word(words::<Init>()),
+        "loss" => Word(words::<LossChoice>()),
+        "optimizer" => Word(words::<OptimizerKind>()),
+        "precision" => Word(words::<Precision>()),
+        "task" => Word(words::<Task>()),
+        "scale" => Word(words::<Scale>()),
+        "missing" => Word(words::<Missing>()),
+        "rank_by" => Word(words::<MetricName>()),
+        "chart" => Word(words::<ChartChoice>()),
+        "metrics" => Words(words::<MetricName>()),
         "file" => Described("a file path, relative to the document's folder"),
         "write" => Described("a file path to write, relative to the document's folder"),
         "target" => Described("a column name, or a list of column names"),
@@ -73,6 +77,15 @@ fn accepts(setting: &str) -> Option<Accepts> {
         "repeat" => Described("a whole number of seeds, 1 or more"),
         _ => return None,
     })
+}
+
+/// What `setting` takes, in the words messages use, unless it is one word (or a list
+/// of words) from a fixed list; the schema gives it to editors as the setting's help.
+pub(crate) fn described(setting: &str) -> Option<&'static str> {
+    match accepts(setting)? {
+        Accepts::Described(what) => Some(what),
+        Accepts::Word(_) | Accepts::Words(_) => None,
+    }
 }
 
 /// Settings whose values are names (of columns, files or steps).
@@ -184,10 +197,6 @@ mod tests {
     use serde::de::DeserializeOwned;
 
     use super::*;
-    use crate::data::{Missing, Scale, Task};
-    use crate::document::spec::compare::ChartChoice;
-    use crate::document::spec::{LossChoice, MetricName, OptimizerKind, OutputChoice};
-    use crate::nn::{Activation, Init, Precision};
 
     /// The words serde's own message lists for an enum ("expected `a` or `b`",
     /// "expected one of `a`, `b`, `c`"), read from parsing a non-word.
@@ -202,29 +211,31 @@ mod tests {
             .collect()
     }
 
-    fn owned(words: &[&str]) -> Vec<String> {
-        words.iter().map(|w| w.to_string()).collect()
+    fn words_of<T: DeserializeOwned>() -> Vec<String> {
+        words::<T>().iter().map(|w| w.to_string()).collect()
     }
 
-    // The lists here are what messages offer; they must be the words the enums read.
+    // The words messages offer are read from the derives; serde's own message, the
+    // independent witness, must list the same.
     #[test]
-    fn the_word_lists_are_the_words_the_settings_read() {
-        let mut hidden = owned(HIDDEN_ACTIVATIONS);
-        hidden.push("softmax".into());
+    fn the_offered_words_are_the_words_the_settings_read() {
+        assert_eq!(serde_words::<Activation>(), words_of::<Activation>());
+        assert_eq!(serde_words::<OutputChoice>(), words_of::<OutputChoice>());
+        assert_eq!(serde_words::<Init>(), words_of::<Init>());
+        assert_eq!(serde_words::<LossChoice>(), words_of::<LossChoice>());
+        assert_eq!(serde_words::<OptimizerKind>(), words_of::<OptimizerKind>());
+        assert_eq!(serde_words::<Precision>(), words_of::<Precision>());
+        assert_eq!(serde_words::<Task>(), words_of::<Task>());
+        assert_eq!(serde_words::<Scale>(), words_of::<Scale>());
+        assert_eq!(serde_words::<Missing>(), words_of::<Missing>());
+        assert_eq!(serde_words::<MetricName>(), words_of::<MetricName>());
+        assert_eq!(serde_words::<ChartChoice>(), words_of::<ChartChoice>());
+        let mut hidden = HIDDEN_ACTIVATIONS.clone();
+        hidden.push("softmax");
         hidden.sort();
-        let mut activations = serde_words::<Activation>();
-        activations.sort();
-        assert_eq!(activations, hidden);
-        assert_eq!(serde_words::<OutputChoice>(), owned(OUTPUTS));
-        assert_eq!(serde_words::<Init>(), owned(INITS));
-        assert_eq!(serde_words::<LossChoice>(), owned(LOSSES));
-        assert_eq!(serde_words::<OptimizerKind>(), owned(OPTIMIZERS));
-        assert_eq!(serde_words::<Precision>(), owned(PRECISIONS));
-        assert_eq!(serde_words::<Task>(), owned(TASKS));
-        assert_eq!(serde_words::<Scale>(), owned(SCALES));
-        assert_eq!(serde_words::<Missing>(), owned(MISSING));
-        assert_eq!(serde_words::<MetricName>(), owned(METRICS));
-        assert_eq!(serde_words::<ChartChoice>(), owned(CHARTS));
+        let mut all = words::<Activation>().to_vec();
+        all.sort();
+        assert_eq!(hidden, all);
     }
 
     #[test]

@@ -1,8 +1,10 @@
 //! `compare` settings: a table and one overlaid chart of several trains and sweeps.
 
+use schemars::JsonSchema;
 use serde::{Deserialize, Serialize};
 
 use super::Checker;
+use super::schema::Word;
 use super::sweep::{MetricName, repeated};
 
 /// What the compare card charts.
@@ -16,15 +18,17 @@ pub enum ChartChoice {
     None,
 }
 
-#[derive(Deserialize)]
+#[derive(Deserialize, JsonSchema)]
 #[serde(deny_unknown_fields)]
+#[schemars(rename = "compare")]
 pub(super) struct RawCompare {
     runs: Vec<String>,
+    #[schemars(with = "Option<Vec<Word<MetricName>>>")]
     metrics: Option<Vec<MetricName>>,
+    #[schemars(with = "Option<Word<ChartChoice>>")]
     chart: Option<ChartChoice>,
     log_scale: Option<bool>,
 }
-pub(super) const COMPARE_KEYS: &[&str] = &["runs", "metrics", "chart", "log_scale"];
 
 /// `compare`: listed trains and sweeps side by side.
 #[derive(Clone, Debug, PartialEq, Serialize)]

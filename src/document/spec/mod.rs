@@ -6,18 +6,25 @@
 mod accepts;
 pub mod compare;
 pub mod model_use;
+pub mod schema;
 pub mod sweep;
 
+use std::sync::LazyLock;
+
+use schemars::JsonSchema;
 use serde::{Deserialize, Deserializer, Serialize};
 use serde_yaml::{Mapping, Value};
 
 use super::StepBlock;
+use super::names::fields;
+pub use super::names::word;
 use super::problem::{Problem, nearest};
 use super::yaml::{self, Block};
 use crate::data::{DataSettings, Missing, Scale, Split, Task};
 use crate::nn::{Activation, BatchSize, Init, Optimizer, Precision};
 pub use compare::{ChartChoice, CompareSpec};
 pub use model_use::{ExportSpec, PredictSpec};
+use schema::{BatchSchema, Word, no_default};
 pub use sweep::{MetricName, SweepSpec};
 
 /// The kinds of step a document can declare.
@@ -46,27 +53,24 @@ impl StepKind {
 
     /// The word used in the info string and in summaries.
     pub fn word(self) -> &'static str {
+        word(&self)
+    }
+
+    /// The settings a block of this kind may set: the keys its raw struct reads.
+    pub fn settings(self) -> &'static [&'static str] {
         match self {
-            StepKind::Data => "data",
-            StepKind::Net => "net",
-            StepKind::Train => "train",
-            StepKind::Sweep => "sweep",
-            StepKind::Compare => "compare",
-            StepKind::Predict => "predict",
-            StepKind::Export => "export",
+            StepKind::Data => fields::<RawData>(),
+            StepKind::Net => fields::<RawNet>(),
+            StepKind::Train => fields::<RawTrain>(),
+            StepKind::Sweep => fields::<sweep::RawSweep>(),
+            StepKind::Compare => fields::<compare::RawCompare>(),
+            StepKind::Predict => fields::<model_use::RawPredict>(),
+            StepKind::Export => fields::<model_use::RawExport>(),
         }
     }
 
     pub fn from_word(word: &str) -> Option<StepKind> {
         StepKind::ALL.into_iter().find(|kind| kind.word() == word)
-    }
-}
-
-/// The YAML word of a setting's value: its serde name (setting enums are snake_case).
-pub fn word<T: Serialize>(value: &T) -> String {
-    match serde_json::to_value(value) {
-        Ok(serde_json::Value::String(word)) => word,
-        _ => unreachable!("setting enums serialise as words"),
     }
 }
 
@@ -174,39 +178,46 @@ impl StepSpec {
     }
 }
 
-#[derive(Deserialize)]
+#[derive(Deserialize, JsonSchema)]
 #[serde(deny_unknown_fields)]
+#[schemars(rename = "data")]
 struct RawData {
     file: String,
     inputs: Option<Vec<String>>,
     target: OneOrMany,
+    #[schemars(with = "Option<Word<Task>>")]
     task: Option<Task>,
+    #[schemars(with = "Option<Word<Scale>>")]
     scale: Option<Scale>,
+    #[schemars(with = "Option<Word<Missing>>")]
     missing: Option<Missing>,
     holdout: Option<f64>,
     folds: Option<usize>,
     seed: Option<u64>,
 }
-const DATA_KEYS: &[&str] = &[
-    "file", "inputs", "target", "task", "scale", "missing", "holdout", "folds", "seed",
-];
 
-#[derive(Deserialize)]
+#[derive(Deserialize, JsonSchema)]
 #[serde(untagged)]
+#[schemars(inline)]
 enum OneOrMany {
     One(String),
     Many(Vec<String>),
 }
 
-#[derive(Deserialize)]
+#[derive(Deserialize, JsonSchema)]
 #[serde(deny_unknown_fields)]
+#[schemars(rename = "net")]
 pub(crate) struct RawNet {
     hidden: Option<Vec<usize>>,
+    #[schemars(with = "Option<Word<Activation>>")]
     activation: Option<Activation>,
+    #[schemars(with = "Option<Word<OutputChoice>>")]
     output: Option<OutputChoice>,
+    #[schemars(with = "Option<Word<Init>>")]
     init: Option<Init>,
 }
-pub(crate) const NET_KEYS: &[&str] = &["hidden", "activation", "output", "init"];
+/// The net settings, which a sweep may also vary.
+pub(crate) static NET_KEYS: LazyLock<&[&str]> = LazyLock::new(fields::<RawNet>);
 
 #[derive(Clone, Copy, Deserialize)]
 #[serde(rename_all = "snake_case")]
@@ -215,16 +226,20 @@ enum OptimizerKind {
     Adam,
 }
 
-#[derive(Deserialize)]
+#[derive(Deserialize, JsonSchema)]
 #[serde(deny_unknown_fields)]
+#[schemars(rename = "train")]
 pub(crate) struct RawTrain {
     data: String,
     net: String,
+    #[schemars(with = "Option<Word<LossChoice>>")]
     loss: Option<LossChoice>,
+    #[schemars(with = "Option<Word<OptimizerKind>>")]
     optimizer: Option<OptimizerKind>,
     learning_rate: Option<f64>,
     momentum: Option<f64>,
     #[serde(default, deserialize_with = "batch_size")]
+    #[schemars(with = "BatchSchema", transform = no_default)]
     batch: Option<BatchSize>,
     epochs: Option<usize>,
     target_loss: Option<f64>,
@@ -232,24 +247,11 @@ pub(crate) struct RawTrain {
     l2: Option<f64>,
     shuffle: Option<bool>,
     seed: Option<u64>,
+    #[schemars(with = "Option<Word<Precision>>")]
     precision: Option<Precision>,
 }
-pub(crate) const TRAIN_KEYS: &[&str] = &[
-    "data",
-    "net",
-    "loss",
-    "optimizer",
-    "learning_rate",
-    "momentum",
-    "batch",
-    "epochs",
-    "target_loss",
-    "patience",
-    "l2",
-    "shuffle",
-    "seed",
-    "precision",
-];
+/// The train settings, which a sweep may also vary.
+pub(crate) static TRAIN_KEYS: LazyLock<&[&str]> = LazyLock::new(fields::<RawTrain>);
 
 /// `batch` is a row count or the word `full`.
 fn batch_size<'de, D: Deserializer<'de>>(deserializer: D) -> Result<Option<BatchSize>, D::Error> {
@@ -325,47 +327,32 @@ pub fn parse_step(
     };
     let spec = match step.kind {
         StepKind::Data => {
-            let raw: RawData = deserialize(block, DATA_KEYS, &step.info_span, check.problems)?;
+            let raw: RawData = deserialize(block, &step.info_span, check.problems)?;
             StepSpec::Data(validate_data(raw, default_seed, &mut check))
         }
         StepKind::Net => {
-            let raw: RawNet = deserialize(block, NET_KEYS, &step.info_span, check.problems)?;
+            let raw: RawNet = deserialize(block, &step.info_span, check.problems)?;
             StepSpec::Net(validate_net(raw, &mut check))
         }
         StepKind::Train => {
-            let raw: RawTrain = deserialize(block, TRAIN_KEYS, &step.info_span, check.problems)?;
+            let raw: RawTrain = deserialize(block, &step.info_span, check.problems)?;
             refuse_momentum_with_adam(&raw, &mut check);
             StepSpec::Train(validate_train(raw, default_seed, &mut check))
         }
         StepKind::Sweep => {
-            let raw = deserialize(block, sweep::SWEEP_KEYS, &step.info_span, check.problems)?;
+            let raw = deserialize(block, &step.info_span, check.problems)?;
             StepSpec::Sweep(sweep::validate_sweep(raw, &mut check))
         }
         StepKind::Compare => {
-            let raw = deserialize(
-                block,
-                compare::COMPARE_KEYS,
-                &step.info_span,
-                check.problems,
-            )?;
+            let raw = deserialize(block, &step.info_span, check.problems)?;
             StepSpec::Compare(compare::validate_compare(raw, &mut check))
         }
         StepKind::Predict => {
-            let raw = deserialize(
-                block,
-                model_use::PREDICT_KEYS,
-                &step.info_span,
-                check.problems,
-            )?;
+            let raw = deserialize(block, &step.info_span, check.problems)?;
             StepSpec::Predict(model_use::validate_predict(raw, &mut check))
         }
         StepKind::Export => {
-            let raw = deserialize(
-                block,
-                model_use::EXPORT_KEYS,
-                &step.info_span,
-                check.problems,
-            )?;
+            let raw = deserialize(block, &step.info_span, check.problems)?;
             StepSpec::Export(model_use::validate_export(raw, &mut check))
         }
     };
@@ -377,10 +364,10 @@ pub fn parse_step(
 /// a value that does not fit is described in the document's words (see `accepts`).
 fn deserialize<T: serde::de::DeserializeOwned>(
     block: Block<'_>,
-    known: &[&str],
     info_span: &std::ops::Range<usize>,
     problems: &mut Vec<Problem>,
 ) -> Option<T> {
+    let known = fields::<T>();
     let no_settings = || {
         Problem::new(info_span.clone(), "the step has no settings")
             .with_help(format!("settings of this kind: {}", known.join(", ")))

@@ -1,20 +1,24 @@
 //! `predict` and `export` settings: using a trained model on new rows or elsewhere.
 
+use schemars::JsonSchema;
 use serde::{Deserialize, Serialize};
 
 use super::Checker;
+use super::schema::no_default;
 
-#[derive(Deserialize)]
+#[derive(Deserialize, JsonSchema)]
 #[serde(deny_unknown_fields)]
+#[schemars(rename = "predict")]
 pub(super) struct RawPredict {
     model: String,
     file: String,
-    /// `Some(None)` when `write:` is present but empty (`~`, `null`): YAML's empty
-    /// value, which must not quietly mean "write nothing".
+    // `Some(None)` when `write:` is present but empty (`~`, `null`): YAML's empty
+    // value, which must not quietly mean "write nothing". The schema therefore tells
+    // editors it is a file name.
     #[serde(default, deserialize_with = "present")]
+    #[schemars(with = "String", transform = no_default)]
     write: Option<Option<String>>,
 }
-pub(super) const PREDICT_KEYS: &[&str] = &["model", "file", "write"];
 
 /// `predict`: a trained model applied to the rows of a CSV file.
 #[derive(Clone, Debug, PartialEq, Serialize)]
@@ -52,13 +56,13 @@ fn present<'de, D: serde::Deserializer<'de>>(
     Option::<String>::deserialize(deserializer).map(Some)
 }
 
-#[derive(Deserialize)]
+#[derive(Deserialize, JsonSchema)]
 #[serde(deny_unknown_fields)]
+#[schemars(rename = "export")]
 pub(super) struct RawExport {
     model: String,
     write: String,
 }
-pub(super) const EXPORT_KEYS: &[&str] = &["model", "write"];
 
 /// `export`: a trained model written as JSON for use from other programs.
 #[derive(Clone, Debug, PartialEq, Serialize)]

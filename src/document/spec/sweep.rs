@@ -1,9 +1,11 @@
 //! `sweep` settings, and the expansion of a sweep into validated train settings, one
 //! per combination of its varied values.
 
+use schemars::JsonSchema;
 use serde::{Deserialize, Serialize};
 use serde_yaml::{Mapping, Value};
 
+use super::schema::{VarySchema, Word};
 use super::{
     Checker, NET_KEYS, NetSpec, RawNet, RawTrain, TRAIN_KEYS, TrainSpec, describe_misfit,
     validate_net, validate_train,
@@ -26,14 +28,7 @@ pub enum MetricName {
 impl MetricName {
     /// The name used in summaries and the metric tables.
     pub fn key(self) -> &'static str {
-        match self {
-            MetricName::Loss => "loss",
-            MetricName::Accuracy => "accuracy",
-            MetricName::LogLoss => "log_loss",
-            MetricName::Mse => "mse",
-            MetricName::Mae => "mae",
-            MetricName::R2 => "r2",
-        }
+        super::word(&self)
     }
 
     /// Whether a larger value is better (accuracy, R²) or worse (the losses and errors).
@@ -42,15 +37,17 @@ impl MetricName {
     }
 }
 
-#[derive(Deserialize)]
+#[derive(Deserialize, JsonSchema)]
 #[serde(deny_unknown_fields)]
+#[schemars(rename = "sweep")]
 pub(super) struct RawSweep {
     from: String,
+    #[schemars(with = "VarySchema")]
     vary: Mapping,
     repeat: Option<usize>,
+    #[schemars(with = "Option<Word<MetricName>>")]
     rank_by: Option<MetricName>,
 }
-pub(super) const SWEEP_KEYS: &[&str] = &["from", "vary", "repeat", "rank_by"];
 
 /// `sweep`: a train step run once per combination of the varied settings.
 #[derive(Clone, Debug, PartialEq, Serialize)]
@@ -65,7 +62,7 @@ pub struct SweepSpec {
 }
 
 /// Settings a sweep cannot vary: they choose which steps a run reads.
-const FIXED: &[&str] = &["data", "net"];
+pub(super) const FIXED: &[&str] = &["data", "net"];
 
 pub(super) fn validate_sweep(raw: RawSweep, check: &mut Checker<'_>) -> SweepSpec {
     let mut vary = Vec::new();
@@ -76,13 +73,13 @@ pub(super) fn validate_sweep(raw: RawSweep, check: &mut Checker<'_>) -> SweepSpe
             });
             continue;
         };
-        let known = TRAIN_KEYS.iter().chain(NET_KEYS).any(|k| *k == name);
+        let known = TRAIN_KEYS.iter().chain(*NET_KEYS).any(|k| *k == name);
         if !known || FIXED.contains(&name.as_str()) {
             let suggestion = nearest(
                 &name,
                 TRAIN_KEYS
                     .iter()
-                    .chain(NET_KEYS)
+                    .chain(*NET_KEYS)
                     .copied()
                     .filter(|k| !FIXED.contains(k)),
             )
