@@ -17,7 +17,14 @@ pub fn model_shape(
     let inputs = data.feature_count;
     let outputs = data.output_count();
     let task = data.task;
-    let output = match net.output {
+    // `init` is read when the network is initialised (`fit`), not part of its shape.
+    let NetSpec {
+        hidden,
+        activation,
+        output,
+        init: _,
+    } = net;
+    let output = match output {
         OutputChoice::Auto => match task {
             Task::Classify if outputs == 1 => Activation::Sigmoid,
             Task::Classify => Activation::Softmax,
@@ -51,12 +58,12 @@ pub fn model_shape(
         );
     }
     let mut sizes = vec![inputs];
-    sizes.extend(&net.hidden);
+    sizes.extend(hidden);
     sizes.push(outputs);
     Ok(ModelShape {
-        hints: hidden_width_hints(inputs, outputs, &net.hidden),
+        hints: hidden_width_hints(inputs, outputs, hidden),
         sizes,
-        hidden: net.activation,
+        hidden: *activation,
         output,
         loss,
     })
@@ -127,18 +134,7 @@ pub fn fit(
         net.init,
         train.seed,
     );
-    let config = TrainConfig {
-        loss: shape.loss,
-        optimizer: train.optimizer.clone(),
-        batch: train.batch,
-        epochs: train.epochs,
-        target_loss: train.target_loss,
-        patience: train.patience,
-        l2: train.l2,
-        shuffle: train.shuffle,
-        seed: train.seed,
-        update_biases: true,
-    };
+    let config = training_config(train, shape.loss);
     let has_test = !test_rows.is_empty();
     let fitted = nn::train_at(
         train.precision,
@@ -160,6 +156,41 @@ pub fn fit(
     }
 }
 
+/// The engine's training configuration for a train spec: the one place a spec's
+/// settings become `nn` settings. Every field is named (no `..`), so a setting added
+/// to `TrainSpec` does not compile until it is carried here or deliberately left out.
+pub fn training_config(train: &TrainSpec, loss: Loss) -> TrainConfig {
+    let TrainSpec {
+        // Step names choose the inputs; they are not training settings.
+        data: _,
+        net: _,
+        // The task chose the loss already (`model_shape`), passed in as `loss`.
+        loss: _,
+        optimizer,
+        batch,
+        epochs,
+        target_loss,
+        patience,
+        l2,
+        shuffle,
+        seed,
+        // Chooses the float type `nn::train_at` trains in, so it is its argument.
+        precision: _,
+    } = train;
+    TrainConfig {
+        loss,
+        optimizer: optimizer.clone(),
+        batch: *batch,
+        epochs: *epochs,
+        target_loss: *target_loss,
+        patience: *patience,
+        l2: *l2,
+        shuffle: *shuffle,
+        seed: *seed,
+        update_biases: true,
+    }
+}
+
 fn set_metrics(task: Task, network: &Network, rows: &nn::Rows, loss: Loss) -> SetMetrics {
     let seen = nn::evaluate(network, rows, loss);
     let (targets, outputs) = (seen.targets.view(), seen.outputs.view());
@@ -178,6 +209,49 @@ fn set_metrics(task: Task, network: &Network, rows: &nn::Rows, loss: Loss) -> Se
 #[cfg(test)]
 mod tests {
     use super::*;
+    use crate::nn::{BatchSize, Optimizer, Precision};
+
+    // Values chosen to differ from every default, so a setting dropped or swapped on
+    // the way to the engine shows.
+    #[test]
+    fn every_train_setting_reaches_the_engine_configuration() {
+        let train = TrainSpec {
+            data: "d".into(),
+            net: "n".into(),
+            loss: LossChoice::Mse,
+            optimizer: Optimizer::Sgd {
+                learning_rate: 0.25,
+                momentum: 0.5,
+            },
+            batch: BatchSize::Rows(7),
+            epochs: 11,
+            target_loss: Some(0.125),
+            patience: Some(3),
+            l2: 0.0625,
+            shuffle: false,
+            seed: 99,
+            precision: Precision::F32,
+        };
+        let config = training_config(&train, Loss::CrossEntropy);
+        assert_eq!(
+            config,
+            TrainConfig {
+                loss: Loss::CrossEntropy,
+                optimizer: Optimizer::Sgd {
+                    learning_rate: 0.25,
+                    momentum: 0.5,
+                },
+                batch: BatchSize::Rows(7),
+                epochs: 11,
+                target_loss: Some(0.125),
+                patience: Some(3),
+                l2: 0.0625,
+                shuffle: false,
+                seed: 99,
+                update_biases: true,
+            }
+        );
+    }
 
     // Seven inputs and two outputs: 3–4 hidden units sit inside the rules of thumb,
     // 16 breaks them (common practice; Heaton 2008).
