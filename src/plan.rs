@@ -10,8 +10,8 @@ use crate::data::Split;
 use crate::document::problem::nearest;
 use crate::document::spec::sweep::SweepSpec;
 pub use crate::document::spec::sweep::describe;
-use crate::document::spec::sweep::{settings_text, variant};
-use crate::document::spec::{NetSpec, TrainSpec, key_span, parse_step};
+use crate::document::spec::sweep::{Base, Variant, Varied, variant};
+use crate::document::spec::{NetSpec, ParsedStep, TrainSpec, Written, key_span, parse_step};
 use crate::document::{Document, Problem, StepBlock, StepKind, StepSpec};
 use crate::input_file::InputFile;
 use crate::outputs::{self, Output};
@@ -34,6 +34,8 @@ pub struct PlannedStep {
     pub id: String,
     pub kind: StepKind,
     pub spec: StepSpec,
+    /// The settings its block wrote (the rest are defaults).
+    pub written: Written,
     /// Index of the step's block among the document's pieces.
     pub piece: usize,
     /// The steps this one reads, each named by the setting that names it.
@@ -85,8 +87,8 @@ impl Upstream {
 /// One setting of net and train values, fitted once per seed and partition.
 #[derive(Clone, Debug)]
 pub struct FitPlan {
-    /// The varied settings and their values as text (empty for a train step).
-    pub settings: Vec<(String, String)>,
+    /// The varied settings and their values (empty for a train step).
+    pub settings: Vec<Varied>,
     /// Index of the data step the runs read.
     pub data: usize,
     pub net: NetSpec,
@@ -220,7 +222,7 @@ pub fn plan(
         root: (!options.allow_outside).then(|| confine::project_root(base_dir)),
         limits: options.limits,
     };
-    let mut parsed: Vec<(usize, &StepBlock, StepSpec)> = Vec::new();
+    let mut parsed: Vec<(usize, &StepBlock, ParsedStep)> = Vec::new();
     let mut seen: HashMap<&str, &StepBlock> = HashMap::new();
     for (piece, block) in document
         .pieces
@@ -246,8 +248,8 @@ pub fn plan(
             );
             continue;
         }
-        if let Some(spec) = parse_step(block, default_seed, &mut problems) {
-            parsed.push((piece, block, spec));
+        if let Some(step) = parse_step(block, default_seed, &mut problems) {
+            parsed.push((piece, block, step));
         }
     }
 
@@ -265,7 +267,7 @@ pub fn plan(
             .filter(|&i| wanted.contains(&parsed[i].1.kind))
     };
     let mut checked = Vec::new();
-    for (_, block, spec) in &parsed {
+    for (_, block, ParsedStep { spec, .. }) in &parsed {
         check_references(document, block, spec, &kinds, &mut problems);
         let files = read_files(block, spec, &place, &mut problems);
         let output = check_writes(block, spec, &place, &mut problems);
@@ -288,10 +290,11 @@ pub fn plan(
         .iter()
         .zip(resolved)
         .map(
-            |((piece, block, spec), (upstream, files, output))| PlannedStep {
+            |((piece, block, parsed), (upstream, files, output))| PlannedStep {
                 id: block.id.clone(),
                 kind: block.kind,
-                spec: spec.clone(),
+                spec: parsed.spec.clone(),
+                written: parsed.written.clone(),
                 piece: *piece,
                 upstream,
                 files,
@@ -580,7 +583,7 @@ const TRAIN_READS: &str = "a train step reads a data and a net step";
 
 /// One fit's settings, before its runs are listed.
 struct FitSettings {
-    settings: Vec<(String, String)>,
+    settings: Vec<Varied>,
     net: NetSpec,
     train: TrainSpec,
 }
@@ -626,15 +629,18 @@ fn fits(
                 .combinations()
                 .iter()
                 .filter_map(|combination| {
-                    let (net, train) = variant(
-                        blocks[base],
-                        blocks[net],
+                    let Variant {
+                        settings,
+                        net,
+                        train,
+                    } = variant(
+                        base_spec(&steps[base], train_of),
+                        base_spec(&steps[net], net_of),
                         combination,
                         default_seed,
                         span.clone(),
                         problems,
                     )?;
-                    let settings = settings_text(combination);
                     let prefix = format!("with {}: ", describe(&settings));
                     check_net_size(blocks[index], &net.hidden, limits, &prefix, problems);
                     Some(FitSettings {
@@ -656,6 +662,28 @@ fn fits(
     fits.into_iter()
         .map(|fit| fit_plan(steps, data, fit, repeat))
         .collect()
+}
+
+/// A planned step's validated spec of one kind and the settings its block wrote.
+fn base_spec<'a, T>(step: &'a PlannedStep, spec_of: fn(&StepSpec) -> Option<&T>) -> Base<'a, T> {
+    Base {
+        spec: spec_of(&step.spec).expect(TRAIN_READS),
+        written: &step.written,
+    }
+}
+
+fn train_of(spec: &StepSpec) -> Option<&TrainSpec> {
+    match spec {
+        StepSpec::Train(train) => Some(train),
+        _ => None,
+    }
+}
+
+fn net_of(spec: &StepSpec) -> Option<&NetSpec> {
+    match spec {
+        StepSpec::Net(net) => Some(net),
+        _ => None,
+    }
 }
 
 /// How many partitions (folds, or the one holdout split) a data step makes.
