@@ -8,12 +8,29 @@ use crate::document::spec::{LossChoice, NetSpec, OutputChoice, TrainSpec, word};
 use crate::nn::{self, Activation, Loss, Network, TrainConfig};
 use crate::outcome::{DataSummary, ModelShape, RunResult, SetMetrics};
 
+/// Why a net and train step cannot fit the data they read (what only the data
+/// decides: its task and its number of output columns).
+#[derive(Debug, thiserror::Error)]
+pub enum ShapeError {
+    #[error(
+        "a softmax output needs at least two output columns; with two classes use sigmoid or auto"
+    )]
+    SoftmaxOnOneOutput,
+    #[error(
+        "cross_entropy needs outputs that are probabilities (sigmoid or softmax), not {}",
+        word(.0)
+    )]
+    CrossEntropyOn(Activation),
+    #[error("cross_entropy is a classification loss; this data step regresses (use mse)")]
+    CrossEntropyToRegress,
+}
+
 /// The network shape, output activation and loss a train step uses on this data.
 pub fn model_shape(
     data: &DataSummary,
     net: &NetSpec,
     train: &TrainSpec,
-) -> Result<ModelShape, String> {
+) -> Result<ModelShape, ShapeError> {
     let inputs = data.feature_count;
     let outputs = data.output_count();
     let task = data.task;
@@ -36,7 +53,7 @@ pub fn model_shape(
         OutputChoice::Tanh => Activation::Tanh,
     };
     if output == Activation::Softmax && outputs == 1 {
-        return Err("a softmax output needs at least two output columns; with two classes use sigmoid or auto".into());
+        return Err(ShapeError::SoftmaxOnOneOutput);
     }
     let loss = match train.loss {
         LossChoice::Auto => match task {
@@ -47,15 +64,10 @@ pub fn model_shape(
         LossChoice::CrossEntropy => Loss::CrossEntropy,
     };
     if loss == Loss::CrossEntropy && !matches!(output, Activation::Sigmoid | Activation::Softmax) {
-        return Err(format!(
-            "cross_entropy needs outputs that are probabilities (sigmoid or softmax), not {}",
-            word(&output)
-        ));
+        return Err(ShapeError::CrossEntropyOn(output));
     }
     if loss == Loss::CrossEntropy && task == Task::Regress {
-        return Err(
-            "cross_entropy is a classification loss; this data step regresses (use mse)".into(),
-        );
+        return Err(ShapeError::CrossEntropyToRegress);
     }
     let mut sizes = vec![inputs];
     sizes.extend(hidden);
@@ -210,6 +222,86 @@ fn set_metrics(task: Task, network: &Network, rows: &nn::Rows, loss: Loss) -> Se
 mod tests {
     use super::*;
     use crate::nn::{BatchSize, Optimizer, Precision};
+
+    /// A data summary of `task` with `classes` (regression: one target column).
+    fn summary(task: Task, classes: Option<Vec<String>>) -> DataSummary {
+        DataSummary {
+            file: "rows.csv".into(),
+            task,
+            rows_read: 10,
+            rows_dropped: 0,
+            columns: Vec::new(),
+            feature_count: 3,
+            target_names: vec!["y".into()],
+            classes,
+            scale: crate::data::Scale::Standard,
+            partitions: Vec::new(),
+        }
+    }
+
+    fn net(output: OutputChoice) -> NetSpec {
+        NetSpec {
+            hidden: vec![4],
+            activation: Activation::Tanh,
+            output,
+            init: crate::nn::Init::Xavier,
+        }
+    }
+
+    fn train(loss: LossChoice) -> TrainSpec {
+        TrainSpec {
+            data: "d".into(),
+            net: "n".into(),
+            loss,
+            optimizer: Optimizer::Adam {
+                learning_rate: 0.001,
+                beta1: 0.9,
+                beta2: 0.999,
+                epsilon: 1e-8,
+            },
+            batch: BatchSize::Full,
+            epochs: 1,
+            target_loss: None,
+            patience: None,
+            l2: 0.0,
+            shuffle: true,
+            seed: 0,
+            precision: Precision::F64,
+        }
+    }
+
+    // What only the data decides is a typed error the run names, not a bare string.
+    #[test]
+    fn a_shape_the_data_cannot_take_is_a_typed_error_naming_the_setting() {
+        let two_classes = summary(Task::Classify, Some(vec!["a".into(), "b".into()]));
+        let softmax = model_shape(
+            &two_classes,
+            &net(OutputChoice::Softmax),
+            &train(LossChoice::Auto),
+        );
+        assert!(matches!(softmax, Err(ShapeError::SoftmaxOnOneOutput)));
+        let linear = model_shape(
+            &two_classes,
+            &net(OutputChoice::Linear),
+            &train(LossChoice::CrossEntropy),
+        );
+        let error = linear.unwrap_err();
+        assert!(
+            matches!(error, ShapeError::CrossEntropyOn(Activation::Linear)),
+            "{error}"
+        );
+        assert!(error.to_string().ends_with("not linear"), "{error}");
+        let regress = summary(Task::Regress, None);
+        let cross_entropy = model_shape(
+            &regress,
+            &net(OutputChoice::Sigmoid),
+            &train(LossChoice::CrossEntropy),
+        );
+        assert!(matches!(
+            cross_entropy,
+            Err(ShapeError::CrossEntropyToRegress)
+        ));
+    }
 
     // Values chosen to differ from every default, so a setting dropped or swapped on
     // the way to the engine shows.

@@ -292,7 +292,9 @@ fn prepare_data(step: &PlannedStep, limits: Limits) -> Result<Prepared, String> 
         unreachable!("a data step has a data spec")
     };
     let file = &step.files[0];
-    let table = file.read(|reader| data::read_table(reader))?;
+    let table = file
+        .read(|reader| data::read_table(reader))
+        .map_err(|error| error.to_string())?;
     data::prepare(&table, &spec.settings, limits.max_categories)
         .map_err(|error| format!("{}: {error}", file.written))
 }
@@ -398,6 +400,7 @@ fn plan_fits(
     for fit_plan in &step.fits {
         let summary = data_summary(plan, records, fit_plan.data)?;
         let shape = model_shape(summary, &fit_plan.net, &fit_plan.train)
+            .map_err(|error| error.to_string())
             .and_then(|shape| within_weight_limit(shape, plan.limits))
             .map_err(|error| {
                 if fit_plan.settings.is_empty() {
@@ -714,11 +717,14 @@ fn use_model_step(
     let (data, _) = plan.steps[model_index]
         .train_inputs()
         .expect("a model is a train step's");
-    let computed = prepared_for(plan, data, cache, prepared).and_then(|ready| match &step.spec {
-        StepSpec::Predict(_) => {
-            use_model::predict(model, &ready, &step.files[0]).map(Outcome::Predict)
+    let computed = prepared_for(plan, data, cache, prepared).and_then(|ready| {
+        match &step.spec {
+            StepSpec::Predict(_) => {
+                use_model::predict(model, &ready, &step.files[0]).map(Outcome::Predict)
+            }
+            _ => use_model::export(model, &ready).map(Outcome::Export),
         }
-        _ => use_model::export(model, &ready).map(Outcome::Export),
+        .map_err(|error| error.to_string())
     });
     match computed {
         Ok(outcome) => {
