@@ -23,7 +23,9 @@ use crate::cache::{Cache, EntryKind};
 use crate::data::{self, Prepared, Task};
 use crate::document::StepSpec;
 use crate::document::spec::MetricName;
+use crate::plan::input_file::ReadError;
 use crate::plan::{Key, Limits, Plan, PlannedStep, Upstream, describe, weights_between};
+use model_use::ModelUseError;
 use outcome::{
     DataSummary, FitResult, ModelShape, Outcome, PartitionSummary, RunResult, Seconds, SweepResult,
     rank,
@@ -31,7 +33,41 @@ use outcome::{
 use result::failures;
 pub(crate) use result::{BuildResult, Status, StepResult};
 use share::Share;
-use training::{fit, model_shape};
+use training::{ShapeError, fit, model_shape};
+
+/// Why a step failed when it ran: what only the data decides, a file that changed, or
+/// a step it reads that failed. `Status::Failed` keeps its message for the report.
+#[derive(Debug, thiserror::Error)]
+pub(crate) enum StepError {
+    #[error(transparent)]
+    Read(#[from] ReadError),
+    /// The data file's rows do not fit the data step's settings; `file` as written.
+    #[error("{file}: {error}")]
+    Data {
+        file: String,
+        error: data::DataError,
+    },
+    #[error(transparent)]
+    Shape(#[from] ShapeError),
+    #[error(transparent)]
+    ModelUse(#[from] ModelUseError),
+    #[error(
+        "a network of layer sizes {sizes:?} holds {weights} weights, over the limit of {limit} (raise it with --max-weights)"
+    )]
+    TooManyWeights {
+        sizes: Vec<usize>,
+        weights: u128,
+        limit: u64,
+    },
+    /// A sweep's combination failed; `settings` names its values.
+    #[error("with {settings}: {error}")]
+    InCombination {
+        settings: String,
+        error: Box<StepError>,
+    },
+    #[error("not run: its data step '{0}' failed")]
+    DataStepFailed(String),
+}
 
 /// What a build may use.
 #[derive(Clone, Debug)]
@@ -260,14 +296,16 @@ fn run_data_step(
     }
 }
 
-fn prepare_data(step: &PlannedStep, limits: Limits) -> Result<Prepared, String> {
+fn prepare_data(step: &PlannedStep, limits: Limits) -> Result<Prepared, StepError> {
     let StepSpec::Data(spec) = &step.spec else {
         unreachable!("a data step has a data spec")
     };
     let file = &step.files[0];
     let table = file.read(|reader| data::read_table(reader))?;
-    data::prepare(&table, &spec.settings, limits.max_categories)
-        .map_err(|error| format!("{}: {error}", file.written))
+    data::prepare(&table, &spec.settings, limits.max_categories).map_err(|error| StepError::Data {
+        file: file.written.clone(),
+        error,
+    })
 }
 
 /// A data step's prepared matrices: from this build, the cache, or prepared again.
@@ -276,7 +314,7 @@ fn prepared_for(
     data: usize,
     cache: &Cache,
     prepared: &mut HashMap<usize, Arc<Prepared>>,
-) -> Result<Arc<Prepared>, String> {
+) -> Result<Arc<Prepared>, StepError> {
     if let Some(ready) = prepared.get(&data) {
         return Ok(ready.clone());
     }
@@ -349,13 +387,10 @@ fn data_summary<'a>(
     plan: &Plan,
     records: &'a [Option<StepResult>],
     data: usize,
-) -> Result<&'a DataSummary, String> {
+) -> Result<&'a DataSummary, StepError> {
     match records[data].as_ref().and_then(|r| r.outcome.as_ref()) {
         Some(Outcome::Data(summary)) => Ok(summary),
-        _ => Err(format!(
-            "not run: its data step '{}' failed",
-            plan.steps[data].id
-        )),
+        _ => Err(StepError::DataStepFailed(plan.steps[data].id.clone())),
     }
 }
 
@@ -365,18 +400,22 @@ fn plan_fits(
     step: &PlannedStep,
     records: &[Option<StepResult>],
     cache: &Cache,
-) -> Result<PendingFits, String> {
+) -> Result<PendingFits, StepError> {
     let mut shapes = Vec::new();
     let mut runs = Vec::new();
     for fit_plan in &step.fits {
         let summary = data_summary(plan, records, fit_plan.data)?;
         let shape = model_shape(summary, &fit_plan.net, &fit_plan.train)
+            .map_err(StepError::from)
             .and_then(|shape| within_weight_limit(shape, plan.limits))
             .map_err(|error| {
                 if fit_plan.settings.is_empty() {
                     error
                 } else {
-                    format!("with {}: {error}", describe(&fit_plan.settings))
+                    StepError::InCombination {
+                        settings: describe(&fit_plan.settings),
+                        error: Box::new(error),
+                    }
                 }
             })?;
         shapes.push(shape);
@@ -399,13 +438,14 @@ fn plan_fits(
 /// The plan checked the weights between hidden layers; the data decides the input and
 /// output widths (a text column becomes one input per distinct value), so the whole
 /// network is checked once its shape is known, before anything is allocated for it.
-fn within_weight_limit(shape: ModelShape, limits: Limits) -> Result<ModelShape, String> {
+fn within_weight_limit(shape: ModelShape, limits: Limits) -> Result<ModelShape, StepError> {
     let weights = weights_between(&shape.sizes);
     if weights > u128::from(limits.max_weights) {
-        return Err(format!(
-            "a network of layer sizes {:?} holds {weights} weights, over the limit of {} (raise it with --max-weights)",
-            shape.sizes, limits.max_weights
-        ));
+        return Err(StepError::TooManyWeights {
+            sizes: shape.sizes,
+            weights,
+            limit: limits.max_weights,
+        });
     }
     Ok(shape)
 }
@@ -643,11 +683,14 @@ fn use_model_step(
     let (data, _) = plan.steps[model_index]
         .train_inputs()
         .expect("a model is a train step's");
-    let computed = prepared_for(plan, data, cache, prepared).and_then(|ready| match &step.spec {
-        StepSpec::Predict(_) => {
-            model_use::predict(model, &ready, &step.files[0]).map(Outcome::Predict)
+    let computed = prepared_for(plan, data, cache, prepared).and_then(|ready| {
+        match &step.spec {
+            StepSpec::Predict(_) => {
+                model_use::predict(model, &ready, &step.files[0]).map(Outcome::Predict)
+            }
+            _ => model_use::export(model, &ready).map(Outcome::Export),
         }
-        _ => model_use::export(model, &ready).map(Outcome::Export),
+        .map_err(StepError::from)
     });
     match computed {
         Ok(outcome) => {
@@ -660,5 +703,49 @@ fn use_model_step(
             )
         }
         Err(error) => StepResult::failed(error),
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::nn::{Activation, Loss};
+
+    // (10 + 1)·100 + (100 + 1)·2 = 1,302 weights and biases, over a limit of 1,000.
+    #[test]
+    fn a_network_over_the_weight_limit_is_a_typed_error_naming_its_layers() {
+        let shape = ModelShape {
+            sizes: vec![10, 100, 2],
+            hidden: Activation::Tanh,
+            output: Activation::Sigmoid,
+            loss: Loss::CrossEntropy,
+            hints: Vec::new(),
+        };
+        let limits = Limits {
+            max_weights: 1_000,
+            ..Limits::default()
+        };
+        let error = within_weight_limit(shape, limits).unwrap_err();
+        assert!(
+            matches!(
+                error,
+                StepError::TooManyWeights {
+                    weights: 1_302,
+                    limit: 1_000,
+                    ..
+                }
+            ),
+            "{error}"
+        );
+        let in_combination = StepError::InCombination {
+            settings: "hidden = [100]".into(),
+            error: Box::new(error),
+        };
+        assert!(
+            in_combination.to_string().starts_with(
+                "with hidden = [100]: a network of layer sizes [10, 100, 2] holds 1302 weights"
+            ),
+            "{in_combination}"
+        );
     }
 }

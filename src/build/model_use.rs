@@ -9,20 +9,36 @@ use crate::data::{self, ColumnKind, Prepared, Task};
 use crate::document::spec::word;
 use crate::nn::activation::LEAKY_SLOPE;
 use crate::nn::{Activation, Network};
-use crate::plan::input_file::InputFile;
+use crate::plan::input_file::{InputFile, ReadError};
 
 /// Version of the export format; bumped when its meaning changes.
 pub(super) const EXPORT_FORMAT_VERSION: u32 = 1;
 
+/// Why a model could not be used.
+#[derive(Debug, thiserror::Error)]
+pub(crate) enum ModelUseError {
+    #[error(
+        "the model was trained on {folds} folds, so it is {folds} networks; predict and export need one: train it on a holdout split (holdout: 0 uses every row)"
+    )]
+    SeveralNetworks { folds: usize },
+    #[error(transparent)]
+    Read(#[from] ReadError),
+    /// The new rows do not fit the model's encoding; `file` as the document wrote it.
+    #[error("{file}: {error}")]
+    Encode {
+        file: String,
+        error: data::DataError,
+    },
+    /// Writing the predictions' CSV into memory; no file is involved.
+    #[error("writing predictions: {0}")]
+    WritePredictions(#[from] csv::Error),
+}
+
 /// The single network of a model; with folds there are several, which is refused.
-fn single_network(model: &FitResult) -> Result<&Network, String> {
+fn single_network(model: &FitResult) -> Result<&Network, ModelUseError> {
     match model.runs.as_slice() {
         [run] => Ok(&run.fit.network),
-        runs => Err(format!(
-            "the model was trained on {} folds, so it is {} networks; predict and export need one: train it on a holdout split (holdout: 0 uses every row)",
-            runs.len(),
-            runs.len()
-        )),
+        runs => Err(ModelUseError::SeveralNetworks { folds: runs.len() }),
     }
 }
 
@@ -31,13 +47,16 @@ pub(super) fn predict(
     model: &FitResult,
     prepared: &Prepared,
     file: &InputFile,
-) -> Result<PredictResult, String> {
+) -> Result<PredictResult, ModelUseError> {
     let network = single_network(model)?;
     let table = file.read(|reader| data::read_table(reader))?;
     let x = prepared
         .encoding
         .encode_inputs(&table)
-        .map_err(|error| format!("{}: {error}", file.written))?;
+        .map_err(|error| ModelUseError::Encode {
+            file: file.written.clone(),
+            error,
+        })?;
     let scaled = prepared.partitions[0].scaler.apply(x.view());
     let raw = network.predict(scaled.view());
     let encoding = &prepared.encoding;
@@ -94,8 +113,7 @@ pub(super) fn predict(
         header.push(format!("predicted_{}", encoding.target_names[0]));
     }
     header.extend(output_names.iter().cloned());
-    let csv_error = |error: csv::Error| format!("writing predictions: {error}");
-    writer.write_record(&header).map_err(csv_error)?;
+    writer.write_record(&header)?;
     for i in 0..table.row_count() {
         let mut record: Vec<String> = table.row(i).map(str::to_string).collect();
         if encoding.task == Task::Classify {
@@ -103,10 +121,12 @@ pub(super) fn predict(
         }
         // Shortest round-trip form: the written numbers read back bit for bit.
         record.extend(outputs[i].iter().map(|v| v.to_string()));
-        writer.write_record(&record).map_err(csv_error)?;
+        writer.write_record(&record)?;
     }
-    let csv = String::from_utf8(writer.into_inner().map_err(|e| e.to_string())?)
-        .expect("CSV of UTF-8 cells");
+    let bytes = writer
+        .into_inner()
+        .map_err(|error| csv::Error::from(error.into_error()))?;
+    let csv = String::from_utf8(bytes).expect("CSV of UTF-8 cells");
 
     Ok(PredictResult {
         labelled: encoding.classes.is_some(),
@@ -123,7 +143,7 @@ pub(super) fn predict(
 pub(super) fn export(
     model: &FitResult,
     prepared: &Prepared,
-) -> Result<crate::build::outcome::ExportResult, String> {
+) -> Result<crate::build::outcome::ExportResult, ModelUseError> {
     let network = single_network(model)?;
     let encoding = &prepared.encoding;
     let scaler = &prepared.partitions[0].scaler;

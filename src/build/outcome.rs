@@ -5,6 +5,7 @@ use serde::{Deserialize, Serialize};
 
 use crate::data::{InputColumn, Scale, Task};
 use crate::document::spec::MetricName;
+use crate::document::spec::sweep::Varied;
 use crate::nn::{Activation, ClassificationMetrics, Loss, RegressionMetrics, TrainOutcome};
 
 /// Wall-clock seconds.
@@ -106,7 +107,7 @@ pub(crate) struct ModelShape {
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
 pub(crate) struct FitResult {
     /// A sweep's varied settings and their values (empty for a train step).
-    pub settings: Vec<(String, String)>,
+    pub settings: Vec<Varied>,
     pub shape: ModelShape,
     pub runs: Vec<RunResult>,
 }

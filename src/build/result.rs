@@ -34,9 +34,11 @@ impl StepResult {
         }
     }
 
-    pub(super) fn failed(error: String) -> StepResult {
+    pub(super) fn failed(error: impl std::fmt::Display) -> StepResult {
         StepResult {
-            status: Status::Failed { error },
+            status: Status::Failed {
+                error: error.to_string(),
+            },
             outcome: None,
             trained: Vec::new(),
         }
@@ -128,7 +130,7 @@ mod tests {
                 StepResult::new(Status::Ran { seconds: 0.5 }, Outcome::Net),
                 StepResult::new(Status::Ran { seconds: 2.0 }, trained_fit()),
                 StepResult::new(Status::Reused, trained_fit()),
-                StepResult::failed("the data file changed".into()),
+                StepResult::failed("the data file changed"),
             ],
         };
         let tally = results.tally();

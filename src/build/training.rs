@@ -8,16 +8,40 @@ use crate::data::{Prepared, Task};
 use crate::document::spec::{LossChoice, NetSpec, OutputChoice, TrainSpec, word};
 use crate::nn::{self, Activation, Loss, Network, TrainConfig};
 
+/// Why a net and train step cannot fit the data they read (what only the data
+/// decides: its task and its number of output columns).
+#[derive(Debug, thiserror::Error)]
+pub(crate) enum ShapeError {
+    #[error(
+        "a softmax output needs at least two output columns; with two classes use sigmoid or auto"
+    )]
+    SoftmaxOnOneOutput,
+    #[error(
+        "cross_entropy needs outputs that are probabilities (sigmoid or softmax), not {}",
+        word(.0)
+    )]
+    CrossEntropyOn(Activation),
+    #[error("cross_entropy is a classification loss; this data step regresses (use mse)")]
+    CrossEntropyToRegress,
+}
+
 /// The network shape, output activation and loss a train step uses on this data.
 pub(super) fn model_shape(
     data: &DataSummary,
     net: &NetSpec,
     train: &TrainSpec,
-) -> Result<ModelShape, String> {
+) -> Result<ModelShape, ShapeError> {
     let inputs = data.feature_count;
     let outputs = data.output_count();
     let task = data.task;
-    let output = match net.output {
+    // `init` is read when the network is initialised (`fit`), not part of its shape.
+    let NetSpec {
+        hidden,
+        activation,
+        output,
+        init: _,
+    } = net;
+    let output = match output {
         OutputChoice::Auto => match task {
             Task::Classify if outputs == 1 => Activation::Sigmoid,
             Task::Classify => Activation::Softmax,
@@ -29,7 +53,7 @@ pub(super) fn model_shape(
         OutputChoice::Tanh => Activation::Tanh,
     };
     if output == Activation::Softmax && outputs == 1 {
-        return Err("a softmax output needs at least two output columns; with two classes use sigmoid or auto".into());
+        return Err(ShapeError::SoftmaxOnOneOutput);
     }
     let loss = match train.loss {
         LossChoice::Auto => match task {
@@ -40,23 +64,18 @@ pub(super) fn model_shape(
         LossChoice::CrossEntropy => Loss::CrossEntropy,
     };
     if loss == Loss::CrossEntropy && !matches!(output, Activation::Sigmoid | Activation::Softmax) {
-        return Err(format!(
-            "cross_entropy needs outputs that are probabilities (sigmoid or softmax), not {}",
-            word(&output)
-        ));
+        return Err(ShapeError::CrossEntropyOn(output));
     }
     if loss == Loss::CrossEntropy && task == Task::Regress {
-        return Err(
-            "cross_entropy is a classification loss; this data step regresses (use mse)".into(),
-        );
+        return Err(ShapeError::CrossEntropyToRegress);
     }
     let mut sizes = vec![inputs];
-    sizes.extend(&net.hidden);
+    sizes.extend(hidden);
     sizes.push(outputs);
     Ok(ModelShape {
-        hints: hidden_width_hints(inputs, outputs, &net.hidden),
+        hints: hidden_width_hints(inputs, outputs, hidden),
         sizes,
-        hidden: net.activation,
+        hidden: *activation,
         output,
         loss,
     })
@@ -127,18 +146,7 @@ pub(super) fn fit(
         net.init,
         train.seed,
     );
-    let config = TrainConfig {
-        loss: shape.loss,
-        optimizer: train.optimizer.clone(),
-        batch: train.batch,
-        epochs: train.epochs,
-        target_loss: train.target_loss,
-        patience: train.patience,
-        l2: train.l2,
-        shuffle: train.shuffle,
-        seed: train.seed,
-        update_biases: true,
-    };
+    let config = training_config(train, shape.loss);
     let has_test = !test_rows.is_empty();
     let fitted = nn::train_at(
         train.precision,
@@ -160,6 +168,41 @@ pub(super) fn fit(
     }
 }
 
+/// The engine's training configuration for a train spec: the one place a spec's
+/// settings become `nn` settings. Every field is named (no `..`), so a setting added
+/// to `TrainSpec` does not compile until it is carried here or deliberately left out.
+pub(super) fn training_config(train: &TrainSpec, loss: Loss) -> TrainConfig {
+    let TrainSpec {
+        // Step names choose the inputs; they are not training settings.
+        data: _,
+        net: _,
+        // The task chose the loss already (`model_shape`), passed in as `loss`.
+        loss: _,
+        optimizer,
+        batch,
+        epochs,
+        target_loss,
+        patience,
+        l2,
+        shuffle,
+        seed,
+        // Chooses the float type `nn::train_at` trains in, so it is its argument.
+        precision: _,
+    } = train;
+    TrainConfig {
+        loss,
+        optimizer: optimizer.clone(),
+        batch: *batch,
+        epochs: *epochs,
+        target_loss: *target_loss,
+        patience: *patience,
+        l2: *l2,
+        shuffle: *shuffle,
+        seed: *seed,
+        update_biases: true,
+    }
+}
+
 fn set_metrics(task: Task, network: &Network, rows: &nn::Rows, loss: Loss) -> SetMetrics {
     let seen = nn::evaluate(network, rows, loss);
     let (targets, outputs) = (seen.targets.view(), seen.outputs.view());
@@ -178,6 +221,129 @@ fn set_metrics(task: Task, network: &Network, rows: &nn::Rows, loss: Loss) -> Se
 #[cfg(test)]
 mod tests {
     use super::*;
+    use crate::nn::{BatchSize, Optimizer, Precision};
+
+    /// A data summary of `task` with `classes` (regression: one target column).
+    fn summary(task: Task, classes: Option<Vec<String>>) -> DataSummary {
+        DataSummary {
+            file: "rows.csv".into(),
+            task,
+            rows_read: 10,
+            rows_dropped: 0,
+            columns: Vec::new(),
+            feature_count: 3,
+            target_names: vec!["y".into()],
+            classes,
+            scale: crate::data::Scale::Standard,
+            partitions: Vec::new(),
+        }
+    }
+
+    fn net(output: OutputChoice) -> NetSpec {
+        NetSpec {
+            hidden: vec![4],
+            activation: Activation::Tanh,
+            output,
+            init: crate::nn::Init::Xavier,
+        }
+    }
+
+    fn train(loss: LossChoice) -> TrainSpec {
+        TrainSpec {
+            data: "d".into(),
+            net: "n".into(),
+            loss,
+            optimizer: Optimizer::Adam {
+                learning_rate: 0.001,
+                beta1: 0.9,
+                beta2: 0.999,
+                epsilon: 1e-8,
+            },
+            batch: BatchSize::Full,
+            epochs: 1,
+            target_loss: None,
+            patience: None,
+            l2: 0.0,
+            shuffle: true,
+            seed: 0,
+            precision: Precision::F64,
+        }
+    }
+
+    // What only the data decides is a typed error the run names, not a bare string.
+    #[test]
+    fn a_shape_the_data_cannot_take_is_a_typed_error_naming_the_setting() {
+        let two_classes = summary(Task::Classify, Some(vec!["a".into(), "b".into()]));
+        let softmax = model_shape(
+            &two_classes,
+            &net(OutputChoice::Softmax),
+            &train(LossChoice::Auto),
+        );
+        assert!(matches!(softmax, Err(ShapeError::SoftmaxOnOneOutput)));
+        let linear = model_shape(
+            &two_classes,
+            &net(OutputChoice::Linear),
+            &train(LossChoice::CrossEntropy),
+        );
+        let error = linear.unwrap_err();
+        assert!(
+            matches!(error, ShapeError::CrossEntropyOn(Activation::Linear)),
+            "{error}"
+        );
+        assert!(error.to_string().ends_with("not linear"), "{error}");
+        let regress = summary(Task::Regress, None);
+        let cross_entropy = model_shape(
+            &regress,
+            &net(OutputChoice::Sigmoid),
+            &train(LossChoice::CrossEntropy),
+        );
+        assert!(matches!(
+            cross_entropy,
+            Err(ShapeError::CrossEntropyToRegress)
+        ));
+    }
+
+    // Values chosen to differ from every default, so a setting dropped or swapped on
+    // the way to the engine shows.
+    #[test]
+    fn every_train_setting_reaches_the_engine_configuration() {
+        let train = TrainSpec {
+            data: "d".into(),
+            net: "n".into(),
+            loss: LossChoice::Mse,
+            optimizer: Optimizer::Sgd {
+                learning_rate: 0.25,
+                momentum: 0.5,
+            },
+            batch: BatchSize::Rows(7),
+            epochs: 11,
+            target_loss: Some(0.125),
+            patience: Some(3),
+            l2: 0.0625,
+            shuffle: false,
+            seed: 99,
+            precision: Precision::F32,
+        };
+        let config = training_config(&train, Loss::CrossEntropy);
+        assert_eq!(
+            config,
+            TrainConfig {
+                loss: Loss::CrossEntropy,
+                optimizer: Optimizer::Sgd {
+                    learning_rate: 0.25,
+                    momentum: 0.5,
+                },
+                batch: BatchSize::Rows(7),
+                epochs: 11,
+                target_loss: Some(0.125),
+                patience: Some(3),
+                l2: 0.0625,
+                shuffle: false,
+                seed: 99,
+                update_biases: true,
+            }
+        );
+    }
 
     // Seven inputs and two outputs: 3–4 hidden units sit inside the rules of thumb,
     // 16 breaks them (common practice; Heaton 2008).

@@ -4,7 +4,7 @@
 
 use crate::data::Split;
 use crate::document::spec::sweep::SweepSpec;
-use crate::document::spec::sweep::{describe, settings_text, variant};
+use crate::document::spec::sweep::{Base, Variant, Varied, describe, variant};
 use crate::document::spec::{NetSpec, TrainSpec};
 use crate::document::{Problem, StepBlock, StepKind, StepSpec};
 
@@ -17,7 +17,7 @@ const TRAIN_READS: &str = "a train step reads a data and a net step";
 
 /// One fit's settings, before its runs are listed.
 struct FitSettings {
-    settings: Vec<(String, String)>,
+    settings: Vec<Varied>,
     net: NetSpec,
     train: TrainSpec,
 }
@@ -63,15 +63,18 @@ pub(super) fn fits(
                 .combinations()
                 .iter()
                 .filter_map(|combination| {
-                    let (net, train) = variant(
-                        blocks[base],
-                        blocks[net],
+                    let Variant {
+                        settings,
+                        net,
+                        train,
+                    } = variant(
+                        base_spec(&steps[base], train_of),
+                        base_spec(&steps[net], net_of),
                         combination,
                         default_seed,
                         span.clone(),
                         problems,
                     )?;
-                    let settings = settings_text(combination);
                     let prefix = format!("with {}: ", describe(&settings));
                     check_net_size(blocks[index], &net.hidden, limits, &prefix, problems);
                     Some(FitSettings {
@@ -93,6 +96,28 @@ pub(super) fn fits(
     fits.into_iter()
         .map(|fit| fit_plan(steps, data, fit, repeat))
         .collect()
+}
+
+/// A planned step's validated spec of one kind and the settings its block wrote.
+fn base_spec<'a, T>(step: &'a PlannedStep, spec_of: fn(&StepSpec) -> Option<&T>) -> Base<'a, T> {
+    Base {
+        spec: spec_of(&step.spec).expect(TRAIN_READS),
+        written: &step.written,
+    }
+}
+
+fn train_of(spec: &StepSpec) -> Option<&TrainSpec> {
+    match spec {
+        StepSpec::Train(train) => Some(train),
+        _ => None,
+    }
+}
+
+fn net_of(spec: &StepSpec) -> Option<&NetSpec> {
+    match spec {
+        StepSpec::Net(net) => Some(net),
+        _ => None,
+    }
 }
 
 /// How many partitions (folds, or the one holdout split) a data step makes.

@@ -72,24 +72,42 @@ impl InputFile {
     pub(crate) fn read<T, E: std::fmt::Display>(
         &self,
         parse: impl FnOnce(&mut Hashed<io::Take<File>>) -> Result<T, E>,
-    ) -> Result<T, String> {
-        let file = open_regular(&self.path)
-            .map_err(|error| format!("cannot read '{}': {error}", self.path.display()))?;
+    ) -> Result<T, ReadError> {
+        let unreadable = |source| ReadError::Unreadable {
+            path: self.path.clone(),
+            source,
+        };
+        let file = open_regular(&self.path).map_err(unreadable)?;
         let mut reader = Hashed::new(file.take(self.bytes + 1));
-        let value = parse(&mut reader).map_err(|error| format!("{}: {error}", self.written))?;
+        let value = parse(&mut reader).map_err(|error| ReadError::Content {
+            file: self.written.clone(),
+            message: error.to_string(),
+        })?;
         // A parser may stop before the end (the CSV reader does not, but the hash
         // must cover every byte whatever the parser).
-        io::copy(&mut reader, &mut io::sink())
-            .map_err(|error| format!("cannot read '{}': {error}", self.path.display()))?;
+        io::copy(&mut reader, &mut io::sink()).map_err(|error| unreadable(error.into()))?;
         if reader.finish() != self.hash {
-            return Err(format!(
-                "{}: the file changed while the build was running (its contents differ from \
-                 when the build started), so nothing was kept from it; build again",
-                self.written
-            ));
+            return Err(ReadError::Changed {
+                file: self.written.clone(),
+            });
         }
         Ok(value)
     }
+}
+
+/// Why a step could not read its input file.
+#[derive(Debug, thiserror::Error)]
+pub(crate) enum ReadError {
+    #[error("cannot read '{}': {source}", path.display())]
+    Unreadable { path: PathBuf, source: InputError },
+    /// The parser refused the contents; `file` is the path as the document wrote it.
+    #[error("{file}: {message}")]
+    Content { file: String, message: String },
+    #[error(
+        "{file}: the file changed while the build was running (its contents differ from \
+         when the build started), so nothing was kept from it; build again"
+    )]
+    Changed { file: String },
 }
 
 /// A sink that hashes what is written to it and counts its line breaks.
@@ -178,7 +196,7 @@ mod tests {
         InputFile::planned("rows.csv", path, 1 << 20).unwrap()
     }
 
-    fn read_all(file: &InputFile) -> Result<Vec<u8>, String> {
+    fn read_all(file: &InputFile) -> Result<Vec<u8>, ReadError> {
         file.read(|reader| {
             let mut bytes = Vec::new();
             reader.read_to_end(&mut bytes).map(|_| bytes)
@@ -209,7 +227,13 @@ mod tests {
         };
         let error = file.read(first_byte).unwrap_err();
         assert!(
-            error.starts_with("rows.csv: the file changed while the build was running"),
+            matches!(&error, ReadError::Changed { file } if file == "rows.csv"),
+            "{error}"
+        );
+        assert!(
+            error
+                .to_string()
+                .starts_with("rows.csv: the file changed while the build was running"),
             "{error}"
         );
     }
@@ -243,7 +267,7 @@ mod tests {
         let file = input(dir.path(), b"a,b\n1,2\n");
         std::fs::write(&file.path, b"a,b\n1,2\n3,4\n").unwrap();
         let error = read_all(&file).unwrap_err();
-        assert!(error.contains("the file changed"), "{error}");
+        assert!(matches!(error, ReadError::Changed { .. }), "{error}");
     }
 
     #[test]
@@ -251,10 +275,14 @@ mod tests {
         let dir = tempfile::tempdir().unwrap();
         let file = input(dir.path(), b"x");
         let error = file.read(|_| Err::<(), _>("line 1 is wrong")).unwrap_err();
-        assert_eq!(error, "rows.csv: line 1 is wrong");
+        assert!(matches!(error, ReadError::Content { .. }), "{error}");
+        assert_eq!(error.to_string(), "rows.csv: line 1 is wrong");
         std::fs::remove_file(&file.path).unwrap();
         let error = read_all(&file).unwrap_err();
-        assert!(error.starts_with("cannot read '"), "{error}");
-        assert!(error.contains("rows.csv"), "{error}");
+        assert!(
+            matches!(&error, ReadError::Unreadable { path, .. } if path.ends_with("rows.csv")),
+            "{error}"
+        );
+        assert!(error.to_string().starts_with("cannot read '"), "{error}");
     }
 }

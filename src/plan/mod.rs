@@ -16,8 +16,9 @@ pub(crate) mod outputs;
 
 use crate::cache::EntryKind;
 use crate::document::problem::nearest;
-pub(crate) use crate::document::spec::sweep::describe;
-use crate::document::spec::{NetSpec, TrainSpec, key_span, parse_step};
+use crate::document::spec::sweep::Varied;
+pub use crate::document::spec::sweep::describe;
+use crate::document::spec::{NetSpec, ParsedStep, TrainSpec, Written, key_span, parse_step};
 use crate::document::{Document, Problem, StepBlock, StepKind, StepSpec};
 use fits::fits;
 use input_file::InputFile;
@@ -39,6 +40,8 @@ pub struct PlannedStep {
     pub id: String,
     pub(crate) kind: StepKind,
     pub(crate) spec: StepSpec,
+    /// The settings its block wrote (the rest are defaults).
+    pub(crate) written: Written,
     /// Index of the step's block among the document's pieces.
     pub(crate) piece: usize,
     /// The steps this one reads, each named by the setting that names it.
@@ -90,8 +93,8 @@ impl Upstream {
 /// One setting of net and train values, fitted once per seed and partition.
 #[derive(Clone, Debug)]
 pub struct FitPlan {
-    /// The varied settings and their values as text (empty for a train step).
-    pub(crate) settings: Vec<(String, String)>,
+    /// The varied settings and their values (empty for a train step).
+    pub settings: Vec<Varied>,
     /// Index of the data step the runs read.
     pub(crate) data: usize,
     pub(crate) net: NetSpec,
@@ -225,7 +228,7 @@ pub(crate) fn plan(
         root: (!options.allow_outside).then(|| confinement::project_root(base_dir)),
         limits: options.limits,
     };
-    let mut parsed: Vec<(usize, &StepBlock, StepSpec)> = Vec::new();
+    let mut parsed: Vec<(usize, &StepBlock, ParsedStep)> = Vec::new();
     let mut seen: HashMap<&str, &StepBlock> = HashMap::new();
     for (piece, block) in document
         .pieces
@@ -251,8 +254,8 @@ pub(crate) fn plan(
             );
             continue;
         }
-        if let Some(spec) = parse_step(block, default_seed, &mut problems) {
-            parsed.push((piece, block, spec));
+        if let Some(step) = parse_step(block, default_seed, &mut problems) {
+            parsed.push((piece, block, step));
         }
     }
 
@@ -270,7 +273,7 @@ pub(crate) fn plan(
             .filter(|&i| wanted.contains(&parsed[i].1.kind))
     };
     let mut checked = Vec::new();
-    for (_, block, spec) in &parsed {
+    for (_, block, ParsedStep { spec, .. }) in &parsed {
         check_references(document, block, spec, &kinds, &mut problems);
         let files = read_files(block, spec, &place, &mut problems);
         let output = check_writes(block, spec, &place, &mut problems);
@@ -293,10 +296,11 @@ pub(crate) fn plan(
         .iter()
         .zip(resolved)
         .map(
-            |((piece, block, spec), (upstream, files, output))| PlannedStep {
+            |((piece, block, parsed), (upstream, files, output))| PlannedStep {
                 id: block.id.clone(),
                 kind: block.kind,
-                spec: spec.clone(),
+                spec: parsed.spec.clone(),
+                written: parsed.written.clone(),
                 piece: *piece,
                 upstream,
                 files,

@@ -62,7 +62,7 @@ pub(crate) fn sweep_view(result: &SweepResult) -> SweepView {
                 settings: fit
                     .settings
                     .iter()
-                    .map(|(_, value)| value.clone())
+                    .map(|varied| varied.text.clone())
                     .collect(),
                 values: fit
                     .metric_stats(result.rank_rows)
@@ -98,7 +98,7 @@ pub(crate) fn sweep_view(result: &SweepResult) -> SweepView {
         setting_names: first
             .settings
             .iter()
-            .map(|(name, _)| name.clone())
+            .map(|varied| varied.name.clone())
             .collect(),
         metric_names: stats_names.iter().map(|n| n.replace('_', " ")).collect(),
         rows_label: rows_label(result.rank_rows),
@@ -119,19 +119,19 @@ fn setting_chart(result: &SweepResult) -> (Option<String>, String) {
     let names: Vec<&String> = result.fits[0]
         .settings
         .iter()
-        .map(|(name, _)| name)
+        .map(|varied| &varied.name)
         .collect();
     for (position, name) in names.iter().enumerate() {
         let mut points: Vec<(f64, Vec<f64>)> = Vec::new();
         let numeric = result
             .fits
             .iter()
-            .all(|fit| fit.settings[position].1.parse::<f64>().is_ok());
+            .all(|fit| fit.settings[position].number().is_some());
         if !numeric {
             continue;
         }
         for fit in &result.fits {
-            let x: f64 = fit.settings[position].1.parse().expect("checked numeric");
+            let x = fit.settings[position].number().expect("checked numeric");
             let Some(stat) = fit.metric(result.rank_by, result.rank_rows) else {
                 continue;
             };

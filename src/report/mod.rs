@@ -269,7 +269,7 @@ fn step_view(input: &ReportInput<'_>, index: usize, yaml: &str, beside_html: Str
         status_text,
         error,
         beside_html,
-        settings: settings::rows(&step.spec, yaml),
+        settings: settings::rows(&step.spec, &step.written),
         yaml: yaml.to_string(),
         data: match &record.outcome {
             Some(Outcome::Data(summary)) => Some(data_view(summary)),

@@ -1,14 +1,12 @@
 //! A step's settings as the compact key–value rows its card shows: every setting with
 //! its value after defaults, the ones the author did not write marked as defaults.
 
-use std::collections::HashSet;
-
 use serde::Serialize;
 
 use crate::data::Split;
 use crate::document::StepSpec;
 use crate::document::spec::sweep::value_text;
-use crate::document::spec::word;
+use crate::document::spec::{Written, word};
 use crate::nn::{BatchSize, Optimizer};
 
 /// One row of a settings table.
@@ -20,9 +18,8 @@ pub(crate) struct SettingRow {
     pub default: bool,
 }
 
-/// The settings rows of a step; `yaml` is the block as written, to tell defaults apart.
-pub(crate) fn rows(spec: &StepSpec, yaml: &str) -> Vec<SettingRow> {
-    let written = written_keys(yaml);
+/// The settings rows of a step; `written` tells the settings written apart from defaults.
+pub(crate) fn rows(spec: &StepSpec, written: &Written) -> Vec<SettingRow> {
     let row = |name: &'static str, value: String| SettingRow {
         default: !written.contains(name),
         name,
@@ -162,14 +159,35 @@ pub(crate) fn rows(spec: &StepSpec, yaml: &str) -> Vec<SettingRow> {
     }
 }
 
-/// Top-level keys written in a block (the block already parsed, so this only needs
-/// the mapping's keys).
-fn written_keys(yaml: &str) -> HashSet<String> {
-    match serde_yaml::from_str::<serde_yaml::Mapping>(yaml) {
-        Ok(mapping) => mapping
-            .keys()
-            .filter_map(|key| key.as_str().map(str::to_string))
-            .collect(),
-        Err(_) => HashSet::new(),
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::document::StepBlock;
+    use crate::document::spec::StepKind;
+    use crate::document::spec::parse_step;
+
+    fn parsed_train(yaml: &str) -> crate::document::spec::ParsedStep {
+        let block = StepBlock {
+            kind: StepKind::Train,
+            id: "t".into(),
+            yaml: yaml.into(),
+            yaml_offset: 0,
+            info_span: 0..0,
+            span: 0..0,
+        };
+        parse_step(&block, 0, &mut Vec::new()).expect("the block is valid")
+    }
+
+    // The report learns which settings were written from the parsed step, not by
+    // reading the block's YAML again.
+    #[test]
+    fn settings_not_written_in_the_block_are_marked_as_defaults() {
+        let parsed = parsed_train("data: d\nnet: n\nepochs: 40\n");
+        let rows = rows(&parsed.spec, &parsed.written);
+        let default_of = |name: &str| rows.iter().find(|row| row.name == name).unwrap().default;
+        assert!(!default_of("epochs"));
+        assert!(!default_of("data"));
+        assert!(default_of("learning_rate"));
+        assert!(default_of("seed"));
     }
 }

@@ -6,6 +6,7 @@ use serde_json::{Map, Value, json};
 use super::format::stop_code;
 use crate::build::outcome::{FitResult, MetricStat, Outcome, RowSet, RunResult, SetMetrics};
 use crate::build::{BuildResult, Status};
+use crate::document::spec::sweep::Varied;
 use crate::plan::Plan;
 
 /// The summary as a JSON value.
@@ -103,11 +104,11 @@ fn train_fields(result: &FitResult, object: &mut Map<String, Value>) {
 }
 
 /// A sweep combination's settings as an object of the values as written.
-fn settings(settings: &[(String, String)]) -> Value {
+fn settings(settings: &[Varied]) -> Value {
     Value::Object(
         settings
             .iter()
-            .map(|(k, v)| (k.clone(), json!(v)))
+            .map(|varied| (varied.name.clone(), json!(varied.text)))
             .collect(),
     )
 }

@@ -144,6 +144,41 @@ pub struct TrainSpec {
     pub precision: Precision,
 }
 
+/// The settings a block wrote, by name; the rest took their defaults. Kept beside a
+/// spec rather than in it, so it never enters the spec's serialisation (its key).
+#[derive(Clone, Debug, Default, PartialEq, Eq)]
+pub struct Written(Vec<&'static str>);
+
+impl Written {
+    /// The keys of a block's settings that are among `known` (deserialising the
+    /// block refused any other).
+    fn of(settings: &Mapping, known: &[&'static str]) -> Written {
+        Written(
+            known
+                .iter()
+                .copied()
+                .filter(|name| settings.contains_key(*name))
+                .collect(),
+        )
+    }
+
+    pub fn contains(&self, setting: &str) -> bool {
+        self.0.contains(&setting)
+    }
+
+    /// A setting's value if it was written, `None` when its default applies.
+    fn kept<T>(&self, setting: &str, value: T) -> Option<T> {
+        self.contains(setting).then_some(value)
+    }
+}
+
+/// One step's validated settings and which of them the block wrote.
+#[derive(Clone, Debug)]
+pub struct ParsedStep {
+    pub spec: StepSpec,
+    pub written: Written,
+}
+
 fn reference<'a>(id: &'a str, setting: &'static str, kinds: &'static [StepKind]) -> Reference<'a> {
     Reference { id, setting, kinds }
 }
@@ -219,9 +254,9 @@ pub(crate) struct RawNet {
 /// The net settings, which a sweep may also vary.
 pub(crate) static NET_KEYS: LazyLock<&[&str]> = LazyLock::new(fields::<RawNet>);
 
-#[derive(Clone, Copy, Deserialize)]
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize)]
 #[serde(rename_all = "snake_case")]
-enum OptimizerKind {
+pub enum OptimizerKind {
     Sgd,
     Adam,
 }
@@ -253,20 +288,42 @@ pub(crate) struct RawTrain {
 /// The train settings, which a sweep may also vary.
 pub(crate) static TRAIN_KEYS: LazyLock<&[&str]> = LazyLock::new(fields::<RawTrain>);
 
-/// `batch` is a row count or the word `full`.
 fn batch_size<'de, D: Deserializer<'de>>(deserializer: D) -> Result<Option<BatchSize>, D::Error> {
-    #[derive(Deserialize)]
-    #[serde(untagged)]
-    enum Raw {
-        Rows(usize),
-        Word(String),
+    rows_or_full::deserialize(deserializer).map(Some)
+}
+
+/// `batch` in the document's words: a row count or the word `full`.
+mod rows_or_full {
+    use serde::{Deserialize, Deserializer, Serializer};
+
+    use crate::nn::BatchSize;
+
+    pub(super) fn deserialize<'de, D: Deserializer<'de>>(
+        deserializer: D,
+    ) -> Result<BatchSize, D::Error> {
+        #[derive(Deserialize)]
+        #[serde(untagged)]
+        enum Raw {
+            Rows(usize),
+            Word(String),
+        }
+        match Raw::deserialize(deserializer)? {
+            Raw::Rows(rows) => Ok(BatchSize::Rows(rows)),
+            Raw::Word(word) if word == "full" => Ok(BatchSize::Full),
+            Raw::Word(word) => Err(serde::de::Error::custom(format!(
+                "batch must be a number of rows or 'full', not '{word}'"
+            ))),
+        }
     }
-    match Raw::deserialize(deserializer)? {
-        Raw::Rows(rows) => Ok(Some(BatchSize::Rows(rows))),
-        Raw::Word(word) if word == "full" => Ok(Some(BatchSize::Full)),
-        Raw::Word(word) => Err(serde::de::Error::custom(format!(
-            "batch must be a number of rows or 'full', not '{word}'"
-        ))),
+
+    pub(super) fn serialize<S: Serializer>(
+        batch: &BatchSize,
+        serializer: S,
+    ) -> Result<S::Ok, S::Error> {
+        match batch {
+            BatchSize::Rows(rows) => serializer.serialize_u64(*rows as u64),
+            BatchSize::Full => serializer.serialize_str("full"),
+        }
     }
 }
 
@@ -316,9 +373,10 @@ pub fn parse_step(
     step: &StepBlock,
     default_seed: u64,
     problems: &mut Vec<Problem>,
-) -> Option<StepSpec> {
+) -> Option<ParsedStep> {
     let block = step.yaml_block();
     let before = problems.len();
+    let mut written = Written::default();
     let mut check = Checker {
         block: Some(block),
         fallback: step.info_span.clone(),
@@ -327,36 +385,36 @@ pub fn parse_step(
     };
     let spec = match step.kind {
         StepKind::Data => {
-            let raw: RawData = deserialize(block, &step.info_span, check.problems)?;
+            let raw: RawData = deserialize(block, &step.info_span, check.problems, &mut written)?;
             StepSpec::Data(validate_data(raw, default_seed, &mut check))
         }
         StepKind::Net => {
-            let raw: RawNet = deserialize(block, &step.info_span, check.problems)?;
+            let raw: RawNet = deserialize(block, &step.info_span, check.problems, &mut written)?;
             StepSpec::Net(validate_net(raw, &mut check))
         }
         StepKind::Train => {
-            let raw: RawTrain = deserialize(block, &step.info_span, check.problems)?;
+            let raw: RawTrain = deserialize(block, &step.info_span, check.problems, &mut written)?;
             refuse_momentum_with_adam(&raw, &mut check);
             StepSpec::Train(validate_train(raw, default_seed, &mut check))
         }
         StepKind::Sweep => {
-            let raw = deserialize(block, &step.info_span, check.problems)?;
+            let raw = deserialize(block, &step.info_span, check.problems, &mut written)?;
             StepSpec::Sweep(sweep::validate_sweep(raw, &mut check))
         }
         StepKind::Compare => {
-            let raw = deserialize(block, &step.info_span, check.problems)?;
+            let raw = deserialize(block, &step.info_span, check.problems, &mut written)?;
             StepSpec::Compare(compare::validate_compare(raw, &mut check))
         }
         StepKind::Predict => {
-            let raw = deserialize(block, &step.info_span, check.problems)?;
+            let raw = deserialize(block, &step.info_span, check.problems, &mut written)?;
             StepSpec::Predict(model_use::validate_predict(raw, &mut check))
         }
         StepKind::Export => {
-            let raw = deserialize(block, &step.info_span, check.problems)?;
+            let raw = deserialize(block, &step.info_span, check.problems, &mut written)?;
             StepSpec::Export(model_use::validate_export(raw, &mut check))
         }
     };
-    (problems.len() == before).then_some(spec)
+    (problems.len() == before).then_some(ParsedStep { spec, written })
 }
 
 /// Reads a block's settings into its raw struct. Every problem names the setting and
@@ -366,6 +424,8 @@ fn deserialize<T: serde::de::DeserializeOwned>(
     block: Block<'_>,
     info_span: &std::ops::Range<usize>,
     problems: &mut Vec<Problem>,
+    // Receives the names of the settings the block wrote.
+    written: &mut Written,
 ) -> Option<T> {
     let known = fields::<T>();
     let no_settings = || {
@@ -401,6 +461,7 @@ fn deserialize<T: serde::de::DeserializeOwned>(
     if refuse_tags(block, &settings, problems) {
         return None;
     }
+    *written = Written::of(&settings, known);
     match serde_path_to_error::deserialize(Value::Mapping(settings.clone())) {
         Ok(raw) => Some(raw),
         Err(error) => {
@@ -480,7 +541,7 @@ fn misfit_problem(
 
 /// The setting whose value did not deserialise, the message naming it and what it
 /// accepts, and a suggestion.
-pub(crate) fn describe_misfit<'a>(
+fn describe_misfit<'a>(
     settings: &Mapping,
     error: &'a serde_path_to_error::Error<serde_yaml::Error>,
 ) -> (&'a str, String, Option<String>) {
@@ -555,6 +616,72 @@ pub(crate) fn validate_net(raw: RawNet, check: &mut Checker<'_>) -> NetSpec {
         activation,
         output: raw.output.unwrap_or(OutputChoice::Auto),
         init: raw.init.unwrap_or(Init::Xavier),
+    }
+}
+
+impl RawNet {
+    /// The written settings of a validated net spec, as read from its block: validated
+    /// again, they give the same spec. A sweep puts its varied values into these.
+    pub(crate) fn written_in(spec: &NetSpec, written: &Written) -> RawNet {
+        let NetSpec {
+            hidden,
+            activation,
+            output,
+            init,
+        } = spec;
+        RawNet {
+            hidden: written.kept("hidden", hidden.clone()),
+            activation: written.kept("activation", *activation),
+            output: written.kept("output", *output),
+            init: written.kept("init", *init),
+        }
+    }
+}
+
+impl RawTrain {
+    /// The written settings of a validated train spec, as read from its block: validated
+    /// again, they give the same spec, defaults that depend on other settings (the
+    /// learning rate on the optimizer) included. A sweep puts its varied values into
+    /// these.
+    pub(crate) fn written_in(spec: &TrainSpec, written: &Written) -> RawTrain {
+        let TrainSpec {
+            data,
+            net,
+            loss,
+            optimizer,
+            batch,
+            epochs,
+            target_loss,
+            patience,
+            l2,
+            shuffle,
+            seed,
+            precision,
+        } = spec;
+        // A written momentum beside adam is refused, so only sgd can carry one.
+        let (kind, learning_rate, momentum) = match *optimizer {
+            Optimizer::Sgd {
+                learning_rate,
+                momentum,
+            } => (OptimizerKind::Sgd, learning_rate, Some(momentum)),
+            Optimizer::Adam { learning_rate, .. } => (OptimizerKind::Adam, learning_rate, None),
+        };
+        RawTrain {
+            data: data.clone(),
+            net: net.clone(),
+            loss: written.kept("loss", *loss),
+            optimizer: written.kept("optimizer", kind),
+            learning_rate: written.kept("learning_rate", learning_rate),
+            momentum: momentum.and_then(|momentum| written.kept("momentum", momentum)),
+            batch: written.kept("batch", *batch),
+            epochs: written.kept("epochs", *epochs),
+            target_loss: *target_loss,
+            patience: *patience,
+            l2: written.kept("l2", *l2),
+            shuffle: written.kept("shuffle", *shuffle),
+            seed: written.kept("seed", *seed),
+            precision: written.kept("precision", *precision),
+        }
     }
 }
 

@@ -3,15 +3,16 @@
 
 use schemars::JsonSchema;
 use serde::{Deserialize, Serialize};
+use serde_yaml::value::{Tag, TaggedValue};
 use serde_yaml::{Mapping, Value};
 
 use super::schema::{VarySchema, Word};
 use super::{
-    Checker, NET_KEYS, NetSpec, RawNet, RawTrain, TRAIN_KEYS, TrainSpec, describe_misfit,
-    validate_net, validate_train,
+    Checker, LossChoice, NET_KEYS, NetSpec, OptimizerKind, OutputChoice, RawNet, RawTrain,
+    TRAIN_KEYS, TrainSpec, Written, accepts, rows_or_full, validate_net, validate_train,
 };
-use crate::document::StepBlock;
 use crate::document::problem::{Problem, nearest};
+use crate::nn::{Activation, BatchSize, Init, Precision};
 
 /// A metric a sweep can rank by or a compare step can show.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Hash, Serialize, Deserialize)]
@@ -168,72 +169,181 @@ pub fn value_text(value: &Value) -> String {
     }
 }
 
+/// One varied setting at one of its values, read into the type its raw setting takes:
+/// null (`~`) means the default, as it does written in the base step. Serialised (in a
+/// sweep's results) as `{setting: value}`.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+#[serde(rename_all = "snake_case")]
+pub enum Override {
+    Loss(Option<LossChoice>),
+    Optimizer(Option<OptimizerKind>),
+    LearningRate(Option<f64>),
+    Momentum(Option<f64>),
+    /// The base step refuses a null batch too, so it is never the default here.
+    Batch(#[serde(with = "rows_or_full")] BatchSize),
+    Epochs(Option<usize>),
+    TargetLoss(Option<f64>),
+    Patience(Option<usize>),
+    L2(Option<f64>),
+    Shuffle(Option<bool>),
+    Seed(Option<u64>),
+    Precision(Option<Precision>),
+    Hidden(Option<Vec<usize>>),
+    Activation(Option<Activation>),
+    Output(Option<OutputChoice>),
+    Init(Option<Init>),
+}
+
+impl Override {
+    /// Reads `setting: value` as written under `vary`. serde_yaml reads an enum's
+    /// variant from a tag, so the value is tagged with the setting's name.
+    fn read(setting: &str, value: &Value) -> Result<Override, serde_yaml::Error> {
+        serde_yaml::from_value(Value::Tagged(Box::new(TaggedValue {
+            tag: Tag::new(setting),
+            value: value.clone(),
+        })))
+    }
+
+    /// Puts the value in place of the base step's setting.
+    fn apply(&self, train: &mut RawTrain, net: &mut RawNet) {
+        match self.clone() {
+            Override::Loss(loss) => train.loss = loss,
+            Override::Optimizer(kind) => train.optimizer = kind,
+            Override::LearningRate(rate) => train.learning_rate = rate,
+            Override::Momentum(momentum) => train.momentum = momentum,
+            Override::Batch(batch) => train.batch = Some(batch),
+            Override::Epochs(epochs) => train.epochs = epochs,
+            Override::TargetLoss(target) => train.target_loss = target,
+            Override::Patience(patience) => train.patience = patience,
+            Override::L2(l2) => train.l2 = l2,
+            Override::Shuffle(shuffle) => train.shuffle = shuffle,
+            Override::Seed(seed) => train.seed = seed,
+            Override::Precision(precision) => train.precision = precision,
+            Override::Hidden(hidden) => net.hidden = hidden,
+            Override::Activation(activation) => net.activation = activation,
+            Override::Output(output) => net.output = output,
+            Override::Init(init) => net.init = init,
+        }
+    }
+
+    /// The value as a number, for settings that take one (a chart's axis).
+    fn number(&self) -> Option<f64> {
+        match *self {
+            Override::LearningRate(value)
+            | Override::Momentum(value)
+            | Override::TargetLoss(value)
+            | Override::L2(value) => value,
+            Override::Epochs(count) | Override::Patience(count) => count.map(|n| n as f64),
+            Override::Batch(BatchSize::Rows(rows)) => Some(rows as f64),
+            Override::Seed(seed) => seed.map(|n| n as f64),
+            _ => None,
+        }
+    }
+}
+
+/// A varied setting's value in one combination, and the value as the document wrote it.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub struct Varied {
+    pub name: String,
+    pub value: Override,
+    /// For display, in YAML's flow style (`[12, 6]`, `relu`, `0.01`).
+    pub text: String,
+}
+
+impl Varied {
+    /// The value as a number, when the setting takes one.
+    pub fn number(&self) -> Option<f64> {
+        self.value.number()
+    }
+}
+
 /// A fit's varied settings as text: `learning_rate = 0.1, activation = relu`.
-pub fn describe(settings: &[(String, String)]) -> String {
+pub fn describe(settings: &[Varied]) -> String {
+    describe_text(
+        settings
+            .iter()
+            .map(|varied| (&varied.name, varied.text.clone())),
+    )
+}
+
+fn describe_text<'a>(settings: impl Iterator<Item = (&'a String, String)>) -> String {
     settings
-        .iter()
-        .map(|(name, value)| format!("{name} = {value}"))
+        .map(|(name, text)| format!("{name} = {text}"))
         .collect::<Vec<_>>()
         .join(", ")
 }
 
-/// A combination's values as the report shows them.
-pub fn settings_text(combination: &[(String, Value)]) -> Vec<(String, String)> {
-    combination
-        .iter()
-        .map(|(name, value)| (name.clone(), value_text(value)))
-        .collect()
+/// One combination of a sweep: its varied settings and the specs they make.
+pub struct Variant {
+    pub settings: Vec<Varied>,
+    pub net: NetSpec,
+    pub train: TrainSpec,
 }
 
-/// The train and net settings of one combination: the base steps' YAML with the varied
-/// values put in, validated as if written there. Problems point at `span` (the sweep's
-/// `vary` line) and name the combination.
+/// A validated spec and the settings its block wrote.
+pub struct Base<'a, T> {
+    pub spec: &'a T,
+    pub written: &'a Written,
+}
+
+/// The train and net settings of one combination: the base steps' written settings
+/// with the varied values put in, validated as if written there. Problems point at
+/// `span` (the sweep's `vary` line) and name the combination.
 pub fn variant(
-    train: &StepBlock,
-    net: &StepBlock,
+    train: Base<'_, TrainSpec>,
+    net: Base<'_, NetSpec>,
     combination: &[(String, Value)],
     default_seed: u64,
     span: std::ops::Range<usize>,
     problems: &mut Vec<Problem>,
-) -> Option<(NetSpec, TrainSpec)> {
-    let mut train_map = mapping(&train.yaml);
-    let mut net_map = mapping(&net.yaml);
-    for (name, value) in combination {
-        let target = if TRAIN_KEYS.contains(&name.as_str()) {
-            &mut train_map
-        } else {
-            &mut net_map
-        };
-        target.insert(Value::String(name.clone()), value.clone());
-    }
-    let described = describe(&settings_text(combination));
+) -> Option<Variant> {
+    let described = describe_text(
+        combination
+            .iter()
+            .map(|(name, value)| (name, value_text(value))),
+    );
     let before = problems.len();
     let mut check = Checker {
         block: None,
-        fallback: span.clone(),
+        fallback: span,
         prefix: format!("with {described}: "),
         problems,
     };
-    let raw_train = serde_path_to_error::deserialize(Value::Mapping(train_map.clone()))
-        .map_err(|error| describe_misfit(&train_map, &error).1);
-    let raw_net = serde_path_to_error::deserialize(Value::Mapping(net_map.clone()))
-        .map_err(|error| describe_misfit(&net_map, &error).1);
-    let (raw_train, raw_net): (RawTrain, RawNet) = match (raw_train, raw_net) {
-        (Ok(t), Ok(n)) => (t, n),
-        (train, net) => {
-            for message in [train.err(), net.err()].into_iter().flatten() {
-                check.require(false, "vary", || message);
-            }
-            return None;
+    let mut settings = Vec::new();
+    for (name, value) in combination {
+        match Override::read(name, value) {
+            Ok(read) => settings.push(Varied {
+                name: name.clone(),
+                value: read,
+                text: value_text(value),
+            }),
+            Err(error) => check.require(false, "vary", || misfit_message(name, value, &error)),
         }
-    };
-    let net_spec = validate_net(raw_net, &mut check);
-    let train_spec = validate_train(raw_train, default_seed, &mut check);
-    (problems.len() == before).then_some((net_spec, train_spec))
+    }
+    if check.problems.len() > before {
+        return None;
+    }
+    let mut raw_train = RawTrain::written_in(train.spec, train.written);
+    let mut raw_net = RawNet::written_in(net.spec, net.written);
+    for varied in &settings {
+        varied.value.apply(&mut raw_train, &mut raw_net);
+    }
+    let net = validate_net(raw_net, &mut check);
+    let train = validate_train(raw_train, default_seed, &mut check);
+    (problems.len() == before).then_some(Variant {
+        settings,
+        net,
+        train,
+    })
 }
 
-fn mapping(yaml: &str) -> Mapping {
-    serde_yaml::from_str(yaml).unwrap_or_default()
+/// What a varied value that does not fit its setting is told: what the setting
+/// accepts, in the document's words.
+fn misfit_message(setting: &str, value: &Value, error: &serde_yaml::Error) -> String {
+    accepts::misfit(setting, value).map_or_else(
+        || crate::document::yaml::plain_text(&error.to_string()),
+        |(message, _)| message,
+    )
 }
 
 #[cfg(test)]
@@ -264,5 +374,42 @@ mod tests {
         assert_eq!(value_text(&grid[2][0].1), "0.2");
         let widths: Value = serde_yaml::from_str("[12, 6]").unwrap();
         assert_eq!(value_text(&widths), "[12, 6]");
+    }
+
+    // A setting vary accepts but `Override` cannot hold would fail every sweep that
+    // varies it; a map fits no setting, so each error must be about the value.
+    #[test]
+    fn every_setting_a_sweep_may_vary_reads_as_an_override() {
+        let variable = TRAIN_KEYS
+            .iter()
+            .chain(*NET_KEYS)
+            .filter(|name| !FIXED.contains(name));
+        let map: Value = serde_yaml::from_str("{a: 1}").unwrap();
+        for name in variable {
+            let error = Override::read(name, &map).unwrap_err().to_string();
+            assert!(!error.contains("unknown variant"), "{name}: {error}");
+        }
+    }
+
+    #[test]
+    fn a_varied_value_reads_into_its_settings_type() {
+        let read = |name, yaml| Override::read(name, &serde_yaml::from_str(yaml).unwrap());
+        assert_eq!(
+            read("learning_rate", "1").unwrap(),
+            Override::LearningRate(Some(1.0))
+        );
+        assert_eq!(
+            read("hidden", "[12, 6]").unwrap(),
+            Override::Hidden(Some(vec![12, 6]))
+        );
+        // As in the base step, null leaves the setting to its default.
+        assert_eq!(read("hidden", "~").unwrap(), Override::Hidden(None));
+        assert_eq!(
+            read("batch", "full").unwrap(),
+            Override::Batch(BatchSize::Full)
+        );
+        assert_eq!(read("batch", "16").unwrap().number(), Some(16.0));
+        assert_eq!(read("activation", "relu").unwrap().number(), None);
+        assert!(read("epochs", "-3").is_err());
     }
 }
