@@ -144,7 +144,7 @@ const READ_BUFFER: usize = 1 << 16;
 /// The column names of a CSV file's header row, read as `read_table` reads them
 /// (byte-order mark dropped, names trimmed) without reading any data row: the plan
 /// checks a document's column names against them.
-pub fn read_header(reader: impl Read) -> Result<Vec<String>, DataError> {
+pub(crate) fn read_header(reader: impl Read) -> Result<Vec<String>, DataError> {
     let mut reader = csv::ReaderBuilder::new()
         .has_headers(true)
         .flexible(true)

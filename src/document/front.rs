@@ -21,7 +21,7 @@ pub struct FrontMatter {
 /// Where the front matter's YAML sits and where the Markdown body begins.
 pub struct Split<'a> {
     pub yaml: Option<Block<'a>>,
-    pub body_start: usize,
+    pub(crate) body_start: usize,
 }
 
 /// Finds front matter: `---` on the first line, closed by a line of `---` or `...`.

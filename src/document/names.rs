@@ -16,7 +16,7 @@ pub fn word<T: Serialize>(value: &T) -> &'static str {
 
 /// The keys a struct's serde derive reads, in declaration order: the list serde
 /// itself checks unknown keys against.
-pub fn fields<T: DeserializeOwned>() -> &'static [&'static str] {
+pub(crate) fn fields<T: DeserializeOwned>() -> &'static [&'static str] {
     names_given_to_serde::<T>().expect("a struct with named fields")
 }
 

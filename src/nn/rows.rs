@@ -154,7 +154,7 @@ impl<'a> Rows<'a> {
     }
 
     /// The targets of these rows.
-    pub fn target_matrix(&self) -> Array2<f64> {
+    pub(crate) fn target_matrix(&self) -> Array2<f64> {
         match self.pick {
             None => self.y.to_owned(),
             Some(pick) => self.y.select(ndarray::Axis(0), pick),

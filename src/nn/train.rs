@@ -149,7 +149,7 @@ pub struct TrainOutcome {
     pub epochs_run: usize,
     /// 1-based epoch with the lowest monitored loss; `Some` only when
     /// `patience` is set and at least one epoch completed.
-    pub best_epoch: Option<usize>,
+    pub(crate) best_epoch: Option<usize>,
 }
 
 /// Fits `network` to inputs `x` and targets `y` (rows are samples), with
@@ -189,7 +189,7 @@ pub fn train_rows(
 ///
 /// # Panics
 /// As [`train`].
-pub fn train_with_progress(
+pub(crate) fn train_with_progress(
     network: Network,
     rows: Rows,
     validation: Option<Rows>,
@@ -341,7 +341,7 @@ pub fn mean_loss(network: &Network, x: ArrayView2<f64>, y: ArrayView2<f64>, loss
 
 /// A network's outputs on some rows, their targets, and the mean loss.
 #[derive(Clone, Debug, PartialEq)]
-pub struct Evaluation {
+pub(crate) struct Evaluation {
     /// One row of outputs per data row.
     pub outputs: Array2<f64>,
     /// The rows' targets.
@@ -354,7 +354,7 @@ pub struct Evaluation {
 ///
 /// # Panics
 /// As [`mean_loss`].
-pub fn evaluate(network: &Network, rows: &Rows, loss: Loss) -> Evaluation {
+pub(crate) fn evaluate(network: &Network, rows: &Rows, loss: Loss) -> Evaluation {
     check_data(network, rows, "evaluation");
     let targets = rows.target_matrix();
     let (outputs, mean_loss) = outputs_and_mean_loss(network, rows, targets.view(), loss);

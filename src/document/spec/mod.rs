@@ -4,10 +4,10 @@
 //! which is what enters a step's cache key.
 
 mod accepts;
-pub mod compare;
-pub mod model_use;
+pub(crate) mod compare;
+pub(crate) mod model_use;
 pub mod schema;
-pub mod sweep;
+pub(crate) mod sweep;
 
 use std::sync::LazyLock;
 
@@ -17,15 +17,15 @@ use serde_yaml::{Mapping, Value};
 
 use super::StepBlock;
 use super::names::fields;
-pub use super::names::word;
+pub(crate) use super::names::word;
 use super::problem::{Problem, nearest};
 use super::yaml::{self, Block};
 use crate::data::{DataSettings, Missing, Scale, Split, Task};
 use crate::nn::{Activation, BatchSize, Init, Optimizer, Precision};
-pub use compare::{ChartChoice, CompareSpec};
-pub use model_use::{ExportSpec, PredictSpec};
+pub(crate) use compare::{ChartChoice, CompareSpec};
+pub(crate) use model_use::{ExportSpec, PredictSpec};
 use schema::{BatchSchema, Word, no_default};
-pub use sweep::{MetricName, SweepSpec};
+pub(crate) use sweep::{MetricName, SweepSpec};
 
 /// The kinds of step a document can declare.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Hash, Serialize, Deserialize)]
@@ -41,7 +41,7 @@ pub enum StepKind {
 }
 
 impl StepKind {
-    pub const ALL: [StepKind; 7] = [
+    pub(crate) const ALL: [StepKind; 7] = [
         StepKind::Data,
         StepKind::Net,
         StepKind::Train,
@@ -69,7 +69,7 @@ impl StepKind {
         }
     }
 
-    pub fn from_word(word: &str) -> Option<StepKind> {
+    pub(crate) fn from_word(word: &str) -> Option<StepKind> {
         StepKind::ALL.into_iter().find(|kind| kind.word() == word)
     }
 }
@@ -147,7 +147,7 @@ pub struct TrainSpec {
 /// The settings a block wrote, by name; the rest took their defaults. Kept beside a
 /// spec rather than in it, so it never enters the spec's serialisation (its key).
 #[derive(Clone, Debug, Default, PartialEq, Eq)]
-pub struct Written(Vec<&'static str>);
+pub(crate) struct Written(Vec<&'static str>);
 
 impl Written {
     /// The keys of a block's settings that are among `known` (deserialising the
@@ -162,7 +162,7 @@ impl Written {
         )
     }
 
-    pub fn contains(&self, setting: &str) -> bool {
+    pub(crate) fn contains(&self, setting: &str) -> bool {
         self.0.contains(&setting)
     }
 
@@ -174,8 +174,8 @@ impl Written {
 
 /// One step's validated settings and which of them the block wrote.
 #[derive(Clone, Debug)]
-pub struct ParsedStep {
-    pub spec: StepSpec,
+pub(crate) struct ParsedStep {
+    pub(crate) spec: StepSpec,
     pub written: Written,
 }
 
@@ -332,9 +332,9 @@ pub(crate) struct Checker<'a> {
     /// The block as written, to find a key's line; `None` for settings made by a sweep.
     pub block: Option<Block<'a>>,
     /// Where a problem points when its key's line is not found.
-    pub fallback: std::ops::Range<usize>,
+    pub(crate) fallback: std::ops::Range<usize>,
     /// Put before each message (a sweep says which combination it was checking).
-    pub prefix: String,
+    pub(crate) prefix: String,
     pub problems: &'a mut Vec<Problem>,
 }
 
@@ -369,7 +369,7 @@ pub(crate) fn key_span(block: Block<'_>, key: &str) -> Option<std::ops::Range<us
 }
 
 /// Parses and validates one step's settings; `None` when a problem was recorded.
-pub fn parse_step(
+pub(crate) fn parse_step(
     step: &StepBlock,
     default_seed: u64,
     problems: &mut Vec<Problem>,

@@ -33,7 +33,7 @@ impl MetricName {
     }
 
     /// Whether a larger value is better (accuracy, R²) or worse (the losses and errors).
-    pub fn higher_is_better(self) -> bool {
+    pub(crate) fn higher_is_better(self) -> bool {
         matches!(self, MetricName::Accuracy | MetricName::R2)
     }
 }
@@ -148,7 +148,7 @@ impl SweepSpec {
 }
 
 /// A value as the report shows it, in YAML's flow style (`[12, 6]`, `relu`, `0.01`).
-pub fn value_text(value: &Value) -> String {
+pub(crate) fn value_text(value: &Value) -> String {
     match value {
         Value::Null => "null".into(),
         Value::Bool(b) => b.to_string(),
@@ -274,22 +274,22 @@ fn describe_text<'a>(settings: impl Iterator<Item = (&'a String, String)>) -> St
 }
 
 /// One combination of a sweep: its varied settings and the specs they make.
-pub struct Variant {
+pub(crate) struct Variant {
     pub settings: Vec<Varied>,
     pub net: NetSpec,
     pub train: TrainSpec,
 }
 
 /// A validated spec and the settings its block wrote.
-pub struct Base<'a, T> {
-    pub spec: &'a T,
+pub(crate) struct Base<'a, T> {
+    pub(crate) spec: &'a T,
     pub written: &'a Written,
 }
 
 /// The train and net settings of one combination: the base steps' written settings
 /// with the varied values put in, validated as if written there. Problems point at
 /// `span` (the sweep's `vary` line) and name the combination.
-pub fn variant(
+pub(crate) fn variant(
     train: Base<'_, TrainSpec>,
     net: Base<'_, NetSpec>,
     combination: &[(String, Value)],
