@@ -61,12 +61,12 @@ pub enum ColumnKind {
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
 pub struct InputColumn {
     /// Column name in the table.
-    pub name: String,
+    pub(crate) name: String,
     /// Numeric or categorical.
     pub kind: ColumnKind,
     /// True when every row used for fitting (every kept row) has the same
     /// value: such a column carries no information, which the report can say.
-    pub constant: bool,
+    pub(crate) constant: bool,
 }
 
 impl InputColumn {

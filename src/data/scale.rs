@@ -43,7 +43,7 @@ impl Scaler {
     ///
     /// # Panics
     /// If `numeric` does not have one entry per column of `x`, or a row is out of range.
-    pub fn fit(kind: Scale, x: ArrayView2<f64>, rows: &[usize], numeric: &[bool]) -> Scaler {
+    pub(crate) fn fit(kind: Scale, x: ArrayView2<f64>, rows: &[usize], numeric: &[bool]) -> Scaler {
         assert_eq!(
             numeric.len(),
             x.ncols(),

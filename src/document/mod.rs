@@ -5,7 +5,7 @@
 //! source so that the report renders it and so that it never enters a cache key.
 
 pub mod front;
-pub mod names;
+pub(crate) mod names;
 pub mod problem;
 pub(crate) mod spec;
 pub mod yaml;
@@ -23,7 +23,7 @@ pub use spec::{StepKind, StepSpec};
 #[derive(Clone, Debug)]
 pub struct Document {
     pub source: String,
-    pub front: FrontMatter,
+    pub(crate) front: FrontMatter,
     pub(crate) pieces: Vec<Piece>,
     /// Ids of step blocks whose info string had a problem: references to them are not
     /// reported again.

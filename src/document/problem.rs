@@ -21,7 +21,7 @@ pub struct Problem {
 }
 
 impl Problem {
-    pub fn new(span: Range<usize>, message: impl Into<String>) -> Problem {
+    pub(crate) fn new(span: Range<usize>, message: impl Into<String>) -> Problem {
         Problem {
             span,
             message: shortened(message.into()),

@@ -158,7 +158,7 @@ fn zip_slices<F: Float>(g: &mut [F], a: &[F], f: impl Fn(&mut F, F)) {
 /// `z` in a batch is close to random, and a mispredicted branch per unit cost
 /// more than the arithmetic.
 #[inline]
-pub fn sigmoid<F: Float>(z: F) -> F {
+pub(crate) fn sigmoid<F: Float>(z: F) -> F {
     let e = (-z.abs()).vector_exp();
     let numerator = if z >= F::zero() { F::one() } else { e };
     numerator / (F::one() + e)

@@ -24,14 +24,14 @@ use super::loss::Loss;
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
 pub(crate) struct ClassificationMetrics {
     /// Fraction of rows whose predicted class is the true class.
-    pub accuracy: f64,
+    pub(crate) accuracy: f64,
     /// Mean cross-entropy of the outputs.
-    pub log_loss: f64,
+    pub(crate) log_loss: f64,
     /// `confusion[true][predicted]` row counts.
-    pub confusion: Vec<Vec<usize>>,
+    pub(crate) confusion: Vec<Vec<usize>>,
     /// Per class: true positives / predicted positives; `None` when the class
     /// was never predicted.
-    pub precision: Vec<Option<f64>>,
+    pub(crate) precision: Vec<Option<f64>>,
     /// Per class: true positives / actual positives; `None` when the class
     /// never occurs.
     pub(crate) recall: Vec<Option<f64>>,
@@ -41,11 +41,11 @@ pub(crate) struct ClassificationMetrics {
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
 pub(crate) struct RegressionMetrics {
     /// Mean of `(o − t)²` over all elements.
-    pub mse: f64,
+    pub(crate) mse: f64,
     /// Mean of `|o − t|` over all elements.
-    pub mae: f64,
+    pub(crate) mae: f64,
     /// Coefficient of determination, averaged over output columns.
-    pub r2: f64,
+    pub(crate) r2: f64,
 }
 
 /// Classification scores of `outputs` (probabilities) against `targets`

@@ -46,10 +46,10 @@ pub mod activation;
 pub(crate) mod backprop;
 pub(crate) mod float;
 mod gemm;
-pub mod loss;
-pub mod metrics;
+pub(crate) mod loss;
+pub(crate) mod metrics;
 pub mod network;
-pub mod optimizer;
+pub(crate) mod optimizer;
 mod rows;
 pub mod train;
 mod vector;
@@ -64,7 +64,7 @@ pub(crate) use metrics::{
 pub use network::{Init, Layer, Network};
 pub use optimizer::Optimizer;
 pub use rows::Rows;
-pub(crate) use train::evaluate;
+pub use train::evaluate;
 pub use train::{
     BatchSize, StopReason, TrainConfig, TrainOutcome, mean_loss, train, train_at, train_rows,
 };

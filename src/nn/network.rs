@@ -110,12 +110,12 @@ pub(crate) enum NetworkError {
 
 impl<F: Float> Layer<F> {
     /// Number of inputs (rows of `weights`).
-    pub fn inputs(&self) -> usize {
+    pub(crate) fn inputs(&self) -> usize {
         self.weights.nrows()
     }
 
     /// Number of units (columns of `weights`).
-    pub fn outputs(&self) -> usize {
+    pub(crate) fn outputs(&self) -> usize {
         self.weights.ncols()
     }
 

@@ -129,7 +129,7 @@ pub struct EpochLosses {
     /// Row-weighted mean of the epoch's batch losses.
     pub train: f64,
     /// [`mean_loss`] on the validation data after the epoch, if given.
-    pub validation: Option<f64>,
+    pub(crate) validation: Option<f64>,
 }
 
 /// The result of [`train`].
@@ -341,20 +341,20 @@ pub fn mean_loss(network: &Network, x: ArrayView2<f64>, y: ArrayView2<f64>, loss
 
 /// A network's outputs on some rows, their targets, and the mean loss.
 #[derive(Clone, Debug, PartialEq)]
-pub(crate) struct Evaluation {
+pub struct Evaluation {
     /// One row of outputs per data row.
-    pub outputs: Array2<f64>,
+    pub(crate) outputs: Array2<f64>,
     /// The rows' targets.
-    pub targets: Array2<f64>,
+    pub(crate) targets: Array2<f64>,
     /// [`mean_loss`] of the outputs.
-    pub mean_loss: f64,
+    pub(crate) mean_loss: f64,
 }
 
 /// Runs `network` on `rows` and measures the loss, as [`mean_loss`] does.
 ///
 /// # Panics
 /// As [`mean_loss`].
-pub(crate) fn evaluate(network: &Network, rows: &Rows, loss: Loss) -> Evaluation {
+pub fn evaluate(network: &Network, rows: &Rows, loss: Loss) -> Evaluation {
     check_data(network, rows, "evaluation");
     let targets = rows.target_matrix();
     let (outputs, mean_loss) = outputs_and_mean_loss(network, rows, targets.view(), loss);

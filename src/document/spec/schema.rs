@@ -34,7 +34,7 @@ pub fn steps_json() -> String {
 /// One schema with a definition per step kind (named by its word) and one for the
 /// front matter (`front_matter`); the root accepts any of them, since a YAML tool
 /// cannot know which kind a block's info string names.
-pub(crate) fn steps_schema() -> Value {
+pub fn steps_schema() -> Value {
     let mut generator = SchemaSettings::draft07()
         .with(|settings| settings.definitions_path = format!("/{DEFINITIONS}").into())
         .into_generator();

@@ -17,7 +17,7 @@ use crate::nn::{Activation, BatchSize, Init, Precision};
 /// A metric a sweep can rank by or a compare step can show.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Hash, Serialize, Deserialize)]
 #[serde(rename_all = "snake_case")]
-pub enum MetricName {
+pub(crate) enum MetricName {
     Loss,
     Accuracy,
     LogLoss,
@@ -28,7 +28,7 @@ pub enum MetricName {
 
 impl MetricName {
     /// The name used in summaries and the metric tables.
-    pub fn key(self) -> &'static str {
+    pub(crate) fn key(self) -> &'static str {
         super::word(&self)
     }
 
@@ -53,13 +53,13 @@ pub(super) struct RawSweep {
 /// `sweep`: a train step run once per combination of the varied settings.
 #[derive(Clone, Debug, PartialEq, Serialize)]
 pub struct SweepSpec {
-    pub from: String,
+    pub(crate) from: String,
     /// Setting name → the values to try, in the order written.
-    pub vary: Vec<(String, Vec<Value>)>,
+    pub(crate) vary: Vec<(String, Vec<Value>)>,
     /// Seeds per combination: the train step's seed, then the next ones.
-    pub repeat: usize,
+    pub(crate) repeat: usize,
     /// `None`: held-out accuracy to classify, held-out loss to regress.
-    pub rank_by: Option<MetricName>,
+    pub(crate) rank_by: Option<MetricName>,
 }
 
 /// Settings a sweep cannot vary: they choose which steps a run reads.
@@ -129,7 +129,7 @@ pub(super) fn repeated<T: PartialEq>(values: &[T]) -> Option<&T> {
 
 impl SweepSpec {
     /// Every combination of the varied values, the first setting varying slowest.
-    pub fn combinations(&self) -> Vec<Vec<(String, Value)>> {
+    pub(crate) fn combinations(&self) -> Vec<Vec<(String, Value)>> {
         let mut grid: Vec<Vec<(String, Value)>> = vec![Vec::new()];
         for (name, values) in &self.vary {
             grid = grid
@@ -174,7 +174,7 @@ pub(crate) fn value_text(value: &Value) -> String {
 /// sweep's results) as `{setting: value}`.
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
 #[serde(rename_all = "snake_case")]
-pub enum Override {
+pub(crate) enum Override {
     Loss(Option<LossChoice>),
     Optimizer(Option<OptimizerKind>),
     LearningRate(Option<f64>),
@@ -244,8 +244,8 @@ impl Override {
 /// A varied setting's value in one combination, and the value as the document wrote it.
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
 pub struct Varied {
-    pub name: String,
-    pub value: Override,
+    pub(crate) name: String,
+    pub(crate) value: Override,
     /// For display, in YAML's flow style (`[12, 6]`, `relu`, `0.01`).
     pub text: String,
 }
@@ -276,14 +276,14 @@ fn describe_text<'a>(settings: impl Iterator<Item = (&'a String, String)>) -> St
 /// One combination of a sweep: its varied settings and the specs they make.
 pub(crate) struct Variant {
     pub settings: Vec<Varied>,
-    pub net: NetSpec,
+    pub(crate) net: NetSpec,
     pub train: TrainSpec,
 }
 
 /// A validated spec and the settings its block wrote.
 pub(crate) struct Base<'a, T> {
     pub(crate) spec: &'a T,
-    pub written: &'a Written,
+    pub(crate) written: &'a Written,
 }
 
 /// The train and net settings of one combination: the base steps' written settings
