@@ -365,4 +365,23 @@ mod tests {
         assert_eq!(beside, "## Base run\n\nWhy.\n");
         assert_eq!(split_lead("Only prose.\n"), ("", "Only prose.\n"));
     }
+
+    #[test]
+    fn a_template_that_does_not_parse_is_an_error_naming_its_file() {
+        let dir = tempfile::tempdir().unwrap();
+        let broken = dir.path().join("step.html");
+        std::fs::write(&broken, "{% if %}").unwrap();
+        let Err(error) = Templates::with_overrides(dir.path()) else {
+            panic!("a broken template was accepted");
+        };
+        assert!(
+            matches!(&error, TemplateError::Invalid { path, .. } if *path == broken),
+            "{error:?}"
+        );
+        assert!(
+            error
+                .to_string()
+                .starts_with(&format!("template {}: ", broken.display()))
+        );
+    }
 }
