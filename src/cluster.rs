@@ -10,6 +10,52 @@ use std::time::Duration;
 
 use crate::plan::PlanOptions;
 
+/// Why a dispatch could not submit its job or wait for it to end.
+#[derive(Debug, thiserror::Error)]
+pub enum DispatchError {
+    #[error("{program} is not on PATH: stet dispatch needs Slurm")]
+    NotOnPath { program: &'static str },
+    #[error("locating the stet binary: {0}")]
+    OwnBinary(std::io::Error),
+    /// `doing` is the verb: "creating", "writing", "running".
+    #[error("{doing} {}: {source}", path.display())]
+    Io {
+        doing: &'static str,
+        path: PathBuf,
+        source: std::io::Error,
+    },
+    #[error("sbatch refused the job: {stderr}")]
+    Refused { stderr: String },
+    #[error(
+        "sbatch printed {printed:?} where a job id was expected; the job may have been submitted, check with squeue"
+    )]
+    NoJobId { printed: String },
+    #[error("squeue failed: {stderr}")]
+    QueueFailed { stderr: String },
+    #[error("asking squeue about job {job} failed {attempts} times: {last}")]
+    QueueUnreachable {
+        job: String,
+        attempts: u32,
+        last: Box<DispatchError>,
+    },
+    #[error(
+        "job {job} is still running after {} (--wait-timeout); its tasks keep filling the cache, so build the document once it ends",
+        humantime::format_duration(*timeout)
+    )]
+    StillRunning { job: String, timeout: Duration },
+}
+
+impl DispatchError {
+    fn io(doing: &'static str, path: &Path) -> impl FnOnce(std::io::Error) -> DispatchError {
+        let path = path.to_path_buf();
+        move |source| DispatchError::Io {
+            doing,
+            path,
+            source,
+        }
+    }
+}
+
 /// What to submit.
 #[derive(Clone, Debug)]
 pub(crate) struct DispatchRequest<'a> {
@@ -81,10 +127,9 @@ pub(crate) struct Slurm {
 
 impl Slurm {
     /// Finds `sbatch`, and `squeue` when the dispatch will wait.
-    pub(crate) fn locate(wait: bool) -> Result<Slurm, String> {
-        let find = |name: &str| {
-            find_on_path(name)
-                .ok_or_else(|| format!("{name} is not on PATH: stet dispatch needs Slurm"))
+    pub(crate) fn locate(wait: bool) -> Result<Slurm, DispatchError> {
+        let find = |program: &'static str| {
+            find_on_path(program).ok_or(DispatchError::NotOnPath { program })
         };
         Ok(Slurm {
             sbatch: find("sbatch")?,
@@ -118,18 +163,18 @@ fn is_executable(metadata: &std::fs::Metadata) -> bool {
 pub(crate) fn submit(
     request: &DispatchRequest<'_>,
     sbatch: &Path,
-) -> Result<(String, PathBuf), String> {
+) -> Result<(String, PathBuf), DispatchError> {
     let folder = request.cache_dir.join("dispatch");
-    std::fs::create_dir_all(&folder).map_err(|e| format!("creating {}: {e}", folder.display()))?;
+    std::fs::create_dir_all(&folder).map_err(DispatchError::io("creating", &folder))?;
     let stem = request
         .document
         .file_stem()
         .map_or("stet".into(), |stem| stem.to_string_lossy().into_owned());
     let script_path = folder.join(format!("{stem}.sh"));
-    let stet = std::env::current_exe().map_err(|e| format!("locating the stet binary: {e}"))?;
+    let stet = std::env::current_exe().map_err(DispatchError::OwnBinary)?;
     let script = job_script(request, &stet, &folder);
     crate::cache::atomic::write(&script_path, script.as_bytes())
-        .map_err(|e| format!("writing {}: {e}", script_path.display()))?;
+        .map_err(DispatchError::io("writing", &script_path))?;
     let output = Command::new(sbatch)
         .arg("--parsable")
         .arg(format!("--array=1-{}", request.tasks))
@@ -137,12 +182,11 @@ pub(crate) fn submit(
         .arg(&script_path)
         .current_dir(&folder)
         .output()
-        .map_err(|e| format!("running {}: {e}", sbatch.display()))?;
+        .map_err(DispatchError::io("running", sbatch))?;
     if !output.status.success() {
-        return Err(format!(
-            "sbatch refused the job: {}",
-            String::from_utf8_lossy(&output.stderr).trim()
-        ));
+        return Err(DispatchError::Refused {
+            stderr: String::from_utf8_lossy(&output.stderr).trim().to_string(),
+        });
     }
     let job = parse_job_id(&String::from_utf8_lossy(&output.stdout))?;
     Ok((job, script_path))
@@ -150,15 +194,15 @@ pub(crate) fn submit(
 
 /// The job id in what `sbatch --parsable` printed: one line, "ID" or "ID;CLUSTER",
 /// with ID all digits. Anything else is refused rather than waited on.
-fn parse_job_id(stdout: &str) -> Result<String, String> {
+fn parse_job_id(stdout: &str) -> Result<String, DispatchError> {
     let line = stdout.trim();
     let id = line.split(';').next().unwrap_or_default();
     if !line.contains('\n') && !id.is_empty() && id.bytes().all(|b| b.is_ascii_digit()) {
         Ok(id.to_string())
     } else {
-        Err(format!(
-            "sbatch printed {line:?} where a job id was expected; the job may have been submitted, check with squeue"
-        ))
+        Err(DispatchError::NoJobId {
+            printed: line.to_string(),
+        })
     }
 }
 
@@ -170,15 +214,15 @@ const SQUEUE_ATTEMPTS: u32 = 6;
 const FIRST_RETRY_AFTER: Duration = Duration::from_secs(1);
 
 /// Waits until no task of the job is queued or running, for at most `timeout`.
-pub(crate) fn wait_for(job: &str, squeue: &Path, timeout: Duration) -> Result<(), String> {
+pub(crate) fn wait_for(job: &str, squeue: &Path, timeout: Duration) -> Result<(), DispatchError> {
     let started = std::time::Instant::now();
     while asked_with_retries(job, squeue)? {
         let waited = started.elapsed();
         if waited >= timeout {
-            return Err(format!(
-                "job {job} is still running after {} (--wait-timeout); its tasks keep filling the cache, so build the document once it ends",
-                humantime::format_duration(timeout)
-            ));
+            return Err(DispatchError::StillRunning {
+                job: job.to_string(),
+                timeout,
+            });
         }
         std::thread::sleep(POLL_EVERY.min(timeout - waited));
     }
@@ -187,16 +231,18 @@ pub(crate) fn wait_for(job: &str, squeue: &Path, timeout: Duration) -> Result<()
 
 /// Whether the job is still in the queue, asking again with a growing pause while
 /// `squeue` fails: a busy or restarting controller must not end the wait.
-fn asked_with_retries(job: &str, squeue: &Path) -> Result<bool, String> {
+fn asked_with_retries(job: &str, squeue: &Path) -> Result<bool, DispatchError> {
     let mut pause = FIRST_RETRY_AFTER;
     let mut attempt = 1;
     loop {
         match is_queued(job, squeue) {
             Ok(queued) => return Ok(queued),
             Err(error) if attempt >= SQUEUE_ATTEMPTS => {
-                return Err(format!(
-                    "asking squeue about job {job} failed {attempt} times: {error}"
-                ));
+                return Err(DispatchError::QueueUnreachable {
+                    job: job.to_string(),
+                    attempts: attempt,
+                    last: Box::new(error),
+                });
             }
             Err(_) => {
                 std::thread::sleep(pause);
@@ -208,24 +254,26 @@ fn asked_with_retries(job: &str, squeue: &Path) -> Result<bool, String> {
 }
 
 /// One question to `squeue`: is any task of the job queued or running?
-fn is_queued(job: &str, squeue: &Path) -> Result<bool, String> {
+fn is_queued(job: &str, squeue: &Path) -> Result<bool, DispatchError> {
     let output = Command::new(squeue)
         .args(["-h", "-j", job, "-o", "%i"])
         .output()
-        .map_err(|e| format!("running {}: {e}", squeue.display()))?;
+        .map_err(DispatchError::io("running", squeue))?;
     let stderr = String::from_utf8_lossy(&output.stderr);
     queue_answer(output.status.success(), &output.stdout, &stderr)
 }
 
 /// Reads squeue's answer. It refuses a job id it no longer knows, which means the job
 /// is over; any other failure says nothing about the job.
-fn queue_answer(success: bool, stdout: &[u8], stderr: &str) -> Result<bool, String> {
+fn queue_answer(success: bool, stdout: &[u8], stderr: &str) -> Result<bool, DispatchError> {
     if success {
         Ok(!stdout.iter().all(u8::is_ascii_whitespace))
     } else if stderr.to_ascii_lowercase().contains("invalid job id") {
         Ok(false)
     } else {
-        Err(format!("squeue failed: {}", stderr.trim()))
+        Err(DispatchError::QueueFailed {
+            stderr: stderr.trim().to_string(),
+        })
     }
 }
 
@@ -257,8 +305,8 @@ mod tests {
 
     #[test]
     fn only_a_numeric_job_id_is_taken_from_sbatch() {
-        assert_eq!(parse_job_id("4242\n"), Ok("4242".into()));
-        assert_eq!(parse_job_id("4242;cluster\n"), Ok("4242".into()));
+        assert_eq!(parse_job_id("4242\n").ok(), Some("4242".into()));
+        assert_eq!(parse_job_id("4242;cluster\n").ok(), Some("4242".into()));
         for bad in [
             "",
             "garbage output",
@@ -272,13 +320,50 @@ mod tests {
 
     #[test]
     fn an_unknown_job_is_over_but_other_squeue_failures_are_not() {
-        assert_eq!(queue_answer(true, b"4242_1\n", ""), Ok(true));
-        assert_eq!(queue_answer(true, b"\n", ""), Ok(false));
+        assert_eq!(queue_answer(true, b"4242_1\n", "").ok(), Some(true));
+        assert_eq!(queue_answer(true, b"\n", "").ok(), Some(false));
         // squeue's words for a job it has forgotten (Slurm 23).
         let forgotten = "slurm_load_jobs error: Invalid job id specified";
-        assert_eq!(queue_answer(false, b"", forgotten), Ok(false));
+        assert_eq!(queue_answer(false, b"", forgotten).ok(), Some(false));
         let down = "slurm_load_jobs error: Unable to contact slurm controller";
         assert!(queue_answer(false, b"", down).is_err());
+    }
+
+    #[test]
+    fn a_refused_job_id_keeps_the_text_sbatch_printed() {
+        let error = parse_job_id("Submitted batch job 4242\n").unwrap_err();
+        assert!(
+            matches!(&error, DispatchError::NoJobId { printed } if printed == "Submitted batch job 4242"),
+            "{error:?}"
+        );
+        assert!(error.to_string().starts_with(
+            "sbatch printed \"Submitted batch job 4242\" where a job id was expected"
+        ));
+    }
+
+    #[test]
+    fn a_failing_squeue_keeps_its_own_words() {
+        // Slurm 23's message when the controller is down.
+        let down = "slurm_load_jobs error: Unable to contact slurm controller\n";
+        let error = queue_answer(false, b"", down).unwrap_err();
+        assert!(
+            matches!(&error, DispatchError::QueueFailed { stderr } if stderr == down.trim()),
+            "{error:?}"
+        );
+    }
+
+    #[test]
+    fn a_wait_that_runs_out_names_the_job_and_the_timeout() {
+        let error = DispatchError::StillRunning {
+            job: "4242".into(),
+            timeout: Duration::from_secs(90),
+        };
+        assert!(
+            error
+                .to_string()
+                .starts_with("job 4242 is still running after 1m 30s (--wait-timeout)"),
+            "{error}"
+        );
     }
 
     #[test]

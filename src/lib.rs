@@ -22,9 +22,11 @@ pub(crate) mod report;
 pub use document::spec::schema;
 
 pub use build::ShareSummary;
-pub use build::share::Share;
+pub use build::share::{Share, ShareError};
 pub use cache::freshness::StepStatus;
 pub use cache::pruning::Cleaning;
+pub use cluster::DispatchError;
+pub use report::TemplateError;
 
 use std::path::{Path, PathBuf};
 use std::time::Duration;
@@ -73,6 +75,10 @@ pub enum Error {
     },
     #[error("{0}")]
     Usage(String),
+    #[error(transparent)]
+    Dispatch(#[from] DispatchError),
+    #[error(transparent)]
+    Templates(#[from] TemplateError),
 }
 
 /// What a finished build did.
@@ -167,7 +173,7 @@ fn open_cache(choice: &CacheChoice, document: &Path) -> Cache {
 /// Nothing is written when the document cannot be used.
 pub fn build(options: &BuildOptions) -> Result<BuildSummary, Error> {
     let templates = match &options.templates {
-        Some(dir) => report::Templates::with_overrides(dir).map_err(Error::Usage)?,
+        Some(dir) => report::Templates::with_overrides(dir)?,
         None => report::Templates::built_in(),
     };
     let loaded = load(&options.document, &options.plan)?;
@@ -334,7 +340,7 @@ pub fn dispatch(
     if tasks == 0 {
         return Err(Error::Usage("--tasks must be at least 1".into()));
     }
-    let slurm = cluster::Slurm::locate(wait.is_some()).map_err(Error::Usage)?;
+    let slurm = cluster::Slurm::locate(wait.is_some())?;
     let loaded = load(&options.document, &options.plan)?;
     let cache = open_cache(&options.cache, &options.document);
     let Some(dir) = cache.dir() else {
@@ -363,7 +369,7 @@ pub fn dispatch(
         sbatch_options,
         plan: &options.plan,
     };
-    let (job, script) = cluster::submit(&request, &slurm.sbatch).map_err(Error::Usage)?;
+    let (job, script) = cluster::submit(&request, &slurm.sbatch)?;
     let (Some(timeout), Some(squeue)) = (wait, &slurm.squeue) else {
         return Ok(Dispatched {
             job,
@@ -372,7 +378,7 @@ pub fn dispatch(
         });
     };
     eprintln!("submitted job {job} ({tasks} tasks); waiting for it");
-    cluster::wait_for(&job, squeue, timeout).map_err(Error::Usage)?;
+    cluster::wait_for(&job, squeue, timeout)?;
     let (cached, all) = freshness::run_totals(&loaded.plan, &cache);
     let missing = all - cached;
     let finished = if missing > 0 {

@@ -20,12 +20,21 @@ impl Share {
     }
 }
 
+/// A `--shard` value that is not `K/N` with 1 ≤ K ≤ N; carries the text given.
+#[derive(Clone, Debug, PartialEq, Eq, thiserror::Error)]
+#[error("expected K/N with 1 ≤ K ≤ N, such as 2/8, not '{given}'")]
+pub struct ShareError {
+    pub given: String,
+}
+
 impl FromStr for Share {
-    type Err = String;
+    type Err = ShareError;
 
     /// `K/N` with 1 ≤ K ≤ N.
-    fn from_str(text: &str) -> Result<Share, String> {
-        let expected = || format!("expected K/N with 1 ≤ K ≤ N, such as 2/8, not '{text}'");
+    fn from_str(text: &str) -> Result<Share, ShareError> {
+        let expected = || ShareError {
+            given: text.to_string(),
+        };
         let (k, n) = text.split_once('/').ok_or_else(expected)?;
         let (index, count): (usize, usize) = (
             k.trim().parse().map_err(|_| expected())?,
@@ -88,5 +97,20 @@ mod tests {
         assert!("0/8".parse::<Share>().is_err());
         assert!("9/8".parse::<Share>().is_err());
         assert!("x".parse::<Share>().is_err());
+    }
+
+    #[test]
+    fn a_bad_share_is_an_error_carrying_the_text_given() {
+        let error = "9/8".parse::<Share>().unwrap_err();
+        assert_eq!(
+            error,
+            ShareError {
+                given: "9/8".into()
+            }
+        );
+        assert_eq!(
+            error.to_string(),
+            "expected K/N with 1 ≤ K ≤ N, such as 2/8, not '9/8'"
+        );
     }
 }

@@ -11,9 +11,9 @@ use super::table::Table;
 #[derive(Clone, Debug, PartialEq, Eq)]
 pub(super) struct UsedColumns {
     /// Input columns in the order the settings list them (table order when not listed).
-    pub inputs: Vec<usize>,
+    pub(crate) inputs: Vec<usize>,
     /// Target columns in the order the settings list them.
-    pub targets: Vec<usize>,
+    pub(crate) targets: Vec<usize>,
 }
 
 impl UsedColumns {

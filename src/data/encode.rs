@@ -19,10 +19,10 @@ use super::table::Table;
 
 /// Cell values that mean "no value", compared case-insensitively after
 /// trimming whitespace: the empty cell, `?`, `NA`, `N/A` and `NaN`.
-pub const MISSING_MARKERS: [&str; 5] = ["", "?", "NA", "N/A", "NaN"];
+pub(crate) const MISSING_MARKERS: [&str; 5] = ["", "?", "NA", "N/A", "NaN"];
 
 /// Whether a cell is one of the [`MISSING_MARKERS`].
-pub fn is_missing(cell: &str) -> bool {
+pub(crate) fn is_missing(cell: &str) -> bool {
     let cell = cell.trim();
     MISSING_MARKERS.iter().any(|m| m.eq_ignore_ascii_case(cell))
 }
@@ -30,7 +30,7 @@ pub fn is_missing(cell: &str) -> bool {
 /// Whether a cell reads as a number that is not finite: `inf`, `-Infinity`, or one too
 /// large for a double (`1e999`). Such a cell is neither a value nor text to one-hot: it
 /// is refused, or left out with the missing values under `missing: drop`.
-pub fn is_non_finite(cell: &str) -> bool {
+pub(crate) fn is_non_finite(cell: &str) -> bool {
     !is_missing(cell) && cell.trim().parse::<f64>().is_ok_and(|v| !v.is_finite())
 }
 
@@ -41,7 +41,7 @@ pub const DEFAULT_MAX_CATEGORIES: usize = 1000;
 
 /// The cell as a finite number, or `None`. Infinities are not accepted: they
 /// would turn every scaled value of their column into NaN.
-pub fn parse_number(cell: &str) -> Option<f64> {
+pub(crate) fn parse_number(cell: &str) -> Option<f64> {
     cell.trim().parse::<f64>().ok().filter(|v| v.is_finite())
 }
 
@@ -61,12 +61,12 @@ pub enum ColumnKind {
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
 pub struct InputColumn {
     /// Column name in the table.
-    pub name: String,
+    pub(crate) name: String,
     /// Numeric or categorical.
     pub kind: ColumnKind,
     /// True when every row used for fitting (every kept row) has the same
     /// value: such a column carries no information, which the report can say.
-    pub constant: bool,
+    pub(crate) constant: bool,
 }
 
 impl InputColumn {
@@ -90,7 +90,7 @@ pub struct Encoding {
     /// One name per feature column of `x`; one-hot features read `site=north`.
     pub feature_names: Vec<String>,
     /// The target columns, as named in the settings.
-    pub target_names: Vec<String>,
+    pub(crate) target_names: Vec<String>,
     /// The task, as set or as deduced from the target.
     pub task: Task,
     /// Class labels, sorted (numerically when they are all numbers); classify only.
@@ -124,8 +124,8 @@ impl Encoding {
     }
 
     /// Whether each feature is a numeric column (true) or a one-hot indicator
-    /// (false): the mask [`Scaler::fit`](super::Scaler::fit) expects.
-    pub fn numeric_mask(&self) -> Vec<bool> {
+    /// (false): the mask [`Scaler::fit`](super::scale::Scaler::fit) expects.
+    pub(crate) fn numeric_mask(&self) -> Vec<bool> {
         self.columns
             .iter()
             .flat_map(|c| match &c.kind {

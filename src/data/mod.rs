@@ -3,10 +3,11 @@
 //!
 //! The steps, each in its own module: [`read_table`] reads text cells;
 //! [`prepare`] resolves column names, handles missing values, encodes
-//! columns as numbers ([`Encoding`]), splits rows into partitions and fits a
-//! [`Scaler`] on each partition's training rows. [`Prepared::split`] then
-//! hands out the matrices of one partition, and [`Encoding::encode_inputs`]
-//! encodes new rows for prediction.
+//! columns as numbers ([`Encoding`](encode::Encoding)), splits rows into partitions
+//! and fits a [`Scaler`](scale::Scaler) on each partition's training rows.
+//! [`Prepared::split`] then hands out the matrices of one partition, and
+//! [`Encoding::encode_inputs`](encode::Encoding::encode_inputs) encodes new rows for
+//! prediction.
 
 mod coded_column;
 mod columns;
@@ -18,12 +19,10 @@ mod settings;
 mod split;
 mod table;
 
-pub use encode::{
-    ColumnKind, DEFAULT_MAX_CATEGORIES, Encoding, InputColumn, MISSING_MARKERS, is_missing,
-    is_non_finite, parse_number,
-};
-pub use error::DataError;
-pub use prepare::{Partition, Prepared, SplitData, prepare};
-pub use scale::Scaler;
+pub(crate) use encode::InputColumn;
+pub use encode::{ColumnKind, DEFAULT_MAX_CATEGORIES};
+pub(crate) use error::DataError;
+pub use prepare::{Prepared, prepare};
 pub use settings::{DataSettings, Missing, Scale, Split, Task};
-pub use table::{Table, read_header, read_table};
+pub(crate) use table::read_header;
+pub use table::{Table, read_table};

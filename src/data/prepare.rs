@@ -35,7 +35,7 @@ pub struct SplitData {
     /// Scaled training inputs.
     pub x_train: Array2<f64>,
     /// Training targets.
-    pub y_train: Array2<f64>,
+    pub(crate) y_train: Array2<f64>,
     /// Scaled test inputs.
     pub x_test: Array2<f64>,
     /// Test targets.

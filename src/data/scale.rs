@@ -43,7 +43,7 @@ impl Scaler {
     ///
     /// # Panics
     /// If `numeric` does not have one entry per column of `x`, or a row is out of range.
-    pub fn fit(kind: Scale, x: ArrayView2<f64>, rows: &[usize], numeric: &[bool]) -> Scaler {
+    pub(crate) fn fit(kind: Scale, x: ArrayView2<f64>, rows: &[usize], numeric: &[bool]) -> Scaler {
         assert_eq!(
             numeric.len(),
             x.ncols(),
@@ -103,7 +103,7 @@ impl Scaler {
 
     /// The first feature whose offset or divisor overflowed (values near 1e308 make
     /// the sum, the squares or the range infinite), which would scale it to NaN or 0.
-    pub fn first_overflow(&self) -> Option<usize> {
+    pub(crate) fn first_overflow(&self) -> Option<usize> {
         (0..self.offset.len())
             .find(|&j| !(self.offset[j].is_finite() && self.divisor[j].is_finite()))
     }
@@ -122,7 +122,7 @@ impl Scaler {
     ///
     /// # Panics
     /// If `x` does not have as many columns as the scaler was fitted on.
-    pub fn apply_in_place(&self, mut x: ArrayViewMut2<f64>) {
+    pub(crate) fn apply_in_place(&self, mut x: ArrayViewMut2<f64>) {
         assert_eq!(
             x.ncols(),
             self.offset.len(),

@@ -20,7 +20,7 @@ pub(super) struct RowSplit {
     /// Rows to fit on.
     pub train: Vec<usize>,
     /// Rows held out.
-    pub test: Vec<usize>,
+    pub(crate) test: Vec<usize>,
 }
 
 /// The class of every row, for stratified splits.

@@ -29,7 +29,7 @@ pub struct Table {
 
 impl Table {
     /// Position of the column with this exact name.
-    pub fn column(&self, name: &str) -> Option<usize> {
+    pub(crate) fn column(&self, name: &str) -> Option<usize> {
         self.headers.iter().position(|h| h == name)
     }
 
@@ -39,12 +39,12 @@ impl Table {
     }
 
     /// The cell of row `row` in column `col`, as written in the file.
-    pub fn cell(&self, row: usize, col: usize) -> &str {
+    pub(crate) fn cell(&self, row: usize, col: usize) -> &str {
         self.columns[col].cell(row)
     }
 
     /// The cells of row `row`, in column order.
-    pub fn row(&self, row: usize) -> impl Iterator<Item = &str> {
+    pub(crate) fn row(&self, row: usize) -> impl Iterator<Item = &str> {
         self.columns.iter().map(move |column| column.cell(row))
     }
 
@@ -54,7 +54,7 @@ impl Table {
     }
 
     /// File line of row `row`, for messages.
-    pub fn line(&self, row: usize) -> u64 {
+    pub(crate) fn line(&self, row: usize) -> u64 {
         self.lines[row]
     }
 
@@ -144,7 +144,7 @@ const READ_BUFFER: usize = 1 << 16;
 /// The column names of a CSV file's header row, read as `read_table` reads them
 /// (byte-order mark dropped, names trimmed) without reading any data row: the plan
 /// checks a document's column names against them.
-pub fn read_header(reader: impl Read) -> Result<Vec<String>, DataError> {
+pub(crate) fn read_header(reader: impl Read) -> Result<Vec<String>, DataError> {
     let mut reader = csv::ReaderBuilder::new()
         .has_headers(true)
         .flexible(true)

@@ -10,18 +10,18 @@ use super::yaml::{self, Block};
 #[derive(Clone, Debug, Default, PartialEq, Serialize, Deserialize, JsonSchema)]
 #[serde(deny_unknown_fields)]
 #[schemars(rename = "front_matter")]
-pub struct FrontMatter {
-    pub title: Option<String>,
-    pub author: Option<String>,
+pub(crate) struct FrontMatter {
+    pub(crate) title: Option<String>,
+    pub(crate) author: Option<String>,
     /// The seed every step uses unless it sets its own.
-    pub seed: Option<u64>,
-    pub notes: Option<String>,
+    pub(crate) seed: Option<u64>,
+    pub(crate) notes: Option<String>,
 }
 
 /// Where the front matter's YAML sits and where the Markdown body begins.
 pub struct Split<'a> {
     pub yaml: Option<Block<'a>>,
-    pub body_start: usize,
+    pub(crate) body_start: usize,
 }
 
 /// Finds front matter: `---` on the first line, closed by a line of `---` or `...`.
@@ -55,7 +55,7 @@ pub fn split(source: &str) -> Split<'_> {
 }
 
 /// Parses the front matter, reporting problems at their place in the document.
-pub fn parse(block: Option<Block<'_>>, problems: &mut Vec<Problem>) -> FrontMatter {
+pub(crate) fn parse(block: Option<Block<'_>>, problems: &mut Vec<Problem>) -> FrontMatter {
     let Some(block) = block else {
         return FrontMatter::default();
     };

@@ -5,16 +5,16 @@
 //! source so that the report renders it and so that it never enters a cache key.
 
 pub mod front;
-pub mod names;
+pub(crate) mod names;
 pub mod problem;
-pub mod spec;
+pub(crate) mod spec;
 pub mod yaml;
 
 use std::ops::Range;
 
 use pulldown_cmark::{CodeBlockKind, Event, Options, Parser, Tag, TagEnd};
 
-pub use front::FrontMatter;
+pub(crate) use front::FrontMatter;
 use problem::nearest;
 pub use problem::{DocumentErrors, Problem};
 pub use spec::{StepKind, StepSpec};
@@ -23,16 +23,16 @@ pub use spec::{StepKind, StepSpec};
 #[derive(Clone, Debug)]
 pub struct Document {
     pub source: String,
-    pub front: FrontMatter,
-    pub pieces: Vec<Piece>,
+    pub(crate) front: FrontMatter,
+    pub(crate) pieces: Vec<Piece>,
     /// Ids of step blocks whose info string had a problem: references to them are not
     /// reported again.
-    pub unreadable_ids: Vec<String>,
+    pub(crate) unreadable_ids: Vec<String>,
 }
 
 /// A run of prose, or one step.
 #[derive(Clone, Debug)]
-pub enum Piece {
+pub(crate) enum Piece {
     /// Markdown source of the prose between steps.
     Prose(String),
     Step(StepBlock),
@@ -45,16 +45,16 @@ pub struct StepBlock {
     pub id: String,
     pub yaml: String,
     /// Byte offset of the YAML text in the document.
-    pub yaml_offset: usize,
+    pub(crate) yaml_offset: usize,
     /// Byte range of the info string (`yaml KIND ID`).
-    pub info_span: Range<usize>,
+    pub(crate) info_span: Range<usize>,
     /// Byte range of the whole fenced block.
     pub span: Range<usize>,
 }
 
 impl StepBlock {
     /// The block's YAML with its place in the document, for position-aware parsing.
-    pub fn yaml_block(&self) -> yaml::Block<'_> {
+    pub(crate) fn yaml_block(&self) -> yaml::Block<'_> {
         yaml::Block {
             text: &self.yaml,
             offset: self.yaml_offset,
@@ -72,7 +72,7 @@ impl Document {
 }
 
 /// Markdown extensions the report supports (GitHub tables and friends).
-pub fn markdown_options() -> Options {
+pub(crate) fn markdown_options() -> Options {
     Options::ENABLE_TABLES
         | Options::ENABLE_STRIKETHROUGH
         | Options::ENABLE_FOOTNOTES
@@ -83,7 +83,7 @@ pub fn markdown_options() -> Options {
 /// (some editors write one, and it would hide the front matter), and each CR not
 /// followed by LF (old Mac line ends) made an LF. That swap keeps every byte where it
 /// was, so positions in problems are positions in the file, with the mark zero-width.
-pub fn normalised(source: String) -> String {
+pub(crate) fn normalised(source: String) -> String {
     let mut bytes = match source.strip_prefix('\u{FEFF}') {
         Some(rest) => rest.as_bytes().to_vec(),
         None => source.into_bytes(),

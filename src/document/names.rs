@@ -9,19 +9,19 @@ use serde::{Serialize, forward_to_deserialize_any};
 ///
 /// Every enum stet names in a document, a summary or a cache file (step kinds,
 /// settings, metrics, stop reasons, entry kinds) goes through here.
-pub fn word<T: Serialize>(value: &T) -> &'static str {
+pub(crate) fn word<T: Serialize>(value: &T) -> &'static str {
     serde_variant::to_variant_name(value)
         .expect("words are taken only from enum values without fields")
 }
 
 /// The keys a struct's serde derive reads, in declaration order: the list serde
 /// itself checks unknown keys against.
-pub fn fields<T: DeserializeOwned>() -> &'static [&'static str] {
+pub(crate) fn fields<T: DeserializeOwned>() -> &'static [&'static str] {
     names_given_to_serde::<T>().expect("a struct with named fields")
 }
 
 /// The words a unit enum's serde derive reads, in declaration order.
-pub fn words<T: DeserializeOwned>() -> &'static [&'static str] {
+pub(crate) fn words<T: DeserializeOwned>() -> &'static [&'static str] {
     names_given_to_serde::<T>().expect("an enum")
 }
 

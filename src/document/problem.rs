@@ -21,7 +21,7 @@ pub struct Problem {
 }
 
 impl Problem {
-    pub fn new(span: Range<usize>, message: impl Into<String>) -> Problem {
+    pub(crate) fn new(span: Range<usize>, message: impl Into<String>) -> Problem {
         Problem {
             span,
             message: shortened(message.into()),
@@ -29,7 +29,7 @@ impl Problem {
         }
     }
 
-    pub fn with_help(mut self, help: impl Into<String>) -> Problem {
+    pub(crate) fn with_help(mut self, help: impl Into<String>) -> Problem {
         self.help = Some(shortened(help.into()));
         self
     }
@@ -88,7 +88,7 @@ impl DocumentErrors {
         format!("{}:{line}:{column}", self.path)
     }
 
-    pub fn for_file(path: &Path, source: String, problems: Vec<Problem>) -> DocumentErrors {
+    pub(crate) fn for_file(path: &Path, source: String, problems: Vec<Problem>) -> DocumentErrors {
         DocumentErrors {
             path: path.display().to_string(),
             source,
@@ -262,7 +262,10 @@ impl SourceCode for Excerpt {
 }
 
 /// The closest of `candidates` to `word`, if it is close enough to be a likely typo.
-pub fn nearest<'a>(word: &str, candidates: impl IntoIterator<Item = &'a str>) -> Option<&'a str> {
+pub(crate) fn nearest<'a>(
+    word: &str,
+    candidates: impl IntoIterator<Item = &'a str>,
+) -> Option<&'a str> {
     candidates
         .into_iter()
         .map(|candidate| (strsim::jaro_winkler(word, candidate), candidate))

@@ -17,7 +17,7 @@ pub struct Block<'a> {
 /// Deserialises `block` into `T` (whose serde derive rejects unknown keys); on failure
 /// records one problem at the error's position, suggesting the nearest of the keys
 /// `T` reads for a misspelt one.
-pub fn deserialize<T: DeserializeOwned>(
+pub(crate) fn deserialize<T: DeserializeOwned>(
     block: Block<'_>,
     problems: &mut Vec<Problem>,
 ) -> Option<T> {
@@ -34,7 +34,7 @@ pub fn deserialize<T: DeserializeOwned>(
 }
 
 /// Parses `block` as one YAML value; on a syntax error records a problem at its place.
-pub fn parse_value(block: Block<'_>, problems: &mut Vec<Problem>) -> Option<Value> {
+pub(crate) fn parse_value(block: Block<'_>, problems: &mut Vec<Problem>) -> Option<Value> {
     if !shallow_enough(block, problems) {
         return None;
     }
@@ -50,7 +50,7 @@ pub fn parse_value(block: Block<'_>, problems: &mut Vec<Problem>) -> Option<Valu
 /// The first YAML tag (`!name`) anywhere in `value`, with the value it marks. Settings
 /// are plain values: serde would read `activation: !tanh` as the word `tanh`, and a
 /// tag the document's reader cannot see should not change what a step computes.
-pub fn first_tag(value: &Value) -> Option<(String, &Value)> {
+pub(crate) fn first_tag(value: &Value) -> Option<(String, &Value)> {
     match value {
         Value::Tagged(tagged) => Some((tagged.tag.to_string(), &tagged.value)),
         Value::Sequence(items) => items.iter().find_map(first_tag),
@@ -80,7 +80,7 @@ fn shallow_enough(block: Block<'_>, problems: &mut Vec<Problem>) -> bool {
 /// Deepest nesting of lists and maps a block may have. Settings nest two or three
 /// levels; the YAML parser's time grows with the square of the depth (100,000 nested
 /// brackets took a minute), so deeper text is refused before it is parsed.
-pub const MAX_NESTING: usize = 32;
+pub(crate) const MAX_NESTING: usize = 32;
 
 /// The byte offset in `text` where nesting first goes deeper than [`MAX_NESTING`],
 /// found in one pass over the raw text: block levels by indentation (and `- ` entries

@@ -30,7 +30,7 @@ use super::float::Float;
 use super::vector;
 
 /// Slope of [`Activation::LeakyRelu`] for negative inputs.
-pub const LEAKY_SLOPE: f64 = 0.01;
+pub(crate) const LEAKY_SLOPE: f64 = 0.01;
 
 /// The non-linearity applied by a layer after its affine map.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Hash, Serialize, Deserialize)]
@@ -52,7 +52,7 @@ pub enum Activation {
 
 impl Activation {
     /// Whether this activation may be used by a hidden layer (all but softmax).
-    pub fn valid_for_hidden(self) -> bool {
+    pub(crate) fn valid_for_hidden(self) -> bool {
         self != Activation::Softmax
     }
 
@@ -98,7 +98,7 @@ impl Activation {
 
     /// Turns `grad`, holding `∂L/∂a` for this layer's outputs `a`, into
     /// `∂L/∂z` in place (the chain rule through the activation).
-    pub fn backprop<F: Float>(self, a: ArrayView2<F>, mut grad: ArrayViewMut2<F>) {
+    pub(crate) fn backprop<F: Float>(self, a: ArrayView2<F>, mut grad: ArrayViewMut2<F>) {
         assert_eq!(a.dim(), grad.dim(), "activations and gradient shapes");
         let (zero, one, slope) = (F::zero(), F::one(), F::round_from(LEAKY_SLOPE));
         if let (Some(a), Some(g)) = (a.as_slice(), grad.as_slice_mut())
@@ -158,7 +158,7 @@ fn zip_slices<F: Float>(g: &mut [F], a: &[F], f: impl Fn(&mut F, F)) {
 /// `z` in a batch is close to random, and a mispredicted branch per unit cost
 /// more than the arithmetic.
 #[inline]
-pub fn sigmoid<F: Float>(z: F) -> F {
+pub(crate) fn sigmoid<F: Float>(z: F) -> F {
     let e = (-z.abs()).vector_exp();
     let numerator = if z >= F::zero() { F::one() } else { e };
     numerator / (F::one() + e)

@@ -28,7 +28,7 @@ pub enum Precision {
 
 impl Precision {
     /// Whether this is the default, `f64`.
-    pub fn is_f64(&self) -> bool {
+    pub(crate) fn is_f64(&self) -> bool {
         *self == Precision::F64
     }
 }

@@ -62,7 +62,7 @@ impl Loss {
     ///
     /// # Panics
     /// If the shapes differ, or the combination is not [`supported`](Self::supports).
-    pub fn total<F: Float>(
+    pub(crate) fn total<F: Float>(
         self,
         output: Activation,
         outputs: ArrayView2<F>,
@@ -99,7 +99,7 @@ impl Loss {
     ///
     /// # Panics
     /// If the shapes differ, or the combination is not [`supported`](Self::supports).
-    pub fn output_delta<F: Float>(
+    pub(crate) fn output_delta<F: Float>(
         self,
         output: Activation,
         outputs: ArrayView2<F>,

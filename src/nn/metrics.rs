@@ -22,30 +22,30 @@ use super::loss::Loss;
 
 /// Scores for a classifier.
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
-pub struct ClassificationMetrics {
+pub(crate) struct ClassificationMetrics {
     /// Fraction of rows whose predicted class is the true class.
-    pub accuracy: f64,
+    pub(crate) accuracy: f64,
     /// Mean cross-entropy of the outputs.
-    pub log_loss: f64,
+    pub(crate) log_loss: f64,
     /// `confusion[true][predicted]` row counts.
-    pub confusion: Vec<Vec<usize>>,
+    pub(crate) confusion: Vec<Vec<usize>>,
     /// Per class: true positives / predicted positives; `None` when the class
     /// was never predicted.
-    pub precision: Vec<Option<f64>>,
+    pub(crate) precision: Vec<Option<f64>>,
     /// Per class: true positives / actual positives; `None` when the class
     /// never occurs.
-    pub recall: Vec<Option<f64>>,
+    pub(crate) recall: Vec<Option<f64>>,
 }
 
 /// Scores for a regressor.
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
-pub struct RegressionMetrics {
+pub(crate) struct RegressionMetrics {
     /// Mean of `(o − t)²` over all elements.
-    pub mse: f64,
+    pub(crate) mse: f64,
     /// Mean of `|o − t|` over all elements.
-    pub mae: f64,
+    pub(crate) mae: f64,
     /// Coefficient of determination, averaged over output columns.
-    pub r2: f64,
+    pub(crate) r2: f64,
 }
 
 /// Classification scores of `outputs` (probabilities) against `targets`
@@ -53,7 +53,7 @@ pub struct RegressionMetrics {
 ///
 /// # Panics
 /// If the shapes differ or there are no rows or columns.
-pub fn classification_metrics(
+pub(crate) fn classification_metrics(
     targets: ArrayView2<f64>,
     outputs: ArrayView2<f64>,
 ) -> ClassificationMetrics {
@@ -99,7 +99,10 @@ pub fn classification_metrics(
 ///
 /// # Panics
 /// If the shapes differ or there are no rows or columns.
-pub fn regression_metrics(targets: ArrayView2<f64>, outputs: ArrayView2<f64>) -> RegressionMetrics {
+pub(crate) fn regression_metrics(
+    targets: ArrayView2<f64>,
+    outputs: ArrayView2<f64>,
+) -> RegressionMetrics {
     check(targets, outputs);
     let count = targets.len() as f64;
     let errors = &outputs - &targets;

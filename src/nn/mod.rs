@@ -43,13 +43,13 @@
 //! ```
 
 pub mod activation;
-pub mod backprop;
-pub mod float;
+pub(crate) mod backprop;
+pub(crate) mod float;
 mod gemm;
-pub mod loss;
-pub mod metrics;
+pub(crate) mod loss;
+pub(crate) mod metrics;
 pub mod network;
-pub mod optimizer;
+pub(crate) mod optimizer;
 mod rows;
 pub mod train;
 mod vector;
@@ -58,20 +58,20 @@ pub use activation::Activation;
 pub use backprop::{LayerGradient, gradients};
 pub use float::{Float, Precision};
 pub use loss::Loss;
-pub use metrics::{
+pub(crate) use metrics::{
     ClassificationMetrics, RegressionMetrics, classification_metrics, regression_metrics,
 };
-pub use network::{Init, Layer, Network, NetworkError};
+pub use network::{Init, Layer, Network};
 pub use optimizer::Optimizer;
 pub use rows::Rows;
+pub use train::evaluate;
 pub use train::{
-    BatchSize, EpochLosses, Evaluation, StopReason, TrainConfig, TrainOutcome, evaluate, mean_loss,
-    train, train_at, train_rows, train_with_progress,
+    BatchSize, StopReason, TrainConfig, TrainOutcome, mean_loss, train, train_at, train_rows,
 };
 
 /// ChaCha8 stream used for initial weights. Initialisation and shuffling use
 /// different streams so that the same seed value given to both does not
 /// make them draw the same numbers.
-pub const INIT_STREAM: u64 = 1;
+pub(crate) const INIT_STREAM: u64 = 1;
 /// ChaCha8 stream used for the per-epoch row order.
-pub const SHUFFLE_STREAM: u64 = 2;
+pub(crate) const SHUFFLE_STREAM: u64 = 2;

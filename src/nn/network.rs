@@ -66,7 +66,7 @@ pub struct Network<F = f64> {
 
 /// Why a list of layers does not form a network.
 #[derive(Clone, Debug, PartialEq, Eq, Error)]
-pub enum NetworkError {
+pub(crate) enum NetworkError {
     /// There were no layers.
     #[error("a network needs at least one layer")]
     Empty,
@@ -110,12 +110,12 @@ pub enum NetworkError {
 
 impl<F: Float> Layer<F> {
     /// Number of inputs (rows of `weights`).
-    pub fn inputs(&self) -> usize {
+    pub(crate) fn inputs(&self) -> usize {
         self.weights.nrows()
     }
 
     /// Number of units (columns of `weights`).
-    pub fn outputs(&self) -> usize {
+    pub(crate) fn outputs(&self) -> usize {
         self.weights.ncols()
     }
 
@@ -211,7 +211,7 @@ impl Network {
     /// A network from explicit layers, checking that their shapes chain and
     /// that softmax appears only on the output layer. Weight matrices are
     /// stored in standard (row-major) layout.
-    pub fn try_from_layers(mut layers: Vec<Layer>) -> Result<Network, NetworkError> {
+    pub(crate) fn try_from_layers(mut layers: Vec<Layer>) -> Result<Network, NetworkError> {
         if layers.is_empty() {
             return Err(NetworkError::Empty);
         }
@@ -272,7 +272,7 @@ impl<F: Float> Network<F> {
     }
 
     /// Number of input features.
-    pub fn input_size(&self) -> usize {
+    pub(crate) fn input_size(&self) -> usize {
         self.layers[0].inputs()
     }
 

@@ -51,7 +51,7 @@ impl<'a> Rows<'a> {
     ///
     /// # Panics
     /// If an index is out of range.
-    pub fn pick(self, indices: &'a [usize]) -> Rows<'a> {
+    pub(crate) fn pick(self, indices: &'a [usize]) -> Rows<'a> {
         let total = self.x.nrows();
         assert!(indices.iter().all(|&i| i < total), "row index out of range");
         // All rows in order read as plain views, without gathering.
@@ -66,7 +66,7 @@ impl<'a> Rows<'a> {
     ///
     /// # Panics
     /// If either slice does not have one entry per input column.
-    pub fn scaled(self, offset: &'a [f64], divisor: &'a [f64]) -> Rows<'a> {
+    pub(crate) fn scaled(self, offset: &'a [f64], divisor: &'a [f64]) -> Rows<'a> {
         let columns = self.x.ncols();
         assert!(
             offset.len() == columns && divisor.len() == columns,
@@ -81,22 +81,22 @@ impl<'a> Rows<'a> {
     }
 
     /// Number of rows.
-    pub fn len(&self) -> usize {
+    pub(crate) fn len(&self) -> usize {
         self.pick.map_or(self.x.nrows(), <[usize]>::len)
     }
 
     /// Whether there are no rows.
-    pub fn is_empty(&self) -> bool {
+    pub(crate) fn is_empty(&self) -> bool {
         self.len() == 0
     }
 
     /// Input columns.
-    pub fn inputs(&self) -> usize {
+    pub(crate) fn inputs(&self) -> usize {
         self.x.ncols()
     }
 
     /// Target columns.
-    pub fn targets(&self) -> usize {
+    pub(crate) fn targets(&self) -> usize {
         self.y.ncols()
     }
 
@@ -154,7 +154,7 @@ impl<'a> Rows<'a> {
     }
 
     /// The targets of these rows.
-    pub fn target_matrix(&self) -> Array2<f64> {
+    pub(crate) fn target_matrix(&self) -> Array2<f64> {
         match self.pick {
             None => self.y.to_owned(),
             Some(pick) => self.y.select(ndarray::Axis(0), pick),

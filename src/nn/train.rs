@@ -129,7 +129,7 @@ pub struct EpochLosses {
     /// Row-weighted mean of the epoch's batch losses.
     pub train: f64,
     /// [`mean_loss`] on the validation data after the epoch, if given.
-    pub validation: Option<f64>,
+    pub(crate) validation: Option<f64>,
 }
 
 /// The result of [`train`].
@@ -149,7 +149,7 @@ pub struct TrainOutcome {
     pub epochs_run: usize,
     /// 1-based epoch with the lowest monitored loss; `Some` only when
     /// `patience` is set and at least one epoch completed.
-    pub best_epoch: Option<usize>,
+    pub(crate) best_epoch: Option<usize>,
 }
 
 /// Fits `network` to inputs `x` and targets `y` (rows are samples), with
@@ -189,7 +189,7 @@ pub fn train_rows(
 ///
 /// # Panics
 /// As [`train`].
-pub fn train_with_progress(
+pub(crate) fn train_with_progress(
     network: Network,
     rows: Rows,
     validation: Option<Rows>,
@@ -343,11 +343,11 @@ pub fn mean_loss(network: &Network, x: ArrayView2<f64>, y: ArrayView2<f64>, loss
 #[derive(Clone, Debug, PartialEq)]
 pub struct Evaluation {
     /// One row of outputs per data row.
-    pub outputs: Array2<f64>,
+    pub(crate) outputs: Array2<f64>,
     /// The rows' targets.
-    pub targets: Array2<f64>,
+    pub(crate) targets: Array2<f64>,
     /// [`mean_loss`] of the outputs.
-    pub mean_loss: f64,
+    pub(crate) mean_loss: f64,
 }
 
 /// Runs `network` on `rows` and measures the loss, as [`mean_loss`] does.

@@ -10,12 +10,12 @@ use std::path::{Path, PathBuf};
 #[derive(Clone, Debug)]
 pub(crate) struct InputFile {
     /// The path as written in the document.
-    pub written: String,
+    pub(crate) written: String,
     pub path: PathBuf,
-    pub hash: blake3::Hash,
+    pub(crate) hash: blake3::Hash,
     /// Its length when it was hashed: reading stops one byte past it, since more
     /// bytes mean the file changed.
-    pub bytes: u64,
+    pub(crate) bytes: u64,
     /// Line breaks in the file when it was hashed: at least the rows a CSV file holds
     /// (a quoted field may hold more), which the plan's work estimate multiplies.
     pub lines: u64,

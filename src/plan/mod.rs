@@ -38,7 +38,7 @@ pub(crate) fn short_key(key: &str) -> &str {
 #[derive(Clone, Debug)]
 pub struct PlannedStep {
     pub id: String,
-    pub(crate) kind: StepKind,
+    pub kind: StepKind,
     pub(crate) spec: StepSpec,
     /// The settings its block wrote (the rest are defaults).
     pub(crate) written: Written,
@@ -98,7 +98,7 @@ pub struct FitPlan {
     /// Index of the data step the runs read.
     pub(crate) data: usize,
     pub(crate) net: NetSpec,
-    pub(crate) train: TrainSpec,
+    pub train: TrainSpec,
     pub runs: Vec<RunPlan>,
 }
 

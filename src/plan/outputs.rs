@@ -118,7 +118,7 @@ pub(crate) fn command_output(written: &Path, project: &Path) -> Result<PathBuf, 
 pub(crate) struct Output {
     pub path: PathBuf,
     /// As the document wrote it, for messages.
-    pub written: String,
+    pub(crate) written: String,
 }
 
 /// Another use of a path, which no output may take.
@@ -126,7 +126,7 @@ pub(crate) struct Output {
 pub(crate) struct Claim {
     pub path: PathBuf,
     /// The use, as it reads after "would overwrite": "the report", "the file step 'hives' reads".
-    pub what: String,
+    pub(crate) what: String,
 }
 
 impl Claim {
@@ -200,8 +200,8 @@ pub(crate) fn absolute(path: &Path) -> PathBuf {
 /// Where a build writes its report and summary, resolved.
 #[derive(Clone, Debug)]
 pub(crate) struct BuildTargets {
-    pub report: PathBuf,
-    pub json: Option<PathBuf>,
+    pub(crate) report: PathBuf,
+    pub(crate) json: Option<PathBuf>,
 }
 
 /// What a build may not write.
@@ -219,11 +219,11 @@ pub(crate) enum BuildRefusal {
 
 /// The paths a build is about to use besides its steps' files.
 pub(crate) struct BuildPaths<'a> {
-    pub document: &'a Path,
+    pub(crate) document: &'a Path,
     /// The report path, and the flag that named it (or how it was chosen).
-    pub report: (&'a Path, &'static str),
-    pub json: Option<&'a Path>,
-    pub cache: Option<&'a Path>,
+    pub(crate) report: (&'a Path, &'static str),
+    pub(crate) json: Option<&'a Path>,
+    pub(crate) cache: Option<&'a Path>,
 }
 
 /// Checks the report and summary paths against the document, the files the steps read,

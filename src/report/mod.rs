@@ -11,7 +11,7 @@ pub(crate) mod settings;
 pub(crate) mod summary;
 pub(crate) mod view;
 
-use std::path::Path;
+use std::path::{Path, PathBuf};
 
 use minijinja::Environment;
 use pulldown_cmark::{Event, Parser, Tag};
@@ -51,9 +51,9 @@ impl Templates {
     }
 
     /// The built-in templates, each replaced by a file of the same name in `dir` if present.
-    pub(crate) fn with_overrides(dir: &Path) -> Result<Templates, String> {
+    pub(crate) fn with_overrides(dir: &Path) -> Result<Templates, TemplateError> {
         if !dir.is_dir() {
-            return Err(format!("--templates {}: no such folder", dir.display()));
+            return Err(TemplateError::NoFolder(dir.to_path_buf()));
         }
         let mut env = Environment::new();
         for (name, text) in BUILT_IN {
@@ -61,13 +61,31 @@ impl Templates {
             let source = match std::fs::read_to_string(&path) {
                 Ok(source) => source,
                 Err(error) if error.kind() == std::io::ErrorKind::NotFound => text.to_string(),
-                Err(error) => return Err(format!("reading {}: {error}", path.display())),
+                Err(source) => return Err(TemplateError::Unreadable { path, source }),
             };
-            env.add_template_owned(name.to_string(), source)
-                .map_err(|error| format!("template {}: {error}", path.display()))?;
+            if let Err(source) = env.add_template_owned(name.to_string(), source) {
+                return Err(TemplateError::Invalid { path, source });
+            }
         }
         Ok(Templates { env })
     }
+}
+
+/// Why a `--templates` folder cannot be used.
+#[derive(Debug, thiserror::Error)]
+pub enum TemplateError {
+    #[error("--templates {}: no such folder", .0.display())]
+    NoFolder(PathBuf),
+    #[error("reading {}: {source}", path.display())]
+    Unreadable {
+        path: PathBuf,
+        source: std::io::Error,
+    },
+    #[error("template {}: {source}", path.display())]
+    Invalid {
+        path: PathBuf,
+        source: minijinja::Error,
+    },
 }
 
 /// Everything a report is made from.
@@ -346,5 +364,24 @@ mod tests {
         assert_eq!(lead, "# Title\n\nIntro.\n\n");
         assert_eq!(beside, "## Base run\n\nWhy.\n");
         assert_eq!(split_lead("Only prose.\n"), ("", "Only prose.\n"));
+    }
+
+    #[test]
+    fn a_template_that_does_not_parse_is_an_error_naming_its_file() {
+        let dir = tempfile::tempdir().unwrap();
+        let broken = dir.path().join("step.html");
+        std::fs::write(&broken, "{% if %}").unwrap();
+        let Err(error) = Templates::with_overrides(dir.path()) else {
+            panic!("a broken template was accepted");
+        };
+        assert!(
+            matches!(&error, TemplateError::Invalid { path, .. } if *path == broken),
+            "{error:?}"
+        );
+        assert!(
+            error
+                .to_string()
+                .starts_with(&format!("template {}: ", broken.display()))
+        );
     }
 }

@@ -10,7 +10,7 @@ use super::sweep::{MetricName, repeated};
 /// What the compare card charts.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize)]
 #[serde(rename_all = "snake_case")]
-pub enum ChartChoice {
+pub(crate) enum ChartChoice {
     /// Training and validation loss per epoch, one line pair per run.
     Loss,
     /// The first listed metric, one bar per run.
@@ -35,9 +35,9 @@ pub(super) struct RawCompare {
 pub struct CompareSpec {
     pub runs: Vec<String>,
     /// `None`: loss and accuracy to classify, loss, mae and r2 to regress.
-    pub metrics: Option<Vec<MetricName>>,
-    pub chart: ChartChoice,
-    pub log_scale: bool,
+    pub(crate) metrics: Option<Vec<MetricName>>,
+    pub(crate) chart: ChartChoice,
+    pub(crate) log_scale: bool,
 }
 
 pub(super) fn validate_compare(raw: RawCompare, check: &mut Checker<'_>) -> CompareSpec {

@@ -4,10 +4,10 @@
 //! which is what enters a step's cache key.
 
 mod accepts;
-pub mod compare;
-pub mod model_use;
+pub(crate) mod compare;
+pub(crate) mod model_use;
 pub mod schema;
-pub mod sweep;
+pub(crate) mod sweep;
 
 use std::sync::LazyLock;
 
@@ -17,15 +17,15 @@ use serde_yaml::{Mapping, Value};
 
 use super::StepBlock;
 use super::names::fields;
-pub use super::names::word;
+pub(crate) use super::names::word;
 use super::problem::{Problem, nearest};
 use super::yaml::{self, Block};
 use crate::data::{DataSettings, Missing, Scale, Split, Task};
 use crate::nn::{Activation, BatchSize, Init, Optimizer, Precision};
-pub use compare::{ChartChoice, CompareSpec};
-pub use model_use::{ExportSpec, PredictSpec};
+pub(crate) use compare::{ChartChoice, CompareSpec};
+pub(crate) use model_use::{ExportSpec, PredictSpec};
 use schema::{BatchSchema, Word, no_default};
-pub use sweep::{MetricName, SweepSpec};
+pub(crate) use sweep::{MetricName, SweepSpec};
 
 /// The kinds of step a document can declare.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Hash, Serialize, Deserialize)]
@@ -41,7 +41,7 @@ pub enum StepKind {
 }
 
 impl StepKind {
-    pub const ALL: [StepKind; 7] = [
+    pub(crate) const ALL: [StepKind; 7] = [
         StepKind::Data,
         StepKind::Net,
         StepKind::Train,
@@ -69,7 +69,7 @@ impl StepKind {
         }
     }
 
-    pub fn from_word(word: &str) -> Option<StepKind> {
+    pub(crate) fn from_word(word: &str) -> Option<StepKind> {
         StepKind::ALL.into_iter().find(|kind| kind.word() == word)
     }
 }
@@ -91,14 +91,14 @@ pub enum StepSpec {
 #[derive(Clone, Debug, PartialEq, Serialize)]
 pub struct DataSpec {
     /// The path as written, relative to the document's folder.
-    pub file: String,
+    pub(crate) file: String,
     pub settings: DataSettings,
 }
 
 /// The output layer's activation, or `auto` to choose it from the task.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize)]
 #[serde(rename_all = "snake_case")]
-pub enum OutputChoice {
+pub(crate) enum OutputChoice {
     Auto,
     Sigmoid,
     Softmax,
@@ -109,16 +109,16 @@ pub enum OutputChoice {
 /// `net`: the shape of a network, independent of the data it will meet.
 #[derive(Clone, Debug, PartialEq, Serialize)]
 pub struct NetSpec {
-    pub hidden: Vec<usize>,
+    pub(crate) hidden: Vec<usize>,
     pub activation: Activation,
-    pub output: OutputChoice,
-    pub init: Init,
+    pub(crate) output: OutputChoice,
+    pub(crate) init: Init,
 }
 
 /// The training objective, or `auto` to choose it from the task.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize)]
 #[serde(rename_all = "snake_case")]
-pub enum LossChoice {
+pub(crate) enum LossChoice {
     Auto,
     Mse,
     CrossEntropy,
@@ -127,27 +127,27 @@ pub enum LossChoice {
 /// `train`: which data and net, and how to fit them.
 #[derive(Clone, Debug, PartialEq, Serialize)]
 pub struct TrainSpec {
-    pub data: String,
-    pub net: String,
-    pub loss: LossChoice,
-    pub optimizer: Optimizer,
-    pub batch: BatchSize,
-    pub epochs: usize,
+    pub(crate) data: String,
+    pub(crate) net: String,
+    pub(crate) loss: LossChoice,
+    pub(crate) optimizer: Optimizer,
+    pub(crate) batch: BatchSize,
+    pub(crate) epochs: usize,
     pub target_loss: Option<f64>,
-    pub patience: Option<usize>,
-    pub l2: f64,
-    pub shuffle: bool,
-    pub seed: u64,
+    pub(crate) patience: Option<usize>,
+    pub(crate) l2: f64,
+    pub(crate) shuffle: bool,
+    pub(crate) seed: u64,
     /// Left out of the serialisation (and so of cache keys) at its default, `f64`, so
     /// that the keys of runs written before the setting existed stay valid.
     #[serde(skip_serializing_if = "Precision::is_f64")]
-    pub precision: Precision,
+    pub(crate) precision: Precision,
 }
 
 /// The settings a block wrote, by name; the rest took their defaults. Kept beside a
 /// spec rather than in it, so it never enters the spec's serialisation (its key).
 #[derive(Clone, Debug, Default, PartialEq, Eq)]
-pub struct Written(Vec<&'static str>);
+pub(crate) struct Written(Vec<&'static str>);
 
 impl Written {
     /// The keys of a block's settings that are among `known` (deserialising the
@@ -162,7 +162,7 @@ impl Written {
         )
     }
 
-    pub fn contains(&self, setting: &str) -> bool {
+    pub(crate) fn contains(&self, setting: &str) -> bool {
         self.0.contains(&setting)
     }
 
@@ -174,9 +174,9 @@ impl Written {
 
 /// One step's validated settings and which of them the block wrote.
 #[derive(Clone, Debug)]
-pub struct ParsedStep {
-    pub spec: StepSpec,
-    pub written: Written,
+pub(crate) struct ParsedStep {
+    pub(crate) spec: StepSpec,
+    pub(crate) written: Written,
 }
 
 fn reference<'a>(id: &'a str, setting: &'static str, kinds: &'static [StepKind]) -> Reference<'a> {
@@ -184,15 +184,15 @@ fn reference<'a>(id: &'a str, setting: &'static str, kinds: &'static [StepKind])
 }
 
 /// A step id that a step reads, the setting that names it, and the kinds it may be.
-pub struct Reference<'a> {
+pub(crate) struct Reference<'a> {
     pub id: &'a str,
-    pub setting: &'static str,
-    pub kinds: &'static [StepKind],
+    pub(crate) setting: &'static str,
+    pub(crate) kinds: &'static [StepKind],
 }
 
 impl StepSpec {
     /// The steps this one reads, in the order its upstream results are used.
-    pub fn references(&self) -> Vec<Reference<'_>> {
+    pub(crate) fn references(&self) -> Vec<Reference<'_>> {
         match self {
             StepSpec::Data(_) | StepSpec::Net(_) => Vec::new(),
             StepSpec::Train(train) => vec![
@@ -256,7 +256,7 @@ pub(crate) static NET_KEYS: LazyLock<&[&str]> = LazyLock::new(fields::<RawNet>);
 
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize)]
 #[serde(rename_all = "snake_case")]
-pub enum OptimizerKind {
+pub(crate) enum OptimizerKind {
     Sgd,
     Adam,
 }
@@ -330,11 +330,11 @@ mod rows_or_full {
 /// Checks of one block's values, each reported at the line of its key.
 pub(crate) struct Checker<'a> {
     /// The block as written, to find a key's line; `None` for settings made by a sweep.
-    pub block: Option<Block<'a>>,
+    pub(crate) block: Option<Block<'a>>,
     /// Where a problem points when its key's line is not found.
-    pub fallback: std::ops::Range<usize>,
+    pub(crate) fallback: std::ops::Range<usize>,
     /// Put before each message (a sweep says which combination it was checking).
-    pub prefix: String,
+    pub(crate) prefix: String,
     pub problems: &'a mut Vec<Problem>,
 }
 
@@ -369,7 +369,7 @@ pub(crate) fn key_span(block: Block<'_>, key: &str) -> Option<std::ops::Range<us
 }
 
 /// Parses and validates one step's settings; `None` when a problem was recorded.
-pub fn parse_step(
+pub(crate) fn parse_step(
     step: &StepBlock,
     default_seed: u64,
     problems: &mut Vec<Problem>,

@@ -23,11 +23,11 @@ pub(super) struct RawPredict {
 /// `predict`: a trained model applied to the rows of a CSV file.
 #[derive(Clone, Debug, PartialEq, Serialize)]
 pub struct PredictSpec {
-    pub model: String,
+    pub(crate) model: String,
     /// The CSV of new rows, relative to the document's folder.
-    pub file: String,
+    pub(crate) file: String,
     /// Where to save the predictions as CSV, relative to the document's folder.
-    pub write: Option<String>,
+    pub(crate) write: Option<String>,
 }
 
 pub(super) fn validate_predict(raw: RawPredict, check: &mut Checker<'_>) -> PredictSpec {
@@ -67,9 +67,9 @@ pub(super) struct RawExport {
 /// `export`: a trained model written as JSON for use from other programs.
 #[derive(Clone, Debug, PartialEq, Serialize)]
 pub struct ExportSpec {
-    pub model: String,
+    pub(crate) model: String,
     /// The JSON file to write, relative to the document's folder.
-    pub write: String,
+    pub(crate) write: String,
 }
 
 pub(super) fn validate_export(raw: RawExport, check: &mut Checker<'_>) -> ExportSpec {

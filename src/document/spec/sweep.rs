@@ -17,7 +17,7 @@ use crate::nn::{Activation, BatchSize, Init, Precision};
 /// A metric a sweep can rank by or a compare step can show.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Hash, Serialize, Deserialize)]
 #[serde(rename_all = "snake_case")]
-pub enum MetricName {
+pub(crate) enum MetricName {
     Loss,
     Accuracy,
     LogLoss,
@@ -28,12 +28,12 @@ pub enum MetricName {
 
 impl MetricName {
     /// The name used in summaries and the metric tables.
-    pub fn key(self) -> &'static str {
+    pub(crate) fn key(self) -> &'static str {
         super::word(&self)
     }
 
     /// Whether a larger value is better (accuracy, R²) or worse (the losses and errors).
-    pub fn higher_is_better(self) -> bool {
+    pub(crate) fn higher_is_better(self) -> bool {
         matches!(self, MetricName::Accuracy | MetricName::R2)
     }
 }
@@ -53,13 +53,13 @@ pub(super) struct RawSweep {
 /// `sweep`: a train step run once per combination of the varied settings.
 #[derive(Clone, Debug, PartialEq, Serialize)]
 pub struct SweepSpec {
-    pub from: String,
+    pub(crate) from: String,
     /// Setting name → the values to try, in the order written.
-    pub vary: Vec<(String, Vec<Value>)>,
+    pub(crate) vary: Vec<(String, Vec<Value>)>,
     /// Seeds per combination: the train step's seed, then the next ones.
-    pub repeat: usize,
+    pub(crate) repeat: usize,
     /// `None`: held-out accuracy to classify, held-out loss to regress.
-    pub rank_by: Option<MetricName>,
+    pub(crate) rank_by: Option<MetricName>,
 }
 
 /// Settings a sweep cannot vary: they choose which steps a run reads.
@@ -129,7 +129,7 @@ pub(super) fn repeated<T: PartialEq>(values: &[T]) -> Option<&T> {
 
 impl SweepSpec {
     /// Every combination of the varied values, the first setting varying slowest.
-    pub fn combinations(&self) -> Vec<Vec<(String, Value)>> {
+    pub(crate) fn combinations(&self) -> Vec<Vec<(String, Value)>> {
         let mut grid: Vec<Vec<(String, Value)>> = vec![Vec::new()];
         for (name, values) in &self.vary {
             grid = grid
@@ -148,7 +148,7 @@ impl SweepSpec {
 }
 
 /// A value as the report shows it, in YAML's flow style (`[12, 6]`, `relu`, `0.01`).
-pub fn value_text(value: &Value) -> String {
+pub(crate) fn value_text(value: &Value) -> String {
     match value {
         Value::Null => "null".into(),
         Value::Bool(b) => b.to_string(),
@@ -174,7 +174,7 @@ pub fn value_text(value: &Value) -> String {
 /// sweep's results) as `{setting: value}`.
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
 #[serde(rename_all = "snake_case")]
-pub enum Override {
+pub(crate) enum Override {
     Loss(Option<LossChoice>),
     Optimizer(Option<OptimizerKind>),
     LearningRate(Option<f64>),
@@ -244,8 +244,8 @@ impl Override {
 /// A varied setting's value in one combination, and the value as the document wrote it.
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
 pub struct Varied {
-    pub name: String,
-    pub value: Override,
+    pub(crate) name: String,
+    pub(crate) value: Override,
     /// For display, in YAML's flow style (`[12, 6]`, `relu`, `0.01`).
     pub text: String,
 }
@@ -274,22 +274,22 @@ fn describe_text<'a>(settings: impl Iterator<Item = (&'a String, String)>) -> St
 }
 
 /// One combination of a sweep: its varied settings and the specs they make.
-pub struct Variant {
+pub(crate) struct Variant {
     pub settings: Vec<Varied>,
-    pub net: NetSpec,
+    pub(crate) net: NetSpec,
     pub train: TrainSpec,
 }
 
 /// A validated spec and the settings its block wrote.
-pub struct Base<'a, T> {
-    pub spec: &'a T,
-    pub written: &'a Written,
+pub(crate) struct Base<'a, T> {
+    pub(crate) spec: &'a T,
+    pub(crate) written: &'a Written,
 }
 
 /// The train and net settings of one combination: the base steps' written settings
 /// with the varied values put in, validated as if written there. Problems point at
 /// `span` (the sweep's `vary` line) and name the combination.
-pub fn variant(
+pub(crate) fn variant(
     train: Base<'_, TrainSpec>,
     net: Base<'_, NetSpec>,
     combination: &[(String, Value)],
