@@ -3,33 +3,8 @@
 
 mod common;
 
-use common::{Workspace, step};
+use common::{Workspace, one_problem, problems_in, step};
 use stet::plan::PlanOptions;
-
-/// The `line:column: message` of every problem found in a document.
-fn problems(ws: &Workspace, text: &str) -> Vec<(String, String, Option<String>)> {
-    let path = ws.write("doc.md", text);
-    match stet::load(&path, &PlanOptions::default()) {
-        Ok(_) => Vec::new(),
-        Err(stet::Error::Document(errors)) => errors
-            .problems
-            .iter()
-            .map(|p| {
-                let location = errors.location(p);
-                let short = location.rsplit_once("doc.md:").unwrap().1.to_string();
-                (short, p.message.clone(), p.help.clone())
-            })
-            .collect(),
-        Err(other) => panic!("not a document error: {other}"),
-    }
-}
-
-fn one_problem(text: &str) -> (String, String, Option<String>) {
-    let ws = Workspace::new();
-    let mut found = problems(&ws, text);
-    assert_eq!(found.len(), 1, "{found:?}");
-    found.remove(0)
-}
 
 const DATA: &str = "```yaml data iris\nfile: iris.csv\ntarget: species\n```\n\n```yaml net n\nhidden: [4]\n```\n\n";
 
@@ -93,7 +68,7 @@ fn an_unknown_precision_points_at_its_line_and_names_both() {
 fn out_of_range_values_each_point_at_their_line() {
     let ws = Workspace::new();
     let text = "```yaml data iris\nfile: iris.csv\ntarget: species\nholdout: 1.0\n```\n\n```yaml net n\nhidden: [4, 0]\n```\n\n```yaml train t\ndata: iris\nnet: n\nlearning_rate: -0.1\nbatch: 0\n```\n";
-    let found = problems(&ws, text);
+    let found = problems_in(&ws, text);
     let lines: Vec<&str> = found
         .iter()
         .map(|(at, _, _)| at.split(':').next().unwrap())
@@ -119,7 +94,7 @@ fn a_duplicate_id_names_the_first_definition() {
 #[test]
 fn references_to_missing_or_wrong_steps_point_at_the_setting() {
     let ws = Workspace::new();
-    let found = problems(
+    let found = problems_in(
         &ws,
         &format!("{DATA}```yaml train t\ndata: irsi\nnet: iris\n```\n"),
     );
@@ -145,7 +120,7 @@ fn a_missing_data_file_points_at_the_file_setting() {
 #[test]
 fn every_problem_is_reported_not_just_the_first() {
     let ws = Workspace::new();
-    let found = problems(
+    let found = problems_in(
         &ws,
         "```yaml data d\nfile: a.csv\ntarget: y\n```\n\n```yaml nett n\n```\n\n```yaml train t\ndata: d\nnet: n\nmomentum: 2\n```\n",
     );
@@ -164,7 +139,7 @@ fn a_misspelt_kind_with_the_data_file_present_is_a_located_error() {
     // The data file is present, so planning reaches the train step, whose net is
     // the unreadable block.
     let ws = Workspace::new();
-    let found = problems(
+    let found = problems_in(
         &ws,
         "```yaml data d\nfile: iris.csv\ntarget: species\n```\n\n```yaml nett n\n```\n\n```yaml train t\ndata: d\nnet: n\n```\n",
     );
@@ -210,7 +185,7 @@ fn a_data_path_outside_the_project_is_refused_unless_allowed() {
     );
     // A symbolic link inside the project that leads outside is refused the same way.
     std::os::unix::fs::symlink(outside.path().join("secret.csv"), ws.path("link.csv")).unwrap();
-    let linked = problems(
+    let linked = problems_in(
         &ws,
         "```yaml data d\nfile: link.csv\ntarget: species\n```\n",
     );

@@ -5,36 +5,7 @@
 
 mod common;
 
-use common::{Workspace, stet};
-use stet::plan::PlanOptions;
-
-/// `(line:column, message, help)` of every problem `stet::load` finds in `text`.
-fn problems_in(ws: &Workspace, text: &str) -> Vec<(String, String, Option<String>)> {
-    let path = ws.write("doc.md", text);
-    match stet::load(&path, &PlanOptions::default()) {
-        Ok(_) => Vec::new(),
-        Err(stet::Error::Document(errors)) => errors
-            .problems
-            .iter()
-            .map(|p| {
-                let location = errors.location(p);
-                let short = location.rsplit_once("doc.md:").unwrap().1.to_string();
-                (short, p.message.clone(), p.help.clone())
-            })
-            .collect(),
-        Err(other) => panic!("not a document error: {other}"),
-    }
-}
-
-fn problems(text: &str) -> Vec<(String, String, Option<String>)> {
-    problems_in(&Workspace::new(), text)
-}
-
-fn one_problem(text: &str) -> (String, String, Option<String>) {
-    let mut found = problems(text);
-    assert_eq!(found.len(), 1, "{found:?}");
-    found.remove(0)
-}
+use common::{Workspace, one_problem, problems, problems_in, stet};
 
 /// An Iris document: data settings after `target`, the net's settings after `hidden`,
 /// the train's after `net`, then `rest` (further steps). The data block's extra lines

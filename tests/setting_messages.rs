@@ -4,33 +4,7 @@
 
 mod common;
 
-use common::Workspace;
-use stet::plan::PlanOptions;
-
-/// `(line:column, message, help)` of every problem `stet::load` finds in `text`.
-fn problems(text: &str) -> Vec<(String, String, Option<String>)> {
-    let ws = Workspace::new();
-    let path = ws.write("doc.md", text);
-    match stet::load(&path, &PlanOptions::default()) {
-        Ok(_) => Vec::new(),
-        Err(stet::Error::Document(errors)) => errors
-            .problems
-            .iter()
-            .map(|p| {
-                let location = errors.location(p);
-                let short = location.rsplit_once("doc.md:").unwrap().1.to_string();
-                (short, p.message.clone(), p.help.clone())
-            })
-            .collect(),
-        Err(other) => panic!("not a document error: {other}"),
-    }
-}
-
-fn one_problem(text: &str) -> (String, String, Option<String>) {
-    let mut found = problems(text);
-    assert_eq!(found.len(), 1, "{found:?}");
-    found.remove(0)
-}
+use common::one_problem;
 
 /// Iris (tests/data/iris.csv) with a net and a train step whose settings are appended;
 /// line 11 is the train step's first setting after `net: n`.

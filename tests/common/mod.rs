@@ -93,6 +93,39 @@ impl Workspace {
     }
 }
 
+/// A document problem as `(line:column, message, help)`.
+pub type Located = (String, String, Option<String>);
+
+/// Every problem `stet::load` finds in `text`, written as `doc.md` in `ws`.
+pub fn problems_in(ws: &Workspace, text: &str) -> Vec<Located> {
+    let path = ws.write("doc.md", text);
+    match stet::load(&path, &stet::plan::PlanOptions::default()) {
+        Ok(_) => Vec::new(),
+        Err(stet::Error::Document(errors)) => errors
+            .problems
+            .iter()
+            .map(|p| {
+                let location = errors.location(p);
+                let short = location.rsplit_once("doc.md:").unwrap().1.to_string();
+                (short, p.message.clone(), p.help.clone())
+            })
+            .collect(),
+        Err(other) => panic!("not a document error: {other}"),
+    }
+}
+
+/// Every problem in `text`, in a fresh workspace.
+pub fn problems(text: &str) -> Vec<Located> {
+    problems_in(&Workspace::new(), text)
+}
+
+/// The one problem in `text`, in a fresh workspace.
+pub fn one_problem(text: &str) -> Located {
+    let mut found = problems(text);
+    assert_eq!(found.len(), 1, "{found:?}");
+    found.remove(0)
+}
+
 /// Runs the stet binary in `dir` with `args`, with `STET_CACHE` unset.
 pub fn stet(args: &[String], dir: &Path) -> Output {
     Command::new(env!("CARGO_BIN_EXE_stet"))
