@@ -185,3 +185,41 @@ pub fn numbers_only(value: &Value) -> Value {
         other => other.clone(),
     }
 }
+
+/// The Python interpreter named by `STET_PYTHON` (with the reference libraries from
+/// `.ci/run`), or `None` with a note on stderr so the caller can skip. CI sets
+/// `STET_REQUIRE_PYTHON`, which turns a missing interpreter into a failure.
+pub fn reference_python(check: &str) -> Option<PathBuf> {
+    match std::env::var_os("STET_PYTHON") {
+        Some(python) => Some(PathBuf::from(python)),
+        None => {
+            assert!(
+                std::env::var_os("STET_REQUIRE_PYTHON").is_none(),
+                "STET_REQUIRE_PYTHON is set but STET_PYTHON is not ({check})"
+            );
+            eprintln!("skipping {check}: STET_PYTHON is not set");
+            None
+        }
+    }
+}
+
+/// Whether headless Chromium and chromedriver are installed (with selenium in the
+/// reference Python) so a browser test can run; `false` with a note on stderr otherwise.
+/// CI sets `STET_REQUIRE_BROWSER`, which turns a missing browser into a failure.
+pub fn browser_available(check: &str) -> bool {
+    let found = |program: &str| {
+        Command::new(program)
+            .arg("--version")
+            .output()
+            .is_ok_and(|out| out.status.success())
+    };
+    let ready = found("chromium") && found("chromedriver");
+    if !ready {
+        assert!(
+            std::env::var_os("STET_REQUIRE_BROWSER").is_none(),
+            "STET_REQUIRE_BROWSER is set but chromium or chromedriver is missing ({check})"
+        );
+        eprintln!("skipping {check}: chromium or chromedriver is not installed");
+    }
+    ready
+}
