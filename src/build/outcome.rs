@@ -6,6 +6,7 @@ use serde::{Deserialize, Serialize};
 use crate::data::{InputColumn, Scale, Task};
 use crate::document::spec::MetricName;
 use crate::document::spec::sweep::Varied;
+use crate::export::ExportResult;
 use crate::nn::{Activation, ClassificationMetrics, Loss, RegressionMetrics, TrainOutcome};
 
 /// Wall-clock seconds.
@@ -144,12 +145,6 @@ pub(crate) struct PredictResult {
     pub outputs: Vec<Vec<f64>>,
     /// The new rows with the predictions appended, as CSV.
     pub csv: String,
-}
-
-/// An export step's result: the model as JSON text.
-#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
-pub(crate) struct ExportResult {
-    pub json: String,
 }
 
 /// A step's result.

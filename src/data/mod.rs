@@ -22,6 +22,7 @@ mod table;
 pub(crate) use encode::InputColumn;
 pub use encode::{ColumnKind, DEFAULT_MAX_CATEGORIES};
 pub(crate) use error::DataError;
+pub(crate) use scale::Scaler;
 pub use prepare::{Prepared, prepare};
 pub use settings::{DataSettings, Missing, Scale, Split, Task};
 pub(crate) use table::read_header;

@@ -4,7 +4,7 @@ use schemars::JsonSchema;
 use serde::{Deserialize, Serialize};
 
 use super::Checker;
-use super::schema::no_default;
+use super::schema::{Word, no_default};
 
 #[derive(Deserialize, JsonSchema)]
 #[serde(deny_unknown_fields)]
@@ -62,14 +62,30 @@ fn present<'de, D: serde::Deserializer<'de>>(
 pub(super) struct RawExport {
     model: String,
     write: String,
+    #[schemars(with = "Option<Word<ExportFormat>>")]
+    format: Option<ExportFormat>,
 }
 
-/// `export`: a trained model written as JSON for use from other programs.
+/// The file format an export writes.
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(rename_all = "snake_case")]
+pub(crate) enum ExportFormat {
+    /// stet's own JSON, described in the README.
+    #[default]
+    Json,
+    /// The open model-exchange standard, for runtimes and other frameworks.
+    Onnx,
+}
+
+/// `export`: a trained model written as a file for use from other programs.
 #[derive(Clone, Debug, PartialEq, Serialize)]
 pub struct ExportSpec {
     pub(crate) model: String,
-    /// The JSON file to write, relative to the document's folder.
+    /// The file to write, relative to the document's folder.
     pub(crate) write: String,
+    /// Always serialised, so that export keys from before the setting (and before the
+    /// JSON format's provenance) are not reused.
+    pub(crate) format: ExportFormat,
 }
 
 pub(super) fn validate_export(raw: RawExport, check: &mut Checker<'_>) -> ExportSpec {
@@ -79,5 +95,6 @@ pub(super) fn validate_export(raw: RawExport, check: &mut Checker<'_>) -> Export
     ExportSpec {
         model: raw.model,
         write: raw.write,
+        format: raw.format.unwrap_or_default(),
     }
 }
