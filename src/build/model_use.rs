@@ -2,11 +2,13 @@
 //! programs apply the model without stet (its file formats are `crate::export`'s). Both
 //! return data; the command layer writes any files.
 
+use serde_json::{Value, json};
+
 use crate::build::outcome::{FitResult, PredictResult};
 use crate::data::{self, Prepared, Task};
-use crate::document::spec::{ExportFormat, word};
+use crate::document::spec::{ExportFormat, TrainSpec, word};
 use crate::export::{self, ExportResult, ExportedModel, Provenance};
-use crate::nn::Network;
+use crate::nn::{BatchSize, Network, Optimizer};
 use crate::plan::Plan;
 use crate::plan::input_file::{InputFile, ReadError};
 
@@ -179,15 +181,12 @@ pub(super) fn provenance(plan: &Plan, model_step: usize, model: &FitResult) -> P
     let fit = &step.fits[0];
     let data = &plan.steps[fit.data];
     let file = &data.files[0];
-    let mut train = serde_json::to_value(&fit.train).expect("settings serialise");
-    // Left out of the key at its default; the provenance lists every setting.
-    train["precision"] = serde_json::json!(word(&fit.train.precision));
     Provenance {
         stet_version: env!("CARGO_PKG_VERSION").to_string(),
         model_step: step.id.clone(),
         run_key: fit.runs[0].key.to_string(),
         net_settings: serde_json::to_string(&fit.net).expect("settings serialise"),
-        train_settings: train.to_string(),
+        train_settings: applied_train_settings(&fit.train).to_string(),
         held_out: model.runs[0].test.as_ref().map(|metrics| {
             metrics
                 .named()
@@ -198,4 +197,39 @@ pub(super) fn provenance(plan: &Plan, model_step: usize, model: &FitResult) -> P
         data_file: file.written.clone(),
         data_hash: file.hash.to_hex().to_string(),
     }
+}
+
+/// The train settings as applied, named and shaped as a document writes them: the
+/// key's serialisation nests the optimizer's settings under its name, tags the batch
+/// size and leaves out the default precision.
+fn applied_train_settings(train: &TrainSpec) -> Value {
+    let mut settings = serde_json::to_value(train).expect("settings serialise");
+    match train.optimizer {
+        Optimizer::Sgd {
+            learning_rate,
+            momentum,
+        } => {
+            settings["optimizer"] = json!("sgd");
+            settings["learning_rate"] = json!(learning_rate);
+            settings["momentum"] = json!(momentum);
+        }
+        Optimizer::Adam {
+            learning_rate,
+            beta1,
+            beta2,
+            epsilon,
+        } => {
+            settings["optimizer"] = json!("adam");
+            settings["learning_rate"] = json!(learning_rate);
+            settings["beta1"] = json!(beta1);
+            settings["beta2"] = json!(beta2);
+            settings["epsilon"] = json!(epsilon);
+        }
+    }
+    settings["batch"] = match train.batch {
+        BatchSize::Rows(rows) => json!(rows),
+        BatchSize::Full => json!(word(&BatchSize::Full)),
+    };
+    settings["precision"] = json!(word(&train.precision));
+    settings
 }

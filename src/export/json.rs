@@ -3,8 +3,7 @@
 
 use serde_json::{Value, json};
 
-use super::{ExportedModel, Provenance, held_out_json, settings_json};
-use crate::data::ColumnKind;
+use super::{ExportedModel, Provenance, held_out_json, inputs_json, settings_json};
 use crate::document::spec::word;
 use crate::nn::Activation;
 use crate::nn::activation::LEAKY_SLOPE;
@@ -19,7 +18,7 @@ pub(super) fn encode(model: &ExportedModel, provenance: &Provenance, document_ha
         "format": "stet-model",
         "version": FORMAT_VERSION,
         "task": word(&model.task),
-        "inputs": inputs(model),
+        "inputs": inputs_json(model),
         "features": model.features,
         "scaling": {"kind": word(&scaler.kind), "offset": scaler.offset, "divisor": scaler.divisor},
         "layers": layers(model),
@@ -37,19 +36,6 @@ pub(super) fn encode(model: &ExportedModel, provenance: &Provenance, document_ha
         document["leaky_relu_slope"] = json!(LEAKY_SLOPE);
     }
     serde_json::to_string_pretty(&document).expect("a JSON value serialises")
-}
-
-fn inputs(model: &ExportedModel) -> Vec<Value> {
-    model
-        .inputs
-        .iter()
-        .map(|column| match &column.kind {
-            ColumnKind::Numeric => json!({"name": column.name, "kind": "numeric"}),
-            ColumnKind::Categorical { categories } => {
-                json!({"name": column.name, "kind": "categorical", "categories": categories})
-            }
-        })
-        .collect()
 }
 
 fn layers(model: &ExportedModel) -> Vec<Value> {

@@ -12,8 +12,9 @@ mod onnx_proto;
 pub(crate) use onnx::clashing_input_name;
 
 use serde::{Deserialize, Serialize};
+use serde_json::json;
 
-use crate::data::{InputColumn, Scaler, Task};
+use crate::data::{ColumnKind, InputColumn, Scaler, Task};
 use crate::document::spec::ExportFormat;
 use crate::nn::Network;
 
@@ -96,11 +97,26 @@ fn held_out_json(provenance: &Provenance) -> serde_json::Value {
     match &provenance.held_out {
         Some(metrics) => metrics
             .iter()
-            .map(|(name, value)| (name.clone(), serde_json::json!(value)))
+            .map(|(name, value)| (name.clone(), json!(value)))
             .collect::<serde_json::Map<_, _>>()
             .into(),
         None => serde_json::Value::Null,
     }
+}
+
+/// The input columns in order, each numeric or categorical with its categories: how
+/// a row's cells become the features (shared by both formats).
+fn inputs_json(model: &ExportedModel) -> serde_json::Value {
+    model
+        .inputs
+        .iter()
+        .map(|column| match &column.kind {
+            ColumnKind::Numeric => json!({"name": column.name, "kind": "numeric"}),
+            ColumnKind::Categorical { categories } => {
+                json!({"name": column.name, "kind": "categorical", "categories": categories})
+            }
+        })
+        .collect()
 }
 
 /// Settings kept as JSON text, read back as a value to nest in a document.

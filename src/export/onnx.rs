@@ -12,7 +12,7 @@ use super::onnx_proto::{
     NodeProto, OperatorSetIdProto, StringStringEntryProto, TensorProto, TensorShapeProto,
     TensorTypeProto, TypeProto, ValueInfoProto,
 };
-use super::{ExportedModel, Provenance, held_out_json};
+use super::{ExportedModel, Provenance, held_out_json, inputs_json};
 use crate::document::spec::word;
 use crate::nn::activation::LEAKY_SLOPE;
 use crate::nn::{Activation, Layer};
@@ -275,6 +275,7 @@ fn metadata(
         ("data_file", provenance.data_file.clone()),
         ("data_hash", provenance.data_hash.clone()),
         ("task", word(&model.task).to_string()),
+        ("inputs", inputs_json(model).to_string()),
         ("features", list(&model.features)),
         ("targets", list(&model.targets)),
     ];
