@@ -237,3 +237,39 @@ fn a_prose_edit_restamps_the_exports_document_hash_without_rerunning_it() {
     let export = read_json(ws.path("out/model.json"));
     assert_eq!(export["provenance"]["document_hash"], second["hash"]);
 }
+
+#[test]
+fn an_unknown_export_format_is_a_located_error_naming_the_formats() {
+    let ws = Workspace::new();
+    let text = MODEL.replace("write: out/model.json", "write: out/model.json\nformat: onnnx");
+    let doc = ws.write("model.md", &text);
+    let (output, summary) = ws.build(&doc, &[]);
+    let stderr = String::from_utf8_lossy(&output.stderr);
+    assert_eq!(output.status.code(), Some(2), "{stderr}");
+    assert!(summary.is_none());
+    assert!(!ws.path("out/model.json").exists());
+    let (at, message, help) = common::problems_in(&ws, &text).remove(0);
+    // The export block's `format:` line, the 28th of the document.
+    assert_eq!(at, "28:1");
+    assert_eq!(message, "format takes one of `json` or `onnx`, not 'onnnx'");
+    assert_eq!(help.as_deref(), Some("did you mean 'onnx'?"));
+}
+
+#[test]
+fn a_feature_that_cannot_name_an_onnx_input_fails_its_export_step_by_name() {
+    let ws = Workspace::new();
+    // The demo hives with `temp_c` renamed to a name stet keeps for the graph's insides.
+    let hives = std::fs::read_to_string(ws.path("demo-data/hives.csv")).unwrap();
+    ws.write("demo-data/hives.csv", &hives.replacen("temp_c", "stet:scaled", 1));
+    let text = MODEL
+        .replace("inputs: [site, temp_c,", "inputs: [site, \"stet:scaled\",")
+        .replace("write: out/model.json", "write: out/model.onnx\nformat: onnx");
+    let doc = ws.write("model.md", &text);
+    let (output, summary) = ws.build(&doc, &[]);
+    assert_eq!(output.status.code(), Some(1));
+    let export = step(summary.as_ref().unwrap(), "json");
+    assert_eq!(export["status"], "failed");
+    let error = export["error"].as_str().unwrap();
+    assert!(error.contains("'stet:scaled' cannot name an ONNX input"), "{error}");
+    assert!(!ws.path("out/model.onnx").exists());
+}
