@@ -29,6 +29,7 @@ pub use cache::pruning::Cleaning;
 pub use cluster::DispatchError;
 pub use report::TemplateError;
 
+use std::borrow::Cow;
 use std::path::{Path, PathBuf};
 use std::time::Duration;
 
@@ -490,10 +491,10 @@ fn write_model_files(plan: &Plan, document_hash: &str, records: &mut [StepResult
 }
 
 /// The bytes a predict or export step's result saves; an export names the document.
-fn model_file(record: &StepResult, document_hash: &str) -> Option<Vec<u8>> {
+fn model_file<'a>(record: &'a StepResult, document_hash: &str) -> Option<Cow<'a, [u8]>> {
     match &record.outcome {
-        Some(outcome::Outcome::Predict(result)) => Some(result.csv.as_bytes().to_vec()),
-        Some(outcome::Outcome::Export(result)) => Some(result.file(document_hash)),
+        Some(outcome::Outcome::Predict(result)) => Some(Cow::Borrowed(result.csv.as_bytes())),
+        Some(outcome::Outcome::Export(result)) => Some(Cow::Owned(result.file(document_hash))),
         _ => None,
     }
 }

@@ -273,3 +273,23 @@ fn a_feature_that_cannot_name_an_onnx_input_fails_its_export_step_by_name() {
     assert!(error.contains("'stet:scaled' cannot name an ONNX input"), "{error}");
     assert!(!ws.path("out/model.onnx").exists());
 }
+
+#[test]
+fn an_onnx_export_written_to_a_json_file_is_a_located_error() {
+    let ws = Workspace::new();
+    let text = MODEL.replace("write: out/model.json", "write: out/model.JSON\nformat: onnx");
+    let doc = ws.write("model.md", &text);
+    let (output, summary) = ws.build(&doc, &[]);
+    assert_eq!(output.status.code(), Some(2));
+    assert!(summary.is_none());
+    let problems = common::problems_in(&ws, &text);
+    assert_eq!(
+        problems,
+        vec![(
+            // The export block's `write:` line, the 27th of the document.
+            "27:1".to_string(),
+            "write names a .json file, but the export's format is onnx: set format: json or change the file's extension".to_string(),
+            None
+        )]
+    );
+}

@@ -3,7 +3,7 @@
 use schemars::JsonSchema;
 use serde::{Deserialize, Serialize};
 
-use super::Checker;
+use super::{Checker, word};
 use super::schema::{Word, no_default};
 
 #[derive(Deserialize, JsonSchema)]
@@ -92,9 +92,30 @@ pub(super) fn validate_export(raw: RawExport, check: &mut Checker<'_>) -> Export
     check.require(!raw.write.trim().is_empty(), "write", || {
         "write must name a file".into()
     });
+    let format = raw.format.unwrap_or_default();
+    if let Some(other) = format_of_extension(&raw.write).filter(|other| *other != format) {
+        check.require(false, "write", || {
+            format!(
+                "write names a .{} file, but the export's format is {}: set format: {} or change the file's extension",
+                word(&other),
+                word(&format),
+                word(&other)
+            )
+        });
+    }
     ExportSpec {
         model: raw.model,
         write: raw.write,
-        format: raw.format.unwrap_or_default(),
+        format,
     }
+}
+
+/// The export format a file's extension names, if any: a `.json` file that holds
+/// ONNX bytes (or the reverse) is a slip that the loading program would only report
+/// as a corrupt file.
+fn format_of_extension(file: &str) -> Option<ExportFormat> {
+    let extension = std::path::Path::new(file).extension()?.to_str()?;
+    [ExportFormat::Json, ExportFormat::Onnx]
+        .into_iter()
+        .find(|format| extension.eq_ignore_ascii_case(word(format)))
 }
