@@ -478,8 +478,7 @@ fn summarise(
 /// the report is still written and shows why.
 fn write_model_files(plan: &Plan, document_hash: &str, records: &mut [StepResult]) {
     for (step, record) in plan.steps.iter().zip(records.iter_mut()) {
-        let (Some(output), Some(bytes)) = (&step.output, model_file(record, document_hash))
-        else {
+        let (Some(output), Some(bytes)) = (&step.output, model_file(record, document_hash)) else {
             continue;
         };
         if let Err(error) = atomic::write(&output.path, &bytes) {

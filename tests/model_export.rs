@@ -39,9 +39,8 @@ seed: 4
 fn export_document() -> String {
     let mut text = DATA.to_string();
     for activation in HIDDEN_ACTIVATIONS {
-        text += &format!(
-            "\n```yaml net {activation}\nhidden: [6, 4]\nactivation: {activation}\n```\n"
-        );
+        text +=
+            &format!("\n```yaml net {activation}\nhidden: [6, 4]\nactivation: {activation}\n```\n");
         for (data, file) in [
             ("three", "demo-data/hives.csv"),
             ("two", "two-classes.csv"),
@@ -135,7 +134,11 @@ fn onnxruntime_computes_stets_predictions_for_every_hidden_activation() {
             let classify = data != "water";
             let stet = predicted(&stet_csv, first_output_column(&stet_csv, classify));
             let runtime: Vec<Vec<f64>> = serde_json::from_value(outside["values"].clone()).unwrap();
-            assert_eq!(runtime.len(), stet.len(), "{id}: one output row per CSV row");
+            assert_eq!(
+                runtime.len(),
+                stet.len(),
+                "{id}: one output row per CSV row"
+            );
             for (row, (theirs, ours)) in runtime.iter().zip(&stet).enumerate() {
                 assert_eq!(theirs.len(), width, "{id} row {row}");
                 assert_eq!(ours.len(), width, "{id} row {row}");
@@ -202,9 +205,11 @@ fn the_json_export_says_where_its_model_came_from() {
     // The run's cache entry is named by its key.
     let entry = ws.path(&format!(".stet/entries/{}", &run_key[..2]));
     assert!(
-        std::fs::read_dir(&entry)
+        std::fs::read_dir(&entry).unwrap().any(|e| e
             .unwrap()
-            .any(|e| e.unwrap().file_name().to_string_lossy().starts_with(run_key)),
+            .file_name()
+            .to_string_lossy()
+            .starts_with(run_key)),
         "no cache entry for run {run_key}"
     );
     // Settings as applied: written ones, and the defaults stet filled in.
@@ -216,7 +221,10 @@ fn the_json_export_says_where_its_model_came_from() {
     assert_eq!(provenance["train"]["momentum"], 0.9);
     assert_eq!(provenance["train"]["precision"], "f64");
     // The held-out metrics are the summary's test metrics for the train step.
-    assert_eq!(provenance["held_out"], step(&summary, "model")["metrics"]["test"]);
+    assert_eq!(
+        provenance["held_out"],
+        step(&summary, "model")["metrics"]["test"]
+    );
     let data = std::fs::read(ws.path("demo-data/hives.csv")).unwrap();
     assert_eq!(provenance["data_file"]["path"], "demo-data/hives.csv");
     assert_eq!(
@@ -230,7 +238,10 @@ fn a_prose_edit_restamps_the_exports_document_hash_without_rerunning_it() {
     let ws = Workspace::new();
     let doc = ws.write("model.md", MODEL);
     let first = ws.build_ok(&doc, &[]);
-    ws.write("model.md", &MODEL.replace("a later edit changes", "was edited"));
+    ws.write(
+        "model.md",
+        &MODEL.replace("a later edit changes", "was edited"),
+    );
     let second = ws.build_ok(&doc, &[]);
     assert_eq!(step(&second, "json")["status"], "reused");
     assert_ne!(first["hash"], second["hash"]);
@@ -241,7 +252,10 @@ fn a_prose_edit_restamps_the_exports_document_hash_without_rerunning_it() {
 #[test]
 fn an_unknown_export_format_is_a_located_error_naming_the_formats() {
     let ws = Workspace::new();
-    let text = MODEL.replace("write: out/model.json", "write: out/model.json\nformat: onnnx");
+    let text = MODEL.replace(
+        "write: out/model.json",
+        "write: out/model.json\nformat: onnnx",
+    );
     let doc = ws.write("model.md", &text);
     let (output, summary) = ws.build(&doc, &[]);
     let stderr = String::from_utf8_lossy(&output.stderr);
@@ -260,24 +274,36 @@ fn a_feature_that_cannot_name_an_onnx_input_fails_its_export_step_by_name() {
     let ws = Workspace::new();
     // The demo hives with `temp_c` renamed to a name stet keeps for the graph's insides.
     let hives = std::fs::read_to_string(ws.path("demo-data/hives.csv")).unwrap();
-    ws.write("demo-data/hives.csv", &hives.replacen("temp_c", "stet:scaled", 1));
+    ws.write(
+        "demo-data/hives.csv",
+        &hives.replacen("temp_c", "stet:scaled", 1),
+    );
     let text = MODEL
         .replace("inputs: [site, temp_c,", "inputs: [site, \"stet:scaled\",")
-        .replace("write: out/model.json", "write: out/model.onnx\nformat: onnx");
+        .replace(
+            "write: out/model.json",
+            "write: out/model.onnx\nformat: onnx",
+        );
     let doc = ws.write("model.md", &text);
     let (output, summary) = ws.build(&doc, &[]);
     assert_eq!(output.status.code(), Some(1));
     let export = step(summary.as_ref().unwrap(), "json");
     assert_eq!(export["status"], "failed");
     let error = export["error"].as_str().unwrap();
-    assert!(error.contains("'stet:scaled' cannot name an ONNX input"), "{error}");
+    assert!(
+        error.contains("'stet:scaled' cannot name an ONNX input"),
+        "{error}"
+    );
     assert!(!ws.path("out/model.onnx").exists());
 }
 
 #[test]
 fn an_onnx_export_written_to_a_json_file_is_a_located_error() {
     let ws = Workspace::new();
-    let text = MODEL.replace("write: out/model.json", "write: out/model.JSON\nformat: onnx");
+    let text = MODEL.replace(
+        "write: out/model.json",
+        "write: out/model.JSON\nformat: onnx",
+    );
     let doc = ws.write("model.md", &text);
     let (output, summary) = ws.build(&doc, &[]);
     assert_eq!(output.status.code(), Some(2));

@@ -690,7 +690,8 @@ fn use_model_step(
             }
             StepSpec::Export(export) => {
                 let provenance = model_use::provenance(plan, model_index, model);
-                model_use::export(model, &ready, export.format, provenance).map(Outcome::Export)
+                model_use::export(model, &ready, export.format, provenance)
+                    .map(|result| Outcome::Export(Box::new(result)))
             }
             _ => unreachable!("only predict and export use a model"),
         }

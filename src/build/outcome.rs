@@ -158,7 +158,8 @@ pub(crate) enum Outcome {
     /// A comparison is drawn from its runs' results when the report is rendered.
     Compare,
     Predict(PredictResult),
-    Export(ExportResult),
+    /// Boxed: the network and its provenance outweigh every other result.
+    Export(Box<ExportResult>),
 }
 
 /// A metric over a train step's runs: the mean and, with several runs, the sample

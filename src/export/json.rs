@@ -12,7 +12,11 @@ use crate::nn::activation::LEAKY_SLOPE;
 const FORMAT_VERSION: u32 = 2;
 
 /// The model as pretty-printed JSON.
-pub(super) fn encode(model: &ExportedModel, provenance: &Provenance, document_hash: &str) -> String {
+pub(super) fn encode(
+    model: &ExportedModel,
+    provenance: &Provenance,
+    document_hash: &str,
+) -> String {
     let scaler = &model.scaler;
     let mut document = json!({
         "format": "stet-model",

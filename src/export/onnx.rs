@@ -40,7 +40,9 @@ pub(crate) fn output_name(model: &ExportedModel) -> &'static str {
 fn output_meaning(model: &ExportedModel) -> &'static str {
     match model.classes {
         Some(_) => "one probability per class, in the order of the classes metadata",
-        None => "the predicted value of each target in its own units, in the order of the targets metadata",
+        None => {
+            "the predicted value of each target in its own units, in the order of the targets metadata"
+        }
     }
 }
 
@@ -56,7 +58,11 @@ pub(crate) fn clashing_input_name(model: &ExportedModel) -> Option<&str> {
 }
 
 /// The model's ONNX bytes.
-pub(super) fn encode(model: &ExportedModel, provenance: &Provenance, document_hash: &str) -> Vec<u8> {
+pub(super) fn encode(
+    model: &ExportedModel,
+    provenance: &Provenance,
+    document_hash: &str,
+) -> Vec<u8> {
     let proto = ModelProto {
         ir_version: Some(IR_VERSION),
         producer_name: Some("stet".into()),
@@ -146,11 +152,7 @@ impl Builder {
             Activation::Linear => self.node("Identity", &[input], output, None),
             Activation::Softmax => self.node("Softmax", &[input], output, Some(1)),
             Activation::LeakyRelu => {
-                let slope = self.constant(
-                    format!("{output}.slope"),
-                    &[],
-                    vec![LEAKY_SLOPE],
-                );
+                let slope = self.constant(format!("{output}.slope"), &[], vec![LEAKY_SLOPE]);
                 let sloped = self.node("Mul", &[input, &slope], format!("{output}.sloped"), None);
                 self.node("Max", &[input, &sloped], output, None)
             }

@@ -3,8 +3,8 @@
 use schemars::JsonSchema;
 use serde::{Deserialize, Serialize};
 
-use super::{Checker, word};
 use super::schema::{Word, no_default};
+use super::{Checker, word};
 
 #[derive(Deserialize, JsonSchema)]
 #[serde(deny_unknown_fields)]
