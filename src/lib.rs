@@ -16,6 +16,7 @@ mod cluster;
 pub mod console;
 pub mod data;
 pub mod document;
+pub(crate) mod export;
 pub mod nn;
 pub mod plan;
 pub(crate) mod report;
@@ -28,6 +29,7 @@ pub use cache::pruning::Cleaning;
 pub use cluster::DispatchError;
 pub use report::TemplateError;
 
+use std::borrow::Cow;
 use std::path::{Path, PathBuf};
 use std::time::Duration;
 
@@ -194,7 +196,7 @@ pub fn build(options: &BuildOptions) -> Result<BuildSummary, Error> {
     };
     let mut results = build::execute(&loaded.plan, &cache, &run_options);
     manifest::store(&cache, &options.document, &loaded.plan);
-    write_model_files(&loaded.plan, &mut results.steps);
+    write_model_files(&loaded.plan, &loaded.hash, &mut results.steps);
     let built_at = build_time();
     let html = report::render(
         &report::ReportInput {
@@ -474,12 +476,12 @@ fn summarise(
 /// Writes the file each predict and export step asked for. A write that fails (the
 /// plan checked every path, but the disk may still refuse) fails its step in place, so
 /// the report is still written and shows why.
-fn write_model_files(plan: &Plan, records: &mut [StepResult]) {
+fn write_model_files(plan: &Plan, document_hash: &str, records: &mut [StepResult]) {
     for (step, record) in plan.steps.iter().zip(records.iter_mut()) {
-        let (Some(output), Some(bytes)) = (&step.output, model_file(record)) else {
+        let (Some(output), Some(bytes)) = (&step.output, model_file(record, document_hash)) else {
             continue;
         };
-        if let Err(error) = atomic::write(&output.path, bytes) {
+        if let Err(error) = atomic::write(&output.path, &bytes) {
             record.status = build::Status::Failed {
                 error: format!("writing {}: {error}", output.path.display()),
             };
@@ -487,11 +489,11 @@ fn write_model_files(plan: &Plan, records: &mut [StepResult]) {
     }
 }
 
-/// The bytes a predict or export step's result saves.
-fn model_file(record: &StepResult) -> Option<&[u8]> {
+/// The bytes a predict or export step's result saves; an export names the document.
+fn model_file<'a>(record: &'a StepResult, document_hash: &str) -> Option<Cow<'a, [u8]>> {
     match &record.outcome {
-        Some(outcome::Outcome::Predict(result)) => Some(result.csv.as_bytes()),
-        Some(outcome::Outcome::Export(result)) => Some(result.json.as_bytes()),
+        Some(outcome::Outcome::Predict(result)) => Some(Cow::Borrowed(result.csv.as_bytes())),
+        Some(outcome::Outcome::Export(result)) => Some(Cow::Owned(result.file(document_hash))),
         _ => None,
     }
 }

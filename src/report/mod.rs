@@ -312,7 +312,7 @@ fn step_view(input: &ReportInput<'_>, index: usize, yaml: &str, beside_html: Str
             _ => None,
         },
         export: match &record.outcome {
-            Some(Outcome::Export(result)) => Some(export_view(result)),
+            Some(Outcome::Export(result)) => Some(export_view(result, input.document_hash)),
             _ => None,
         },
         wrote: match (&step.spec, &record.outcome) {

@@ -24,7 +24,7 @@ use super::yaml::{self, Block};
 use crate::data::{DataSettings, Missing, Scale, Split, Task};
 use crate::nn::{Activation, BatchSize, Init, Optimizer, Precision};
 pub(crate) use compare::{ChartChoice, CompareSpec};
-pub(crate) use model_use::{ExportSpec, PredictSpec};
+pub(crate) use model_use::{ExportFormat, ExportSpec, PredictSpec};
 use schema::{BatchSchema, Word, no_default};
 pub(crate) use sweep::{MetricName, SweepSpec};
 
