@@ -12,6 +12,7 @@
 
 pub(crate) mod build;
 pub(crate) mod cache;
+mod carry;
 mod cluster;
 pub mod console;
 pub mod data;
@@ -25,6 +26,9 @@ pub use build::ShareSummary;
 pub use build::share::{Share, ShareError};
 pub use cache::freshness::StepStatus;
 pub use cache::pruning::Cleaning;
+pub use carry::CarryError;
+pub use carry::inputs::RecordError;
+pub use carry::unpack::{MissingFile, UnpackError, Unpacked};
 pub use cluster::DispatchError;
 pub use report::TemplateError;
 
@@ -59,9 +63,15 @@ pub struct BuildOptions {
     pub jobs: usize,
     pub templates: Option<PathBuf>,
     pub allow_html: bool,
+    /// The most the experiment the report carries may take compressed, in bytes, with
+    /// the files its steps read; over it (and with `None`) those files are left out.
+    pub embed_limit: Option<u64>,
     /// Where the document may read and write, and the resource limits.
     pub plan: plan::PlanOptions,
 }
+
+/// The default of `--embed-data-mb`.
+pub const DEFAULT_EMBED_MB: u64 = 10;
 
 /// Why a command could not be carried out (exit code 2).
 #[derive(Debug, thiserror::Error)]
@@ -79,6 +89,10 @@ pub enum Error {
     Dispatch(#[from] DispatchError),
     #[error(transparent)]
     Templates(#[from] TemplateError),
+    #[error(transparent)]
+    Unpack(#[from] UnpackError),
+    #[error(transparent)]
+    Record(#[from] RecordError),
 }
 
 /// What a finished build did.
@@ -99,6 +113,9 @@ pub struct Loaded {
     pub(crate) name: String,
     pub document: Document,
     pub(crate) hash: String,
+    /// The document's text as read, before line endings were normalised: what the
+    /// report carries, so an unpacked document has the same hash.
+    pub(crate) original: String,
     pub plan: Plan,
 }
 
@@ -134,6 +151,7 @@ pub fn load(path: &Path, options: &plan::PlanOptions) -> Result<Loaded, Error> {
         }
     };
     let hash = blake3::hash(source.as_bytes()).to_hex().to_string();
+    let original = source.clone();
     let source = document::normalised(source);
     let (document, mut problems) = document::parse(&source);
     let base_dir = path.parent().unwrap_or(Path::new("."));
@@ -153,6 +171,7 @@ pub fn load(path: &Path, options: &plan::PlanOptions) -> Result<Loaded, Error> {
         name,
         document,
         hash,
+        original,
         plan,
     })
 }
@@ -177,6 +196,7 @@ pub fn build(options: &BuildOptions) -> Result<BuildSummary, Error> {
         None => report::Templates::built_in(),
     };
     let loaded = load(&options.document, &options.plan)?;
+    check_recorded_inputs(&options.document, &loaded)?;
     let cache = open_cache(&options.cache, &options.document);
     let targets = check_outputs(options, &loaded, &cache)?;
     remove_stale_temporaries(&loaded.plan, &targets);
@@ -196,6 +216,14 @@ pub fn build(options: &BuildOptions) -> Result<BuildSummary, Error> {
     manifest::store(&cache, &options.document, &loaded.plan);
     write_model_files(&loaded.plan, &mut results.steps);
     let built_at = build_time();
+    let summary = report::summary::summary(&loaded.name, &loaded.hash, &loaded.plan, &results);
+    let carried = carry::carry(&carry::Carrying {
+        document: &options.document,
+        source: loaded.original.as_bytes(),
+        plan: &loaded.plan,
+        summary: &summary,
+        embed_limit: options.embed_limit,
+    });
     let html = report::render(
         &report::ReportInput {
             document: &loaded.document,
@@ -205,13 +233,14 @@ pub fn build(options: &BuildOptions) -> Result<BuildSummary, Error> {
             results: &results,
             allow_html: options.allow_html,
             built_at: &built_at,
+            report_file: &report_file_name(&targets.report),
+            carried: &carried,
         },
         &templates,
     )
     .map_err(|error| Error::Usage(format!("rendering the report: {error:#}")))?;
     write_output(&targets.report, html.as_bytes())?;
     if let Some(json_path) = &targets.json {
-        let summary = report::summary::summary(&loaded.name, &loaded.hash, &loaded.plan, &results);
         let text = serde_json::to_string_pretty(&summary).expect("a JSON value serialises");
         write_output(json_path, text.as_bytes())?;
     }
@@ -221,6 +250,34 @@ pub fn build(options: &BuildOptions) -> Result<BuildSummary, Error> {
         &results,
         cache.take_warnings(),
     ))
+}
+
+/// The report's file name, as the footer's unpack command names it.
+fn report_file_name(report: &Path) -> String {
+    report
+        .file_name()
+        .map_or_else(|| report.display().to_string(), |name| name.to_string_lossy().into_owned())
+}
+
+/// Refuses, at their `file:` settings, files whose bytes differ from those recorded
+/// beside a document that `stet unpack` wrote without them.
+fn check_recorded_inputs(document: &Path, loaded: &Loaded) -> Result<(), Error> {
+    let problems = carry::inputs::check(document, loaded)?;
+    if problems.is_empty() {
+        return Ok(());
+    }
+    Err(Error::Document(DocumentErrors::for_file(
+        document,
+        loaded.document.source.clone(),
+        problems,
+    )))
+}
+
+/// `stet unpack`: writes the document and the files a report carries into `dir`
+/// (default: a folder named after the report), refusing paths that would land outside
+/// it and, without `force`, files that exist. Nothing is written when it refuses.
+pub fn unpack(report: &Path, dir: Option<&Path>, force: bool) -> Result<Unpacked, Error> {
+    Ok(carry::unpack::unpack(report, dir, force)?)
 }
 
 /// The report path as the user gave it, or `DOC.html` beside the document.

@@ -93,6 +93,13 @@ enum Command {
         /// Render raw HTML in the document's prose instead of showing it as text.
         #[arg(long)]
         allow_html: bool,
+        /// The most the experiment the report carries may take, compressed, with the
+        /// data files its steps read; past it the report carries only their hashes.
+        #[arg(long, value_name = "MIB", default_value_t = stet::DEFAULT_EMBED_MB)]
+        embed_data_mb: u64,
+        /// Carry only the document and the hashes of its data files, not the files.
+        #[arg(long)]
+        no_embed_data: bool,
         /// Train only share K of N of the uncached runs into the cache and render no
         /// report (what each task of `stet dispatch` runs).
         #[arg(long, value_name = "K/N")]
@@ -142,6 +149,16 @@ enum Command {
         #[command(flatten)]
         flags: DocumentFlags,
     },
+    /// Write out the document and data files a report carries, ready to rebuild.
+    Unpack {
+        /// The report (HTML) that `stet build` wrote.
+        report: PathBuf,
+        /// The folder to write into [default: one named after the report, here].
+        dir: Option<PathBuf>,
+        /// Replace files that already exist.
+        #[arg(long)]
+        force: bool,
+    },
     /// Print the JSON Schema of step blocks and front matter, for editors.
     Schema,
 }
@@ -168,6 +185,8 @@ fn run(command: Command) -> Result<ExitCode, Error> {
             jobs,
             templates,
             allow_html,
+            embed_data_mb,
+            no_embed_data,
             shard,
             flags,
         } => {
@@ -183,6 +202,7 @@ fn run(command: Command) -> Result<ExitCode, Error> {
                 jobs: jobs.unwrap_or_else(default_jobs),
                 templates,
                 allow_html,
+                embed_limit: (!no_embed_data).then_some(embed_data_mb << 20),
                 plan: flags.options(),
             };
             if let Some(share) = shard {
@@ -215,6 +235,7 @@ fn run(command: Command) -> Result<ExitCode, Error> {
                 jobs: default_jobs(),
                 templates: None,
                 allow_html: false,
+                embed_limit: Some(stet::DEFAULT_EMBED_MB << 20),
                 plan: flags.options(),
             };
             let dispatched =
@@ -244,6 +265,11 @@ fn run(command: Command) -> Result<ExitCode, Error> {
             let cleaning =
                 stet::clean(&documents, &cache_choice(cache), &flags.options(), dry_run)?;
             console::print(&console::clean(&cleaning, dry_run));
+            Ok(ExitCode::SUCCESS)
+        }
+        Command::Unpack { report, dir, force } => {
+            let unpacked = stet::unpack(&report, dir.as_deref(), force)?;
+            console::print(&console::unpacked(&unpacked));
             Ok(ExitCode::SUCCESS)
         }
         Command::Schema => {
