@@ -34,8 +34,7 @@ epochs: 40\n\
 \n\
 ```yaml sweep rates\n\
 from: base\n\
-vary:\n\
-  learning_rate: [0.01, 0.05]\n\
+vary:\n  learning_rate: [0.01, 0.05]\n\
 ```\n";
 
 /// Runs `stet ARGS` in the workspace.
