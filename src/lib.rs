@@ -13,6 +13,7 @@
 pub(crate) mod build;
 pub(crate) mod cache;
 mod carry;
+mod diff;
 mod cluster;
 pub mod console;
 pub mod data;
@@ -29,6 +30,7 @@ pub use cache::pruning::Cleaning;
 pub use carry::CarryError;
 pub use carry::inputs::RecordError;
 pub use carry::unpack::{MissingFile, UnpackError, Unpacked};
+pub use diff::{Comparison, DiffError};
 pub use cluster::DispatchError;
 pub use report::TemplateError;
 
@@ -93,6 +95,8 @@ pub enum Error {
     Unpack(#[from] UnpackError),
     #[error(transparent)]
     Record(#[from] RecordError),
+    #[error(transparent)]
+    Diff(#[from] DiffError),
 }
 
 /// What a finished build did.
@@ -278,6 +282,56 @@ fn check_recorded_inputs(document: &Path, loaded: &Loaded) -> Result<(), Error> 
 /// it and, without `force`, files that exist. Nothing is written when it refuses.
 pub fn unpack(report: &Path, dir: Option<&Path>, force: bool) -> Result<Unpacked, Error> {
     Ok(carry::unpack::unpack(report, dir, force)?)
+}
+
+/// Where `stet diff` writes, besides printing.
+#[derive(Clone, Debug, Default)]
+pub struct DiffOutputs {
+    pub html: Option<PathBuf>,
+    pub json: Option<PathBuf>,
+}
+
+/// `stet diff`: compares two builds, each a report or a `--json` summary, and writes
+/// the page and the JSON asked for (never over either input). Returns the lines to
+/// print: the comparison when no file was asked for, else what was written.
+pub fn diff(old: &Path, new: &Path, outputs: &DiffOutputs) -> Result<Vec<String>, Error> {
+    let comparison = diff::compare_files(old, new)?;
+    for (flag, output) in [("--html", &outputs.html), ("--json", &outputs.json)] {
+        if let Some(output) = output
+            && [old, new].iter().any(|input| same_file(input, output))
+        {
+            return Err(Error::Usage(format!(
+                "{flag} {}: that is one of the builds being compared",
+                output.display()
+            )));
+        }
+    }
+    let mut lines = Vec::new();
+    if let Some(path) = &outputs.html {
+        let html = report::diff_view::render(&comparison, &report::Templates::built_in())
+            .map_err(|error| Error::Usage(format!("rendering the comparison: {error:#}")))?;
+        write_output(path, html.as_bytes())?;
+        lines.push(format!("wrote {}", path.display()));
+    }
+    if let Some(path) = &outputs.json {
+        let text = serde_json::to_string_pretty(&comparison).expect("a comparison serialises");
+        write_output(path, text.as_bytes())?;
+        lines.push(format!("wrote {}", path.display()));
+    }
+    if lines.is_empty() {
+        lines = diff::text::lines(&comparison);
+    } else if !comparison.matched_any() {
+        lines.push("no step matched: the two builds share no step id".into());
+    }
+    Ok(lines)
+}
+
+/// Whether two paths name one file (an output path that does not exist yet names none).
+fn same_file(a: &Path, b: &Path) -> bool {
+    match (a.canonicalize(), b.canonicalize()) {
+        (Ok(a), Ok(b)) => a == b,
+        _ => false,
+    }
 }
 
 /// The report path as the user gave it, or `DOC.html` beside the document.

@@ -159,6 +159,20 @@ enum Command {
         #[arg(long)]
         force: bool,
     },
+    /// Compare two builds, each a report or a --json summary: settings changed, status,
+    /// how each metric moved, steps and sweep combinations added or removed.
+    Diff {
+        /// The earlier build.
+        old: PathBuf,
+        /// The later build.
+        new: PathBuf,
+        /// Write the comparison as a page in the report's look instead of printing it.
+        #[arg(long, value_name = "OUT.html")]
+        html: Option<PathBuf>,
+        /// Write the comparison as JSON for scripts instead of printing it.
+        #[arg(long, value_name = "OUT.json")]
+        json: Option<PathBuf>,
+    },
     /// Print the JSON Schema of step blocks and front matter, for editors.
     Schema,
 }
@@ -270,6 +284,18 @@ fn run(command: Command) -> Result<ExitCode, Error> {
         Command::Unpack { report, dir, force } => {
             let unpacked = stet::unpack(&report, dir.as_deref(), force)?;
             console::print(&console::unpacked(&unpacked));
+            Ok(ExitCode::SUCCESS)
+        }
+        Command::Diff {
+            old,
+            new,
+            html,
+            json,
+        } => {
+            let lines = stet::diff(&old, &new, &stet::DiffOutputs { html, json })?;
+            for line in lines {
+                println!("{line}");
+            }
             Ok(ExitCode::SUCCESS)
         }
         Command::Schema => {

@@ -4,6 +4,7 @@
 
 pub(crate) mod chart;
 pub(crate) mod compare_view;
+pub(crate) mod diff_view;
 pub(crate) mod format;
 pub(crate) mod model_view;
 pub(crate) mod prose;
@@ -33,6 +34,7 @@ const BUILT_IN: &[(&str, &str)] = &[
     ("report.html", include_str!("../../templates/report.html")),
     ("step.html", include_str!("../../templates/step.html")),
     ("style.css", include_str!("../../templates/style.css")),
+    ("diff.html", include_str!("../../templates/diff.html")),
 ];
 
 /// A loaded set of templates.
