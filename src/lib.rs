@@ -13,10 +13,10 @@
 pub(crate) mod build;
 pub(crate) mod cache;
 mod carry;
-mod diff;
 mod cluster;
 pub mod console;
 pub mod data;
+mod diff;
 pub mod document;
 pub mod nn;
 pub mod plan;
@@ -30,8 +30,8 @@ pub use cache::pruning::Cleaning;
 pub use carry::CarryError;
 pub use carry::inputs::RecordError;
 pub use carry::unpack::{MissingFile, UnpackError, Unpacked};
-pub use diff::{Comparison, DiffError};
 pub use cluster::DispatchError;
+pub use diff::{Comparison, DiffError};
 pub use report::TemplateError;
 
 use std::path::{Path, PathBuf};
@@ -258,9 +258,10 @@ pub fn build(options: &BuildOptions) -> Result<BuildSummary, Error> {
 
 /// The report's file name, as the footer's unpack command names it.
 fn report_file_name(report: &Path) -> String {
-    report
-        .file_name()
-        .map_or_else(|| report.display().to_string(), |name| name.to_string_lossy().into_owned())
+    report.file_name().map_or_else(
+        || report.display().to_string(),
+        |name| name.to_string_lossy().into_owned(),
+    )
 }
 
 /// Refuses, at their `file:` settings, files whose bytes differ from those recorded
@@ -281,21 +282,47 @@ fn check_recorded_inputs(document: &Path, loaded: &Loaded) -> Result<(), Error> 
 /// (default: a folder named after the report), refusing paths that would land outside
 /// it and, without `force`, files that exist. Nothing is written when it refuses.
 pub fn unpack(report: &Path, dir: Option<&Path>, force: bool) -> Result<Unpacked, Error> {
-    Ok(carry::unpack::unpack(report, dir, force)?)
+    let unpacking = carry::unpack::prepare(report, dir, force)?;
+    let mut written = Vec::new();
+    for (path, bytes) in unpacking.writes {
+        if let Some(parent) = path.parent() {
+            std::fs::create_dir_all(parent).map_err(|source| Error::Io {
+                context: format!("creating {}", parent.display()),
+                source,
+            })?;
+        }
+        write_output(&path, &bytes)?;
+        written.push(path);
+    }
+    Ok(Unpacked {
+        document: written[0].clone(),
+        written,
+        missing: unpacking.missing,
+    })
 }
 
-/// Where `stet diff` writes, besides printing.
+/// What `stet diff` writes, and how it prints.
 #[derive(Clone, Debug, Default)]
-pub struct DiffOutputs {
+pub struct DiffOptions {
     pub html: Option<PathBuf>,
     pub json: Option<PathBuf>,
+    /// Step headings in bold (for a terminal, never when piped).
+    pub colour: bool,
 }
 
 /// `stet diff`: compares two builds, each a report or a `--json` summary, and writes
 /// the page and the JSON asked for (never over either input). Returns the lines to
 /// print: the comparison when no file was asked for, else what was written.
-pub fn diff(old: &Path, new: &Path, outputs: &DiffOutputs) -> Result<Vec<String>, Error> {
+pub fn diff(old: &Path, new: &Path, outputs: &DiffOptions) -> Result<Vec<String>, Error> {
     let comparison = diff::compare_files(old, new)?;
+    if let (Some(html), Some(json)) = (&outputs.html, &outputs.json)
+        && html == json
+    {
+        return Err(Error::Usage(format!(
+            "--html and --json both name {}",
+            html.display()
+        )));
+    }
     for (flag, output) in [("--html", &outputs.html), ("--json", &outputs.json)] {
         if let Some(output) = output
             && [old, new].iter().any(|input| same_file(input, output))
@@ -319,7 +346,7 @@ pub fn diff(old: &Path, new: &Path, outputs: &DiffOutputs) -> Result<Vec<String>
         lines.push(format!("wrote {}", path.display()));
     }
     if lines.is_empty() {
-        lines = diff::text::lines(&comparison);
+        lines = diff::text::lines(&comparison, outputs.colour);
     } else if !comparison.matched_any() {
         lines.push("no step matched: the two builds share no step id".into());
     }

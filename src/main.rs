@@ -1,6 +1,7 @@
 //! The `stet` command: parse the command line, call the library, print what happened
 //! and map it to an exit code (0 all steps succeeded, 1 a step failed, 2 unusable input).
 
+use std::io::IsTerminal;
 use std::path::PathBuf;
 use std::process::ExitCode;
 use std::time::Duration;
@@ -292,7 +293,9 @@ fn run(command: Command) -> Result<ExitCode, Error> {
             html,
             json,
         } => {
-            let lines = stet::diff(&old, &new, &stet::DiffOutputs { html, json })?;
+            // Plain text when piped, or when the reader asked for no colour.
+            let colour = std::io::stdout().is_terminal() && std::env::var_os("NO_COLOR").is_none();
+            let lines = stet::diff(&old, &new, &stet::DiffOptions { html, json, colour })?;
             for line in lines {
                 println!("{line}");
             }

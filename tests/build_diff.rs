@@ -62,7 +62,11 @@ fn diff(ws: &Workspace, args: &[&str]) -> std::process::Output {
 /// `stet diff … --json OUT` parsed.
 fn diff_json(ws: &Workspace, old: &str, new: &str) -> Value {
     let output = diff(ws, &[old, new, "--json", "comparison.json"]);
-    assert!(output.status.success(), "{}", String::from_utf8_lossy(&output.stderr));
+    assert!(
+        output.status.success(),
+        "{}",
+        String::from_utf8_lossy(&output.stderr)
+    );
     serde_json::from_slice(&std::fs::read(ws.path("comparison.json")).unwrap()).unwrap()
 }
 
@@ -85,8 +89,16 @@ fn a_changed_learning_rate_shows_the_setting_old_to_new_and_how_each_metric_move
     let base = step(&comparison, "base");
     let settings = base["settings"].as_array().unwrap();
     assert_eq!(settings.len(), 1, "{settings:?}");
-    assert!(settings[0]["name"].as_str().unwrap().ends_with("learning_rate"));
-    assert_eq!((&settings[0]["old"], &settings[0]["new"]), (&0.05.into(), &0.02.into()));
+    assert!(
+        settings[0]["name"]
+            .as_str()
+            .unwrap()
+            .ends_with("learning_rate")
+    );
+    assert_eq!(
+        (&settings[0]["old"], &settings[0]["new"]),
+        (&0.05.into(), &0.02.into())
+    );
     assert_eq!(base["status"]["new"], "ran");
     let old_base = &old["steps"][2];
     let new_base = &new["steps"][2];
@@ -103,8 +115,16 @@ fn a_changed_learning_rate_shows_the_setting_old_to_new_and_how_each_metric_move
     assert_eq!(accuracy["old"].as_f64(), Some(was));
     assert_eq!(accuracy["new"].as_f64(), Some(is));
     assert_eq!(accuracy["difference"].as_f64(), Some(is - was));
-    assert!(accuracy.get("within_new_interval").is_none(), "no interval given");
-    assert!(step(&comparison, "flowers")["settings"].as_array().unwrap().is_empty());
+    assert!(
+        accuracy.get("within_new_interval").is_none(),
+        "no interval given"
+    );
+    assert!(
+        step(&comparison, "flowers")["settings"]
+            .as_array()
+            .unwrap()
+            .is_empty()
+    );
 
     let text = diff(&ws, &["old.json", "new.html"]);
     assert!(text.status.success());
@@ -112,7 +132,8 @@ fn a_changed_learning_rate_shows_the_setting_old_to_new_and_how_each_metric_move
     assert!(out.contains("train base"), "{out}");
     assert!(out.contains("learning_rate  0.05  →  0.02"), "{out}");
     assert!(
-        out.lines().any(|line| line.trim_start().starts_with("test   accuracy")),
+        out.lines()
+            .any(|line| line.trim_start().starts_with("test   accuracy")),
         "{out}"
     );
     assert!(!out.contains('\u{1b}'), "no colour when piped");
@@ -138,8 +159,14 @@ fn the_metric_table_lines_up_its_columns() {
     for line in &table[1..] {
         let cells: Vec<&str> = line.split_whitespace().collect();
         let new_cell = cells[3];
-        let at = line.match_indices(new_cell).nth(if cells[2] == new_cell { 1 } else { 0 });
-        assert_eq!(at.map(|(at, _)| at + new_cell.len()), Some(header_end), "{line}");
+        let at = line
+            .match_indices(new_cell)
+            .nth(if cells[2] == new_cell { 1 } else { 0 });
+        assert_eq!(
+            at.map(|(at, _)| at + new_cell.len()),
+            Some(header_end),
+            "{line}"
+        );
     }
 }
 
@@ -167,9 +194,15 @@ fn sweep_combinations_are_matched_by_their_settings() {
     let matched = combinations["matched"].as_array().unwrap();
     assert_eq!(matched.len(), 1);
     assert_eq!(matched[0]["settings"]["momentum"], "0.9");
-    assert_eq!(matched[0]["status"]["new"], "reused", "an equal run is cached");
+    assert_eq!(
+        matched[0]["status"]["new"], "reused",
+        "an equal run is cached"
+    );
     let unchanged = matched[0]["metrics"].as_array().unwrap();
-    assert!(unchanged.iter().all(|m| m["difference"] == 0.0), "{unchanged:?}");
+    assert!(
+        unchanged.iter().all(|m| m["difference"] == 0.0),
+        "{unchanged:?}"
+    );
     assert_eq!(combinations["added"][0]["momentum"], "0.0");
     assert_eq!(combinations["removed"][0]["momentum"], "0.5");
 }
@@ -191,7 +224,9 @@ fn an_old_value_inside_the_new_summarys_interval_is_said_to_be_within_it() {
     let ws = Workspace::new();
     let old = build(&ws, "old", &document("0.05", "0.9", ""));
     let mut new = build(&ws, "new", &document("0.02", "0.9", ""));
-    let was = old["steps"][2]["metrics"]["test"]["accuracy"].as_f64().unwrap();
+    let was = old["steps"][2]["metrics"]["test"]["accuracy"]
+        .as_f64()
+        .unwrap();
     // An interval field as a summary with intervals gives it: around the old value.
     new["steps"][2]["interval"] = serde_json::json!({"test": {"accuracy": [was - 0.1, was + 0.1]}});
     ws.write("new.json", &new.to_string());
@@ -212,7 +247,10 @@ fn an_old_value_inside_the_new_summarys_interval_is_said_to_be_within_it() {
 fn an_input_that_is_not_a_build_exits_2_and_names_it() {
     let ws = Workspace::new();
     build(&ws, "old", &document("0.05", "0.9", ""));
-    ws.write("page.html", &"<html><body><p>junk</p></body></html>".repeat(100_000));
+    ws.write(
+        "page.html",
+        &"<html><body><p>junk</p></body></html>".repeat(100_000),
+    );
     ws.write("other.json", r#"{"rows": [1, 2, 3]}"#);
     let html = std::fs::read_to_string(ws.path("old.html")).unwrap();
     let cut = html.rfind("</script>").unwrap() - 100;
@@ -226,7 +264,9 @@ fn an_input_that_is_not_a_build_exits_2_and_names_it() {
         assert_eq!(output.status.code(), Some(2), "{input}");
         let message = String::from_utf8_lossy(&output.stderr);
         assert!(
-            message.contains(&format!("{input} is neither a stet report nor a --json summary")),
+            message.contains(&format!(
+                "{input} is neither a stet report nor a --json summary"
+            )),
             "{message}"
         );
         assert!(message.contains(why), "{message}");
@@ -240,7 +280,11 @@ fn the_html_comparison_is_valid_html_in_the_reports_look() {
     build(&ws, "old", &document("0.05", "0.9", EXTRA_STEP));
     build(&ws, "new", &document("0.02", "0.9, 0.5", ""));
     let output = diff(&ws, &["old.html", "new.html", "--html", "changes.html"]);
-    assert!(output.status.success(), "{}", String::from_utf8_lossy(&output.stderr));
+    assert!(
+        output.status.success(),
+        "{}",
+        String::from_utf8_lossy(&output.stderr)
+    );
     let html = std::fs::read_to_string(ws.path("changes.html")).unwrap();
     for token in html5gum::Tokenizer::new(html.as_str()) {
         if let html5gum::Token::Error(error) = token.unwrap() {

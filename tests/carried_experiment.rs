@@ -71,7 +71,10 @@ fn rebuilds_to_the_same_numbers(ws: &Workspace, document: &Path) {
     assert!(unpack.status.success(), "{}", stderr(&unpack));
     let relative = document.strip_prefix(ws.dir.path()).unwrap();
     let copy = ws.path("unpacked").join(relative);
-    assert_eq!(std::fs::read(&copy).unwrap(), std::fs::read(document).unwrap());
+    assert_eq!(
+        std::fs::read(&copy).unwrap(),
+        std::fs::read(document).unwrap()
+    );
     let rebuilt = ws.build_ok(&copy, &[]);
     assert_eq!(rebuilt["steps"][0]["status"], "ran", "a cold cache");
     assert_eq!(numbers(&rebuilt), numbers(&original));
@@ -245,7 +248,11 @@ fn a_symbolic_link_inside_the_folder_is_refused() {
     std::os::unix::fs::symlink(ws.path("elsewhere"), ws.path("out/demo-data")).unwrap();
     let output = run(&ws, &["unpack", "experiments/hives.html", "out"]);
     assert_eq!(output.status.code(), Some(2));
-    assert!(stderr(&output).contains("is a symbolic link"), "{}", stderr(&output));
+    assert!(
+        stderr(&output).contains("is a symbolic link"),
+        "{}",
+        stderr(&output)
+    );
     assert_eq!(std::fs::read_dir(ws.path("elsewhere")).unwrap().count(), 0);
     assert!(!ws.path("out/experiments").exists(), "nothing written");
 }
@@ -331,7 +338,10 @@ fn files_over_the_embedding_limit_are_left_out_and_listed() {
     let output = run(&ws, &["unpack", "experiments/hives.html", "out"]);
     assert!(output.status.success(), "{}", stderr(&output));
     let out = String::from_utf8_lossy(&output.stdout);
-    assert!(out.contains("not included: out/demo-data/hives.csv"), "{out}");
+    assert!(
+        out.contains("not included: out/demo-data/hives.csv"),
+        "{out}"
+    );
     assert!(out.contains("--embed-data-mb 0"), "{out}");
     assert!(!ws.path("out/demo-data").exists());
 }

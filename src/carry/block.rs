@@ -55,8 +55,9 @@ pub(super) fn decode(html: &[u8]) -> Result<Vec<u8>, CarryError> {
         .map_err(|_| CarryError::Damaged("its opening tag is not text"))?;
     let body = &rest[tag_end + 1..];
     // Base64 holds no '<', so the first closing tag ends the block.
-    let body_end = find_first(body, CLOSING.as_bytes())
-        .ok_or(CarryError::Damaged("it has no end (the report was cut short)"))?;
+    let body_end = find_first(body, CLOSING.as_bytes()).ok_or(CarryError::Damaged(
+        "it has no end (the report was cut short)",
+    ))?;
     let declared_bytes: u64 = attribute(attributes, "data-bytes")
         .and_then(|text| text.parse().ok())
         .ok_or(CarryError::Damaged("its length attribute is missing"))?;
@@ -64,7 +65,9 @@ pub(super) fn decode(html: &[u8]) -> Result<Vec<u8>, CarryError> {
         .and_then(|text| blake3::Hash::from_hex(text).ok())
         .ok_or(CarryError::Damaged("its checksum attribute is missing"))?;
     if declared_bytes > MAX_PAYLOAD_BYTES {
-        return Err(CarryError::Damaged("it declares more bytes than stet writes"));
+        return Err(CarryError::Damaged(
+            "it declares more bytes than stet writes",
+        ));
     }
     let deflated = BASE64
         .decode(&body[..body_end])
@@ -78,7 +81,9 @@ pub(super) fn decode(html: &[u8]) -> Result<Vec<u8>, CarryError> {
         miniz_oxide::inflate::decompress_to_vec_with_limit(&deflated, declared_bytes as usize)
             .map_err(|_| CarryError::Damaged("its contents do not inflate"))?;
     if payload.len() as u64 != declared_bytes {
-        return Err(CarryError::Damaged("its contents are shorter than declared"));
+        return Err(CarryError::Damaged(
+            "its contents are shorter than declared",
+        ));
     }
     Ok(payload)
 }
@@ -92,7 +97,9 @@ fn attribute<'a>(attributes: &'a str, name: &str) -> Option<&'a str> {
 }
 
 fn find_first(haystack: &[u8], needle: &[u8]) -> Option<usize> {
-    haystack.windows(needle.len()).position(|window| window == needle)
+    haystack
+        .windows(needle.len())
+        .position(|window| window == needle)
 }
 
 fn find_last(haystack: &[u8], needle: &[u8]) -> Option<usize> {

@@ -143,7 +143,9 @@ pub(crate) fn read(html: &[u8]) -> Result<Experiment, CarryError> {
         files.push((file.clone(), take_checked(&mut rest, file)?));
     }
     if !rest.is_empty() {
-        return Err(CarryError::Damaged("it holds bytes its manifest does not list"));
+        return Err(CarryError::Damaged(
+            "it holds bytes its manifest does not list",
+        ));
     }
     Ok(Experiment {
         manifest,
@@ -162,10 +164,14 @@ fn take_checked(rest: &mut &[u8], file: &CarriedFile) -> Result<Vec<u8>, CarryEr
     let length = usize::try_from(file.bytes)
         .ok()
         .filter(|&length| length <= rest.len())
-        .ok_or(CarryError::Damaged("a file is shorter than its manifest says"))?;
+        .ok_or(CarryError::Damaged(
+            "a file is shorter than its manifest says",
+        ))?;
     let (bytes, after) = rest.split_at(length);
     if blake3::hash(bytes).to_hex().as_str() != file.blake3 {
-        return Err(CarryError::Damaged("a file does not match its recorded hash"));
+        return Err(CarryError::Damaged(
+            "a file does not match its recorded hash",
+        ));
     }
     *rest = after;
     Ok(bytes.to_vec())
@@ -195,8 +201,8 @@ fn layout(
     let folder = document_folder(document);
     let mut inputs: Vec<(&InputFile, Option<PathBuf>)> = Vec::new();
     for file in plan.steps.iter().flat_map(|step| &step.files) {
-        let place = (!Path::new(&file.written).is_absolute())
-            .then(|| lexical(&folder.join(&file.written)));
+        let place =
+            (!Path::new(&file.written).is_absolute()).then(|| lexical(&folder.join(&file.written)));
         let seen = inputs
             .iter()
             .any(|(other, other_place)| match (&place, other_place) {
@@ -210,7 +216,9 @@ fn layout(
     let root = inputs
         .iter()
         .filter_map(|(_, place)| place.as_deref().and_then(Path::parent))
-        .fold(folder.clone(), |root, parent| common_ancestor(&root, parent));
+        .fold(folder.clone(), |root, parent| {
+            common_ancestor(&root, parent)
+        });
     let name = document.file_name().unwrap_or(document.as_os_str());
     let carried_document = CarriedFile {
         path: relative(&folder.join(name), &root),
@@ -223,10 +231,9 @@ fn layout(
     let files = inputs
         .into_iter()
         .map(|(file, place)| CarriedFile {
-            path: place.as_deref().map_or_else(
-                || file.written.clone(),
-                |place| relative(place, &root),
-            ),
+            path: place
+                .as_deref()
+                .map_or_else(|| file.written.clone(), |place| relative(place, &root)),
             written: file.written.clone(),
             blake3: file.hash.to_hex().to_string(),
             bytes: file.bytes,

@@ -1,12 +1,12 @@
-//! `stet unpack`: writes the experiment a report carries into a folder. Every path is
-//! checked, and every file that would be replaced, before the first byte is written: a
+//! `stet unpack`: the files to write for the experiment a report carries, into a
+//! folder. Every path is checked, and every file that would be replaced, before the
+//! command layer writes the first byte: a
 //! path that is absolute, climbs with `..`, or passes through a symbolic link inside the
 //! folder is refused, and an existing file is replaced only with `--force`.
 
 use std::path::{Path, PathBuf};
 
 use super::{CarriedFile, CarryError, Experiment, inputs};
-use crate::cache::atomic;
 use crate::plan::input_file;
 use crate::plan::outputs::PROJECT_MARKER;
 
@@ -23,6 +23,12 @@ pub struct Unpacked {
     pub written: Vec<PathBuf>,
     /// The files the report could not include.
     pub missing: Vec<MissingFile>,
+}
+
+/// The files to write, each checked, the document first.
+pub(crate) struct Unpacking {
+    pub(crate) writes: Vec<(PathBuf, Vec<u8>)>,
+    pub(crate) missing: Vec<MissingFile>,
 }
 
 /// A file the document reads that the report does not carry.
@@ -55,20 +61,15 @@ pub enum UnpackError {
     Link(PathBuf),
     #[error("{} already exists; pass --force to replace it", .0.display())]
     Exists(PathBuf),
-    #[error("writing {}: {source}", path.display())]
-    Write {
-        path: PathBuf,
-        source: std::io::Error,
-    },
 }
 
-/// Unpacks `report` into `dir` (default: a folder named after the report in the
-/// current one).
-pub(crate) fn unpack(
+/// What unpacking `report` into `dir` (default: a folder named after the report in the
+/// current one) writes, or why it must write nothing.
+pub(crate) fn prepare(
     report: &Path,
     dir: Option<&Path>,
     force: bool,
-) -> Result<Unpacked, UnpackError> {
+) -> Result<Unpacking, UnpackError> {
     let html = input_file::read_regular(report, MAX_REPORT_BYTES).map_err(|error| {
         UnpackError::Unreadable {
             report: report.to_path_buf(),
@@ -98,30 +99,25 @@ pub(crate) fn unpack(
         check_target(&dir, &relative, force)?;
         targets.push(relative);
     }
-    let mut written = Vec::new();
-    for (relative, (_, bytes)) in targets.iter().zip(&files) {
-        let path = dir.join(relative);
-        write_file(&path, bytes)?;
-        written.push(path);
-    }
-    let document = written[0].clone();
-    written.extend(mark_project(&dir)?);
-    Ok(Unpacked {
-        document,
-        written,
+    let mut writes: Vec<(PathBuf, Vec<u8>)> = targets
+        .iter()
+        .zip(files)
+        .map(|(relative, (_, bytes))| (dir.join(relative), bytes))
+        .collect();
+    writes.extend(project_marker(&dir));
+    Ok(Unpacking {
+        writes,
         missing: missing_files(&experiment, &dir),
     })
 }
 
-/// Makes the folder one project, so the document may read the files unpacked above its
-/// own folder (`../data/x.csv`); a marker already there is left as it is.
-fn mark_project(dir: &Path) -> Result<Option<PathBuf>, UnpackError> {
+/// The marker that makes the folder one project, so the document may read the files
+/// unpacked above its own folder (`../data/x.csv`); one already there is left as it is.
+fn project_marker(dir: &Path) -> Option<(PathBuf, Vec<u8>)> {
     let marker = dir.join(PROJECT_MARKER);
-    if std::fs::symlink_metadata(&marker).is_ok() {
-        return Ok(None);
-    }
-    write_file(&marker, b"")?;
-    Ok(Some(marker))
+    std::fs::symlink_metadata(&marker)
+        .is_err()
+        .then(|| (marker, Vec::new()))
 }
 
 /// `NAME/` in the current folder for `NAME.html`.
@@ -192,17 +188,6 @@ fn check_target(dir: &Path, relative: &Path, force: bool) -> Result<(), UnpackEr
         }
     }
     Ok(())
-}
-
-fn write_file(path: &Path, bytes: &[u8]) -> Result<(), UnpackError> {
-    let failed = |source| UnpackError::Write {
-        path: path.to_path_buf(),
-        source,
-    };
-    if let Some(parent) = path.parent() {
-        std::fs::create_dir_all(parent).map_err(failed)?;
-    }
-    atomic::write(path, bytes).map_err(failed)
 }
 
 /// The files left out, where the unpacked document expects each.

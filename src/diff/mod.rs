@@ -120,12 +120,11 @@ pub(crate) fn compare_files(old: &Path, new: &Path) -> Result<Comparison, DiffEr
 
 /// A build's summary: the file itself when it is one, else the one its report carries.
 fn read_build(path: &Path) -> Result<Value, DiffError> {
-    let bytes = input_file::read_regular(path, MAX_INPUT_BYTES).map_err(|error| {
-        DiffError::Unreadable {
+    let bytes =
+        input_file::read_regular(path, MAX_INPUT_BYTES).map_err(|error| DiffError::Unreadable {
             path: path.to_path_buf(),
             message: error.to_string(),
-        }
-    })?;
+        })?;
     let not_a_build = |why: String| DiffError::NotABuild {
         path: path.to_path_buf(),
         why,
@@ -306,15 +305,23 @@ fn metric_moves(old: &Value, new: &Value) -> Vec<MetricMove> {
 fn interval(value: &Value) -> Option<(f64, f64)> {
     match value {
         Value::Array(bounds) => Some((bounds.first()?.as_f64()?, bounds.get(1)?.as_f64()?)),
-        Value::Object(bounds) => Some((bounds.get("low")?.as_f64()?, bounds.get("high")?.as_f64()?)),
+        Value::Object(bounds) => {
+            Some((bounds.get("low")?.as_f64()?, bounds.get("high")?.as_f64()?))
+        }
         _ => None,
     }
 }
 
 /// A sweep's combinations matched by their settings.
 fn combinations(old: &Value, new: &Value) -> Combinations {
-    let old_runs: Vec<&Value> = old.as_array().map(|r| r.iter().collect()).unwrap_or_default();
-    let new_runs: Vec<&Value> = new.as_array().map(|r| r.iter().collect()).unwrap_or_default();
+    let old_runs: Vec<&Value> = old
+        .as_array()
+        .map(|r| r.iter().collect())
+        .unwrap_or_default();
+    let new_runs: Vec<&Value> = new
+        .as_array()
+        .map(|r| r.iter().collect())
+        .unwrap_or_default();
     let matched = new_runs
         .iter()
         .filter_map(|new_run| {
@@ -363,7 +370,10 @@ mod tests {
         let changes = setting_changes(&old, &new);
         assert_eq!(changes.len(), 1);
         assert_eq!(changes[0].name, "holdout");
-        assert_eq!((changes[0].old.clone(), changes[0].new.clone()), (json!(0.2), json!(0.3)));
+        assert_eq!(
+            (changes[0].old.clone(), changes[0].new.clone()),
+            (json!(0.2), json!(0.3))
+        );
     }
 
     #[test]
@@ -375,7 +385,10 @@ mod tests {
         assert_eq!(moves[0].within_new_interval, Some(true));
         let narrow = json!({"metrics": {"test": {"accuracy": 0.92}},
                             "interval": {"test": {"accuracy": {"low": 0.91, "high": 0.93}}}});
-        assert_eq!(metric_moves(&old, &narrow)[0].within_new_interval, Some(false));
+        assert_eq!(
+            metric_moves(&old, &narrow)[0].within_new_interval,
+            Some(false)
+        );
         let without = json!({"metrics": {"test": {"accuracy": 0.92}}});
         assert_eq!(metric_moves(&old, &without)[0].within_new_interval, None);
     }

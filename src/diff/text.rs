@@ -1,14 +1,15 @@
 //! The comparison as plain text for a terminal: one block per matched step, its changed
-//! settings and metrics in aligned columns, then the steps added and removed. Plain
-//! text only, so it reads the same piped into a file or another program.
+//! settings and metrics in aligned columns, then the steps added and removed. The only
+//! styling is bold step headings, and only when asked for (a terminal), so piped output
+//! is plain text.
 
 use serde_json::{Map, Value};
 
 use super::{Change, Combination, Comparison, MetricMove, SettingChange, StepDiff};
 use crate::report::format::number;
 
-/// The lines `stet diff` prints.
-pub(crate) fn lines(comparison: &Comparison) -> Vec<String> {
+/// The lines `stet diff` prints; with `colour`, step headings in bold.
+pub(crate) fn lines(comparison: &Comparison, colour: bool) -> Vec<String> {
     let mut lines = vec![
         format!("old: {}", comparison.old),
         format!("new: {}", comparison.new),
@@ -18,7 +19,7 @@ pub(crate) fn lines(comparison: &Comparison) -> Vec<String> {
     }
     for step in &comparison.steps {
         lines.push(String::new());
-        lines.extend(step_lines(step));
+        lines.extend(step_lines(step, colour));
     }
     if !comparison.added.is_empty() || !comparison.removed.is_empty() {
         lines.push(String::new());
@@ -32,8 +33,13 @@ pub(crate) fn lines(comparison: &Comparison) -> Vec<String> {
     lines
 }
 
-fn step_lines(step: &StepDiff) -> Vec<String> {
-    let mut lines = vec![format!("{} {}", step.kind, step.id)];
+fn step_lines(step: &StepDiff, colour: bool) -> Vec<String> {
+    let heading = format!("{} {}", step.kind, step.id);
+    let mut lines = vec![if colour {
+        format!("\u{1b}[1m{heading}\u{1b}[0m")
+    } else {
+        heading
+    }];
     lines.push(format!("  status: {}", status(&step.status)));
     if step.settings.is_empty() {
         lines.push("  settings unchanged".into());
@@ -166,7 +172,9 @@ fn aligned(rows: Vec<Vec<String>>, indent: &str, right: &[bool]) -> Vec<String> 
                     }
                 })
                 .collect();
-            format!("{indent}{}", cells.join("  ")).trim_end().to_string()
+            format!("{indent}{}", cells.join("  "))
+                .trim_end()
+                .to_string()
         })
         .collect()
 }
