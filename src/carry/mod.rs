@@ -107,7 +107,7 @@ pub(crate) fn carry(input: &Carrying<'_>) -> Carried {
         match input.embed_limit {
             Some(limit) if encoded.deflated_bytes > limit && !contents.is_empty() => {
                 let reason = format!(
-                    "with it the report's experiment would take {} compressed, over --embed-data-mb {}",
+                    "with the files the report's experiment would take {} compressed, over --embed-data-mb {}",
                     mebibytes(encoded.deflated_bytes),
                     limit >> 20
                 );
