@@ -359,6 +359,7 @@ fn summarise(step: &PlannedStep, prepared: &Prepared) -> DataSummary {
             .iter()
             .map(|partition| PartitionSummary {
                 train_rows: partition.train_rows.len(),
+                validation_rows: partition.validation_rows.len(),
                 test_rows: partition.test_rows.len(),
                 train_classes: counts(&partition.train_rows),
                 test_classes: counts(&partition.test_rows),
@@ -619,7 +620,7 @@ fn assemble(
                 Task::Classify => MetricName::Accuracy,
                 Task::Regress => MetricName::Loss,
             });
-            let rank_rows = results[0].report_rows();
+            let rank_rows = results[0].choice_rows();
             if results[0].metric(rank_by, rank_rows).is_none() {
                 return StepResult::failed(format!(
                     "rank_by {} is not a metric of this {} task",

@@ -1,6 +1,8 @@
 //! What each step produces: the typed, serialisable results that the cache stores and
 //! the report and JSON summary read.
 
+use std::borrow::Borrow;
+
 use serde::{Deserialize, Serialize};
 
 use crate::data::{InputColumn, Scale, Task};
@@ -42,7 +44,9 @@ impl DataSummary {
 /// Row counts of one partition, with class balance for classification.
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
 pub(crate) struct PartitionSummary {
+    /// Rows fitted on (the validation rows not among them).
     pub train_rows: usize,
+    pub validation_rows: usize,
     pub test_rows: usize,
     pub train_classes: Vec<usize>,
     pub test_classes: Vec<usize>,
@@ -87,6 +91,8 @@ pub(crate) struct RunResult {
     pub fit: TrainOutcome,
     pub seconds: Seconds,
     pub train: SetMetrics,
+    /// On the training rows set aside by `validation`; `None` without them.
+    pub validation: Option<SetMetrics>,
     pub test: Option<SetMetrics>,
 }
 
@@ -179,6 +185,8 @@ pub(crate) struct MetricStat {
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize)]
 pub(crate) enum RowSet {
     Train,
+    /// Training rows set aside by the data step's `validation`, not fitted on.
+    Validation,
     Test,
 }
 
@@ -203,24 +211,56 @@ impl FitResult {
             RowSet::Train
         }
     }
+
+    /// The rows a choice between fits is made on: validation rows when every run
+    /// has them, so held-out rows are scored once and steer nothing; else as reported.
+    pub(crate) fn choice_rows(&self) -> RowSet {
+        if self.runs.iter().all(|run| run.validation.is_some()) {
+            RowSet::Validation
+        } else {
+            self.report_rows()
+        }
+    }
 }
 
 /// Ranks fits by a metric's mean, best first; fits without a finite value go last.
-pub(crate) fn rank(fits: &[FitResult], metric: MetricName, rows: RowSet) -> Vec<usize> {
-    let value = |fit: &FitResult| {
-        fit.metric(metric, rows)
+/// Ties are broken by the loss on the same rows, then by document (grid) order.
+pub(crate) fn rank<F: Borrow<FitResult>>(
+    fits: &[F],
+    metric: MetricName,
+    rows: RowSet,
+) -> Vec<usize> {
+    let value = |fit: &F, metric: MetricName| {
+        fit.borrow()
+            .metric(metric, rows)
             .map(|stat| stat.mean)
             .filter(|mean| mean.is_finite())
     };
     let mut order: Vec<usize> = (0..fits.len()).collect();
-    order.sort_by(|&a, &b| match (value(&fits[a]), value(&fits[b])) {
+    // A stable sort, so fits equal on both keys keep their grid order.
+    order.sort_by(|&a, &b| {
+        compare_metric(value(&fits[a], metric), value(&fits[b], metric), metric).then_with(
+            || {
+                compare_metric(
+                    value(&fits[a], MetricName::Loss),
+                    value(&fits[b], MetricName::Loss),
+                    MetricName::Loss,
+                )
+            },
+        )
+    });
+    order
+}
+
+/// Better first; a missing (or non-finite) value after any value.
+fn compare_metric(a: Option<f64>, b: Option<f64>, metric: MetricName) -> std::cmp::Ordering {
+    match (a, b) {
         (Some(x), Some(y)) if metric.higher_is_better() => y.total_cmp(&x),
         (Some(x), Some(y)) => x.total_cmp(&y),
         (Some(_), None) => std::cmp::Ordering::Less,
         (None, Some(_)) => std::cmp::Ordering::Greater,
         (None, None) => std::cmp::Ordering::Equal,
-    });
-    order
+    }
 }
 
 /// Each headline metric over some runs; `None` when a run lacks the rows.
@@ -231,6 +271,7 @@ fn metric_stats<'a>(
     let named: Vec<Vec<(&'static str, f64)>> = runs
         .map(|run| match rows {
             RowSet::Train => Some(run.train.named()),
+            RowSet::Validation => run.validation.as_ref().map(SetMetrics::named),
             RowSet::Test => run.test.as_ref().map(SetMetrics::named),
         })
         .collect::<Option<_>>()?;

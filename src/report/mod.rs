@@ -287,7 +287,7 @@ fn step_view(input: &ReportInput<'_>, index: usize, yaml: &str, beside_html: Str
         status_text,
         error,
         beside_html,
-        settings: settings::rows(&step.spec, &step.written),
+        settings: settings::rows(&step.spec, &step.written, record.outcome.as_ref()),
         yaml: yaml.to_string(),
         data: match &record.outcome {
             Some(Outcome::Data(summary)) => Some(data_view(summary)),

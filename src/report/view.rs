@@ -7,7 +7,7 @@ use super::chart::{self, Series};
 use super::format::{mean_sd, number, seconds, stop_reason};
 use crate::build::outcome::{DataSummary, FitResult, MetricStat, RowSet, SetMetrics};
 use crate::document::spec::word;
-use crate::nn::ClassificationMetrics;
+use crate::nn::{ClassificationMetrics, StopReason};
 
 /// What a data step's card shows.
 #[derive(Serialize)]
@@ -92,6 +92,10 @@ pub(crate) fn data_view(summary: &DataSummary) -> DataView {
             first.train_rows, first.test_rows
         )
     };
+    let split = match first.validation_rows {
+        0 => split,
+        rows => format!("{split}; about {rows} of each partition's training rows set aside for validation"),
+    };
     let classes = summary
         .classes
         .iter()
@@ -130,6 +134,10 @@ pub(crate) struct TrainView {
     pub confusion: Option<ConfusionView>,
     pub hints: Vec<String>,
     pub folds: Vec<FoldRow>,
+    /// Which rows the chart's second line (and patience) measured: "validation" or "held-out".
+    pub watched_rows: &'static str,
+    /// Said when the held-out rows chose the weights, so their score is optimistic.
+    pub choice_note: Option<String>,
 }
 
 #[derive(Serialize)]
@@ -193,6 +201,12 @@ pub(crate) fn train_view(result: &FitResult, classes: Option<&[String]>) -> Trai
         rows: "training",
         values: stat_values(&train_stats),
     }];
+    if let Some(stats) = result.metric_stats(RowSet::Validation) {
+        metric_rows.push(MetricRow {
+            rows: "validation",
+            values: stat_values(&stats),
+        });
+    }
     if let Some(stats) = &test_stats {
         metric_rows.push(MetricRow {
             rows: "held out",
@@ -228,8 +242,29 @@ pub(crate) fn train_view(result: &FitResult, classes: Option<&[String]>) -> Trai
         confusion: classes.and_then(|labels| confusion_view(result, labels)),
         hints: shape.hints.clone(),
         folds,
+        watched_rows: match result.choice_rows() {
+            RowSet::Validation => "validation",
+            _ => "held-out",
+        },
+        choice_note: early_stop_note(result),
     }
 }
+
+/// Patience that stopped a run on the held-out rows chose its weights on them too.
+fn early_stop_note(result: &FitResult) -> Option<String> {
+    let stopped_early = result
+        .runs
+        .iter()
+        .any(|run| run.fit.stop == StopReason::NoImprovement);
+    (stopped_early && result.choice_rows() == RowSet::Test).then(|| {
+        format!(
+            "Stopped early on the held-out rows, which also chose the weights kept, so the held-out score is optimistic. {HONEST_CHOICE}"
+        )
+    })
+}
+
+/// How to make a choice without the held-out rows.
+pub(crate) const HONEST_CHOICE: &str = "Set validation on the data step to choose on training rows set aside instead, or use folds to see how much the score moves.";
 
 fn stat_values(stats: &[MetricStat]) -> Vec<String> {
     stats.iter().map(stat_text).collect()

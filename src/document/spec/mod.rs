@@ -228,6 +228,7 @@ struct RawData {
     missing: Option<Missing>,
     holdout: Option<f64>,
     folds: Option<usize>,
+    validation: Option<f64>,
     seed: Option<u64>,
 }
 
@@ -588,6 +589,12 @@ fn validate_data(raw: RawData, default_seed: u64, check: &mut Checker<'_>) -> Da
             Split::Holdout(holdout)
         }
     };
+    if let Some(validation) = raw.validation {
+        // Written so that NaN fails too.
+        check.require(validation > 0.0 && validation < 1.0, "validation", || {
+            format!("validation is the fraction of training rows set aside: expected above 0 and below 1, not {validation}")
+        });
+    }
     DataSpec {
         file: raw.file,
         settings: DataSettings {
@@ -597,6 +604,7 @@ fn validate_data(raw: RawData, default_seed: u64, check: &mut Checker<'_>) -> Da
             scale: raw.scale.unwrap_or(Scale::Standard),
             missing: raw.missing.unwrap_or(Missing::Error),
             split,
+            validation: raw.validation,
             seed: raw.seed.unwrap_or(default_seed),
         },
     }
