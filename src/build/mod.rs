@@ -13,6 +13,7 @@ mod result;
 pub(crate) mod share;
 mod training;
 
+use std::borrow::Cow;
 use std::collections::HashMap;
 use std::sync::Arc;
 use std::time::Instant;
@@ -668,28 +669,29 @@ fn use_model_step(
     let Upstream::Model { model: model_index } = step.upstream else {
         unreachable!("predict and export read a model")
     };
-    let model = match records[model_index]
+    let outcome = records[model_index]
         .as_ref()
-        .and_then(|r| r.outcome.as_ref())
-    {
-        Some(Outcome::Train(fit)) => fit,
-        _ => {
-            return StepResult::failed(format!(
-                "not run: its model '{}' failed",
-                plan.steps[model_index].id
-            ));
-        }
-    };
+        .and_then(|r| r.outcome.as_ref());
+    if !matches!(outcome, Some(Outcome::Train(_) | Outcome::Sweep(_))) {
+        return StepResult::failed(format!(
+            "not run: its model '{}' failed",
+            plan.steps[model_index].id
+        ));
+    }
     let started = Instant::now();
-    let (data, _) = plan.steps[model_index]
-        .train_inputs()
-        .expect("a model is a train step's");
+    // A train step has one fit and a sweep's fits all read the same data step.
+    let data = plan.steps[model_index].fits[0].data;
     let computed = prepared_for(plan, data, cache, prepared).and_then(|ready| {
+        let model = match outcome {
+            Some(Outcome::Sweep(sweep)) => Cow::Owned(sweep.best_model(ready.partitions.len())),
+            Some(Outcome::Train(fit)) => Cow::Borrowed(fit),
+            _ => unreachable!("checked above: the model is a train step's or a sweep's"),
+        };
         match &step.spec {
             StepSpec::Predict(_) => {
-                model_use::predict(model, &ready, &step.files[0]).map(Outcome::Predict)
+                model_use::predict(&model, &ready, &step.files[0]).map(Outcome::Predict)
             }
-            _ => model_use::export(model, &ready).map(Outcome::Export),
+            _ => model_use::export(&model, &ready).map(Outcome::Export),
         }
         .map_err(StepError::from)
     });

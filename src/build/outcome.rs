@@ -134,6 +134,16 @@ impl SweepResult {
     pub(crate) fn best(&self) -> &FitResult {
         &self.fits[self.ranking[0]]
     }
+
+    /// The best fit as a model to use: its first seed's runs only (one network per
+    /// partition), since repeats are the same settings trained again.
+    pub(crate) fn best_model(&self, partitions: usize) -> FitResult {
+        let best = self.best();
+        FitResult {
+            runs: best.runs.iter().take(partitions).cloned().collect(),
+            ..best.clone()
+        }
+    }
 }
 
 /// A predict step's result: one row of outputs per input row.

@@ -9,7 +9,7 @@
 
 use std::path::Path;
 
-use crate::data::{Split, Task, read_header};
+use crate::data::{DataError, Split, Task, prepare, read_header, read_table};
 use crate::document::problem::nearest;
 use crate::document::spec::{
     CompareSpec, DataSpec, LossChoice, MetricName, NetSpec, OutputChoice, PredictSpec, SweepSpec,
@@ -17,15 +17,23 @@ use crate::document::spec::{
 };
 use crate::document::{Document, Problem, StepSpec};
 use crate::nn::Optimizer;
-use crate::plan::{FitPlan, PlannedStep, describe};
+use crate::plan::{FitPlan, Limits, PlannedStep, describe};
 
 /// Every check of this module over a planned document's steps.
-pub(super) fn check(document: &Document, steps: &[PlannedStep], problems: &mut Vec<Problem>) {
+pub(super) fn check(
+    document: &Document,
+    steps: &[PlannedStep],
+    limits: Limits,
+    problems: &mut Vec<Problem>,
+) {
     let lookup = Lookup { document, steps };
     for step in steps {
         let at = |setting: &str| lookup.span(&step.id, setting);
         match &step.spec {
-            StepSpec::Data(data) => check_columns(step, data, &at, problems),
+            StepSpec::Data(data) => {
+                check_columns(step, data, &at, problems);
+                check_validation(step, data, limits, &at, problems);
+            }
             StepSpec::Train(train) => check_train(&lookup, train, &at, problems),
             StepSpec::Sweep(sweep) => check_sweep(&lookup, sweep, &step.fits, &at, problems),
             StepSpec::Compare(compare) => check_compare(&lookup, compare, &at, problems),
@@ -288,6 +296,34 @@ fn check_columns(
                 &header,
             ));
         }
+    }
+}
+
+/// `validation` with the holdout (or fold) leaves every class some training rows.
+/// Only the data says which classes there are and how many rows each has, so the
+/// split is made here, once, to refuse such fractions at their line before anything
+/// runs; other problems with the file are the data step's to report when it runs.
+fn check_validation(
+    step: &PlannedStep,
+    data: &DataSpec,
+    limits: Limits,
+    at: &dyn Fn(&str) -> std::ops::Range<usize>,
+    problems: &mut Vec<Problem>,
+) {
+    if data.settings.validation.is_none() {
+        return;
+    }
+    // The plan hashed the file within the size limit; reading stops past that length.
+    let Some(Ok(table)) = step.files.first().map(|file| file.read(|reader| read_table(reader))) else {
+        return;
+    };
+    if let Err(error @ DataError::ValidationLeavesNoTraining { .. }) =
+        prepare(&table, &data.settings, limits.max_categories)
+    {
+        problems.push(
+            Problem::new(at("validation"), error.to_string())
+                .with_help("validation is a fraction of the rows left for training after the holdout (or each fold's held-out rows)"),
+        );
     }
 }
 

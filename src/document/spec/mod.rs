@@ -179,6 +179,10 @@ pub(crate) struct ParsedStep {
     pub(crate) written: Written,
 }
 
+/// What predict and export may read as `model`: a train step, or a sweep, which
+/// stands for its best combination.
+pub(crate) const MODEL_KINDS: &[StepKind] = &[StepKind::Train, StepKind::Sweep];
+
 fn reference<'a>(id: &'a str, setting: &'static str, kinds: &'static [StepKind]) -> Reference<'a> {
     Reference { id, setting, kinds }
 }
@@ -205,10 +209,8 @@ impl StepSpec {
                 .iter()
                 .map(|id| reference(id, "runs", &[StepKind::Train, StepKind::Sweep]))
                 .collect(),
-            StepSpec::Predict(predict) => {
-                vec![reference(&predict.model, "model", &[StepKind::Train])]
-            }
-            StepSpec::Export(export) => vec![reference(&export.model, "model", &[StepKind::Train])],
+            StepSpec::Predict(predict) => vec![reference(&predict.model, "model", MODEL_KINDS)],
+            StepSpec::Export(export) => vec![reference(&export.model, "model", MODEL_KINDS)],
         }
     }
 }
