@@ -249,15 +249,13 @@ pub(crate) fn rank<F: Borrow<FitResult>>(
     let mut order: Vec<usize> = (0..fits.len()).collect();
     // A stable sort, so fits equal on both keys keep their grid order.
     order.sort_by(|&a, &b| {
-        compare_metric(value(&fits[a], metric), value(&fits[b], metric), metric).then_with(
-            || {
-                compare_metric(
-                    value(&fits[a], MetricName::Loss),
-                    value(&fits[b], MetricName::Loss),
-                    MetricName::Loss,
-                )
-            },
-        )
+        compare_metric(value(&fits[a], metric), value(&fits[b], metric), metric).then_with(|| {
+            compare_metric(
+                value(&fits[a], MetricName::Loss),
+                value(&fits[b], MetricName::Loss),
+                MetricName::Loss,
+            )
+        })
     });
     order
 }

@@ -295,9 +295,7 @@ pub enum DataError {
     },
 
     /// The validation fraction is outside (0, 1).
-    #[error(
-        "validation fraction {value} is out of range: expected a number above 0 and below 1"
-    )]
+    #[error("validation fraction {value} is out of range: expected a number above 0 and below 1")]
     ValidationOutOfRange {
         /// The fraction given.
         value: f64,

@@ -141,22 +141,22 @@ pub fn prepare(
         strata,
         settings.seed,
     )?
-        .into_iter()
-        .map(|s| {
-            let scaler = Scaler::fit(settings.scale, encoded.x.view(), &s.train, &numeric);
-            if let Some(feature) = scaler.first_overflow() {
-                return Err(DataError::ScaleOverflow {
-                    column: encoded.encoding.feature_names[feature].clone(),
-                });
-            }
-            Ok(Partition {
-                scaler,
-                train_rows: s.train,
-                validation_rows: s.validation,
-                test_rows: s.test,
-            })
+    .into_iter()
+    .map(|s| {
+        let scaler = Scaler::fit(settings.scale, encoded.x.view(), &s.train, &numeric);
+        if let Some(feature) = scaler.first_overflow() {
+            return Err(DataError::ScaleOverflow {
+                column: encoded.encoding.feature_names[feature].clone(),
+            });
+        }
+        Ok(Partition {
+            scaler,
+            train_rows: s.train,
+            validation_rows: s.validation,
+            test_rows: s.test,
         })
-        .collect::<Result<_, _>>()?;
+    })
+    .collect::<Result<_, _>>()?;
 
     Ok(Prepared {
         encoding: encoded.encoding,

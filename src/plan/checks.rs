@@ -314,7 +314,11 @@ fn check_validation(
         return;
     }
     // The plan hashed the file within the size limit; reading stops past that length.
-    let Some(Ok(table)) = step.files.first().map(|file| file.read(|reader| read_table(reader))) else {
+    let Some(Ok(table)) = step
+        .files
+        .first()
+        .map(|file| file.read(|reader| read_table(reader)))
+    else {
         return;
     };
     if let Err(error @ DataError::ValidationLeavesNoTraining { .. }) =

@@ -23,7 +23,11 @@ pub(crate) struct SettingRow {
 /// The settings rows of a step; `written` tells the settings written apart from defaults.
 /// `outcome`, the step's result when it has one, names what a default resolved to
 /// where only the data decides it (a sweep's ranking metric and rows).
-pub(crate) fn rows(spec: &StepSpec, written: &Written, outcome: Option<&Outcome>) -> Vec<SettingRow> {
+pub(crate) fn rows(
+    spec: &StepSpec,
+    written: &Written,
+    outcome: Option<&Outcome>,
+) -> Vec<SettingRow> {
     let row = |name: &'static str, value: String| SettingRow {
         default: !written.contains(name),
         name,
@@ -204,7 +208,7 @@ mod tests {
     #[test]
     fn settings_not_written_in_the_block_are_marked_as_defaults() {
         let parsed = parsed_train("data: d\nnet: n\nepochs: 40\n");
-        let rows = rows(&parsed.spec, &parsed.written);
+        let rows = rows(&parsed.spec, &parsed.written, None);
         let default_of = |name: &str| rows.iter().find(|row| row.name == name).unwrap().default;
         assert!(!default_of("epochs"));
         assert!(!default_of("data"));

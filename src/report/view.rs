@@ -94,7 +94,9 @@ pub(crate) fn data_view(summary: &DataSummary) -> DataView {
     };
     let split = match first.validation_rows {
         0 => split,
-        rows => format!("{split}; about {rows} of each partition's training rows set aside for validation"),
+        rows => format!(
+            "{split}; about {rows} of each partition's training rows set aside for validation"
+        ),
     };
     let classes = summary
         .classes
