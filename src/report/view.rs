@@ -80,23 +80,27 @@ pub(crate) fn data_view(summary: &DataSummary) -> DataView {
         })
         .collect();
     let first = &summary.partitions[0];
-    let split = if summary.partitions.len() > 1 {
-        format!(
-            "{} folds of about {} held-out rows each",
-            summary.partitions.len(),
-            first.test_rows
-        )
-    } else {
-        format!(
+    let split = match (summary.partitions.len(), first.validation_rows) {
+        (1, 0) => format!(
             "{} training rows, {} held out",
             first.train_rows, first.test_rows
-        )
-    };
-    let split = match first.validation_rows {
-        0 => split,
-        rows => format!(
-            "{split}; about {rows} of each partition's training rows set aside for validation"
         ),
+        (1, validation) => format!(
+            "{} training rows, {validation} validation rows, {} held out",
+            first.train_rows, first.test_rows
+        ),
+        (folds, validation) => {
+            let folds = format!(
+                "{folds} folds of about {} held-out rows each",
+                first.test_rows
+            );
+            match validation {
+                0 => folds,
+                rows => {
+                    format!("{folds}, about {rows} validation rows in each fold's training rows")
+                }
+            }
+        }
     };
     let classes = summary
         .classes
