@@ -223,6 +223,18 @@ fn a_sweep_with_validation_ranks_the_same_whatever_the_held_out_targets_are() {
     let after = ws.build_ok(&doc, &["--no-cache"]);
     let (sweep, changed) = (step(&before, "rates"), step(&after, "rates"));
     assert_eq!(changed["best"], sweep["best"]);
+    // The precondition that makes this a test: ranked on the held-out rows, the
+    // scrambled targets would crown another combination.
+    let by_test_loss = changed["runs"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .min_by(|a, b| {
+            let loss = |run: &Value| run["metrics"]["test"]["loss"].as_f64().unwrap();
+            loss(a).total_cmp(&loss(b))
+        })
+        .unwrap();
+    assert_ne!(by_test_loss["settings"], changed["best"]);
     for (a, b) in sweep["runs"]
         .as_array()
         .unwrap()

@@ -372,6 +372,55 @@ mod tests {
     }
 
     #[test]
+    fn validation_is_carved_from_each_class_of_the_training_rows_and_moves_no_test_row() {
+        let (l, c) = (labels(), classes(2));
+        let plain = &split_rows(Split::Holdout(0.3), None, 40, strata(&l, &c), 7).unwrap()[0];
+        let s = &split_rows(Split::Holdout(0.3), Some(0.25), 40, strata(&l, &c), 7).unwrap()[0];
+        assert_eq!(s.test, plain.test);
+        // Training rows per class after the holdout: 21 and 7; round(0.25 · 21) = 5
+        // and round(0.25 · 7) = 2 (1.75) are set aside.
+        let ones = s.validation.iter().filter(|&&r| l[r] == 1).count();
+        assert_eq!((s.validation.len() - ones, ones), (5, 2));
+        assert_eq!(s.train.len(), 21);
+        assert!(s.validation.iter().all(|r| plain.train.contains(r)));
+        assert!(s.validation.iter().all(|r| !s.train.contains(r)));
+        assert!(s.validation.is_sorted());
+    }
+
+    #[test]
+    fn each_fold_sets_validation_rows_aside_from_its_own_training_rows() {
+        let folds = split_rows(Split::Folds(4), Some(0.5), 20, None, 3).unwrap();
+        for f in &folds {
+            // 15 training rows per fold; round(7.5) = 8 set aside.
+            assert_eq!((f.train.len(), f.validation.len(), f.test.len()), (7, 8, 5));
+            assert!(f.validation.iter().all(|r| !f.test.contains(r)));
+        }
+    }
+
+    #[test]
+    fn validation_that_would_take_a_class_whole_is_an_error_naming_it() {
+        // Class 1 keeps one training row after the holdout; round(0.5 · 1) = 1.
+        let l = vec![0, 0, 0, 0, 1, 1];
+        let c = classes(2);
+        let err = split_rows(Split::Holdout(0.5), Some(0.5), 6, strata(&l, &c), 1).unwrap_err();
+        assert_eq!(
+            err,
+            DataError::ValidationLeavesNoTraining {
+                fraction: 0.5,
+                class: Some("c1".into()),
+                count: 1
+            }
+        );
+        for value in [0.0, 1.0, f64::NAN] {
+            let err = split_rows(Split::Holdout(0.2), Some(value), 10, None, 1).unwrap_err();
+            assert!(
+                matches!(err, DataError::ValidationOutOfRange { .. }),
+                "{value}"
+            );
+        }
+    }
+
+    #[test]
     fn split_for_a_seed_is_pinned() {
         // Recorded from this implementation: guards against a dependency
         // update or a code change silently moving every experiment's split.
