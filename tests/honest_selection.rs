@@ -446,6 +446,29 @@ fn validation_that_leaves_a_class_no_training_row_is_an_error_at_its_line() {
     assert!(fine.is_empty(), "{fine:?}");
 }
 
+// With validation rows to watch, patience has an effect even when nothing is held out.
+#[test]
+fn patience_on_a_data_step_holding_out_nothing_is_accepted_with_validation() {
+    let doc = |validation: &str| {
+        format!(
+            "```yaml data iris\nfile: iris.csv\ntarget: species\nholdout: 0\n{validation}```\n\n\
+             ```yaml net small\nhidden: [3]\n```\n\n\
+             ```yaml train fit\ndata: iris\nnet: small\npatience: 3\n```\n"
+        )
+    };
+    let ws = Workspace::new();
+    assert!(problems_in(&ws, &doc("validation: 0.2\n")).is_empty());
+    let refused = problems_in(&ws, &doc(""));
+    assert_eq!(refused.len(), 1, "{refused:?}");
+    assert!(
+        refused[0]
+            .2
+            .as_deref()
+            .unwrap_or("")
+            .contains("set validation rows aside")
+    );
+}
+
 #[test]
 fn a_misspelt_validation_setting_suggests_it() {
     let (_, message, help) =

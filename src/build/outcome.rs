@@ -312,6 +312,67 @@ pub(crate) fn mean_and_sd(values: &[f64]) -> (f64, Option<f64>) {
 mod tests {
     use super::*;
 
+    /// A one-run fit whose held-out rows score `accuracy` and `loss`.
+    fn scored(accuracy: f64, loss: f64) -> FitResult {
+        let network = crate::nn::Network::initialise(
+            &[1, 1],
+            crate::nn::Activation::Tanh,
+            crate::nn::Activation::Sigmoid,
+            crate::nn::Init::Xavier,
+            0,
+        );
+        let metrics = SetMetrics::Classification {
+            loss,
+            metrics: ClassificationMetrics {
+                accuracy,
+                log_loss: loss,
+                confusion: Vec::new(),
+                precision: Vec::new(),
+                recall: Vec::new(),
+            },
+        };
+        FitResult {
+            settings: Vec::new(),
+            shape: ModelShape {
+                sizes: vec![1, 1],
+                hidden: Activation::Tanh,
+                output: Activation::Sigmoid,
+                loss: Loss::CrossEntropy,
+                hints: Vec::new(),
+            },
+            runs: vec![RunResult {
+                fit: TrainOutcome {
+                    network,
+                    history: Vec::new(),
+                    stop: crate::nn::StopReason::EpochLimit,
+                    epochs_run: 1,
+                    best_epoch: None,
+                },
+                seconds: 0.0,
+                train: metrics.clone(),
+                validation: None,
+                test: Some(metrics),
+            }],
+        }
+    }
+
+    // Issue 14: a tie in the ranking metric goes to the lower loss on the same rows,
+    // and a tie in both to the combination written first.
+    #[test]
+    fn ties_in_the_ranking_metric_go_to_the_lower_loss_then_to_grid_order() {
+        let fits = [
+            scored(0.9, 0.40),
+            scored(0.9, 0.30),
+            scored(0.8, 0.10),
+            scored(0.9, 0.30),
+            scored(f64::NAN, 0.01),
+        ];
+        assert_eq!(
+            rank(&fits, MetricName::Accuracy, RowSet::Test),
+            [1, 3, 0, 2, 4]
+        );
+    }
+
     // Computed by hand: mean 7/3; squared deviations 16/9 + 1/9 + 25/9 = 42/9, over n − 1 = 2
     // gives 7/3, whose square root is 1.5275252316519468 (numpy: np.std([1, 2, 4], ddof=1)).
     #[test]

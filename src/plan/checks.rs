@@ -125,8 +125,9 @@ fn metric_list(task: Task) -> String {
     names.join(", ")
 }
 
-fn holds_out_no_rows(data: &DataSpec) -> bool {
-    data.settings.split == Split::Holdout(0.0)
+/// No rows for patience to watch: none held out and none set aside for validation.
+fn no_rows_to_watch(data: &DataSpec) -> bool {
+    data.settings.split == Split::Holdout(0.0) && data.settings.validation.is_none()
 }
 
 fn check_train(
@@ -139,7 +140,7 @@ fn check_train(
     else {
         return;
     };
-    if train.patience.is_some() && holds_out_no_rows(data) {
+    if train.patience.is_some() && no_rows_to_watch(data) {
         problems.push(patience_problem(at("patience"), data_id, ""));
     }
     if let Some(message) = loss_misfit(net, &train.net, train, data_id, settled_task(data)) {
@@ -152,7 +153,7 @@ fn patience_problem(span: std::ops::Range<usize>, data_id: &str, prefix: &str) -
         span,
         format!("{prefix}patience stops on the held-out rows' loss, but data step '{data_id}' holds out no rows (holdout: 0)"),
     )
-    .with_help("hold out rows (holdout above 0, or folds), or remove patience")
+    .with_help("hold out rows (holdout above 0, or folds), set validation rows aside, or remove patience")
 }
 
 /// Why cross-entropy cannot train this net on this data, if it cannot.
@@ -197,7 +198,7 @@ fn check_sweep(
             "vary: momentum has no effect here: every combination trains with adam, which keeps its own moment estimates",
         ));
     }
-    if varies("patience") && holds_out_no_rows(data) {
+    if varies("patience") && no_rows_to_watch(data) {
         problems.push(patience_problem(at("vary"), data_id, "vary: "));
     }
     if varies("loss") || varies("output") {
