@@ -476,3 +476,24 @@ fn a_misspelt_validation_setting_suggests_it() {
     assert!(message.contains("validaton"), "{message}");
     assert!(help.unwrap_or_default().contains("validation"));
 }
+
+#[test]
+fn the_data_card_counts_each_classs_validation_rows() {
+    let ws = Workspace::new();
+    let doc = ws.write(
+        "doc.md",
+        "```yaml data iris\nfile: iris.csv\ntarget: species\nholdout: 0.2\nvalidation: 0.25\n```\n",
+    );
+    ws.build_ok(&doc, &["--no-cache"]);
+    // 50 rows per species: round(0.2 · 50) = 10 held out, round(0.25 · 40) = 10 set aside.
+    let html = html_of(&doc);
+    assert!(html.contains("<th>validation rows</th>"));
+    for species in ["setosa", "versicolor", "virginica"] {
+        assert!(
+            html.contains(&format!(
+                "<td>{species}</td><td>30</td><td>10</td><td>10</td>"
+            )),
+            "{species}"
+        );
+    }
+}

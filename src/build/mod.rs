@@ -363,6 +363,7 @@ fn summarise(step: &PlannedStep, prepared: &Prepared) -> DataSummary {
                 validation_rows: partition.validation_rows.len(),
                 test_rows: partition.test_rows.len(),
                 train_classes: counts(&partition.train_rows),
+                validation_classes: counts(&partition.validation_rows),
                 test_classes: counts(&partition.test_rows),
             })
             .collect(),

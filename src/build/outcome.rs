@@ -49,6 +49,7 @@ pub(crate) struct PartitionSummary {
     pub validation_rows: usize,
     pub test_rows: usize,
     pub train_classes: Vec<usize>,
+    pub validation_classes: Vec<usize>,
     pub test_classes: Vec<usize>,
 }
 

@@ -34,6 +34,8 @@ pub(crate) struct ColumnView {
 pub(crate) struct ClassRow {
     pub label: String,
     pub train: usize,
+    /// `None` when the data step sets no validation rows aside.
+    pub validation: Option<usize>,
     pub test: usize,
 }
 
@@ -110,6 +112,8 @@ pub(crate) fn data_view(summary: &DataSummary) -> DataView {
         .map(|(i, label)| ClassRow {
             label: label.clone(),
             train: first.train_classes.get(i).copied().unwrap_or(0),
+            validation: (first.validation_rows > 0)
+                .then(|| first.validation_classes.get(i).copied().unwrap_or(0)),
             test: first.test_classes.get(i).copied().unwrap_or(0),
         })
         .collect();
@@ -270,7 +274,7 @@ fn early_stop_note(result: &FitResult) -> Option<String> {
 }
 
 /// How to make a choice without the held-out rows.
-pub(crate) const HONEST_CHOICE: &str = "Set validation on the data step to choose on training rows set aside instead, or use folds to see how much the score moves.";
+pub(crate) const HONEST_CHOICE: &str = "Set validation on the data step to choose on training rows set aside instead; folds show how much a score moves with the rows held out.";
 
 fn stat_values(stats: &[MetricStat]) -> Vec<String> {
     stats.iter().map(stat_text).collect()
