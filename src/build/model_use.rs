@@ -174,11 +174,17 @@ pub(super) fn export(
     })
 }
 
-/// Where the model of the train step `model_step` came from: its settings as applied,
-/// its run's key, its held-out metrics and its data file.
-pub(super) fn provenance(plan: &Plan, model_step: usize, model: &FitResult) -> Provenance {
+/// Where the model of the step `model_step` came from: its settings as applied, its
+/// run's key, its held-out metrics and its data file. `fit_index` picks the fit among
+/// the step's fits: 0 for a train step, the best combination for a sweep.
+pub(super) fn provenance(
+    plan: &Plan,
+    model_step: usize,
+    fit_index: usize,
+    model: &FitResult,
+) -> Provenance {
     let step = &plan.steps[model_step];
-    let fit = &step.fits[0];
+    let fit = &step.fits[fit_index];
     let data = &plan.steps[fit.data];
     let file = &data.files[0];
     Provenance {

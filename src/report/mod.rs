@@ -18,11 +18,11 @@ use minijinja::Environment;
 use pulldown_cmark::{Event, Parser, Tag};
 use serde::Serialize;
 
-use crate::build::outcome::Outcome;
+use crate::build::outcome::{Outcome, SweepResult};
 use crate::build::{BuildResult, Status};
 use crate::carry::Carried;
 use crate::document::{Document, Piece, StepSpec};
-use crate::plan::{Plan, short_key};
+use crate::plan::{Plan, Upstream, short_key};
 use compare_view::{CompareView, Compared, SweepView, compare_view, sweep_view};
 use format::seconds;
 use model_view::{ExportView, PredictView, export_view, predict_view};
@@ -151,6 +151,8 @@ struct StepView {
     export: Option<ExportView>,
     /// Where a predict or export step wrote its file.
     wrote: Option<String>,
+    /// For a predict or export step reading a sweep: which combination it used.
+    model_choice: Option<String>,
 }
 
 /// Renders the report to a string.
@@ -317,7 +319,7 @@ fn step_view(input: &ReportInput<'_>, index: usize, yaml: &str, beside_html: Str
         status_text,
         error,
         beside_html,
-        settings: settings::rows(&step.spec, &step.written),
+        settings: settings::rows(&step.spec, &step.written, record.outcome.as_ref()),
         yaml: yaml.to_string(),
         data: match &record.outcome {
             Some(Outcome::Data(summary)) => Some(data_view(summary)),
@@ -350,7 +352,29 @@ fn step_view(input: &ReportInput<'_>, index: usize, yaml: &str, beside_html: Str
             (StepSpec::Export(spec), Some(_)) => Some(spec.write.clone()),
             _ => None,
         },
+        model_choice: match (&step.upstream, &record.outcome) {
+            (Upstream::Model { model }, Some(_)) => match &input.results.steps[*model].outcome {
+                Some(Outcome::Sweep(sweep)) => Some(format!(
+                    "Uses sweep '{}': {}, its first seed.",
+                    input.plan.steps[*model].id,
+                    sweep_choice(sweep)
+                )),
+                _ => None,
+            },
+            _ => None,
+        },
     }
+}
+
+/// Which of a sweep's combinations is its best, and on which rows it was chosen.
+fn sweep_choice(sweep: &SweepResult) -> String {
+    format!(
+        "the best of {} combinations ({}), chosen by {} on the {} rows",
+        sweep.fits.len(),
+        crate::plan::describe(&sweep.best().settings),
+        sweep.rank_by.key().replace('_', " "),
+        compare_view::rows_label(sweep.rank_rows)
+    )
 }
 
 /// The fits a compare step lists: a train step's own, a sweep's best combination.
@@ -371,11 +395,7 @@ fn compared<'a>(
                 }),
                 Outcome::Sweep(sweep) => Some(Compared {
                     id,
-                    what: format!(
-                        "best of {} combinations: {}",
-                        sweep.fits.len(),
-                        crate::plan::describe(&sweep.best().settings)
-                    ),
+                    what: sweep_choice(sweep),
                     fit: sweep.best(),
                 }),
                 _ => None,

@@ -95,7 +95,14 @@ fn spec_settings(spec: &StepSpec) -> Value {
 fn train_fields(result: &FitResult, object: &mut Map<String, Value>) {
     let mut metrics = Map::new();
     let mut sd = Map::new();
-    for (name, rows) in [("train", RowSet::Train), ("test", RowSet::Test)] {
+    // Validation appears only where a data step set rows aside, so summaries of
+    // documents without it keep their shape.
+    let sets = [
+        ("train", RowSet::Train),
+        ("validation", RowSet::Validation),
+        ("test", RowSet::Test),
+    ];
+    for (name, rows) in sets {
         if let Some(stats) = result.metric_stats(rows) {
             metrics.insert(name.into(), stat_means(&stats));
             if result.runs.len() > 1 {
@@ -148,6 +155,9 @@ fn stop(run: &RunResult) -> Value {
 fn fold(run: &RunResult) -> Value {
     let mut metrics = Map::new();
     metrics.insert("train".into(), set(&run.train));
+    if let Some(validation) = &run.validation {
+        metrics.insert("validation".into(), set(validation));
+    }
     if let Some(test) = &run.test {
         metrics.insert("test".into(), set(test));
     }

@@ -7,7 +7,7 @@ use super::chart::{self, Series};
 use super::format::{mean_sd, number, seconds, stop_reason};
 use crate::build::outcome::{DataSummary, FitResult, MetricStat, RowSet, SetMetrics};
 use crate::document::spec::word;
-use crate::nn::ClassificationMetrics;
+use crate::nn::{ClassificationMetrics, StopReason};
 
 /// What a data step's card shows.
 #[derive(Serialize)]
@@ -34,6 +34,8 @@ pub(crate) struct ColumnView {
 pub(crate) struct ClassRow {
     pub label: String,
     pub train: usize,
+    /// `None` when the data step sets no validation rows aside.
+    pub validation: Option<usize>,
     pub test: usize,
 }
 
@@ -80,17 +82,27 @@ pub(crate) fn data_view(summary: &DataSummary) -> DataView {
         })
         .collect();
     let first = &summary.partitions[0];
-    let split = if summary.partitions.len() > 1 {
-        format!(
-            "{} folds of about {} held-out rows each",
-            summary.partitions.len(),
-            first.test_rows
-        )
-    } else {
-        format!(
+    let split = match (summary.partitions.len(), first.validation_rows) {
+        (1, 0) => format!(
             "{} training rows, {} held out",
             first.train_rows, first.test_rows
-        )
+        ),
+        (1, validation) => format!(
+            "{} training rows, {validation} validation rows, {} held out",
+            first.train_rows, first.test_rows
+        ),
+        (folds, validation) => {
+            let folds = format!(
+                "{folds} folds of about {} held-out rows each",
+                first.test_rows
+            );
+            match validation {
+                0 => folds,
+                rows => {
+                    format!("{folds}, about {rows} validation rows in each fold's training rows")
+                }
+            }
+        }
     };
     let classes = summary
         .classes
@@ -100,6 +112,8 @@ pub(crate) fn data_view(summary: &DataSummary) -> DataView {
         .map(|(i, label)| ClassRow {
             label: label.clone(),
             train: first.train_classes.get(i).copied().unwrap_or(0),
+            validation: (first.validation_rows > 0)
+                .then(|| first.validation_classes.get(i).copied().unwrap_or(0)),
             test: first.test_classes.get(i).copied().unwrap_or(0),
         })
         .collect();
@@ -130,6 +144,10 @@ pub(crate) struct TrainView {
     pub confusion: Option<ConfusionView>,
     pub hints: Vec<String>,
     pub folds: Vec<FoldRow>,
+    /// Which rows the chart's second line (and patience) measured: "validation" or "held-out".
+    pub watched_rows: &'static str,
+    /// Said when the held-out rows chose the weights, so their score is optimistic.
+    pub choice_note: Option<String>,
 }
 
 #[derive(Serialize)]
@@ -193,6 +211,12 @@ pub(crate) fn train_view(result: &FitResult, classes: Option<&[String]>) -> Trai
         rows: "training",
         values: stat_values(&train_stats),
     }];
+    if let Some(stats) = result.metric_stats(RowSet::Validation) {
+        metric_rows.push(MetricRow {
+            rows: "validation",
+            values: stat_values(&stats),
+        });
+    }
     if let Some(stats) = &test_stats {
         metric_rows.push(MetricRow {
             rows: "held out",
@@ -228,8 +252,29 @@ pub(crate) fn train_view(result: &FitResult, classes: Option<&[String]>) -> Trai
         confusion: classes.and_then(|labels| confusion_view(result, labels)),
         hints: shape.hints.clone(),
         folds,
+        watched_rows: match result.choice_rows() {
+            RowSet::Validation => "validation",
+            _ => "held-out",
+        },
+        choice_note: early_stop_note(result),
     }
 }
+
+/// Patience that stopped a run on the held-out rows chose its weights on them too.
+fn early_stop_note(result: &FitResult) -> Option<String> {
+    let stopped_early = result
+        .runs
+        .iter()
+        .any(|run| run.fit.stop == StopReason::NoImprovement);
+    (stopped_early && result.choice_rows() == RowSet::Test).then(|| {
+        format!(
+            "Stopped early on the held-out rows, which also chose the weights kept, so the held-out score is optimistic. {HONEST_CHOICE}"
+        )
+    })
+}
+
+/// How to make a choice without the held-out rows.
+pub(crate) const HONEST_CHOICE: &str = "Set validation on the data step to choose on training rows set aside instead; folds show how much a score moves with the rows held out.";
 
 fn stat_values(stats: &[MetricStat]) -> Vec<String> {
     stats.iter().map(stat_text).collect()

@@ -59,13 +59,17 @@ fn accepts(setting: &str) -> Option<Accepts> {
         "inputs" => Described("a list of column names"),
         "holdout" => Described("the fraction of rows held out, from 0 up to (not including) 1"),
         "folds" => Described("a whole number of folds, 2 or more"),
+        "validation" => Described(
+            "the fraction of training rows set aside for patience and sweep ranking, above 0 and below 1",
+        ),
         "seed" => Described("a whole number, 0 or more"),
         "hidden" => Described(
             "a list of layer widths, each a whole number of 1 or more, such as [8] or [16, 8]",
         ),
         "data" => Described("the id of a data step"),
         "net" => Described("the id of a net step"),
-        "from" | "model" => Described("the id of a train step"),
+        "from" => Described("the id of a train step"),
+        "model" => Described("the id of a train step, or of a sweep (its best combination)"),
         "runs" => Described("a list of train and sweep ids"),
         "learning_rate" => Described("a positive number"),
         "momentum" => Described("a number from 0 up to (not including) 1"),

@@ -200,6 +200,10 @@ pub(crate) struct ParsedStep {
     pub(crate) written: Written,
 }
 
+/// What predict and export may read as `model`: a train step, or a sweep, which
+/// stands for its best combination.
+pub(crate) const MODEL_KINDS: &[StepKind] = &[StepKind::Train, StepKind::Sweep];
+
 fn reference<'a>(id: &'a str, setting: &'static str, kinds: &'static [StepKind]) -> Reference<'a> {
     Reference { id, setting, kinds }
 }
@@ -226,10 +230,8 @@ impl StepSpec {
                 .iter()
                 .map(|id| reference(id, "runs", &[StepKind::Train, StepKind::Sweep]))
                 .collect(),
-            StepSpec::Predict(predict) => {
-                vec![reference(&predict.model, "model", &[StepKind::Train])]
-            }
-            StepSpec::Export(export) => vec![reference(&export.model, "model", &[StepKind::Train])],
+            StepSpec::Predict(predict) => vec![reference(&predict.model, "model", MODEL_KINDS)],
+            StepSpec::Export(export) => vec![reference(&export.model, "model", MODEL_KINDS)],
         }
     }
 }
@@ -249,6 +251,7 @@ struct RawData {
     missing: Option<Missing>,
     holdout: Option<f64>,
     folds: Option<usize>,
+    validation: Option<f64>,
     seed: Option<u64>,
 }
 
@@ -609,6 +612,12 @@ fn validate_data(raw: RawData, default_seed: u64, check: &mut Checker<'_>) -> Da
             Split::Holdout(holdout)
         }
     };
+    if let Some(validation) = raw.validation {
+        // Written so that NaN fails too.
+        check.require(validation > 0.0 && validation < 1.0, "validation", || {
+            format!("validation is the fraction of training rows set aside: expected above 0 and below 1, not {validation}")
+        });
+    }
     DataSpec {
         file: raw.file,
         settings: DataSettings {
@@ -618,6 +627,7 @@ fn validate_data(raw: RawData, default_seed: u64, check: &mut Checker<'_>) -> Da
             scale: raw.scale.unwrap_or(Scale::Standard),
             missing: raw.missing.unwrap_or(Missing::Error),
             split,
+            validation: raw.validation,
             seed: raw.seed.unwrap_or(default_seed),
         },
     }
