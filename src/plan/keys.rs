@@ -7,7 +7,8 @@ use super::{Key, PlannedStep};
 
 /// Bumped whenever the meaning of a cached result changes, so old entries miss.
 /// 2: entries' checksums cover their names, and keys hold the crate version.
-pub(crate) const CACHE_FORMAT_VERSION: u32 = 2;
+/// 3: a data step's summary carries its data card (column statistics and warnings).
+pub(crate) const CACHE_FORMAT_VERSION: u32 = 3;
 
 /// A run's key depends on what it computes, not on step names, so identical runs in
 /// different steps share one entry.
