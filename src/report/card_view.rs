@@ -155,7 +155,7 @@ pub(crate) fn warning_text(warning: &DataWarning) -> String {
             ..
         } => format!(
             "the target holds `{value}` on every row read: there is nothing to learn, and \
-             R² (which compares errors with the target's spread) is undefined"
+             R², which compares errors with the target's spread, means nothing here"
         ),
         DataWarning::IdentifierLike {
             distinct, count, ..
