@@ -23,13 +23,14 @@ pub(crate) struct CardView {
 pub(crate) struct ProfileRow {
     pub name: String,
     pub role: &'static str,
+    /// How the step reads it: numeric, text with its one-hot inputs, or the target.
     pub kind: String,
     pub count: usize,
     pub missing: usize,
     pub distinct: usize,
     /// Min, median, max, mean, sd, formatted; empty for text.
     pub numbers: Vec<String>,
-    /// A text column's most common values with their counts.
+    /// A text column's most common values with their counts, e.g. `north (14), east (13)`.
     pub most_common: String,
     /// Inline SVG; empty for text.
     pub histogram: String,
@@ -89,15 +90,16 @@ fn profile_row(profile: &ColumnProfile, summary: &DataSummary) -> ProfileRow {
     }
 }
 
-/// How the data step encodes the column.
+/// How the data step reads the column, and whether it is the target.
 fn kind(profile: &ColumnProfile, summary: &DataSummary) -> String {
     let input = summary.columns.iter().find(|c| c.name == profile.name);
     match (profile.role, input.map(|c| &c.kind), &summary.classes) {
         (Role::Input, Some(ColumnKind::Categorical { categories }), _) => {
             format!("text, {} one-hot inputs", categories.len())
         }
-        (Role::Target, _, Some(classes)) => format!("{} classes", classes.len()),
-        _ => "numeric".to_string(),
+        (Role::Input, ..) => "numeric".to_string(),
+        (Role::Target, _, Some(classes)) => format!("target, {} classes", classes.len()),
+        (Role::Target, _, None) => "target, numeric".to_string(),
     }
 }
 
@@ -113,7 +115,7 @@ fn numeric_cells(stats: &NumericStats) -> Vec<String> {
 }
 
 /// Width and height of a histogram, in CSS pixels: the height of a table row.
-const HISTOGRAM_SIZE: (usize, usize) = (72, 18);
+const HISTOGRAM_SIZE: (usize, usize) = (60, 16);
 
 /// The histogram as bars, tallest bar the full height; an empty bar is a hairline, so
 /// gaps in the values show.

@@ -232,22 +232,19 @@ fn separating_inputs(columns: &[ColumnProfile], prepared: &Prepared) -> Vec<Data
         .collect()
 }
 
-/// Whether, sorted by value, each class forms one unbroken run and no value is shared
-/// by two classes: then thresholds on this input alone classify every row.
+/// Whether the classes' ranges of values do not overlap: then thresholds on this input
+/// alone classify every row. (Equivalent to each class forming one unbroken run when the
+/// rows are sorted by value, without the sort.)
 fn separates_by_intervals(values: ArrayView1<f64>, labels: &[usize], classes: usize) -> bool {
-    let mut pairs: Vec<(f64, usize)> = values.iter().copied().zip(labels.iter().copied()).collect();
-    pairs.sort_by(|a, b| a.0.total_cmp(&b.0).then(a.1.cmp(&b.1)));
-    let mut runs = 1;
-    for pair in pairs.windows(2) {
-        let ((v0, l0), (v1, l1)) = (pair[0], pair[1]);
-        if l0 != l1 {
-            if v0 == v1 {
-                return false;
-            }
-            runs += 1;
-        }
+    let mut ranges = vec![(f64::INFINITY, f64::NEG_INFINITY); classes];
+    for (&value, &label) in values.iter().zip(labels) {
+        let (low, high) = &mut ranges[label];
+        *low = low.min(value);
+        *high = high.max(value);
     }
-    runs == classes
+    ranges.retain(|(low, high)| low <= high);
+    ranges.sort_by(|a, b| a.0.total_cmp(&b.0));
+    ranges.len() > 1 && ranges.windows(2).all(|pair| pair[0].1 < pair[1].0)
 }
 
 /// Whether every category of the one-hot features in `range` occurs with one class only.
