@@ -123,9 +123,15 @@ fn a_clean_file_gets_statistics_for_every_column_and_no_warning() {
     // x1 is k/4 + 0.3 for k = 0..39 once each (7 is prime to 40): min 0.3, max 10.05,
     // mean 19.5/4 + 0.3 = 5.175, median (k = 19.5) also 5.175.
     let x1 = column(&data, "x1");
-    assert_eq!((x1["count"].as_u64(), x1["missing"].as_u64()), (Some(40), Some(0)));
+    assert_eq!(
+        (x1["count"].as_u64(), x1["missing"].as_u64()),
+        (Some(40), Some(0))
+    );
     assert_eq!(x1["distinct"], 40);
-    assert_eq!((x1["min"].as_f64(), x1["max"].as_f64()), (Some(0.3), Some(10.05)));
+    assert_eq!(
+        (x1["min"].as_f64(), x1["max"].as_f64()),
+        (Some(0.3), Some(10.05))
+    );
     for stat in ["mean", "median"] {
         assert!((x1[stat].as_f64().unwrap() - 5.175).abs() < 1e-12, "{x1}");
     }
@@ -157,7 +163,10 @@ fn a_constant_column_is_a_warning_naming_it() {
 #[test]
 fn a_constant_regression_target_is_a_warning_and_training_on_it_still_reports() {
     let ws = Workspace::new();
-    ws.write("rows.csv", &rows(40, &[("y", &|_| "3".into())], &alternating));
+    ws.write(
+        "rows.csv",
+        &rows(40, &[("y", &|_| "3".into())], &alternating),
+    );
     let doc = "```yaml data d\nfile: rows.csv\ninputs: [x1, x2]\ntarget: y\n```\n\n\
                ```yaml net n\nhidden: [3]\n```\n\n\
                ```yaml train t\ndata: d\nnet: n\nepochs: 20\n```\n";
@@ -198,8 +207,9 @@ fn rows_repeated_in_the_file_are_a_warning_with_their_lines() {
     let data = data_step(&ws, &csv, &data_doc("label", "holdout: 0\n"));
     assert_eq!(warnings(&data), pairs(&[("", "duplicate_rows")]));
     assert!(
-        message(&data, "duplicate_rows")
-            .starts_with("2 rows repeat an earlier row in every column used (line 42 repeats line 5)"),
+        message(&data, "duplicate_rows").starts_with(
+            "2 rows repeat an earlier row in every column used (line 42 repeats line 5)"
+        ),
         "{data}"
     );
 }
@@ -233,7 +243,9 @@ fn an_input_that_alone_separates_the_classes_is_possible_leakage() {
     let csv = rows(
         40,
         &[
-            ("score", &|i| format!("{}", if i % 2 == 0 { 1.0 } else { 4.5 } + i as f64 / 100.0)),
+            ("score", &|i| {
+                format!("{}", if i % 2 == 0 { 1.0 } else { 4.5 } + i as f64 / 100.0)
+            }),
             ("code", &|i| ["A", "B"][i % 2].to_string()),
         ],
         &alternating,
@@ -241,7 +253,10 @@ fn an_input_that_alone_separates_the_classes_is_possible_leakage() {
     let data = data_step(&ws, &csv, &data_doc("label", ""));
     assert_eq!(
         warnings(&data),
-        pairs(&[("score", "separates_classes"), ("code", "separates_classes")])
+        pairs(&[
+            ("score", "separates_classes"),
+            ("code", "separates_classes")
+        ])
     );
     assert!(message(&data, "separates_classes").contains("classes of `label`"));
 }
@@ -253,12 +268,18 @@ fn an_input_that_follows_a_numeric_target_is_possible_leakage() {
     let y = |i: usize| 3.0 * ((7 * i % 40) as f64 / 4.0 + 0.3) + 1.0;
     let csv = rows(
         40,
-        &[("copy", &move |i| format!("{}", y(i) - 1.0)), ("y", &move |i| format!("{}", y(i)))],
+        &[
+            ("copy", &move |i| format!("{}", y(i) - 1.0)),
+            ("y", &move |i| format!("{}", y(i))),
+        ],
         &alternating,
     );
     let doc = data_doc("y", "inputs: [x2, copy]\n");
     let data = data_step(&ws, &csv, &doc);
-    assert_eq!(warnings(&data), pairs(&[("copy", "correlates_with_target")]));
+    assert_eq!(
+        warnings(&data),
+        pairs(&[("copy", "correlates_with_target")])
+    );
     assert!(message(&data, "correlates_with_target").starts_with("correlation 1.000 with"));
 }
 
@@ -313,9 +334,16 @@ fn warnings_show_on_the_data_card_with_their_column_and_survive_a_rebuild() {
         html.contains("<p class=\"data-warning\"><code>unit</code>: every row read holds `cm`"),
         "the warning is on the card"
     );
-    assert_eq!(html.matches("<svg class=\"histogram\"").count(), 2, "x1 and x2");
+    assert_eq!(
+        html.matches("<svg class=\"histogram\"").count(),
+        2,
+        "x1 and x2"
+    );
     let summary = ws.build_ok(&ws.path("doc.md"), &[]);
     let again = step(&summary, "d");
     assert_eq!(again["status"], "reused");
-    assert_eq!((&again["columns"], &again["warnings"]), (&first["columns"], &first["warnings"]));
+    assert_eq!(
+        (&again["columns"], &again["warnings"]),
+        (&first["columns"], &first["warnings"])
+    );
 }

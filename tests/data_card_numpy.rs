@@ -115,7 +115,10 @@ fn column_statistics_match_numpy_on_a_file_with_missing_values() {
     let columns = ["temp", "humidity"];
     let numpy = numpy_stats(&python, &csv, &columns);
     // The file's own counts, by eye: 14 rows, temp missing on lines 3, 8 and 14.
-    assert_eq!((&numpy["temp"]["count"], &numpy["temp"]["missing"]), (&11.into(), &3.into()));
+    assert_eq!(
+        (&numpy["temp"]["count"], &numpy["temp"]["missing"]),
+        (&11.into(), &3.into())
+    );
     assert_eq!(numpy["humidity"]["count"], 12);
     assert_matches_numpy(&summary, &numpy, &columns);
 }

@@ -169,7 +169,11 @@ pub(crate) fn warning_text(warning: &DataWarning) -> String {
         DataWarning::DuplicateRows { rows, example } => format!(
             "{} in every column used (line {} repeats line {}): repeated rows weigh more in \
              training and can land on both sides of the split",
-            plural(*rows, "row repeats an earlier row", "rows repeat an earlier row"),
+            plural(
+                *rows,
+                "row repeats an earlier row",
+                "rows repeat an earlier row"
+            ),
             example.line,
             example.same_as,
         ),

@@ -12,9 +12,9 @@ mod warnings;
 use serde::{Deserialize, Serialize};
 
 pub(crate) use profile::{ColumnProfile, NumericStats, Role, Values};
-pub(crate) use warnings::{DataWarning, FAR_FROM_MEAN_SDS, RARE_CLASS_SHARE};
 #[cfg(test)]
 pub(crate) use warnings::SameRows;
+pub(crate) use warnings::{DataWarning, FAR_FROM_MEAN_SDS, RARE_CLASS_SHARE};
 
 use super::encode::ColumnKind;
 use super::prepare::Prepared;
@@ -22,7 +22,7 @@ use super::settings::Task;
 use super::table::Table;
 
 /// Per used column its statistics, and the warnings.
-#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+#[derive(Clone, Debug, Default, PartialEq, Serialize, Deserialize)]
 pub(crate) struct DataCard {
     /// Inputs in feature order, then targets.
     pub columns: Vec<ColumnProfile>,
@@ -44,10 +44,13 @@ pub(crate) fn describe(table: &Table, prepared: &Prepared) -> DataCard {
             profile::text(coded(&column.name), &column.name, Role::Input)
         }
     });
-    let targets = encoding.target_names.iter().map(|name| match encoding.task {
-        Task::Regress => profile::numeric(coded(name), name, Role::Target),
-        Task::Classify => profile::text(coded(name), name, Role::Target),
-    });
+    let targets = encoding
+        .target_names
+        .iter()
+        .map(|name| match encoding.task {
+            Task::Regress => profile::numeric(coded(name), name, Role::Target),
+            Task::Classify => profile::text(coded(name), name, Role::Target),
+        });
     let columns: Vec<ColumnProfile> = inputs.chain(targets).collect();
     let warnings = warnings::find(&columns, prepared);
     DataCard { columns, warnings }

@@ -481,7 +481,12 @@ impl<'p> RowIndex<'p> {
 
 /// A kept row's encoded inputs, then its targets.
 fn row_values(prepared: &Prepared, row: usize) -> impl Iterator<Item = f64> + '_ {
-    prepared.x.row(row).into_iter().chain(prepared.y.row(row)).copied()
+    prepared
+        .x
+        .row(row)
+        .into_iter()
+        .chain(prepared.y.row(row))
+        .copied()
 }
 
 fn row_hash(prepared: &Prepared, hasher: &DefaultHashBuilder, row: usize) -> u64 {
@@ -491,4 +496,41 @@ fn row_hash(prepared: &Prepared, hasher: &DefaultHashBuilder, row: usize) -> u64
         state.write_u64((value + 0.0).to_bits());
     }
     state.finish()
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use ndarray::array;
+
+    #[test]
+    fn classes_meeting_at_one_shared_value_are_not_separated() {
+        let labels = [0, 0, 1, 1, 2];
+        assert!(separates_by_intervals(
+            array![1.0, 2.0, 3.0, 4.0, 9.0].view(),
+            &labels,
+            3
+        ));
+        // Class 0 and class 1 both hold 2.5: no threshold puts it on one side only.
+        assert!(!separates_by_intervals(
+            array![1.0, 2.5, 2.5, 4.0, 9.0].view(),
+            &labels,
+            3
+        ));
+        // Class 2 lies between the rows of class 1.
+        assert!(!separates_by_intervals(
+            array![1.0, 2.0, 3.0, 9.0, 5.0].view(),
+            &labels,
+            3
+        ));
+    }
+
+    // By hand: y = 2x exactly gives 1, y = −x gives −1, a constant y gives none.
+    #[test]
+    fn pearson_is_one_for_a_line_and_none_for_a_constant() {
+        let x = array![1.0, 2.0, 4.0, 7.0];
+        assert!((pearson(x.view(), (&x * 2.0).view()).unwrap() - 1.0).abs() < 1e-15);
+        assert!((pearson(x.view(), (-&x).view()).unwrap() + 1.0).abs() < 1e-15);
+        assert_eq!(pearson(x.view(), array![3.0, 3.0, 3.0, 3.0].view()), None);
+    }
 }
