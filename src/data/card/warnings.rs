@@ -213,6 +213,7 @@ fn separating_inputs(columns: &[ColumnProfile], prepared: &Prepared) -> Vec<Data
     }
     let target = &prepared.encoding.target_names[0];
     let class_count = prepared.encoding.classes.as_ref().map_or(0, Vec::len);
+    // The card lists the inputs first, in feature order, so they pair up with the ranges.
     feature_ranges(prepared)
         .into_iter()
         .zip(columns)
@@ -281,11 +282,11 @@ fn correlated_inputs(prepared: &Prepared) -> Vec<DataWarning> {
         }
         for (t, target) in prepared.encoding.target_names.iter().enumerate() {
             let r = pearson(prepared.x.column(range.start), prepared.y.column(t));
-            if r.is_some_and(|r| r.abs() > STRONG_CORRELATION) {
+            if let Some(r) = r.filter(|r| r.abs() > STRONG_CORRELATION) {
                 found.push(DataWarning::CorrelatesWithTarget {
                     column: name.to_string(),
                     target: target.clone(),
-                    r: r.expect("checked above"),
+                    r,
                 });
             }
         }
