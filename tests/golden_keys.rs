@@ -38,10 +38,11 @@ seed: 2
 ```
 "#;
 
-// Cache format 3 (issue 14, a validation split): runs store their metrics on
-// validation rows and prepared partitions their validation rows, so every key and
-// entry changed on purpose. `validation` itself is left out of a data spec's
-// serialisation when unset, so only the format version moved these keys.
+// Cache format 3 (issue 14, a validation split; issue 15, the data card): runs store
+// their metrics on validation rows, prepared partitions their validation rows and a data
+// step's summary entry its data card, so every key and entry changed on purpose.
+// `validation` itself is left out of a data spec's serialisation when unset, so only
+// the format version moved these keys.
 
 /// The step keys of `DOC`, in document order.
 const STEP_KEYS: [(&str, &str); 3] = [
@@ -70,7 +71,7 @@ const MARKER_ENTRY: &str =
     "7374657400656e3237ca9026a18349a350ea3ee01270bacd231949cd590dca76f31524cacde92753";
 
 /// The BLAKE3 of the entry file holding the data step's summary (too long to pin whole).
-const DATA_ENTRY_HASH: &str = "c2a8f242b09cf251522cdcb1693efb159b6debbc4f53c1940cf210b673890560";
+const DATA_ENTRY_HASH: &str = "958ac68b5ff151fa281b9689c8acde6413af0a958a6420c763af0e774721d198";
 
 fn workspace() -> (Workspace, std::path::PathBuf) {
     let ws = Workspace::new();

@@ -280,9 +280,10 @@ fn run_data_step(
         return StepResult::new(Status::Reused, Outcome::Data(summary));
     }
     let started = Instant::now();
-    match prepare_data(step, limits) {
-        Ok(ready) => {
-            let summary = summarise(step, &ready);
+    let read = read_data(step).and_then(|table| Ok((prepare_table(step, &table, limits)?, table)));
+    match read {
+        Ok((ready, table)) => {
+            let summary = summarise(step, &ready, data::card::describe(&table, &ready));
             cache.store(&step.key, EntryKind::Prepared, &ready);
             cache.store(&step.key, EntryKind::DataSummary, &summary);
             prepared.insert(index, Arc::new(ready));
@@ -298,13 +299,24 @@ fn run_data_step(
 }
 
 fn prepare_data(step: &PlannedStep, limits: Limits) -> Result<Prepared, StepError> {
+    prepare_table(step, &read_data(step)?, limits)
+}
+
+/// The data step's file as a table.
+fn read_data(step: &PlannedStep) -> Result<data::Table, StepError> {
+    Ok(step.files[0].read(|reader| data::read_table(reader))?)
+}
+
+fn prepare_table(
+    step: &PlannedStep,
+    table: &data::Table,
+    limits: Limits,
+) -> Result<Prepared, StepError> {
     let StepSpec::Data(spec) = &step.spec else {
         unreachable!("a data step has a data spec")
     };
-    let file = &step.files[0];
-    let table = file.read(|reader| data::read_table(reader))?;
-    data::prepare(&table, &spec.settings, limits.max_categories).map_err(|error| StepError::Data {
-        file: file.written.clone(),
+    data::prepare(table, &spec.settings, limits.max_categories).map_err(|error| StepError::Data {
+        file: step.files[0].written.clone(),
         error,
     })
 }
@@ -333,7 +345,7 @@ fn prepared_for(
     Ok(ready)
 }
 
-fn summarise(step: &PlannedStep, prepared: &Prepared) -> DataSummary {
+fn summarise(step: &PlannedStep, prepared: &Prepared, card: data::card::DataCard) -> DataSummary {
     let StepSpec::Data(spec) = &step.spec else {
         unreachable!("a data step has a data spec")
     };
@@ -367,6 +379,7 @@ fn summarise(step: &PlannedStep, prepared: &Prepared) -> DataSummary {
                 test_classes: counts(&partition.test_rows),
             })
             .collect(),
+        card,
     }
 }
 

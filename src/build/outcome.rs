@@ -5,6 +5,7 @@ use std::borrow::Borrow;
 
 use serde::{Deserialize, Serialize};
 
+use crate::data::card::DataCard;
 use crate::data::{InputColumn, Scale, Task};
 use crate::document::spec::MetricName;
 use crate::document::spec::sweep::Varied;
@@ -28,6 +29,8 @@ pub(crate) struct DataSummary {
     pub scale: Scale,
     /// Training and held-out rows of each partition (one for a holdout, k for folds).
     pub partitions: Vec<PartitionSummary>,
+    /// Column statistics over every row read, and the warnings.
+    pub card: DataCard,
 }
 
 impl DataSummary {

@@ -2,6 +2,7 @@
 //! from minijinja templates compiled into the binary (or read from `--templates DIR`).
 //! Renderers return strings; only the command layer writes files.
 
+pub(crate) mod card_view;
 pub(crate) mod chart;
 pub(crate) mod compare_view;
 pub(crate) mod diff_view;

@@ -3,6 +3,7 @@
 
 use serde::Serialize;
 
+use super::card_view::{CardView, card_view};
 use super::chart::{self, Series};
 use super::format::{mean_sd, number, seconds, stop_reason};
 use crate::build::outcome::{DataSummary, FitResult, MetricStat, RowSet, SetMetrics};
@@ -16,18 +17,12 @@ pub(crate) struct DataView {
     pub rows_read: usize,
     pub rows_dropped: usize,
     pub features: usize,
-    pub columns: Vec<ColumnView>,
+    /// Column statistics and warnings.
+    pub card: CardView,
     pub targets: String,
     pub split: String,
     pub classes: Vec<ClassRow>,
     pub scale: String,
-}
-
-#[derive(Serialize)]
-pub(crate) struct ColumnView {
-    pub name: String,
-    pub kind: String,
-    pub note: String,
 }
 
 #[derive(Serialize)]
@@ -39,48 +34,7 @@ pub(crate) struct ClassRow {
     pub test: usize,
 }
 
-/// Fewest categories at which a text input whose values are mostly unique to a row
-/// is flagged as looking like an identifier (below it, a small table's few texts).
-const IDENTIFIER_LIKE_CATEGORIES: usize = 20;
-
 pub(crate) fn data_view(summary: &DataSummary) -> DataView {
-    let rows_used = summary.rows_read - summary.rows_dropped;
-    let columns = summary
-        .columns
-        .iter()
-        .map(|column| {
-            let mut notes = Vec::new();
-            let kind = match &column.kind {
-                crate::data::ColumnKind::Numeric => "numeric".to_string(),
-                crate::data::ColumnKind::Categorical { categories } => {
-                    notes.push(format!("one-hot: {}", categories.join(", ")));
-                    if categories.len() >= IDENTIFIER_LIKE_CATEGORIES
-                        && 2 * categories.len() > rows_used
-                    {
-                        notes.push(
-                            "most values occur on one row only, like an identifier or free \
-                             text: each adds an input with little to learn from; consider \
-                             listing `inputs:` without it"
-                                .to_string(),
-                        );
-                    }
-                    format!("text, {} categories", categories.len())
-                }
-            };
-            if column.constant {
-                notes.push(
-                    "constant on the training rows: carries no information, left unscaled"
-                        .to_string(),
-                );
-            }
-            let note = notes.join("; ");
-            ColumnView {
-                name: column.name.clone(),
-                kind,
-                note,
-            }
-        })
-        .collect();
     let first = &summary.partitions[0];
     let split = match (summary.partitions.len(), first.validation_rows) {
         (1, 0) => format!(
@@ -122,7 +76,7 @@ pub(crate) fn data_view(summary: &DataSummary) -> DataView {
         rows_read: summary.rows_read,
         rows_dropped: summary.rows_dropped,
         features: summary.feature_count,
-        columns,
+        card: card_view(summary),
         targets: summary.target_names.join(", "),
         split,
         classes,
