@@ -20,8 +20,9 @@ use std::sync::mpsc::{self, Receiver, Sender};
 use std::sync::{Arc, Mutex};
 use std::time::Duration;
 
-use notify_debouncer_mini::notify::RecursiveMode;
-use notify_debouncer_mini::{DebounceEventResult, Debouncer, new_debouncer};
+use notify_debouncer_full::notify::event::{AccessKind, AccessMode, EventKind};
+use notify_debouncer_full::notify::{RecommendedWatcher, RecursiveMode};
+use notify_debouncer_full::{DebounceEventResult, Debouncer, RecommendedCache, new_debouncer};
 
 use crate::build::Progress;
 use crate::{BuildOptions, Error, Observed, build_observed, console};
@@ -43,7 +44,8 @@ pub struct WatchOptions {
 
 /// What the deciding thread hears.
 enum Signal {
-    /// Files changed (absolute paths, any file in a watched folder).
+    /// Files changed (absolute paths, any file in a watched folder); none when the
+    /// watcher failed and could not say which.
     Changed(Vec<PathBuf>),
     /// The build thread finished.
     Built(Result<Observed, Error>),
@@ -66,13 +68,21 @@ pub fn watch(options: WatchOptions) -> Result<(), Error> {
     })
     .map_err(|error| Error::Usage(format!("cannot catch Ctrl-C: {error}")))?;
     let changes = signals.clone();
-    let debouncer = new_debouncer(DEBOUNCE, move |result: DebounceEventResult| {
+    let debouncer = new_debouncer(DEBOUNCE, None, move |result: DebounceEventResult| {
+        let is_err = result.is_err();
         // A watcher error (the folder went away, say) is heard as a change, so the next
         // build finds out what is there.
-        let paths = result.map_or_else(|_| Vec::new(), |events| {
-            events.into_iter().map(|event| event.path).collect()
-        });
-        let _ = changes.send(Signal::Changed(paths));
+        let paths: Vec<PathBuf> = match result {
+            Ok(events) => events
+                .into_iter()
+                .filter(|event| changes_contents(&event.kind))
+                .flat_map(|event| event.event.paths)
+                .collect(),
+            Err(_) => Vec::new(),
+        };
+        if !paths.is_empty() || is_err {
+            let _ = changes.send(Signal::Changed(paths));
+        }
     })
     .map_err(|error| Error::Usage(format!("cannot watch files: {error}")))?;
     let live = Arc::new(Live::new());
@@ -100,6 +110,15 @@ pub fn watch(options: WatchOptions) -> Result<(), Error> {
     Ok(())
 }
 
+/// Whether an event may have changed a file: opening and reading one (as every build
+/// does) does not, and must not start another build.
+fn changes_contents(kind: &EventKind) -> bool {
+    match kind {
+        EventKind::Access(access) => matches!(access, AccessKind::Close(AccessMode::Write)),
+        _ => true,
+    }
+}
+
 /// The message for a port that cannot be bound, naming the flag that picks another.
 fn bind_context(port: u16, error: &std::io::Error) -> String {
     match error.kind() {
@@ -115,7 +134,7 @@ struct Watcher {
     options: BuildOptions,
     live: Arc<Live>,
     signals: Sender<Signal>,
-    debouncer: Debouncer<notify_debouncer_mini::notify::RecommendedWatcher>,
+    debouncer: Debouncer<RecommendedWatcher, RecommendedCache>,
     /// Folders watched (not recursively): watching a file's folder rather than the
     /// file sees it deleted, renamed over or created again.
     watched_dirs: BTreeSet<PathBuf>,
@@ -227,12 +246,12 @@ impl Watcher {
             .filter_map(|file| file.parent().map(Path::to_path_buf))
             .collect();
         for gone in self.watched_dirs.difference(&dirs) {
-            let _ = self.debouncer.watcher().unwatch(gone);
+            let _ = self.debouncer.unwatch(gone);
         }
         let mut watched = BTreeSet::new();
         for dir in dirs {
             let already = self.watched_dirs.contains(&dir);
-            if already || self.debouncer.watcher().watch(&dir, RecursiveMode::NonRecursive).is_ok() {
+            if already || self.debouncer.watch(&dir, RecursiveMode::NonRecursive).is_ok() {
                 watched.insert(dir);
             }
         }
