@@ -427,3 +427,31 @@ fn temporaries_under(dir: &Path) -> Vec<PathBuf> {
     }
     found
 }
+
+#[test]
+fn an_open_page_shows_an_edit_without_a_navigation() {
+    let check = "the watch page in a browser";
+    let Some(python) = common::reference_python(check) else {
+        return;
+    };
+    if !common::browser_available(check) {
+        return;
+    }
+    let ws = Workspace::new();
+    let doc = ws.write("doc.md", DOC);
+    let watching = Watching::start(&ws, "doc.md", &[]);
+    let script = common::project().join("tests/browser/watch_live.py");
+    let output = Command::new(python)
+        .arg(script)
+        .arg(format!("http://127.0.0.1:{}/", watching.port))
+        .arg(&doc)
+        .args(["The first paragraph.", "Seen without reloading."])
+        .output()
+        .expect("the browser script runs");
+    assert!(
+        output.status.success(),
+        "{}{}",
+        String::from_utf8_lossy(&output.stdout),
+        String::from_utf8_lossy(&output.stderr)
+    );
+}
