@@ -164,6 +164,29 @@ fn get(port: u16, path: &str, host: &str) -> (u16, String) {
     (status, body)
 }
 
+/// The page's event stream, past the response head.
+fn open_events(port: u16) -> BufReader<TcpStream> {
+    let mut stream = TcpStream::connect(("127.0.0.1", port)).unwrap();
+    stream.set_read_timeout(Some(PATIENCE)).unwrap();
+    write!(stream, "GET /events HTTP/1.1\r\nHost: 127.0.0.1:{port}\r\n\r\n").unwrap();
+    let mut events = BufReader::new(stream);
+    let mut head = String::new();
+    events.read_line(&mut head).unwrap();
+    assert!(head.starts_with("HTTP/1.1 200"), "{head}");
+    events
+}
+
+/// Reads the stream until a line holding `text`.
+fn read_until(events: &mut BufReader<TcpStream>, text: &str) {
+    let started = Instant::now();
+    let mut line = String::new();
+    while !line.contains(text) {
+        assert!(started.elapsed() < PATIENCE, "no {text:?} in the stream");
+        line.clear();
+        events.read_line(&mut line).unwrap();
+    }
+}
+
 /// Rewrites a file in the workspace with `from` replaced by `to`.
 fn edit(path: &Path, from: &str, to: &str) {
     let text = std::fs::read_to_string(path).unwrap();
@@ -349,19 +372,7 @@ fn the_event_stream_shows_the_step_and_runs_done_while_training() {
     let ws = Workspace::new();
     let doc = ws.write("doc.md", DOC);
     let watching = Watching::start(&ws, "doc.md", &["--jobs", "1"]);
-    let mut stream = TcpStream::connect(("127.0.0.1", watching.port)).unwrap();
-    stream.set_read_timeout(Some(PATIENCE)).unwrap();
-    write!(
-        stream,
-        "GET /events HTTP/1.1\r\nHost: 127.0.0.1:{}\r\n\r\n",
-        watching.port
-    )
-    .unwrap();
-    let mut events = BufReader::new(stream);
-    let mut head = String::new();
-    events.read_line(&mut head).unwrap();
-    assert!(head.starts_with("HTTP/1.1 200"), "{head}");
-
+    let mut events = open_events(watching.port);
     // A data step with three folds: three runs of step 'fit' to train.
     edit(&doc, "holdout: 0.2", "folds: 3");
     let started = Instant::now();
@@ -454,4 +465,41 @@ fn an_open_page_shows_an_edit_without_a_navigation() {
         String::from_utf8_lossy(&output.stdout),
         String::from_utf8_lossy(&output.stderr)
     );
+}
+
+#[test]
+fn a_change_while_training_keeps_the_started_runs_and_drops_the_rest() {
+    let ws = Workspace::new();
+    let doc = ws.write("doc.md", DOC);
+    let watching = Watching::start(&ws, "doc.md", &["--jobs", "1"]);
+    assert_eq!(cached_runs(&ws), 1);
+    let mut events = open_events(watching.port);
+
+    // Four folds of long runs, one at a time (measured: about a second each here).
+    edit(&doc, "holdout: 0.2", "folds: 4");
+    edit(&doc, "epochs: 30", "epochs: 20000");
+    read_until(&mut events, "1 of 4 runs");
+    let builds = watching.builds();
+    // The stale build's second run is under way when this is seen; the new document
+    // asks for four other, short runs.
+    edit(&doc, "epochs: 20000", "epochs: 300");
+    watching.until_build_after(builds);
+    let last = &watching.health()["last_report"];
+    assert_eq!(last["failed"], 0, "{last}");
+
+    // 1 from the first build, 4 from the last, and of the stale build's 4 only those
+    // started before the change.
+    let runs = cached_runs(&ws);
+    assert!((6..9).contains(&runs), "{runs} runs cached");
+}
+
+/// Training runs in the workspace's cache.
+fn cached_runs(ws: &Workspace) -> usize {
+    let entries = ws.path(".stet/entries");
+    std::fs::read_dir(entries)
+        .unwrap()
+        .flatten()
+        .flat_map(|folder| std::fs::read_dir(folder.path()).unwrap().flatten())
+        .filter(|entry| entry.file_name().to_string_lossy().ends_with(".run"))
+        .count()
 }
