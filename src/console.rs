@@ -3,8 +3,8 @@
 //! here, beside the values they describe, so that `main.rs` only prints them and the
 //! wording can be tested without running the binary.
 
-use crate::build::{Progress, ShareSummary};
 use crate::build::share::Share;
+use crate::build::{Progress, ShareSummary};
 use crate::cache::pruning::Cleaning;
 use crate::document::DocumentErrors;
 use crate::{BuildSummary, Dispatched, Error, StatusReport};
@@ -144,7 +144,8 @@ pub fn error(error: &Error) -> Vec<Line> {
 
 /// [`error`] as plain text without colours, for the page `stet watch` serves.
 pub(crate) fn error_text(error: &Error) -> String {
-    let plain = miette::GraphicalReportHandler::new_themed(miette::GraphicalTheme::unicode_nocolor());
+    let plain =
+        miette::GraphicalReportHandler::new_themed(miette::GraphicalTheme::unicode_nocolor());
     let lines: Vec<String> = error_lines(error, plain)
         .into_iter()
         .map(|(Line::Out(text) | Line::Err(text))| text)
@@ -187,7 +188,10 @@ impl Progress for TrainingBar {
     }
 }
 
-fn document_problems(errors: &DocumentErrors, handler: &miette::GraphicalReportHandler) -> Vec<Line> {
+fn document_problems(
+    errors: &DocumentErrors,
+    handler: &miette::GraphicalReportHandler,
+) -> Vec<Line> {
     let mut lines: Vec<Line> = errors
         .diagnostics()
         .into_iter()

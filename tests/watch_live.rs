@@ -168,7 +168,11 @@ fn get(port: u16, path: &str, host: &str) -> (u16, String) {
 fn open_events(port: u16) -> BufReader<TcpStream> {
     let mut stream = TcpStream::connect(("127.0.0.1", port)).unwrap();
     stream.set_read_timeout(Some(PATIENCE)).unwrap();
-    write!(stream, "GET /events HTTP/1.1\r\nHost: 127.0.0.1:{port}\r\n\r\n").unwrap();
+    write!(
+        stream,
+        "GET /events HTTP/1.1\r\nHost: 127.0.0.1:{port}\r\n\r\n"
+    )
+    .unwrap();
     let mut events = BufReader::new(stream);
     let mut head = String::new();
     events.read_line(&mut head).unwrap();
@@ -202,7 +206,11 @@ fn editing_breaking_and_fixing_the_document_updates_the_served_page() {
     assert!(watching.page().contains("The first paragraph."));
 
     let builds = watching.builds();
-    edit(&doc, "The first paragraph.", "A paragraph edited while watching.");
+    edit(
+        &doc,
+        "The first paragraph.",
+        "A paragraph edited while watching.",
+    );
     watching.until("the prose edit", |w| {
         w.page().contains("A paragraph edited while watching.")
     });
@@ -213,7 +221,10 @@ fn editing_breaking_and_fixing_the_document_updates_the_served_page() {
     // The report on disk is the build's own: the same text, no script.
     let written = std::fs::read_to_string(ws.path("doc.html")).unwrap();
     assert!(written.contains("A paragraph edited while watching."));
-    assert!(!written.contains("<script"), "the written report carries a script");
+    assert!(
+        !written.contains("<script"),
+        "the written report carries a script"
+    );
     assert!(watching.page().contains("<script>"));
 
     edit(&doc, "epochs: 30", "epochz: 30");
@@ -230,7 +241,8 @@ fn editing_breaking_and_fixing_the_document_updates_the_served_page() {
 
     edit(&doc, "epochz: 30", "epochs: 30");
     watching.until("the banner to clear", |w| {
-        w.page().contains("<pre id=\"stet-live-problem\" hidden></pre>")
+        w.page()
+            .contains("<pre id=\"stet-live-problem\" hidden></pre>")
     });
     assert_eq!(watching.health()["problem"], false);
 }
@@ -286,7 +298,12 @@ fn a_second_watch_on_a_port_in_use_is_a_clear_error() {
     let watching = Watching::start(&ws, "doc.md", &[]);
     let port = watching.port.to_string();
     let second = common::stet(
-        &["watch".into(), "doc.md".into(), "--port".into(), port.clone()],
+        &[
+            "watch".into(),
+            "doc.md".into(),
+            "--port".into(),
+            port.clone(),
+        ],
         ws.dir.path(),
     );
     assert_eq!(second.status.code(), Some(2));
@@ -334,14 +351,18 @@ fn a_deleted_or_renamed_document_is_reported_and_awaited() {
     let elsewhere = ws.path("renamed.md");
     std::fs::rename(&doc, &elsewhere).unwrap();
     watching.until("the document's absence", |w| {
-        w.page().contains("doc.md is gone (deleted or renamed); waiting for it to come back")
+        w.page()
+            .contains("doc.md is gone (deleted or renamed); waiting for it to come back")
     });
     std::fs::rename(&elsewhere, &doc).unwrap();
     watching.until("the banner to clear", |w| w.health()["problem"] == false);
 
     std::fs::remove_file(&doc).unwrap();
     watching.until("the document's absence", |w| w.health()["problem"] == true);
-    ws.write("doc.md", &DOC.replace("The first paragraph.", "Written anew."));
+    ws.write(
+        "doc.md",
+        &DOC.replace("The first paragraph.", "Written anew."),
+    );
     watching.until("the new document", |w| w.page().contains("Written anew."));
     assert_eq!(watching.health()["problem"], false);
 }
@@ -363,7 +384,10 @@ fn an_unwritable_cache_is_a_warning_and_the_report_still_updates() {
     let warnings = health["last_report"]["warnings"].as_array().unwrap();
     assert!(!warnings.is_empty(), "{health}");
     let page = watching.page();
-    assert!(page.contains("<p id=\"stet-live-notice\">warning: "), "{page}");
+    assert!(
+        page.contains("<p id=\"stet-live-notice\">warning: "),
+        "{page}"
+    );
     assert_eq!(health["last_report"]["failed"], 0, "{health}");
 }
 
@@ -432,7 +456,11 @@ fn temporaries_under(dir: &Path) -> Vec<PathBuf> {
         let path = entry.path();
         if entry.file_type().unwrap().is_dir() {
             found.extend(temporaries_under(&path));
-        } else if entry.file_name().to_string_lossy().starts_with(".stet-tmp-") {
+        } else if entry
+            .file_name()
+            .to_string_lossy()
+            .starts_with(".stet-tmp-")
+        {
             found.push(path);
         }
     }
@@ -502,4 +530,52 @@ fn cached_runs(ws: &Workspace) -> usize {
         .flat_map(|folder| std::fs::read_dir(folder.path()).unwrap().flatten())
         .filter(|entry| entry.file_name().to_string_lossy().ends_with(".run"))
         .count()
+}
+
+#[test]
+fn open_without_a_browser_serves_quietly() {
+    let ws = Workspace::new();
+    ws.write("doc.md", DOC);
+    // No program to open a page with: an empty PATH and no $BROWSER.
+    let empty = ws.path("no-programs");
+    std::fs::create_dir_all(&empty).unwrap();
+    let mut child = Command::new(env!("CARGO_BIN_EXE_stet"))
+        .args(["watch", "doc.md", "--open"])
+        .current_dir(ws.dir.path())
+        .env_remove("STET_CACHE")
+        .env_remove("BROWSER")
+        .env("PATH", &empty)
+        .stdout(Stdio::piped())
+        .stderr(Stdio::piped())
+        .spawn()
+        .unwrap();
+    let mut line = String::new();
+    BufReader::new(child.stdout.take().unwrap())
+        .read_line(&mut line)
+        .unwrap();
+    assert!(
+        line.starts_with("serving doc.md at http://127.0.0.1:"),
+        "{line}"
+    );
+    let port: u16 = line
+        .split(':')
+        .nth(2)
+        .unwrap()
+        .split('/')
+        .next()
+        .unwrap()
+        .parse()
+        .unwrap();
+    let started = Instant::now();
+    while get(port, "/health", &format!("127.0.0.1:{port}"))
+        .1
+        .contains("\"builds\":0")
+    {
+        assert!(started.elapsed() < PATIENCE);
+        std::thread::sleep(Duration::from_millis(100));
+    }
+    let _ = child.kill();
+    let output = child.wait_with_output().unwrap();
+    let stderr = String::from_utf8_lossy(&output.stderr);
+    assert_eq!(stderr, "doc.html: 3 steps, 3 ran, 0 reused, 0 failed\n");
 }

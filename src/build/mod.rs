@@ -576,7 +576,11 @@ fn fit_all<'t>(
     if let Some(progress) = options.progress {
         progress.training(unique.len());
     }
-    let stopped = || options.stop.is_some_and(|stop| stop.load(Ordering::Relaxed));
+    let stopped = || {
+        options
+            .stop
+            .is_some_and(|stop| stop.load(Ordering::Relaxed))
+    };
     // On the caller's pool (`arithmetic_pool`).
     let results = unique
         .par_iter()

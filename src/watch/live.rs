@@ -128,7 +128,8 @@ impl Live {
 
     /// A build was dropped for a newer one, which starts at once.
     pub(crate) fn superseded(&self) {
-        self.lock().set_progress("the document changed: building again…".into());
+        self.lock()
+            .set_progress("the document changed: building again…".into());
     }
 
     /// A new event stream: its first events bring it up to date.
@@ -139,7 +140,10 @@ impl Live {
         }
         let state = &inner.state;
         let catch_up = [
-            page::event("report", &format!("{}\n{}", state.version, state.report.body())),
+            page::event(
+                "report",
+                &format!("{}\n{}", state.version, state.report.body()),
+            ),
             page::event("problem", &state.problem),
             page::event("notice", &state.notice),
             page::event("progress", &state.progress),
@@ -152,7 +156,9 @@ impl Live {
 
     fn lock(&self) -> std::sync::MutexGuard<'_, Inner> {
         // A panic while holding the lock leaves plain data behind; keep serving it.
-        self.inner.lock().unwrap_or_else(|poisoned| poisoned.into_inner())
+        self.inner
+            .lock()
+            .unwrap_or_else(|poisoned| poisoned.into_inner())
     }
 }
 

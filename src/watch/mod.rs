@@ -156,7 +156,9 @@ impl Watcher {
             let Ok(signal) = heard.recv() else { return };
             match signal {
                 Signal::Changed(paths) => {
-                    if paths.is_empty() || paths.iter().any(|path| self.watched_files.contains(path)) {
+                    if paths.is_empty()
+                        || paths.iter().any(|path| self.watched_files.contains(path))
+                    {
                         due = true;
                         if let Some(stop) = &running {
                             stop.store(true, Ordering::Relaxed);
@@ -251,7 +253,12 @@ impl Watcher {
         let mut watched = BTreeSet::new();
         for dir in dirs {
             let already = self.watched_dirs.contains(&dir);
-            if already || self.debouncer.watch(&dir, RecursiveMode::NonRecursive).is_ok() {
+            if already
+                || self
+                    .debouncer
+                    .watch(&dir, RecursiveMode::NonRecursive)
+                    .is_ok()
+            {
                 watched.insert(dir);
             }
         }
@@ -312,7 +319,10 @@ impl Progress for PageProgress<'_> {
     }
 
     fn trained(&self, step: &str) {
-        let _in_order = self.line.lock().unwrap_or_else(|poisoned| poisoned.into_inner());
+        let _in_order = self
+            .line
+            .lock()
+            .unwrap_or_else(|poisoned| poisoned.into_inner());
         let done = self.done.fetch_add(1, Ordering::Relaxed) + 1;
         let runs = self.runs.load(Ordering::Relaxed);
         self.live

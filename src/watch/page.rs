@@ -32,7 +32,9 @@ pub(crate) struct Report {
 impl Report {
     /// Splits a rendered report; a report without a body tag is all body.
     pub(crate) fn new(html: &str) -> Self {
-        let opened = html.find("<body").and_then(|at| html[at..].find('>').map(|end| at + end + 1));
+        let opened = html
+            .find("<body")
+            .and_then(|at| html[at..].find('>').map(|end| at + end + 1));
         let closed = html.rfind("</body>");
         match (opened, closed) {
             (Some(open), Some(close)) if open <= close => Self {
@@ -41,8 +43,9 @@ impl Report {
                 tail: html[close..].to_string(),
             },
             _ => Self {
-                head: "<!DOCTYPE html><html lang=\"en\"><head><meta charset=\"utf-8\"></head><body>"
-                    .into(),
+                head:
+                    "<!DOCTYPE html><html lang=\"en\"><head><meta charset=\"utf-8\"></head><body>"
+                        .into(),
                 body: html.to_string(),
                 tail: "</body></html>".into(),
             },
@@ -107,7 +110,9 @@ fn with_policy(head: &str, policy: &str) -> String {
     let mut head = head.to_string();
     let marker = "<meta http-equiv=\"Content-Security-Policy\"";
     while let Some(start) = head.find(marker) {
-        let end = head[start..].find('>').map_or(head.len(), |end| start + end + 1);
+        let end = head[start..]
+            .find('>')
+            .map_or(head.len(), |end| start + end + 1);
         head.replace_range(start..end, "");
     }
     match head.find("<head>") {

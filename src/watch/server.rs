@@ -74,7 +74,10 @@ fn answer(request: Request, live: &Arc<Live>, port: u16) {
         .find(|header| header.field.equiv("Host"))
         .map(|header| header.value.as_str().to_string());
     let Some(host) = host.filter(|host| host_allowed(host, port)) else {
-        return respond(request, text(403, "this server answers only to 127.0.0.1\n"));
+        return respond(
+            request,
+            text(403, "this server answers only to 127.0.0.1\n"),
+        );
     };
     if !matches!(request.method(), Method::Get | Method::Head) {
         return respond(request, text(405, "only GET\n"));
@@ -88,8 +91,8 @@ fn answer(request: Request, live: &Arc<Live>, port: u16) {
         }
         Route::Health => {
             let json = serde_json::to_string(&live.health()).expect("health serialises");
-            let response = Response::from_string(json)
-                .with_header(header("Content-Type", "application/json"));
+            let response =
+                Response::from_string(json).with_header(header("Content-Type", "application/json"));
             respond(request, response);
         }
         Route::Events => {
@@ -119,7 +122,11 @@ fn stream_events(request: Request, live: &Live) {
             Err(mpsc::RecvTimeoutError::Timeout) => ": still here\n\n".to_string(),
             Err(mpsc::RecvTimeoutError::Disconnected) => return,
         };
-        if stream.write_all(chunk.as_bytes()).and_then(|()| stream.flush()).is_err() {
+        if stream
+            .write_all(chunk.as_bytes())
+            .and_then(|()| stream.flush())
+            .is_err()
+        {
             return;
         }
     }
@@ -153,7 +160,14 @@ mod tests {
         assert_eq!(route("/"), Route::Page);
         assert_eq!(route("/events"), Route::Events);
         assert_eq!(route("/health"), Route::Health);
-        for refused in ["/../../etc/passwd", "/%2e%2e/%2e%2e/etc/passwd", "/?x", "//", "/index.html", ""] {
+        for refused in [
+            "/../../etc/passwd",
+            "/%2e%2e/%2e%2e/etc/passwd",
+            "/?x",
+            "//",
+            "/index.html",
+            "",
+        ] {
             assert_eq!(route(refused), Route::NotFound, "{refused}");
         }
     }
