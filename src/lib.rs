@@ -22,7 +22,7 @@ pub mod plan;
 pub(crate) mod report;
 mod watch;
 pub use document::spec::schema;
-pub use watch::{WatchOptions, watch};
+pub use watch::{WatchError, WatchOptions, watch};
 
 pub use build::ShareSummary;
 pub use build::share::{Share, ShareError};
@@ -83,6 +83,8 @@ pub enum Error {
     Dispatch(#[from] DispatchError),
     #[error(transparent)]
     Templates(#[from] TemplateError),
+    #[error(transparent)]
+    Watch(#[from] WatchError),
 }
 
 /// What a finished build did.

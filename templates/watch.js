@@ -7,13 +7,15 @@
   const notice = document.getElementById("stet-live-notice");
   const progress = document.getElementById("stet-live-progress");
 
-  // The first step or section whose top is in view, and where it sits, so the reader
-  // stays at the step they were reading when the report above it grows or shrinks.
+  // The step at the top of the window (the first whose bottom is below it) and where
+  // its top sits, so the reader stays at the step they were reading when the report
+  // above it grows or shrinks. Only steps: an element without a box of its own (a
+  // chart's clip path) would read as being at the top.
   function anchor() {
-    for (const element of report.querySelectorAll("[id]")) {
-      const top = element.getBoundingClientRect().top;
-      if (top >= 0) {
-        return { id: element.id, top };
+    for (const element of report.querySelectorAll("section[id]")) {
+      const box = element.getBoundingClientRect();
+      if (box.bottom > 0) {
+        return { id: element.id, top: box.top };
       }
     }
     return null;

@@ -484,7 +484,13 @@ fn an_open_page_shows_an_edit_without_a_navigation() {
         .arg(script)
         .arg(format!("http://127.0.0.1:{}/", watching.port))
         .arg(&doc)
-        .args(["The first paragraph.", "Seen without reloading."])
+        // Several paragraphs above the step the reader is at, which must stay in place.
+        .arg("The first paragraph.")
+        .arg(format!(
+            "Seen without reloading.{}",
+            "\n\nMore prose above.".repeat(8)
+        ))
+        .arg("step-fit")
         .output()
         .expect("the browser script runs");
     assert!(

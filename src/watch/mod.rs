@@ -44,8 +44,8 @@ pub struct WatchOptions {
 
 /// What the deciding thread hears.
 enum Signal {
-    /// Files changed (absolute paths, any file in a watched folder); none when the
-    /// watcher failed and could not say which.
+    /// Files changed (absolute paths, any file in a watched folder, possibly none
+    /// of ours); no paths when the watcher failed and could not say which.
     Changed(Vec<PathBuf>),
     /// The build thread finished.
     Built(Result<Observed, Error>),
@@ -53,12 +53,32 @@ enum Signal {
     Stop,
 }
 
+/// Why `stet watch` could not start, or why a build had nothing to build.
+#[derive(Debug, thiserror::Error)]
+pub enum WatchError {
+    #[error(
+        "cannot serve on 127.0.0.1:{port}: the port is in use (choose another with --port, or leave it out for a free one)"
+    )]
+    PortInUse { port: u16 },
+    #[error("cannot serve on 127.0.0.1:{port}: {source}")]
+    Bind { port: u16, source: std::io::Error },
+    #[error("cannot catch Ctrl-C: {0}")]
+    Interrupts(#[from] ctrlc::Error),
+    #[error("cannot watch files: {0}")]
+    Files(#[from] notify_debouncer_full::notify::Error),
+    #[error("{} is gone (deleted or renamed); waiting for it to come back", .0.display())]
+    DocumentGone(PathBuf),
+}
+
 /// `stet watch`: serves until Ctrl-C. A port in use or a watcher that cannot start is
 /// an error before anything is built.
 pub fn watch(options: WatchOptions) -> Result<(), Error> {
-    let server = server::bind(options.port).map_err(|source| Error::Io {
-        context: bind_context(options.port, &source),
-        source,
+    let server = server::bind(options.port).map_err(|source| match source.kind() {
+        std::io::ErrorKind::AddrInUse => WatchError::PortInUse { port: options.port },
+        _ => WatchError::Bind {
+            port: options.port,
+            source,
+        },
     })?;
     let url = format!("http://127.0.0.1:{}/", server.port);
     let (signals, heard) = mpsc::channel();
@@ -66,25 +86,8 @@ pub fn watch(options: WatchOptions) -> Result<(), Error> {
     ctrlc::set_handler(move || {
         let _ = stop.send(Signal::Stop);
     })
-    .map_err(|error| Error::Usage(format!("cannot catch Ctrl-C: {error}")))?;
-    let changes = signals.clone();
-    let debouncer = new_debouncer(DEBOUNCE, None, move |result: DebounceEventResult| {
-        let is_err = result.is_err();
-        // A watcher error (the folder went away, say) is heard as a change, so the next
-        // build finds out what is there.
-        let paths: Vec<PathBuf> = match result {
-            Ok(events) => events
-                .into_iter()
-                .filter(|event| changes_contents(&event.kind))
-                .flat_map(|event| event.event.paths)
-                .collect(),
-            Err(_) => Vec::new(),
-        };
-        if !paths.is_empty() || is_err {
-            let _ = changes.send(Signal::Changed(paths));
-        }
-    })
-    .map_err(|error| Error::Usage(format!("cannot watch files: {error}")))?;
+    .map_err(WatchError::from)?;
+    let debouncer = file_changes(signals.clone())?;
     let live = Arc::new(Live::new());
     let serving = live.clone();
     std::thread::spawn(move || server.serve(serving));
@@ -110,22 +113,37 @@ pub fn watch(options: WatchOptions) -> Result<(), Error> {
     Ok(())
 }
 
+/// A file watcher that sends each settled change to `signals`.
+fn file_changes(
+    signals: Sender<Signal>,
+) -> Result<Debouncer<RecommendedWatcher, RecommendedCache>, WatchError> {
+    let debouncer = new_debouncer(DEBOUNCE, None, move |result: DebounceEventResult| {
+        let paths: Vec<PathBuf> = match result {
+            Ok(events) => events
+                .into_iter()
+                .filter(|event| changes_contents(&event.kind))
+                .flat_map(|event| event.event.paths)
+                .collect(),
+            // A watcher error (a folder went away, say) is heard as a change of
+            // unknown files, so the next build finds out what is there.
+            Err(_) => {
+                let _ = signals.send(Signal::Changed(Vec::new()));
+                return;
+            }
+        };
+        if !paths.is_empty() {
+            let _ = signals.send(Signal::Changed(paths));
+        }
+    })?;
+    Ok(debouncer)
+}
+
 /// Whether an event may have changed a file: opening and reading one (as every build
 /// does) does not, and must not start another build.
 fn changes_contents(kind: &EventKind) -> bool {
     match kind {
         EventKind::Access(access) => matches!(access, AccessKind::Close(AccessMode::Write)),
         _ => true,
-    }
-}
-
-/// The message for a port that cannot be bound, naming the flag that picks another.
-fn bind_context(port: u16, error: &std::io::Error) -> String {
-    match error.kind() {
-        std::io::ErrorKind::AddrInUse => format!(
-            "serving on 127.0.0.1:{port}: the port is in use (choose another with --port, or leave it out for a free one)"
-        ),
-        _ => format!("serving on 127.0.0.1:{port}"),
     }
 }
 
@@ -190,10 +208,7 @@ impl Watcher {
                 let progress = PageProgress::new(&live);
                 build_observed(&options, &progress, &stopped)
             } else {
-                Err(Error::Usage(format!(
-                    "{} is gone (deleted or renamed); waiting for it to come back",
-                    options.document.display()
-                )))
+                Err(WatchError::DocumentGone(options.document.clone()).into())
             };
             let _ = signals.send(Signal::Built(result));
         });
