@@ -94,7 +94,7 @@ pub(crate) trait Progress: Sync {
 }
 
 /// Why a run was not started: the build it belonged to was stopped.
-pub(crate) const STOPPED: &str = "not run: the build was stopped";
+const STOPPED: &str = "not run: the build was stopped";
 
 /// One network to fit.
 struct RunTask<'a> {
