@@ -714,7 +714,12 @@ fn use_model_step(
             StepSpec::Predict(_) => {
                 model_use::predict(model, &ready, &step.files[0]).map(Outcome::Predict)
             }
-            _ => model_use::export(model, &ready).map(Outcome::Export),
+            StepSpec::Export(export) => {
+                let provenance = model_use::provenance(plan, model_index, model);
+                model_use::export(model, &ready, export.format, provenance)
+                    .map(|result| Outcome::Export(Box::new(result)))
+            }
+            _ => unreachable!("only predict and export use a model"),
         }
         .map_err(StepError::from)
     });

@@ -6,6 +6,7 @@ use serde::{Deserialize, Serialize};
 use crate::data::{InputColumn, Scale, Task};
 use crate::document::spec::MetricName;
 use crate::document::spec::sweep::Varied;
+use crate::export::ExportResult;
 use crate::nn::{Activation, ClassificationMetrics, Loss, RegressionMetrics, TrainOutcome};
 
 /// Wall-clock seconds.
@@ -146,12 +147,6 @@ pub(crate) struct PredictResult {
     pub csv: String,
 }
 
-/// An export step's result: the model as JSON text.
-#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
-pub(crate) struct ExportResult {
-    pub json: String,
-}
-
 /// A step's result.
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
 #[serde(rename_all = "snake_case")]
@@ -163,7 +158,8 @@ pub(crate) enum Outcome {
     /// A comparison is drawn from its runs' results when the report is rendered.
     Compare,
     Predict(PredictResult),
-    Export(ExportResult),
+    /// Boxed: the network and its provenance outweigh every other result.
+    Export(Box<ExportResult>),
 }
 
 /// A metric over a train step's runs: the mean and, with several runs, the sample

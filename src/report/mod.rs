@@ -4,6 +4,7 @@
 
 pub(crate) mod chart;
 pub(crate) mod compare_view;
+pub(crate) mod diff_view;
 pub(crate) mod format;
 pub(crate) mod model_view;
 pub(crate) mod prose;
@@ -19,6 +20,7 @@ use serde::Serialize;
 
 use crate::build::outcome::Outcome;
 use crate::build::{BuildResult, Status};
+use crate::carry::Carried;
 use crate::document::{Document, Piece, StepSpec};
 use crate::plan::{Plan, short_key};
 use compare_view::{CompareView, Compared, SweepView, compare_view, sweep_view};
@@ -32,6 +34,7 @@ const BUILT_IN: &[(&str, &str)] = &[
     ("report.html", include_str!("../../templates/report.html")),
     ("step.html", include_str!("../../templates/step.html")),
     ("style.css", include_str!("../../templates/style.css")),
+    ("diff.html", include_str!("../../templates/diff.html")),
 ];
 
 /// A loaded set of templates.
@@ -99,6 +102,10 @@ pub(crate) struct ReportInput<'a> {
     pub allow_html: bool,
     /// When the build ran, already formatted.
     pub built_at: &'a str,
+    /// The report's file name, for the footer's unpack command.
+    pub report_file: &'a str,
+    /// The experiment the report carries.
+    pub carried: &'a Carried,
 }
 
 #[derive(Serialize)]
@@ -112,6 +119,10 @@ struct ReportView<'a> {
     document_name: &'a str,
     document_hash: &'a str,
     pieces: Vec<PieceView>,
+    /// The footer's sentence on unpacking, its command, and the block it unpacks.
+    unpack_hint: String,
+    unpack_command: String,
+    experiment: &'a str,
 }
 
 #[derive(Serialize)]
@@ -157,11 +168,30 @@ pub(crate) fn render(
         document_name: input.document_name,
         document_hash: input.document_hash,
         pieces: pieces(input),
+        unpack_hint: unpack_hint(input),
+        unpack_command: format!("stet unpack {}", input.report_file),
+        experiment: &input.carried.html,
     };
     templates
         .env
         .get_template("report.html")?
         .render(minijinja::value::Serde(&view))
+}
+
+/// Says that the report can be unpacked, and what an unpacked copy will lack.
+fn unpack_hint(input: &ReportInput<'_>) -> String {
+    match input.carried.left_out {
+        0 => "This report carries its document and data files; to write them out, ready to \
+              rebuild, run"
+            .into(),
+        left_out => format!(
+            "This report carries its document and the hashes of its data files ({left_out} \
+             not included: supply {} and the build checks {} against the hashes); to write \
+             the document out, run",
+            if left_out == 1 { "it" } else { "them" },
+            if left_out == 1 { "it" } else { "them" },
+        ),
+    }
 }
 
 /// The front matter's title, else the first heading's text, else the file name.
@@ -312,7 +342,7 @@ fn step_view(input: &ReportInput<'_>, index: usize, yaml: &str, beside_html: Str
             _ => None,
         },
         export: match &record.outcome {
-            Some(Outcome::Export(result)) => Some(export_view(result)),
+            Some(Outcome::Export(result)) => Some(export_view(result, input.document_hash)),
             _ => None,
         },
         wrote: match (&step.spec, &record.outcome) {

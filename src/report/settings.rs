@@ -155,6 +155,7 @@ pub(crate) fn rows(spec: &StepSpec, written: &Written) -> Vec<SettingRow> {
         StepSpec::Export(export) => vec![
             row("model", export.model.clone()),
             row("write", export.write.clone()),
+            row("format", word(&export.format).to_string()),
         ],
     }
 }

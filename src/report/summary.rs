@@ -6,6 +6,7 @@ use serde_json::{Map, Value, json};
 use super::format::stop_code;
 use crate::build::outcome::{FitResult, MetricStat, Outcome, RowSet, RunResult, SetMetrics};
 use crate::build::{BuildResult, Status};
+use crate::document::StepSpec;
 use crate::document::spec::sweep::Varied;
 use crate::plan::Plan;
 
@@ -38,6 +39,7 @@ pub(crate) fn summary(
                 }
             }
             object.insert("key".into(), json!(step.key));
+            object.insert("settings".into(), spec_settings(&step.spec));
             match &record.outcome {
                 Some(Outcome::Train(result)) => {
                     object.insert(
@@ -80,6 +82,14 @@ pub(crate) fn summary(
         })
         .collect();
     json!({"document": document_name, "hash": document_hash, "steps": steps})
+}
+
+/// A step's settings with defaults applied, as its key reads them, without the kind.
+fn spec_settings(spec: &StepSpec) -> Value {
+    match serde_json::to_value(spec).expect("a spec serialises") {
+        Value::Object(tagged) => tagged.into_iter().next().map_or(Value::Null, |(_, v)| v),
+        other => other,
+    }
 }
 
 fn train_fields(result: &FitResult, object: &mut Map<String, Value>) {

@@ -532,7 +532,14 @@ fn export_settings(g: &mut Draw<'_, '_>, skeleton: &Skeleton, out: &mut Lines) -
     push(out, "model", model);
     let write = write_path(g)?;
     push(out, "write", write);
-    unknown(g, out, "format", "onnx")
+    maybe(
+        g,
+        out,
+        (1, 2),
+        "format",
+        &["json", "onnx"],
+        &["pdf", "[onnx]"],
+    )
 }
 
 /// One fenced step block; its header line, keys, layout and fence may be mutated.

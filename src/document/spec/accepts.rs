@@ -7,6 +7,7 @@ use std::sync::LazyLock;
 use serde_yaml::Value;
 
 use super::compare::ChartChoice;
+use super::model_use::ExportFormat;
 use super::sweep::{MetricName, value_text};
 use super::{LossChoice, OptimizerKind, OutputChoice};
 use crate::data::{Missing, Scale, Task};
@@ -45,6 +46,7 @@ fn accepts(setting: &str) -> Option<Accepts> {
         "loss" => Word(words::<LossChoice>()),
         "optimizer" => Word(words::<OptimizerKind>()),
         "precision" => Word(words::<Precision>()),
+        "format" => Word(words::<ExportFormat>()),
         "task" => Word(words::<Task>()),
         "scale" => Word(words::<Scale>()),
         "missing" => Word(words::<Missing>()),
@@ -230,6 +232,7 @@ mod tests {
         assert_eq!(serde_words::<Missing>(), words_of::<Missing>());
         assert_eq!(serde_words::<MetricName>(), words_of::<MetricName>());
         assert_eq!(serde_words::<ChartChoice>(), words_of::<ChartChoice>());
+        assert_eq!(serde_words::<ExportFormat>(), words_of::<ExportFormat>());
         let mut hidden = HIDDEN_ACTIVATIONS.clone();
         hidden.push("softmax");
         hidden.sort();
