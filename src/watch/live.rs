@@ -12,7 +12,7 @@ use super::page::{self, Overlay, Report};
 
 /// Most event streams open at once; more are refused, so a stuck page cannot pile up
 /// threads.
-pub(crate) const MAX_STREAMS: usize = 32;
+const MAX_STREAMS: usize = 32;
 
 /// The pages' shared state.
 pub(crate) struct Live {

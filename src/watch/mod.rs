@@ -348,3 +348,31 @@ impl Progress for PageProgress<'_> {
         self.live.progress("rendering the report…".into());
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use notify_debouncer_full::notify::event::{CreateKind, ModifyKind, RemoveKind, RenameMode};
+
+    use super::*;
+
+    #[test]
+    fn reading_a_file_is_no_change_but_writing_renaming_or_removing_it_is() {
+        for read in [
+            AccessKind::Open(AccessMode::Read),
+            AccessKind::Open(AccessMode::Any),
+            AccessKind::Close(AccessMode::Read),
+            AccessKind::Read,
+        ] {
+            assert!(!changes_contents(&EventKind::Access(read)), "{read:?}");
+        }
+        for change in [
+            EventKind::Access(AccessKind::Close(AccessMode::Write)),
+            EventKind::Modify(ModifyKind::Any),
+            EventKind::Modify(ModifyKind::Name(RenameMode::To)),
+            EventKind::Create(CreateKind::File),
+            EventKind::Remove(RemoveKind::File),
+        ] {
+            assert!(changes_contents(&change), "{change:?}");
+        }
+    }
+}
