@@ -3,8 +3,8 @@
 //! here, beside the values they describe, so that `main.rs` only prints them and the
 //! wording can be tested without running the binary.
 
-use crate::build::ShareSummary;
 use crate::build::share::Share;
+use crate::build::{Progress, ShareSummary};
 use crate::cache::pruning::Cleaning;
 use crate::document::DocumentErrors;
 use crate::{BuildSummary, Dispatched, Error, StatusReport, Unpacked};
@@ -168,14 +168,59 @@ pub fn clean(cleaning: &Cleaning, dry_run: bool) -> Vec<Line> {
 /// Why a command could not be carried out: document problems with their source line
 /// marked (miette), anything else as one line.
 pub fn error(error: &Error) -> Vec<Line> {
+    error_lines(error, miette::GraphicalReportHandler::new())
+}
+
+/// [`error`] as plain text without colours, for the page `stet watch` serves.
+pub(crate) fn error_text(error: &Error) -> String {
+    let plain =
+        miette::GraphicalReportHandler::new_themed(miette::GraphicalTheme::unicode_nocolor());
+    let lines: Vec<String> = error_lines(error, plain)
+        .into_iter()
+        .map(|(Line::Out(text) | Line::Err(text))| text)
+        .collect();
+    lines.join("\n")
+}
+
+fn error_lines(error: &Error, handler: miette::GraphicalReportHandler) -> Vec<Line> {
     match error {
-        Error::Document(errors) => document_problems(errors),
+        Error::Document(errors) => document_problems(errors, &handler),
         other => vec![Line::Err(format!("error: {other}"))],
     }
 }
 
-fn document_problems(errors: &DocumentErrors) -> Vec<Line> {
-    let handler = miette::GraphicalReportHandler::new();
+/// `stet build`'s bar while runs train; drawn only when stderr is a terminal.
+pub(crate) struct TrainingBar(indicatif::ProgressBar);
+
+impl TrainingBar {
+    pub(crate) fn new() -> Self {
+        let style = indicatif::ProgressStyle::with_template(
+            "training {bar:30} {pos}/{len} runs, {elapsed}",
+        )
+        .expect("a valid progress template");
+        let target = indicatif::ProgressDrawTarget::stderr();
+        Self(indicatif::ProgressBar::with_draw_target(None, target).with_style(style))
+    }
+}
+
+impl Progress for TrainingBar {
+    fn training(&self, runs: usize) {
+        self.0.set_length(runs as u64);
+    }
+
+    fn trained(&self, _step: &str) {
+        self.0.inc(1);
+    }
+
+    fn finished(&self) {
+        self.0.finish_and_clear();
+    }
+}
+
+fn document_problems(
+    errors: &DocumentErrors,
+    handler: &miette::GraphicalReportHandler,
+) -> Vec<Line> {
     let mut lines: Vec<Line> = errors
         .diagnostics()
         .into_iter()

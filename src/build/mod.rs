@@ -16,6 +16,7 @@ mod training;
 use std::borrow::Cow;
 use std::collections::HashMap;
 use std::sync::Arc;
+use std::sync::atomic::{AtomicBool, Ordering};
 use std::time::Instant;
 
 use rayon::prelude::*;
@@ -71,13 +72,30 @@ pub(crate) enum StepError {
 }
 
 /// What a build may use.
-#[derive(Clone, Debug)]
-pub(crate) struct RunOptions {
+#[derive(Clone, Copy)]
+pub(crate) struct RunOptions<'a> {
     /// Threads for training runs.
     pub jobs: usize,
-    /// Shown while runs train; hidden when stderr is not a terminal.
-    pub progress: Option<indicatif::ProgressBar>,
+    /// Told about each run as it is trained.
+    pub progress: Option<&'a dyn Progress>,
+    /// Set when the build is no longer wanted (`stet watch` saw a newer document): runs
+    /// already started finish and are cached, the rest are not started.
+    pub stop: Option<&'a AtomicBool>,
 }
+
+/// Told about training as it happens, from the training threads: the console's bar
+/// for `stet build`, the served page's progress line for `stet watch`.
+pub(crate) trait Progress: Sync {
+    /// `runs` runs are about to be trained.
+    fn training(&self, runs: usize);
+    /// One run of step `step` was trained and cached.
+    fn trained(&self, step: &str);
+    /// Training is over, finished or stopped.
+    fn finished(&self);
+}
+
+/// Why a run was not started: the build it belonged to was stopped.
+const STOPPED: &str = "not run: the build was stopped";
 
 /// One network to fit.
 struct RunTask<'a> {
@@ -571,14 +589,22 @@ fn fit_all<'t>(
     let (unique, unfit): (Vec<usize>, Vec<usize>) = unique
         .iter()
         .partition(|&&i| !unprepared.contains_key(&tasks[i].data));
-    if let Some(bar) = &options.progress {
-        bar.set_length(unique.len() as u64);
+    if let Some(progress) = options.progress {
+        progress.training(unique.len());
     }
+    let stopped = || {
+        options
+            .stop
+            .is_some_and(|stop| stop.load(Ordering::Relaxed))
+    };
     // On the caller's pool (`arithmetic_pool`).
     let results = unique
         .par_iter()
         .map(|&i| {
             let task = &tasks[i];
+            if stopped() {
+                return (task.key, Err(STOPPED.to_string()));
+            }
             let result = fit(
                 &prepared[&task.data],
                 task.partition,
@@ -587,14 +613,14 @@ fn fit_all<'t>(
                 &task.train,
             );
             cache.store(task.key, EntryKind::Run, &result);
-            if let Some(bar) = &options.progress {
-                bar.inc(1);
+            if let Some(progress) = options.progress {
+                progress.trained(&plan.steps[task.step].id);
             }
             (task.key, Ok(result))
         })
         .collect::<HashMap<_, _>>();
-    if let Some(bar) = &options.progress {
-        bar.finish_and_clear();
+    if let Some(progress) = options.progress {
+        progress.finished();
     }
     let failed = unfit
         .iter()
