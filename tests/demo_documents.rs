@@ -16,7 +16,7 @@ fn build_demo(name: &str, steps: usize, charts: usize) {
 
     let html = std::fs::read_to_string(doc.with_extension("html")).unwrap();
     assert_eq!(html.matches("<section class=\"step ").count(), steps);
-    assert_eq!(html.matches("<svg").count(), charts);
+    assert_eq!(html.matches("<svg class=\"chart\"").count(), charts);
     assert!(html.contains("<table class=\"grid numeric metrics\">"));
     assert!(
         html.contains("<style>") && !html.contains("<link "),

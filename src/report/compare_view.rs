@@ -3,7 +3,7 @@
 
 use serde::Serialize;
 
-use super::chart::{self, Axes, Series};
+use super::chart::{self, Axes, Bar, Series};
 use super::view::{mean_curve, stat_text, stop_counts};
 use crate::build::outcome::{FitResult, RowSet, SetMetrics, SweepResult};
 use crate::document::spec::{ChartChoice, CompareSpec, MetricName};
@@ -80,11 +80,8 @@ pub(crate) fn sweep_view(result: &SweepResult) -> SweepView {
         .collect();
     let series: Vec<Series> = shown
         .iter()
-        .map(|fit| Series {
-            label: describe(&fit.settings),
-            points: mean_curve(&fit.runs, false),
-            dashed: false,
-        })
+        .enumerate()
+        .map(|(n, fit)| Series::nth(n, describe(&fit.settings), mean_curve(&fit.runs, false)))
         .collect();
     let loss_chart_note = if result.fits.len() > MAX_LINES {
         format!(
@@ -152,16 +149,13 @@ fn setting_chart(result: &SweepResult) -> (Option<String>, String) {
         let log_x = lo > 0.0 && hi / lo >= 20.0;
         let metric = result.rank_by.key().replace('_', " ");
         let svg = chart::line_chart(
-            &[Series {
-                label: metric.clone(),
-                points: line,
-                dashed: false,
-            }],
+            &[Series::nth(0, metric.clone(), line)],
             &Axes {
                 x_label: name,
                 y_label: &metric,
                 log_x,
                 log_y: false,
+                skip_spike: false,
             },
         );
         let note = format!(
@@ -252,10 +246,9 @@ pub(crate) fn compare_view(spec: &CompareSpec, entries: &[Compared<'_>]) -> Comp
             let series: Vec<Series> = entries
                 .iter()
                 .take(MAX_LINES)
-                .map(|entry| Series {
-                    label: entry.id.to_string(),
-                    points: mean_curve(&entry.fit.runs, false),
-                    dashed: false,
+                .enumerate()
+                .map(|(n, entry)| {
+                    Series::nth(n, entry.id.to_string(), mean_curve(&entry.fit.runs, false))
                 })
                 .collect();
             let scale = if spec.log_scale {
@@ -270,14 +263,15 @@ pub(crate) fn compare_view(spec: &CompareSpec, entries: &[Compared<'_>]) -> Comp
         }
         ChartChoice::Metric => {
             let metric = metrics.first().copied().unwrap_or(MetricName::Loss);
-            let bars: Vec<(String, f64)> = entries
+            let bars: Vec<Bar> = entries
                 .iter()
                 .map(|entry| {
-                    let value = entry
-                        .fit
-                        .metric(metric, entry.fit.report_rows())
-                        .map_or(f64::NAN, |s| s.mean);
-                    (entry.id.to_string(), value)
+                    let stat = entry.fit.metric(metric, entry.fit.report_rows());
+                    Bar {
+                        label: entry.id.to_string(),
+                        value: stat.as_ref().map_or(f64::NAN, |s| s.mean),
+                        spread: stat.and_then(|s| s.sd),
+                    }
                 })
                 .collect();
             let name = metric.key().replace('_', " ");

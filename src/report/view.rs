@@ -3,7 +3,7 @@
 
 use serde::Serialize;
 
-use super::chart::{self, Series};
+use super::chart::{self, Dash, Series, Weight};
 use super::format::{mean_sd, number, seconds, stop_reason};
 use crate::build::outcome::{DataSummary, FitResult, MetricStat, RowSet, SetMetrics};
 use crate::document::spec::word;
@@ -278,42 +278,90 @@ pub(crate) fn stop_counts(result: &FitResult) -> String {
     }
 }
 
-/// Training and validation loss per epoch; with folds, one pair of lines per fold.
+/// Training and validation loss per epoch. With folds, each fold is a thin line and the
+/// mean over folds a bold one, one legend entry each for training and validation.
 fn loss_chart(result: &FitResult) -> String {
-    let several = result.runs.len() > 1;
+    let runs = &result.runs;
     let mut series = Vec::new();
-    for (i, run) in result.runs.iter().enumerate() {
-        let suffix = if several {
-            format!(" (fold {})", i + 1)
-        } else {
-            String::new()
-        };
-        let history = &run.fit.history;
-        series.push(Series {
-            label: format!("training{suffix}"),
-            points: chart::thin(
-                history
-                    .iter()
-                    .enumerate()
-                    .map(|(e, l)| ((e + 1) as f64, l.train))
-                    .collect(),
-            ),
-            dashed: false,
-        });
-        let validation: Vec<(f64, f64)> = history
-            .iter()
-            .enumerate()
-            .filter_map(|(e, l)| l.validation.map(|v| ((e + 1) as f64, v)))
-            .collect();
-        if !validation.is_empty() {
-            series.push(Series {
-                label: format!("validation{suffix}"),
-                points: chart::thin(validation),
-                dashed: true,
-            });
+    let (train_label, validation_label) = if runs.len() > 1 {
+        let of = format!(" (mean of {} folds)", runs.len());
+        (format!("training{of}"), format!("validation{of}"))
+    } else {
+        ("training".to_string(), "validation".to_string())
+    };
+    if runs.len() > 1 {
+        for run in runs {
+            series.push(loss_line(
+                None,
+                history_curve(run, false),
+                false,
+                Weight::Thin,
+            ));
+            series.push(loss_line(
+                None,
+                history_curve(run, true),
+                true,
+                Weight::Thin,
+            ));
         }
     }
+    let weight = if runs.len() > 1 {
+        Weight::Bold
+    } else {
+        Weight::Regular
+    };
+    series.push(loss_line(
+        Some(train_label),
+        mean_curve(runs, false),
+        false,
+        weight,
+    ));
+    let validation = mean_curve(runs, true);
+    if !validation.is_empty() {
+        series.push(loss_line(Some(validation_label), validation, true, weight));
+    }
+    series.retain(|line| !line.points.is_empty());
     chart::line_chart(&series, &chart::Axes::loss(true))
+}
+
+/// A line of a loss chart: training loss in the first colour, solid; validation in the
+/// second, dashed.
+fn loss_line(
+    label: Option<String>,
+    points: Vec<(f64, f64)>,
+    validation: bool,
+    weight: Weight,
+) -> Series {
+    Series {
+        label,
+        points,
+        colour: usize::from(validation),
+        dash: if validation {
+            Dash::Dashed
+        } else {
+            Dash::Solid
+        },
+        weight,
+    }
+}
+
+/// One run's loss per epoch, thinned for drawing.
+fn history_curve(run: &crate::build::outcome::RunResult, validation: bool) -> Vec<(f64, f64)> {
+    chart::thin(
+        run.fit
+            .history
+            .iter()
+            .enumerate()
+            .filter_map(|(e, losses)| {
+                let value = if validation {
+                    losses.validation
+                } else {
+                    Some(losses.train)
+                };
+                value.map(|v| ((e + 1) as f64, v))
+            })
+            .collect(),
+    )
 }
 
 /// The confusion matrix summed over runs, on held-out rows when there are any.
