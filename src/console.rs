@@ -6,7 +6,7 @@
 use crate::build::ShareSummary;
 use crate::build::share::Share;
 use crate::cache::pruning::Cleaning;
-use crate::document::DocumentErrors;
+use crate::document::{Decoration, DocumentErrors};
 use crate::{BuildSummary, Dispatched, Error, StatusReport};
 
 /// One line for one of the two streams.
@@ -137,27 +137,19 @@ pub fn clean(cleaning: &Cleaning, dry_run: bool) -> Vec<Line> {
 }
 
 /// Why a command could not be carried out: document problems with their source line
-/// marked (miette), anything else as one line.
-pub fn error(error: &Error) -> Vec<Line> {
+/// marked, decorated for a terminal or plain, anything else as one line.
+pub fn error(error: &Error, decoration: Decoration) -> Vec<Line> {
     match error {
-        Error::Document(errors) => document_problems(errors),
+        Error::Document(errors) => document_problems(errors, decoration),
         other => vec![Line::Err(format!("error: {other}"))],
     }
 }
 
-fn document_problems(errors: &DocumentErrors) -> Vec<Line> {
-    let handler = miette::GraphicalReportHandler::new();
+fn document_problems(errors: &DocumentErrors, decoration: Decoration) -> Vec<Line> {
     let mut lines: Vec<Line> = errors
-        .diagnostics()
+        .rendered(decoration)
         .into_iter()
-        .map(|diagnostic| {
-            let mut out = String::new();
-            match handler.render_report(&mut out, &diagnostic) {
-                // The rendering ends with its own line break.
-                Ok(()) => Line::Err(out.strip_suffix('\n').unwrap_or(&out).to_string()),
-                Err(_) => Line::Err(format!("error: {diagnostic}")),
-            }
-        })
+        .map(Line::Err)
         .collect();
     lines.push(Line::Err(format!(
         "{}: {} problem(s); nothing was written",

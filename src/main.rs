@@ -1,6 +1,7 @@
 //! The `stet` command: parse the command line, call the library, print what happened
 //! and map it to an exit code (0 all steps succeeded, 1 a step failed, 2 unusable input).
 
+use std::io::IsTerminal;
 use std::path::PathBuf;
 use std::process::ExitCode;
 use std::time::Duration;
@@ -151,7 +152,7 @@ fn main() -> ExitCode {
     match run(cli.command) {
         Ok(code) => code,
         Err(error) => {
-            console::print(&console::error(&error));
+            console::print(&console::error(&error, stderr_decoration()));
             ExitCode::from(2)
         }
     }
@@ -268,4 +269,13 @@ fn cache_choice(dir: Option<PathBuf>) -> CacheChoice {
 
 fn default_jobs() -> usize {
     std::thread::available_parallelism().map_or(1, |n| n.get())
+}
+
+/// Colour and bold for a person at a terminal; plain ASCII for a file or a pipe.
+fn stderr_decoration() -> stet::document::Decoration {
+    if std::io::stderr().is_terminal() {
+        stet::document::Decoration::Terminal
+    } else {
+        stet::document::Decoration::Plain
+    }
 }
