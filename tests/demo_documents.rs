@@ -45,14 +45,16 @@ fn build_demo(name: &str, steps: usize, charts: usize) {
 
 #[test]
 fn the_hives_demo_builds_a_complete_report() {
-    // 4 trains, a sweep with its loss and learning-rate charts, a compare.
-    build_demo("hives.md", 11, 7);
+    // 4 trains, a sweep (a heat map over its two settings, a plot for each, its loss
+    // chart), a compare.
+    build_demo("hives.md", 11, 9);
 }
 
 #[test]
 fn the_greenhouse_demo_builds_a_complete_report() {
-    // 4 trains, a sweep over non-numeric settings (one chart), a compare.
-    build_demo("greenhouse.md", 11, 6);
+    // 4 trains, a sweep over two non-numeric settings (a heat map, a plot for each,
+    // its loss chart), a compare.
+    build_demo("greenhouse.md", 11, 9);
 }
 
 #[test]

@@ -47,6 +47,30 @@ fn screenshot_folder(ws: &Workspace) -> PathBuf {
 }
 
 #[test]
+fn a_sweep_of_200_combinations_shows_its_shape_and_its_best_ten_with_the_rest_folded() {
+    let ws = Workspace::new();
+    let sweep = ws.write("experiments/large_sweep.md", LARGE_SWEEP);
+    ws.build_ok(&sweep, &[]);
+    let html = std::fs::read_to_string(sweep.with_extension("html")).unwrap();
+    let card = &html[html.find("id=\"step-wide\"").unwrap()..];
+    let card = &card[..card.find("</section>").unwrap()];
+    let (shown, folded) = card
+        .split_once("<details class=\"more\">")
+        .expect("a disclosure");
+    // Each table row of a combination starts with its rank cell.
+    assert_eq!(
+        shown.matches("<tr><td>").count() + shown.matches("<tr class=\"best\">").count(),
+        10
+    );
+    assert_eq!(folded.matches("<tr><td>").count(), 190);
+    assert!(folded.starts_with("<summary>The other 190 combinations</summary>"));
+    // A heat map over two settings, a plot per setting (three), the loss chart.
+    assert_eq!(card.matches("<svg class=\"chart\"").count(), 5);
+    assert!(card.contains("the best cell outlined"));
+    assert!(card.contains("at each learning_rate (log axis)"));
+}
+
+#[test]
 fn every_demo_report_and_a_large_sweep_read_well_at_wide_and_phone_widths() {
     let check = "report layout in Chromium";
     let Some(python) = reference_python(check) else {

@@ -600,9 +600,235 @@ pub(crate) fn bar_chart(bars: &[Bar], value_label: &str) -> String {
     canvas.finish(plot_bottom + BOTTOM, &title)
 }
 
+/// A metric over a grid of two settings' values.
+pub(crate) struct HeatMap<'a> {
+    pub x_name: &'a str,
+    pub x_labels: Vec<String>,
+    pub y_name: &'a str,
+    pub y_labels: Vec<String>,
+    /// `cells[row][column]`, rows along y; NaN where no combination has a value.
+    pub cells: Vec<Vec<f64>>,
+    /// (row, column) of the best cell.
+    pub best: Option<(usize, usize)>,
+    pub higher_is_better: bool,
+}
+
+/// A sequential ramp (viridis's end points and three between), dark for the worst
+/// value and light for the best; it reads in grey and to colour-blind readers too.
+const RAMP: [(u8, u8, u8); 5] = [
+    (0x44, 0x01, 0x54),
+    (0x3b, 0x52, 0x8b),
+    (0x21, 0x91, 0x8c),
+    (0x5e, 0xc9, 0x62),
+    (0xfd, 0xe7, 0x25),
+];
+
+/// The ramp's colour at `t` in 0..=1, and whether dark text reads on it.
+fn ramp(t: f64) -> (String, bool) {
+    let scaled = t.clamp(0.0, 1.0) * (RAMP.len() - 1) as f64;
+    let i = (scaled.floor() as usize).min(RAMP.len() - 2);
+    let f = scaled - i as f64;
+    let mix = |a: u8, b: u8| (a as f64 + (b as f64 - a as f64) * f).round() as u8;
+    let (a, b) = (RAMP[i], RAMP[i + 1]);
+    let (r, g, bl) = (mix(a.0, b.0), mix(a.1, b.1), mix(a.2, b.2));
+    let luminance = 0.2126 * r as f64 + 0.7152 * g as f64 + 0.0722 * bl as f64;
+    (format!("#{r:02x}{g:02x}{bl:02x}"), luminance > 140.0)
+}
+
+/// A number in three significant digits, to fit a heat map's cell.
+fn short_number(value: f64) -> String {
+    if !value.is_finite() {
+        return "—".into();
+    }
+    if value == 0.0 || value.abs() >= 1000.0 || value.abs() < 1e-3 {
+        return number(value);
+    }
+    format!("{value:.*}", decimals_for(value, 3))
+}
+
+/// Cells coloured from worst (dark) to best (light), each with its value printed and
+/// the best one outlined.
+pub(crate) fn heat_map(map: &HeatMap<'_>) -> String {
+    let values = || {
+        map.cells
+            .iter()
+            .flatten()
+            .copied()
+            .filter(|v| v.is_finite())
+    };
+    let lo = values().fold(f64::INFINITY, f64::min);
+    let hi = values().fold(f64::NEG_INFINITY, f64::max);
+    let label_room = map
+        .y_labels
+        .iter()
+        .map(|l| text_width(l))
+        .fold(0.0, f64::max)
+        .clamp(24.0, WIDTH * 0.3);
+    let left = FONT * 2.0 + label_room + 8.0;
+    let columns = map.x_labels.len().max(1) as f64;
+    let cell_width = (WIDTH - RIGHT - left) / columns;
+    let cell_height = 26.0;
+    let top = TOP + FONT * 2.0 + 8.0;
+    let mut canvas = Canvas::default();
+    canvas.text(
+        (left + WIDTH - RIGHT) / 2.0,
+        TOP + FONT,
+        "middle",
+        map.x_name,
+    );
+    for (j, label) in map.x_labels.iter().enumerate() {
+        let x = left + cell_width * (j as f64 + 0.5);
+        canvas.text(x, top - 6.0, "middle", &truncated(label, cell_width));
+    }
+    for (i, row) in map.cells.iter().enumerate() {
+        let y = top + cell_height * i as f64;
+        let label = map.y_labels.get(i).map_or("", String::as_str);
+        canvas.text(
+            left - 6.0,
+            y + cell_height / 2.0 + FONT * 0.35,
+            "end",
+            &truncated(label, label_room),
+        );
+        for (j, &value) in row.iter().enumerate() {
+            let x = left + cell_width * j as f64;
+            let t = if hi > lo {
+                (value - lo) / (hi - lo)
+            } else {
+                1.0
+            };
+            let t = if map.higher_is_better { t } else { 1.0 - t };
+            let (fill, dark_text) = if value.is_finite() {
+                ramp(t)
+            } else {
+                ("#f2f0eb".to_string(), true)
+            };
+            let _ = write!(
+                canvas.body,
+                r##"<rect x="{x:.1}" y="{y:.1}" width="{:.1}" height="{:.1}" fill="{fill}" stroke="#ffffff"/>"##,
+                cell_width, cell_height
+            );
+            let ink = if dark_text { INK } else { "#ffffff" };
+            let _ = write!(
+                canvas.body,
+                r#"<text x="{:.1}" y="{:.1}" text-anchor="middle" fill="{ink}">{}</text>"#,
+                x + cell_width / 2.0,
+                y + cell_height / 2.0 + FONT * 0.35,
+                short_number(value)
+            );
+        }
+    }
+    if let Some((i, j)) = map.best {
+        let _ = write!(
+            canvas.body,
+            r#"<rect x="{:.1}" y="{:.1}" width="{:.1}" height="{:.1}" fill="none" stroke="{INK}" stroke-width="3"/>"#,
+            left + cell_width * j as f64 + 1.5,
+            top + cell_height * i as f64 + 1.5,
+            cell_width - 3.0,
+            cell_height - 3.0
+        );
+    }
+    let bottom = top + cell_height * map.cells.len() as f64;
+    let middle = (top + bottom) / 2.0;
+    let _ = write!(
+        canvas.body,
+        r#"<text x="{FONT:.1}" y="{middle:.1}" text-anchor="middle" transform="rotate(-90 {FONT:.1} {middle:.1})">{}</text>"#,
+        escaped(map.y_name)
+    );
+    canvas.finish(
+        bottom + 8.0,
+        &format!("{} against {}", map.y_name, map.x_name),
+    )
+}
+
+/// Where a marginal plot's points sit along x: at numbers, or at categories in order.
+pub(crate) enum Positions {
+    Numbers { values: Vec<f64>, log: bool },
+    Categories(Vec<String>),
+}
+
+/// A metric's mean ± sd at each value of one setting: points with error bars.
+pub(crate) fn marginal_chart(
+    positions: &Positions,
+    means: &[(f64, f64)],
+    x_label: &str,
+    y_label: &str,
+) -> String {
+    let spread_ends = means
+        .iter()
+        .flat_map(|&(mean, sd)| [mean - sd, mean + sd])
+        .filter(|v| v.is_finite());
+    let (y_lo, y_hi) = range_of(spread_ends, false, (0.0, 1.0));
+    let bottom = FRAME_HEIGHT - BOTTOM;
+    let (x, x_values, ticks) = match positions {
+        Positions::Numbers { values, log } => {
+            let (lo, hi) = range_of(values.iter().copied(), *log, (0.0, 1.0));
+            let scale = Scale {
+                lo,
+                hi,
+                log: *log,
+                from: LEFT,
+                to: WIDTH - RIGHT,
+            };
+            let ticks = numeric_ticks(&scale);
+            (scale, values.clone(), ticks)
+        }
+        Positions::Categories(labels) => {
+            let scale = Scale {
+                lo: -0.5,
+                hi: labels.len() as f64 - 0.5,
+                log: false,
+                from: LEFT,
+                to: WIDTH - RIGHT,
+            };
+            let room = (WIDTH - RIGHT - LEFT) / labels.len().max(1) as f64;
+            let ticks = labels
+                .iter()
+                .enumerate()
+                .map(|(i, l)| (i as f64, truncated(l, room)))
+                .collect();
+            (scale, (0..labels.len()).map(|i| i as f64).collect(), ticks)
+        }
+    };
+    let y = Scale {
+        lo: y_lo,
+        hi: y_hi,
+        log: false,
+        from: bottom,
+        to: TOP,
+    };
+    let axes = Axes {
+        x_label,
+        y_label,
+        log_x: x.log,
+        log_y: false,
+        skip_spike: false,
+    };
+    let mut canvas = Canvas::default();
+    frame(&mut canvas, &x, &y, &axes, &ticks);
+    for (&at, &(mean, sd)) in x_values.iter().zip(means) {
+        if !mean.is_finite() {
+            continue;
+        }
+        let (px, py) = (x.at(at), y.at(mean));
+        if sd > 0.0 {
+            let (a, b) = (y.at(mean - sd), y.at(mean + sd));
+            canvas.line((px, a), (px, b), PALETTE[0], 1.5);
+            canvas.line((px - 4.0, a), (px + 4.0, a), PALETTE[0], 1.5);
+            canvas.line((px - 4.0, b), (px + 4.0, b), PALETTE[0], 1.5);
+        }
+        let _ = write!(
+            canvas.body,
+            r#"<circle cx="{px:.1}" cy="{py:.1}" r="4" fill="{}"/>"#,
+            PALETTE[0]
+        );
+    }
+    canvas.finish(FRAME_HEIGHT, &format!("{y_label} against {x_label}"))
+}
+
 /// A label cut with an ellipsis to fit `room` user units.
 fn truncated(label: &str, room: f64) -> String {
-    let fits = (room / (FONT * 0.62)).floor() as usize;
+    // A unit of room, so a label measured to fit its own width is never cut.
+    let fits = ((room + 1.0) / (FONT * 0.62)).floor() as usize;
     if label.chars().count() <= fits {
         return label.to_string();
     }
@@ -712,6 +938,44 @@ mod tests {
             .parse()
             .unwrap();
         assert!(y > FRAME_HEIGHT - BOTTOM + 2.0 * FONT, "legend at y = {y}");
+    }
+
+    #[test]
+    fn a_heat_map_prints_every_value_and_outlines_the_best() {
+        let map = HeatMap {
+            x_name: "momentum",
+            x_labels: vec!["0.5".into(), "0.9".into()],
+            y_name: "learning_rate",
+            y_labels: vec!["0.01".into(), "0.1".into()],
+            cells: vec![vec![0.81, 0.84], vec![0.9, f64::NAN]],
+            best: Some((1, 0)),
+            higher_is_better: true,
+        };
+        let svg = heat_map(&map);
+        for value in [">0.810<", ">0.840<", ">0.900<", ">—<"] {
+            assert!(svg.contains(value), "{value} missing: {svg}");
+        }
+        assert_eq!(svg.matches(r#"stroke-width="3""#).count(), 1);
+        // The best cell (highest accuracy) is the lightest colour of the ramp.
+        assert!(svg.contains(r##"fill="#fde725""##));
+    }
+
+    #[test]
+    fn a_marginal_plot_draws_a_point_and_an_error_bar_per_value() {
+        let svg = marginal_chart(
+            &Positions::Categories(vec!["relu".into(), "tanh".into()]),
+            &[(0.8, 0.05), (0.85, 0.0)],
+            "activation",
+            "accuracy",
+        );
+        assert_eq!(svg.matches("<circle").count(), 2);
+        assert!(svg.contains(">relu</text>") && svg.contains(">tanh</text>"));
+        // One error bar: a stem and two caps.
+        assert_eq!(
+            svg.matches(r##"stroke="#0072b2" stroke-width="1.5""##)
+                .count(),
+            3
+        );
     }
 
     #[test]
