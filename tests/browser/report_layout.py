@@ -1,16 +1,19 @@
 """Opens stet reports in headless Chromium and checks how they lay out.
 
-Usage: report_layout.py SCREENSHOT_DIR REPORT.html...
+Usage: report_layout.py SCREENSHOT_DIR REPORT.html[:MAX_PAGES]...
 
 For each report, at 1400 and 420 CSS px: the page is never wider than the window;
 every table wider than its card sits in a scrolling container; at 420 px no SVG text
 renders under 11 CSS px; the console stays free of errors; nothing is fetched but the
-report itself. A full-page screenshot of each goes to SCREENSHOT_DIR. Prints one line
+report itself. A report given with `:MAX_PAGES` is also printed to A4 and must take at
+most that many pages. A full-page screenshot of each goes to SCREENSHOT_DIR. Prints one line
 per problem and exits 1 when there is any.
 """
 
+import base64
 import json
 import pathlib
+import re
 import shutil
 import sys
 
@@ -99,6 +102,9 @@ def console_errors(driver):
 def check(driver, report, width, shots):
     problems = []
     url = report.resolve().as_uri()
+    # Logs left from the page before (an earlier report, its printing) are not this one's.
+    driver.get_log("performance")
+    driver.get_log("browser")
     set_viewport(driver, width, 900)
     driver.get(url)
     where = f"{report.name} at {width} px"
@@ -120,15 +126,30 @@ def check(driver, report, width, shots):
     return problems
 
 
+def printed_pages(driver, report, shots):
+    """Prints the report as the browser's print dialog would, to A4, and counts pages.
+    Chromium writes each page as an uncompressed `/Type /Page` object."""
+    driver.get(report.resolve().as_uri())
+    pdf = base64.b64decode(driver.execute_cdp_cmd("Page.printToPDF", {
+        "paperWidth": 8.27, "paperHeight": 11.69, "preferCSSPageSize": True})["data"])
+    (shots / f"{report.stem}.pdf").write_bytes(pdf)
+    return len(re.findall(rb"/Type\s*/Page(?!s)", pdf))
+
+
 def main():
     shots = pathlib.Path(sys.argv[1])
     shots.mkdir(parents=True, exist_ok=True)
     driver = browser()
     problems = []
     try:
-        for name in sys.argv[2:]:
+        for argument in sys.argv[2:]:
+            name, _, max_pages = argument.partition(":")
             for width in WIDTHS:
                 problems += check(driver, pathlib.Path(name), width, shots)
+            if max_pages:
+                pages = printed_pages(driver, pathlib.Path(name), shots)
+                if pages > int(max_pages):
+                    problems.append(f"{name} prints on {pages} A4 pages, more than {max_pages}")
     finally:
         driver.quit()
     for problem in problems:
