@@ -98,6 +98,8 @@ pub(crate) struct ReportInput<'a> {
     pub plan: &'a Plan,
     pub results: &'a BuildResult,
     pub allow_html: bool,
+    /// Local images the prose shows, read by the command layer.
+    pub images: &'a prose::Embedded,
     /// When the build ran, already formatted.
     pub built_at: &'a str,
 }
@@ -211,7 +213,7 @@ fn pieces(input: &ReportInput<'_>, title: &str) -> Vec<PieceView> {
     let mut pending_prose: Option<&str> = None;
     let flush = |views: &mut Vec<PieceView>, prose: &str| {
         views.push(PieceView::Prose {
-            html: prose::render(prose, input.allow_html),
+            html: prose::render(prose, input.allow_html, input.images),
         })
     };
     for (index, piece) in input.document.pieces.iter().enumerate() {
@@ -244,7 +246,7 @@ fn pieces(input: &ReportInput<'_>, title: &str) -> Vec<PieceView> {
                     input,
                     step_index,
                     &block.yaml,
-                    prose::render(beside, input.allow_html),
+                    prose::render(beside, input.allow_html, input.images),
                 ))));
             }
         }
