@@ -4,7 +4,7 @@
 use serde::Serialize;
 
 use super::chart::{self, Axes, Bar, HeatMap, Positions, Series};
-use super::view::{mean_curve, stat_text, stop_counts};
+use super::view::{log_loss_is_loss, mean_curve, shown_stats, stat_text, stop_counts};
 use crate::build::outcome::{FitResult, RowSet, SetMetrics, SweepResult};
 use crate::document::spec::{ChartChoice, CompareSpec, MetricName};
 use crate::plan::describe;
@@ -58,9 +58,10 @@ fn rows_label(rows: RowSet) -> &'static str {
 
 pub(crate) fn sweep_view(result: &SweepResult) -> SweepView {
     let first = &result.fits[0];
+    let hide = log_loss_is_loss(&result.fits);
     let stats_names: Vec<&'static str> = first
         .metric_stats(result.rank_rows)
-        .map(|stats| stats.iter().map(|s| s.name).collect())
+        .map(|stats| shown_stats(stats, hide).iter().map(|s| s.name).collect())
         .unwrap_or_default();
     let mut rows: Vec<SweepRow> = result
         .ranking
@@ -78,7 +79,7 @@ pub(crate) fn sweep_view(result: &SweepResult) -> SweepView {
                     .collect(),
                 values: fit
                     .metric_stats(result.rank_rows)
-                    .map(|stats| stats.iter().map(stat_text).collect())
+                    .map(|stats| shown_stats(stats, hide).iter().map(stat_text).collect())
                     .unwrap_or_default(),
                 stop: stop_counts(fit),
             }

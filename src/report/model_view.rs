@@ -51,15 +51,19 @@ pub(crate) fn predict_view(result: &PredictResult) -> PredictView {
 pub(crate) struct ExportView {
     pub bytes: usize,
     pub layers: usize,
+    /// Whether the file lists class labels (a classifier's export).
+    pub classes: bool,
 }
 
 pub(crate) fn export_view(result: &ExportResult) -> ExportView {
-    let layers = serde_json::from_str::<serde_json::Value>(&result.json)
-        .ok()
+    let document = serde_json::from_str::<serde_json::Value>(&result.json).ok();
+    let layers = document
+        .as_ref()
         .and_then(|doc| doc["layers"].as_array().map(Vec::len))
         .unwrap_or(0);
     ExportView {
         bytes: result.json.len(),
         layers,
+        classes: document.is_some_and(|doc| doc["classes"].is_array()),
     }
 }

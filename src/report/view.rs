@@ -181,10 +181,16 @@ pub(crate) fn train_view(result: &FitResult, classes: Option<&[String]>) -> Trai
         })
         .collect::<Vec<_>>()
         .join(" → ");
-    let train_stats = result
-        .metric_stats(RowSet::Train)
-        .expect("every run has training rows");
-    let test_stats = result.metric_stats(RowSet::Test);
+    let hide = log_loss_is_loss(std::slice::from_ref(result));
+    let train_stats = shown_stats(
+        result
+            .metric_stats(RowSet::Train)
+            .expect("every run has training rows"),
+        hide,
+    );
+    let test_stats = result
+        .metric_stats(RowSet::Test)
+        .map(|stats| shown_stats(stats, hide));
     let metric_names = train_stats
         .iter()
         .map(|stat| stat.name.replace('_', " "))
@@ -206,15 +212,19 @@ pub(crate) fn train_view(result: &FitResult, classes: Option<&[String]>) -> Trai
     } else {
         runs.iter()
             .enumerate()
-            .map(|(i, run)| fold_row(i, run))
+            .map(|(i, run)| fold_row(i, run, hide))
             .collect()
     };
     let stop = stop_counts(result);
     let epochs = if single {
-        runs[0].fit.epochs_run.to_string()
+        format!("{} epochs", runs[0].fit.epochs_run)
     } else {
         let total: usize = runs.iter().map(|run| run.fit.epochs_run).sum();
-        format!("{} on average", total / runs.len())
+        format!(
+            "{} epochs on average over {} runs",
+            total / runs.len(),
+            runs.len()
+        )
     };
     TrainView {
         layers,
@@ -243,8 +253,30 @@ pub(crate) fn stat_text(stat: &MetricStat) -> String {
     }
 }
 
+/// Whether every run's log loss is its loss (a classifier trained on cross-entropy),
+/// so that tables show the one column "loss" for the two.
+pub(crate) fn log_loss_is_loss(fits: &[FitResult]) -> bool {
+    fits.iter()
+        .flat_map(|fit| &fit.runs)
+        .flat_map(|run| std::iter::once(&run.train).chain(run.test.as_ref()))
+        .all(|set| match set {
+            SetMetrics::Classification { loss, metrics } => {
+                (loss - metrics.log_loss).abs() <= 1e-9 * loss.abs().max(1.0)
+            }
+            SetMetrics::Regression { .. } => true,
+        })
+}
+
+/// The metrics a table shows: log loss only when it is not the loss again.
+pub(crate) fn shown_stats(stats: Vec<MetricStat>, hide_log_loss: bool) -> Vec<MetricStat> {
+    stats
+        .into_iter()
+        .filter(|stat| !(hide_log_loss && stat.name == "log_loss"))
+        .collect()
+}
+
 /// A fold's row in the per-fold table: its held-out metrics.
-fn fold_row(index: usize, run: &crate::build::outcome::RunResult) -> FoldRow {
+fn fold_row(index: usize, run: &crate::build::outcome::RunResult, hide_log_loss: bool) -> FoldRow {
     let set = run.test.as_ref().unwrap_or(&run.train);
     FoldRow {
         fold: index + 1,
@@ -253,6 +285,7 @@ fn fold_row(index: usize, run: &crate::build::outcome::RunResult) -> FoldRow {
         values: set
             .named()
             .iter()
+            .filter(|(name, _)| !(hide_log_loss && *name == "log_loss"))
             .map(|(_, value)| number(*value))
             .collect(),
     }
