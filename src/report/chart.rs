@@ -43,18 +43,18 @@ pub(crate) enum Dash {
     Solid,
     Dashed,
     Dotted,
-    DashDot,
+    Alternating,
 }
 
 impl Dash {
-    const ALL: [Dash; 4] = [Dash::Solid, Dash::Dashed, Dash::Dotted, Dash::DashDot];
+    const ALL: [Dash; 4] = [Dash::Solid, Dash::Dashed, Dash::Dotted, Dash::Alternating];
 
     fn pattern(self) -> Option<&'static str> {
         match self {
             Dash::Solid => None,
             Dash::Dashed => Some("7 4"),
             Dash::Dotted => Some("2 3"),
-            Dash::DashDot => Some("9 3 2 3"),
+            Dash::Alternating => Some("9 3 2 3"),
         }
     }
 }
