@@ -3,10 +3,12 @@
 //! here, beside the values they describe, so that `main.rs` only prints them and the
 //! wording can be tested without running the binary.
 
+use std::io::IsTerminal;
+
 use crate::build::share::Share;
 use crate::build::{Progress, ShareSummary};
 use crate::cache::pruning::Cleaning;
-use crate::document::DocumentErrors;
+use crate::document::{Decoration, DocumentErrors};
 use crate::{BuildSummary, Dispatched, Error, StatusReport, Unpacked};
 
 /// One line for one of the two streams.
@@ -166,27 +168,30 @@ pub fn clean(cleaning: &Cleaning, dry_run: bool) -> Vec<Line> {
 }
 
 /// Why a command could not be carried out: document problems with their source line
-/// marked (miette), anything else as one line.
-pub fn error(error: &Error) -> Vec<Line> {
-    error_lines(error, miette::GraphicalReportHandler::new())
+/// marked, decorated for a terminal or plain, anything else as one line.
+pub fn error(error: &Error, decoration: Decoration) -> Vec<Line> {
+    match error {
+        Error::Document(errors) => document_problems(errors, decoration),
+        other => vec![Line::Err(format!("error: {other}"))],
+    }
 }
 
-/// [`error`] as plain text without colours, for the page `stet watch` serves.
-pub(crate) fn error_text(error: &Error) -> String {
-    let plain =
-        miette::GraphicalReportHandler::new_themed(miette::GraphicalTheme::unicode_nocolor());
-    let lines: Vec<String> = error_lines(error, plain)
+/// Bold and colour when stderr is a terminal; plain ASCII for a file or a pipe.
+pub fn stderr_decoration() -> Decoration {
+    if std::io::stderr().is_terminal() {
+        Decoration::Terminal
+    } else {
+        Decoration::Plain
+    }
+}
+
+/// [`error`] as plain text, for the page `stet watch` serves.
+pub(crate) fn error_text(failure: &Error) -> String {
+    let lines: Vec<String> = error(failure, Decoration::Plain)
         .into_iter()
         .map(|(Line::Out(text) | Line::Err(text))| text)
         .collect();
     lines.join("\n")
-}
-
-fn error_lines(error: &Error, handler: miette::GraphicalReportHandler) -> Vec<Line> {
-    match error {
-        Error::Document(errors) => document_problems(errors, &handler),
-        other => vec![Line::Err(format!("error: {other}"))],
-    }
 }
 
 /// `stet build`'s bar while runs train; drawn only when stderr is a terminal.
@@ -217,21 +222,11 @@ impl Progress for TrainingBar {
     }
 }
 
-fn document_problems(
-    errors: &DocumentErrors,
-    handler: &miette::GraphicalReportHandler,
-) -> Vec<Line> {
+fn document_problems(errors: &DocumentErrors, decoration: Decoration) -> Vec<Line> {
     let mut lines: Vec<Line> = errors
-        .diagnostics()
+        .rendered(decoration)
         .into_iter()
-        .map(|diagnostic| {
-            let mut out = String::new();
-            match handler.render_report(&mut out, &diagnostic) {
-                // The rendering ends with its own line break.
-                Ok(()) => Line::Err(out.strip_suffix('\n').unwrap_or(&out).to_string()),
-                Err(_) => Line::Err(format!("error: {diagnostic}")),
-            }
-        })
+        .map(Line::Err)
         .collect();
     lines.push(Line::Err(format!(
         "{}: {} problem(s); nothing was written",

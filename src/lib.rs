@@ -200,6 +200,52 @@ fn open_cache(choice: &CacheChoice, document: &Path) -> Cache {
     }
 }
 
+/// Largest image file a report embeds; a larger one stays a link.
+const MAX_IMAGE_BYTES: u64 = 4 << 20;
+
+/// The images the prose shows from files inside the document's project, as `data:`
+/// URIs, so a mailed report stays whole. Destinations are taken as written (relative
+/// to the document); images that are missing, too large, outside the project or not of
+/// a known image type are left out and stay links.
+fn embedded_images(document: &Document, document_path: &Path) -> report::prose::Embedded {
+    let dir = document_path.parent().unwrap_or(Path::new(""));
+    let mut images = report::prose::Embedded::new();
+    for piece in &document.pieces {
+        let document::Piece::Prose(markdown) = piece else {
+            continue;
+        };
+        for destination in report::prose::local_image_destinations(markdown) {
+            if images.contains_key(&destination) {
+                continue;
+            }
+            if let Some(uri) = image_data_uri(dir, &dir.join(&destination)) {
+                images.insert(destination, uri);
+            }
+        }
+    }
+    images
+}
+
+fn image_data_uri(document_dir: &Path, path: &Path) -> Option<String> {
+    use base64::Engine;
+    let extension = path.extension()?.to_str()?.to_ascii_lowercase();
+    let media_type = match extension.as_str() {
+        "png" => "image/png",
+        "jpg" | "jpeg" => "image/jpeg",
+        "gif" => "image/gif",
+        "webp" => "image/webp",
+        // An SVG shown through <img> runs no script and loads nothing.
+        "svg" => "image/svg+xml",
+        _ => return None,
+    };
+    if !plan::inside_project(document_dir, path) {
+        return None;
+    }
+    let bytes = input_file::read_regular(path, MAX_IMAGE_BYTES).ok()?;
+    let encoded = base64::engine::general_purpose::STANDARD.encode(bytes);
+    Some(format!("data:{media_type};base64,{encoded}"))
+}
+
 /// `stet build`: runs what is not cached and writes the report (and the JSON summary).
 /// Nothing is written when the document cannot be used.
 pub fn build(options: &BuildOptions) -> Result<BuildSummary, Error> {
@@ -275,6 +321,7 @@ pub(crate) fn build_observed(
             plan: &loaded.plan,
             results: &results,
             allow_html: options.allow_html,
+            images: &embedded_images(&loaded.document, &options.document),
             built_at: &built_at,
             report_file: &report_file_name(&targets.report),
             carried: &carried,

@@ -202,7 +202,7 @@ fn main() -> ExitCode {
     match run(cli.command) {
         Ok(code) => code,
         Err(error) => {
-            console::print(&console::error(&error));
+            console::print(&console::error(&error, console::stderr_decoration()));
             ExitCode::from(2)
         }
     }
@@ -369,3 +369,4 @@ fn cache_choice(dir: Option<PathBuf>) -> CacheChoice {
 fn default_jobs() -> usize {
     std::thread::available_parallelism().map_or(1, |n| n.get())
 }
+

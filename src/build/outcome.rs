@@ -101,6 +101,17 @@ pub(crate) struct RunResult {
     pub test: Option<SetMetrics>,
 }
 
+impl RunResult {
+    /// The metrics on `rows`; `None` when this run has no such rows.
+    pub(crate) fn metrics_on(&self, rows: RowSet) -> Option<&SetMetrics> {
+        match rows {
+            RowSet::Train => Some(&self.train),
+            RowSet::Validation => self.validation.as_ref(),
+            RowSet::Test => self.test.as_ref(),
+        }
+    }
+}
+
 /// How a train step's networks were built, shared by all its runs.
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
 pub(crate) struct ModelShape {
@@ -277,11 +288,7 @@ fn metric_stats<'a>(
     rows: RowSet,
 ) -> Option<Vec<MetricStat>> {
     let named: Vec<Vec<(&'static str, f64)>> = runs
-        .map(|run| match rows {
-            RowSet::Train => Some(run.train.named()),
-            RowSet::Validation => run.validation.as_ref().map(SetMetrics::named),
-            RowSet::Test => run.test.as_ref().map(SetMetrics::named),
-        })
+        .map(|run| run.metrics_on(rows).map(SetMetrics::named))
         .collect::<Option<_>>()?;
     let first = named.first()?;
     Some(

@@ -243,7 +243,7 @@ impl Watcher {
                 self.watch_files(&observed.inputs);
             }
             Err(error) => {
-                console::print(&console::error(&error));
+                console::print(&console::error(&error, console::stderr_decoration()));
                 self.live.problem(console::error_text(&error));
             }
         }
