@@ -369,4 +369,3 @@ fn cache_choice(dir: Option<PathBuf>) -> CacheChoice {
 fn default_jobs() -> usize {
     std::thread::available_parallelism().map_or(1, |n| n.get())
 }
-

@@ -16,7 +16,7 @@ fn a_classifier_trained_on_cross_entropy_shows_loss_once_not_again_as_log_loss()
         "log loss repeats the loss"
     );
     // The demo's classifier export lists its class labels.
-    assert!(html.contains("activations and class labels."));
+    assert!(html.contains("activations, class labels and where the model came from."));
 }
 
 #[test]
@@ -40,6 +40,9 @@ fn folds_say_their_epochs_on_average_and_a_regression_export_names_no_class_labe
         html.contains("stopped: epoch limit · 4 epochs on average over 3 runs ·"),
         "{html}"
     );
-    assert!(html.contains("weights, biases and activations."), "{html}");
+    assert!(
+        html.contains("weights, biases, activations and where the model came from."),
+        "{html}"
+    );
     assert!(!html.contains("class labels"));
 }

@@ -4,7 +4,9 @@
 use serde::Serialize;
 
 use super::chart::{self, Axes, Bar, HeatMap, Positions, Series};
-use super::view::{HONEST_CHOICE, log_loss_is_loss, mean_curve, shown_stats, stat_text, stop_counts};
+use super::view::{
+    HONEST_CHOICE, log_loss_is_loss, mean_curve, shown_stats, stat_text, stop_counts,
+};
 use crate::build::outcome::{FitResult, RowSet, SetMetrics, SweepResult, rank};
 use crate::document::spec::{ChartChoice, CompareSpec, MetricName};
 use crate::plan::describe;
@@ -382,7 +384,11 @@ pub(crate) fn compare_view(spec: &CompareSpec, entries: &[Compared<'_>]) -> Comp
                 .take(MAX_LINES)
                 .enumerate()
                 .map(|(n, entry)| {
-                    Series::nth(n, entry.id.to_string(), mean_curve(&entry.fit.runs, unfitted))
+                    Series::nth(
+                        n,
+                        entry.id.to_string(),
+                        mean_curve(&entry.fit.runs, unfitted),
+                    )
                 })
                 .collect();
             let scale = if spec.log_scale {
