@@ -41,7 +41,7 @@
 //! differ in the last bits, as may platforms whose `tanh`/`ln` differ (the
 //! `exp` of sigmoid and softmax is stet's own and the same everywhere).
 
-use ndarray::{Array2, ArrayView2, Zip, s};
+use ndarray::{Array2, ArrayView2, Zip};
 use rand::SeedableRng;
 use rand::seq::SliceRandom;
 use rand_chacha::ChaCha8Rng;
@@ -49,6 +49,7 @@ use serde::{Deserialize, Serialize};
 
 use super::backprop::Workspace;
 use super::float::{Float, Precision};
+use super::leading;
 use super::loss::Loss;
 use super::network::Network;
 use super::optimizer::{Optimizer, OptimizerState};
@@ -452,8 +453,8 @@ impl<'a, F: Float> Batches<'a, F> {
             self.filled = single;
         }
         (
-            self.x.slice(s![..end - start, ..]),
-            self.y.slice(s![..end - start, ..]),
+            leading::rows(&self.x, end - start),
+            leading::rows(&self.y, end - start),
         )
     }
 }
@@ -514,7 +515,7 @@ fn stopped<F: Float>(
 mod tests {
     use super::*;
     use crate::nn::{Activation, Init, Layer};
-    use ndarray::{Array2, array};
+    use ndarray::{Array2, array, s};
 
     fn sgd(learning_rate: f64, momentum: f64) -> Optimizer {
         Optimizer::Sgd {
