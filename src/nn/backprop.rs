@@ -116,17 +116,18 @@ impl<F: Float> Workspace<F> {
     }
 
     /// Fills [`Self::gradients`] for the batch `(x, y)` whose forward pass
-    /// has just been run by [`Self::forward`].
+    /// has just been run by [`Self::forward`], and returns the batch's
+    /// [total loss](Loss::total), found in the same pass as the output delta.
     pub(crate) fn backward(
         &mut self,
         network: &Network<F>,
         x: ArrayView2<F>,
         y: ArrayView2<F>,
         loss: Loss,
-    ) {
+    ) -> f64 {
         let n = x.nrows();
         let last = network.layers.len() - 1;
-        loss.output_delta(
+        let total = loss.total_and_output_delta(
             network.layers[last].activation,
             leading::rows(&self.activations[last], n),
             y,
@@ -157,6 +158,7 @@ impl<F: Float> Workspace<F> {
                 network.layers[l - 1].activation.backprop(input, below);
             }
         }
+        total
     }
 }
 

@@ -276,14 +276,14 @@ fn train_in<F: Float>(
         for start in (0..n).step_by(batch) {
             let end = (start + batch).min(n);
             let (xb, yb) = batches.get(&order, start, end);
-            let batch_loss = config
-                .loss
-                .total(output, workspace.forward(&network, xb), yb);
+            workspace.forward(&network, xb);
+            // The batch's loss comes with its gradient; a non-finite one stops
+            // the run before the network is updated with it.
+            let batch_loss = workspace.backward(&network, xb, yb, config.loss);
             if !batch_loss.is_finite() {
                 return stopped(network, history, StopReason::Diverged, epoch, monitor);
             }
             total += batch_loss;
-            workspace.backward(&network, xb, yb, config.loss);
             if config.l2 != 0.0 {
                 for (g, layer) in workspace.gradients.iter_mut().zip(&network.layers) {
                     Zip::from(&mut g.weights)
