@@ -503,7 +503,7 @@ def report_sweep(sweeps):
                            k_sec / s_sec >= TARGETS["S"], f"{k_sec / s_sec:.1f}x"))
     print_table(("threads", "stet s", "sklearn s", "ratio", "stet runs/s", "sklearn runs/s", "stet CPU s"),
                 rows)
-    print("stet s: the whole `stet build` (start-up, data, 1,001 runs, cache writes, report);")
+    print("stet s: the whole `stet build` (start-up, data, the 1,000 runs, cache writes, report);")
     print("sklearn s: the 1,000 fits, from the first dispatch to the last result (joblib, one BLAS thread each).")
     one = median([r["seconds"] for r in sweeps[("stet", 1)]])
     two = median([r["seconds"] for r in sweeps[("stet", 2)]])
@@ -525,6 +525,8 @@ def report_sweep(sweeps):
         rest = max(0.0, whole_s - training - cache - rebuild)
         shares.append((f"{threads}", f"{whole_s:.3f}", *(f"{x / whole_s:.0%}" for x in (training, cache, rebuild, rest))))
     print_table(("threads", "stet s", "training", "cache", "report (no-op rebuild)", "metrics and rest"), shares)
+    print("shares of stet's whole build, estimated from outside: training is the runs' own `seconds` summed")
+    print("over threads; cache a cached build against --no-cache; report the no-op rebuild; rest what is left.")
     rebuild = median([r["rebuild"] for r in sweeps[("stet", 1)]])
     size = median([r["report"] for r in sweeps[("stet", 1)]])
     print(f"no-op rebuild of the S document: {rebuild * 1000:.0f} ms; its report: {size / 1e6:.2f} MB")
