@@ -217,9 +217,9 @@ fn column_sums<F: Float, const W: usize>(values: &[F], width: usize, start: usiz
 #[cfg(test)]
 mod tests {
     use super::*;
-    use ndarray::s;
     use crate::nn::{Activation, Layer};
     use ndarray::array;
+    use ndarray::s;
 
     /// Column sums by groups equal adding whole rows one after another, bit
     /// for bit, for every width around the group size and a strided view.

@@ -123,9 +123,7 @@ impl Loss {
         // weight is zero in the same way. Each arm passes its own closure, so
         // the term is inlined into the loop rather than called through a pointer.
         match (self, output) {
-            (Loss::Mse, _) => sum_rows(outputs, targets, residuals, |o, t| {
-                0.5 * (o - t) * (o - t)
-            }),
+            (Loss::Mse, _) => sum_rows(outputs, targets, residuals, |o, t| 0.5 * (o - t) * (o - t)),
             (Loss::CrossEntropy, Activation::Softmax) => {
                 sum_rows(outputs, targets, residuals, |p, t| {
                     if t == 0.0 { 0.0 } else { -t * clip(p).ln() }
@@ -311,6 +309,37 @@ mod tests {
         assert!(Loss::CrossEntropy.supports(Activation::Sigmoid));
         assert!(!Loss::CrossEntropy.supports(Activation::Linear));
         assert!(!Loss::CrossEntropy.supports(Activation::Relu));
+    }
+
+    /// The total found in the pass that writes the deltas is `total`'s, bit
+    /// for bit, and the deltas are `(o − t)/n` (chained through the output's
+    /// derivative where it is not fused), for row-major outputs and for
+    /// column-major ones, which take the other path.
+    #[test]
+    fn the_loss_found_with_the_output_delta_is_the_total_bit_for_bit() {
+        // Probabilities away from 0 and 1 with a ragged spread, so that every
+        // term and every sum rounds.
+        let o = Array2::from_shape_fn((7, 3), |(i, j)| 0.05 + ((i * 7 + j * 3) % 11) as f64 / 12.3);
+        let t = Array2::from_shape_fn((7, 3), |(i, j)| if (i + j) % 3 == 0 { 1.0 } else { 0.0 });
+        let column_major = |a: &Array2<f64>| a.t().to_owned().reversed_axes();
+        for (loss, f) in [
+            (Loss::CrossEntropy, Activation::Softmax),
+            (Loss::CrossEntropy, Activation::Sigmoid),
+            (Loss::Mse, Activation::Linear),
+            (Loss::Mse, Activation::Sigmoid),
+        ] {
+            let mut expected = (&o - &t) / 7.0;
+            if (loss, f) == (Loss::Mse, Activation::Sigmoid) {
+                f.backprop(o.view(), expected.view_mut());
+            }
+            for (o, t) in [(o.clone(), t.clone()), (column_major(&o), column_major(&t))] {
+                let mut d = Array2::from_elem(o.dim(), f64::NAN);
+                let total = loss.total_and_output_delta(f, o.view(), t.view(), d.view_mut());
+                let alone = loss.total(f, o.view(), t.view());
+                assert_eq!(total.to_bits(), alone.to_bits(), "{loss:?} after {f:?}");
+                assert_eq!(d, expected, "{loss:?} after {f:?}");
+            }
+        }
     }
 
     #[test]
