@@ -11,6 +11,7 @@ sides alike.
 import argparse
 import json
 import os
+import shutil
 import statistics
 import subprocess
 import sys
@@ -41,11 +42,25 @@ CASES = {
 # C32: C in single precision on both sides (stet `precision: f32`, scikit-learn
 # given float32 arrays, with which MLPClassifier trains in float32).
 CASES["C32"] = dict(CASES["C"], title="60k x 784 synthetic, float32", data="C", precision="f32")
+# S: a sweep of many small runs, issue 19's Iris grid on A's data and network
+# (sigmoid, Glorot init, SGD with classic momentum, rows in order): four widths,
+# ten learning rates, five momenta, five seeds, 200 epochs of batches of 32. One
+# stet document with a sweep against the same 1,000 fits with joblib, on one
+# thread and on two (`--jobs 2` against two joblib workers).
+SWEEP = dict(title="Iris sweep", data="A", rows=150, batch=32, epochs=200, activation="sigmoid",
+             sklearn_activation="logistic", classes=3,
+             grid=dict(hidden=[2, 4, 8, 16],
+                       learning_rate=[0.001, 0.002, 0.005, 0.01, 0.02, 0.05, 0.1, 0.2, 0.5, 1.0],
+                       momentum=[0.0, 0.5, 0.8, 0.9, 0.95], repeat=5))
+SWEEP_RUNS = 4 * 10 * 5 * 5
+SWEEP_THREADS = (1, 2)
 # Runs per side per repetition: the small cases take milliseconds, so more of
 # them cost little and steady their medians.
-REPEATS = {"A": 5, "B": 5, "C": 1, "C32": 1}
+REPEATS = {"A": 5, "B": 5, "C": 1, "C32": 1, "S": 1}
 
-TARGETS = {"A": 10.0, "B": 3.0, "C": 1.3, "C32": 1.3}
+TARGETS = {"A": 10.0, "B": 3.0, "C": 1.3, "C32": 1.3, "S": 40.0}
+# stet's two-thread time of S as a share of its one-thread time, at most.
+SWEEP_SCALING_TARGET = 0.6
 WHOLE_TARGET = 20.0
 PEAK_SHARE_TARGET = 0.60
 
@@ -157,6 +172,69 @@ precision: {precision}
     return path
 
 
+def sweep_document():
+    """The S document: A's data and network, one train step, and the grid as a
+    sweep of it. The train step (the sweep's `from`) is one of the grid's
+    runs (width 8, rate 0.1, momentum 0.9, the first seed), trained once under
+    its one key, so the build trains exactly the grid's runs."""
+    c, grid = SWEEP, SWEEP["grid"]
+    hidden = "[" + ", ".join(f"[{w}]" for w in grid["hidden"]) + "]"
+    text = f"""---
+title: bench S
+seed: 1
+---
+
+# {c['title']}
+
+```yaml data rows
+file: {c['data']}.csv
+target: label
+scale: none
+holdout: 0
+```
+
+```yaml net shape
+hidden: [8]
+activation: {c['activation']}
+init: xavier
+```
+
+```yaml train fit
+data: rows
+net: shape
+optimizer: sgd
+learning_rate: 0.1
+momentum: 0.9
+batch: {c['batch']}
+epochs: {c['epochs']}
+shuffle: false
+l2: 0
+seed: 1
+```
+
+```yaml sweep grid
+from: fit
+vary:
+  hidden: {hidden}
+  learning_rate: {grid['learning_rate']}
+  momentum: {grid['momentum']}
+repeat: {grid['repeat']}
+rank_by: loss
+```
+"""
+    path = DATA / "S.md"
+    path.write_text(text)
+    return path
+
+
+def sweep_case_file(workers):
+    case = dict(SWEEP, workers=workers, batch_rows=SWEEP["batch"],
+                npy_x=str(DATA / "A_x.npy"), npy_y=str(DATA / "A_y.npy"))
+    path = DATA / f"S{workers}.json"
+    path.write_text(json.dumps(case))
+    return path
+
+
 def case_file(name):
     c = CASES[name]
     case = dict(c)
@@ -176,8 +254,14 @@ def case_file(name):
 
 
 def run_child(command):
-    """Runs a process to completion: (wall seconds, peak RSS in KiB, stdout).
-    The child is reaped with wait4 so that its own peak RSS can be read."""
+    """Runs a process to completion: (wall seconds, peak RSS in KiB, stdout)."""
+    return run_child_cpu(command)[:3]
+
+
+def run_child_cpu(command):
+    """Runs a process to completion: (wall seconds, peak RSS in KiB, stdout,
+    CPU seconds). The child is reaped with wait4 so that its own peak RSS and
+    CPU time can be read."""
     with tempfile.TemporaryFile() as out, tempfile.TemporaryFile() as err:
         started = time.perf_counter()
         child = subprocess.Popen(command, stdout=out, stderr=err)
@@ -188,7 +272,7 @@ def run_child(command):
         err.seek(0)
         if child.returncode != 0:
             sys.exit(f"{' '.join(map(str, command))} failed:\n{err.read().decode()}")
-        return wall, usage.ru_maxrss, out.read().decode()
+        return wall, usage.ru_maxrss, out.read().decode(), usage.ru_utime + usage.ru_stime
 
 
 def stet_run(document, out):
@@ -203,9 +287,42 @@ def stet_run(document, out):
     return dict(seconds=train["seconds"], loss=train["metrics"]["train"]["loss"], wall=wall, rss=rss)
 
 
+def stet_sweep_run(document, out, threads):
+    """A whole `stet build` of the S document on `threads` threads, with a cache
+    emptied first so every run trains and is stored. Besides the process's
+    wall and CPU seconds: the sweep step's own seconds and the sum of its
+    runs' training seconds (each run's `seconds` in --json)."""
+    cache = out.with_suffix(".cache")
+    if cache.exists():
+        shutil.rmtree(cache)
+    wall, rss, _, cpu = run_child_cpu([
+        str(STET), "build", str(document), "--jobs", str(threads), "--cache", str(cache),
+        "--json", str(out), "-o", str(out.with_suffix(".html")),
+    ])
+    summary = json.loads(out.read_text())
+    sweep = next(s for s in summary["steps"] if s["kind"] == "sweep")
+    trained = sum(s.get("runs_trained", 0) for s in summary["steps"])
+    if trained != SWEEP_RUNS:
+        sys.exit(f"stet trained {trained} runs, not {SWEEP_RUNS}")
+    training = sum(f["seconds"] for r in sweep["runs"] for f in r["folds"])
+    report = out.with_suffix(".html").stat().st_size
+    # A no-op rebuild: everything is in the cache, only the report is written.
+    rebuild, _, _, _ = run_child_cpu([
+        str(STET), "build", str(document), "--jobs", str(threads), "--cache", str(cache),
+        "-o", str(out.with_suffix(".html")),
+    ])
+    # The same build without a cache: the difference is the cache's reading and writing.
+    uncached, _, _, uncached_cpu = run_child_cpu([
+        str(STET), "build", str(document), "--jobs", str(threads), "--no-cache",
+        "-o", str(out.with_suffix(".html")),
+    ])
+    return dict(seconds=wall, cpu=cpu, step=sweep["seconds"], training=training, rss=rss,
+                rebuild=rebuild, uncached=uncached, uncached_cpu=uncached_cpu, report=report)
+
+
 def sklearn_run(case_path, mode="fit"):
     wall, rss, stdout = run_child(UNPIN + [sys.executable, str(BENCH / "sklearn_side.py"), mode, str(case_path)])
-    result = json.loads(stdout) if mode == "fit" else {}
+    result = json.loads(stdout) if mode in ("fit", "sweep") else {}
     result.update(wall=wall, rss=rss)
     return result
 
@@ -235,20 +352,30 @@ def comparable(a, b):
 
 
 def main():
+    global STET
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--runs", type=int, default=3,
                         help="repetitions; medians are reported (default 3)")
-    parser.add_argument("--cases", default=",".join(CASES),
-                        help="comma-separated cases to run, e.g. 'A,B' (default: all)")
+    parser.add_argument("--cases", default=",".join([*CASES, "S"]),
+                        help="comma-separated cases to run, e.g. 'A,B,S' (default: all)")
+    parser.add_argument("--stet", type=Path, default=STET,
+                        help="the stet binary to measure, e.g. an older build for a before-and-after "
+                             "(default: target/release/stet)")
     args = parser.parse_args()
+    STET = args.stet.resolve()
     if args.runs < 1:
         sys.exit("--runs must be at least 1")
-    names = [n for n in CASES if n in args.cases.split(",")]
+    chosen = args.cases.split(",")
+    names = [n for n in CASES if n in chosen]
+    sweeping = "S" in chosen
     make_data()
 
     documents = {n: stet_document(n) for n in names}
     cases = {n: case_file(n) for n in names}
     results = {n: {"stet": [], "sklearn": []} for n in names}
+    sweeps = {(side, t): [] for side in ("stet", "sklearn") for t in SWEEP_THREADS}
+    sweep_doc = sweep_document() if sweeping else None
+    sweep_cases = {t: sweep_case_file(t) for t in SWEEP_THREADS} if sweeping else {}
     whole = {"stet": [], "sklearn": []}
     peaks = []
     flip = 0
@@ -272,8 +399,17 @@ def main():
                         whole[side.split()[1]].append(result["wall"])
                     else:
                         results[name][side].append(result)
+        if sweeping:
+            for threads in SWEEP_THREADS:
+                flip += 1
+                sides = [("stet", lambda: stet_sweep_run(sweep_doc, DATA / f"S{threads}.out.json", threads)),
+                         ("sklearn", lambda: sklearn_run(sweep_cases[threads], "sweep"))]
+                for side, run in sides[::-1] if flip % 2 else sides:
+                    sweeps[(side, threads)].append(run())
 
     report(names, results, whole, peaks)
+    if sweeping:
+        report_sweep(sweeps)
 
 
 def report(names, results, whole, peaks):
@@ -342,6 +478,60 @@ def report(names, results, whole, peaks):
                     [("C", f"{s:,.0f}", f"{k:,.0f}", f"{s / k:.2f}")])
         checks.append(("C: stet peak memory <= scikit-learn's", s <= k, f"{s:,.0f} vs {k:,.0f} MiB"))
 
+    print()
+    for what, ok, value in checks:
+        print(f"[{'met' if ok else 'NOT MET'}] {what}: {value}")
+
+
+def report_sweep(sweeps):
+    """S: runs per second on each side, stet's scaling from one thread to two,
+    where stet's time goes, and the no-op rebuild and report size."""
+    print()
+    print(f"S: {SWEEP_RUNS} fits of the Iris grid (4 widths x 10 rates x 5 momenta x 5 seeds, "
+          f"{SWEEP['epochs']} epochs, batch {SWEEP['batch']}); medians over {len(sweeps[('stet', 1)])} "
+          "repetitions")
+    rows, checks = [], []
+    for threads in SWEEP_THREADS:
+        stet = sweeps[("stet", threads)]
+        s_sec = median([r["seconds"] for r in stet])
+        k_sec = median([r["seconds"] for r in sweeps[("sklearn", threads)]])
+        rows.append((f"{threads}", f"{s_sec:.3f}", f"{k_sec:.2f}", f"{k_sec / s_sec:.1f}x",
+                     f"{SWEEP_RUNS / s_sec:,.0f}", f"{SWEEP_RUNS / k_sec:,.1f}",
+                     f"{median([r['cpu'] for r in stet]):.3f}"))
+        if threads == 1:
+            checks.append((f"S: stet {TARGETS['S']:.0f}x faster than scikit-learn on one thread",
+                           k_sec / s_sec >= TARGETS["S"], f"{k_sec / s_sec:.1f}x"))
+    print_table(("threads", "stet s", "sklearn s", "ratio", "stet runs/s", "sklearn runs/s", "stet CPU s"),
+                rows)
+    print("stet s: the whole `stet build` (start-up, data, the 1,000 runs, cache writes, report);")
+    print("sklearn s: the 1,000 fits, from the first dispatch to the last result (joblib, one BLAS thread each).")
+    one = median([r["seconds"] for r in sweeps[("stet", 1)]])
+    two = median([r["seconds"] for r in sweeps[("stet", 2)]])
+    checks.append((f"S: stet's two-thread time at most {SWEEP_SCALING_TARGET} of its one-thread time",
+                   two <= SWEEP_SCALING_TARGET * one, f"{two / one:.2f}"))
+
+    print()
+    shares = []
+    for threads in SWEEP_THREADS:
+        stet = sweeps[("stet", threads)]
+        whole_s = median([r["seconds"] for r in stet])
+        # Training: the runs' own seconds, summed over runs and divided by the
+        # threads that ran them. Cache: a build with the cache against one
+        # without. Report and planning: the no-op rebuild. The rest is start-up,
+        # the data step, metrics, ranking and the rest of the build.
+        training = median([r["training"] for r in stet]) / threads
+        cache = max(0.0, whole_s - median([r["uncached"] for r in stet]))
+        rebuild = median([r["rebuild"] for r in stet])
+        rest = max(0.0, whole_s - training - cache - rebuild)
+        shares.append((f"{threads}", f"{whole_s:.3f}", *(f"{x / whole_s:.0%}" for x in (training, cache, rebuild, rest))))
+    print_table(("threads", "stet s", "training", "cache", "report (no-op rebuild)", "metrics and rest"), shares)
+    print("shares of stet's whole build, estimated from outside: training is the runs' own `seconds` summed")
+    print("over threads; cache a cached build against --no-cache; report the no-op rebuild; rest what is left.")
+    rebuild = median([r["rebuild"] for r in sweeps[("stet", 1)]])
+    size = median([r["report"] for r in sweeps[("stet", 1)]])
+    print(f"no-op rebuild of the S document: {rebuild * 1000:.0f} ms; its report: {size / 1e6:.2f} MB")
+    checks.append(("S: no-op rebuild under 50 ms", rebuild < 0.05, f"{rebuild * 1000:.0f} ms"))
+    checks.append(("S: report under 1 MB", size < 1e6, f"{size / 1e6:.2f} MB"))
     print()
     for what, ok, value in checks:
         print(f"[{'met' if ok else 'NOT MET'}] {what}: {value}")

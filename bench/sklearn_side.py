@@ -4,9 +4,10 @@ Usage:
   sklearn_side.py fit CASE.json      time MLPClassifier.fit on the case's .npy data
   sklearn_side.py whole CASE.json    a whole process: import, read the CSV, fit
   sklearn_side.py peak               float64 matmul GFLOP/s of numpy
+  sklearn_side.py sweep CASE.json    time the case's grid of fits with joblib
 
-CASE.json is written by compare.py. `fit` and `peak` print one JSON object on
-stdout; `whole` prints nothing (its parent times the process). compare.py runs
+CASE.json is written by compare.py. `fit`, `sweep` and `peak` print one JSON
+object on stdout; `whole` prints nothing (its parent times the process). compare.py runs
 this script with OPENBLAS_CORETYPE and OPENBLAS_L2_SIZE unset, so OpenBLAS
 picks its own kernel for the processor; `fit` reports the kernel it got.
 """
@@ -21,7 +22,7 @@ import warnings
 import numpy as np
 
 
-def model(case):
+def model(case, momentum=0.9, seed=0):
     """An MLPClassifier doing exactly the case's work: plain SGD with classic
     momentum on a constant rate, no penalty, rows in file order, and a stopping
     rule that can never fire before `max_iter` epochs."""
@@ -36,7 +37,7 @@ def model(case):
         batch_size=case["batch_rows"],
         learning_rate="constant",
         learning_rate_init=case["learning_rate"],
-        momentum=0.9,
+        momentum=momentum,
         nesterovs_momentum=False,
         shuffle=False,
         max_iter=epochs,
@@ -45,7 +46,7 @@ def model(case):
         tol=0.0,
         n_iter_no_change=epochs + 1,
         early_stopping=False,
-        random_state=0,
+        random_state=seed,
     )
 
 
@@ -100,6 +101,49 @@ def whole(case):
         model(case).fit(x, y)
 
 
+def sweep(case):
+    """Every combination of the case's grid and every seed, fitted with
+    joblib on `case["workers"]` processes, each with one BLAS thread (as stet's
+    runs are one thread each); timed from the first fit's dispatch to the last
+    result, so the import of scikit-learn and the data load are outside."""
+    from itertools import product
+
+    from joblib import Parallel, delayed
+
+    x = np.load(case["npy_x"])
+    y = np.load(case["npy_y"])
+    grid = case["grid"]
+    settings = [
+        dict(hidden=[width], learning_rate=rate, momentum=momentum, seed=seed)
+        for width, rate, momentum, seed in product(
+            grid["hidden"], grid["learning_rate"], grid["momentum"], range(grid["repeat"]))
+    ]
+    workers = case["workers"]
+    with Parallel(n_jobs=workers, backend="loky" if workers > 1 else "sequential") as parallel:
+        # A first small batch of fits starts the worker processes outside the timing.
+        parallel(delayed(sweep_fit)(case, x, y, settings[0]) for _ in range(workers))
+        started = time.perf_counter()
+        losses = parallel(delayed(sweep_fit)(case, x, y, s) for s in settings)
+        seconds = time.perf_counter() - started
+    print(json.dumps({"seconds": seconds, "fits": len(losses), "blas": blas_kernels()}))
+
+
+def sweep_fit(case, x, y, setting):
+    """One fit of the sweep, on one BLAS thread; its final training loss."""
+    from threadpoolctl import threadpool_limits
+
+    one = dict(case, hidden=setting["hidden"], learning_rate=setting["learning_rate"])
+    net = model(one, momentum=setting["momentum"], seed=setting["seed"])
+    with threadpool_limits(limits=1), warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        try:
+            net.fit(x, y)
+        except ValueError:
+            # A rate too high for its momentum diverges; the fit's time still counts.
+            return float("nan")
+    return float(net.loss_)
+
+
 def peak():
     """Best of several large square float64 products: the BLAS peak on the
     cores this process may use."""
@@ -123,7 +167,7 @@ def main():
         return
     with open(sys.argv[2]) as f:
         case = json.load(f)
-    {"fit": fit, "whole": whole}[mode](case)
+    {"fit": fit, "whole": whole, "sweep": sweep}[mode](case)
 
 
 if __name__ == "__main__":

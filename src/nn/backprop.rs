@@ -14,9 +14,10 @@
 //! buffers; bias sums run over rows in order, so results do not depend on
 //! threads.
 
-use ndarray::{Array1, Array2, ArrayView2, s};
+use ndarray::{Array1, Array2, ArrayView2};
 
 use super::float::Float;
+use super::leading;
 use super::loss::Loss;
 use super::network::Network;
 
@@ -106,44 +107,45 @@ impl<F: Float> Workspace<F> {
         for (l, layer) in network.layers.iter().enumerate() {
             let (before, rest) = self.activations.split_at_mut(l);
             let input = match before.last() {
-                Some(previous) => previous.slice(s![..n, ..]),
+                Some(previous) => leading::rows(previous, n),
                 None => x.view(),
             };
-            layer.forward_into(input, rest[0].slice_mut(s![..n, ..]));
+            layer.forward_into(input, leading::rows_mut(&mut rest[0], n));
         }
-        self.activations[network.layers.len() - 1].slice(s![..n, ..])
+        leading::rows(&self.activations[network.layers.len() - 1], n)
     }
 
     /// Fills [`Self::gradients`] for the batch `(x, y)` whose forward pass
-    /// has just been run by [`Self::forward`].
+    /// has just been run by [`Self::forward`], and returns the batch's
+    /// [total loss](Loss::total), found in the same pass as the output delta.
     pub(crate) fn backward(
         &mut self,
         network: &Network<F>,
         x: ArrayView2<F>,
         y: ArrayView2<F>,
         loss: Loss,
-    ) {
+    ) -> f64 {
         let n = x.nrows();
         let last = network.layers.len() - 1;
-        loss.output_delta(
+        let total = loss.total_and_output_delta(
             network.layers[last].activation,
-            self.activations[last].slice(s![..n, ..]),
+            leading::rows(&self.activations[last], n),
             y,
-            self.deltas[last].slice_mut(s![..n, ..]),
+            leading::rows_mut(&mut self.deltas[last], n),
         );
         for l in (0..=last).rev() {
             let (lower, upper) = self.deltas.split_at_mut(l);
-            let delta = upper[0].slice(s![..n, ..]);
+            let delta = leading::rows(&upper[0], n);
             let input = if l == 0 {
                 x.view()
             } else {
-                self.activations[l - 1].slice(s![..n, ..])
+                leading::rows(&self.activations[l - 1], n)
             };
             let gradient = &mut self.gradients[l];
             F::gemm(input.t(), delta, false, gradient.weights.view_mut());
             sum_rows(delta, &mut gradient.biases);
             if l > 0 {
-                let mut below = lower[l - 1].slice_mut(s![..n, ..]);
+                let mut below = leading::rows_mut(&mut lower[l - 1], n);
                 let weights = &network.layers[l].weights;
                 let (inputs, outputs) = weights.dim();
                 if F::reads_rows(n, outputs, inputs) {
@@ -156,6 +158,7 @@ impl<F: Float> Workspace<F> {
                 network.layers[l - 1].activation.backprop(input, below);
             }
         }
+        total
     }
 }
 
@@ -216,6 +219,7 @@ mod tests {
     use super::*;
     use crate::nn::{Activation, Layer};
     use ndarray::array;
+    use ndarray::s;
 
     /// Column sums by groups equal adding whole rows one after another, bit
     /// for bit, for every width around the group size and a strided view.

@@ -69,6 +69,52 @@ impl Loss {
         targets: ArrayView2<F>,
     ) -> f64 {
         self.check(output, outputs, targets);
+        self.summed(output, outputs, targets, None)
+    }
+
+    /// [`Self::total`] of a training batch, and `∂L/∂z` of the output layer
+    /// written into `delta`, where `L` is the mean loss of this batch (so every
+    /// entry carries a factor `1/n`). One pass over the outputs gives both: a
+    /// batch of a few classes costs more in passes than in arithmetic.
+    ///
+    /// # Panics
+    /// If the shapes differ, or the combination is not [`supported`](Self::supports).
+    pub(crate) fn total_and_output_delta<F: Float>(
+        self,
+        output: Activation,
+        outputs: ArrayView2<F>,
+        targets: ArrayView2<F>,
+        mut delta: ArrayViewMut2<F>,
+    ) -> f64 {
+        self.check(output, outputs, targets);
+        assert_eq!(delta.dim(), outputs.dim(), "delta buffer shape");
+        let n = F::round_from(outputs.nrows() as f64);
+        // Both losses start from (o − t)/n: it is ∂L/∂o for squared error and
+        // the fused ∂L/∂z for cross-entropy after sigmoid or softmax.
+        let residuals = Residuals {
+            delta: delta.view_mut(),
+            n,
+        };
+        let total = self.summed(output, outputs, targets, Some(residuals));
+        let fused = match self {
+            Loss::Mse => output == Activation::Linear,
+            Loss::CrossEntropy => true,
+        };
+        if !fused {
+            output.backprop(outputs, delta);
+        }
+        total
+    }
+
+    /// The loss summed over the rows, with the residuals filled on the way
+    /// when asked for.
+    fn summed<F: Float>(
+        self,
+        output: Activation,
+        outputs: ArrayView2<F>,
+        targets: ArrayView2<F>,
+        residuals: Option<Residuals<'_, F>>,
+    ) -> f64 {
         // A zero target contributes nothing to a categorical cross-entropy,
         // so its logarithm is not taken (one-hot rows: one logarithm per row
         // instead of one per class). Skipping it leaves every sum unchanged: the
@@ -77,11 +123,13 @@ impl Loss {
         // weight is zero in the same way. Each arm passes its own closure, so
         // the term is inlined into the loop rather than called through a pointer.
         match (self, output) {
-            (Loss::Mse, _) => sum_rows(outputs, targets, |o, t| 0.5 * (o - t) * (o - t)),
-            (Loss::CrossEntropy, Activation::Softmax) => sum_rows(outputs, targets, |p, t| {
-                if t == 0.0 { 0.0 } else { -t * clip(p).ln() }
-            }),
-            (Loss::CrossEntropy, _) => sum_rows(outputs, targets, |p, t| {
+            (Loss::Mse, _) => sum_rows(outputs, targets, residuals, |o, t| 0.5 * (o - t) * (o - t)),
+            (Loss::CrossEntropy, Activation::Softmax) => {
+                sum_rows(outputs, targets, residuals, |p, t| {
+                    if t == 0.0 { 0.0 } else { -t * clip(p).ln() }
+                })
+            }
+            (Loss::CrossEntropy, _) => sum_rows(outputs, targets, residuals, |p, t| {
                 let p = clip(p);
                 if t == 0.0 {
                     -(1.0 - p).ln()
@@ -91,36 +139,6 @@ impl Loss {
                     -(t * p.ln() + (1.0 - t) * (1.0 - p).ln())
                 }
             }),
-        }
-    }
-
-    /// Writes `∂L/∂z` of the output layer into `delta`, where `L` is the mean
-    /// loss of this batch (so every entry carries a factor `1/n`).
-    ///
-    /// # Panics
-    /// If the shapes differ, or the combination is not [`supported`](Self::supports).
-    pub(crate) fn output_delta<F: Float>(
-        self,
-        output: Activation,
-        outputs: ArrayView2<F>,
-        targets: ArrayView2<F>,
-        mut delta: ArrayViewMut2<F>,
-    ) {
-        self.check(output, outputs, targets);
-        assert_eq!(delta.dim(), outputs.dim(), "delta buffer shape");
-        let n = F::round_from(outputs.nrows() as f64);
-        // Both losses start from (o − t)/n: it is ∂L/∂o for squared error and
-        // the fused ∂L/∂z for cross-entropy after sigmoid or softmax.
-        Zip::from(&mut delta)
-            .and(&outputs)
-            .and(&targets)
-            .for_each(|d, &o, &t| *d = (o - t) / n);
-        let fused = match self {
-            Loss::Mse => output == Activation::Linear,
-            Loss::CrossEntropy => true,
-        };
-        if !fused {
-            output.backprop(outputs, delta);
         }
     }
 
@@ -137,12 +155,20 @@ impl Loss {
     }
 }
 
+/// Where [`sum_rows`] writes `(o − t)/n` for each output `o` and target `t`.
+struct Residuals<'a, F> {
+    delta: ArrayViewMut2<'a, F>,
+    n: F,
+}
+
 /// `Σ_rows Σ_columns term(output, target)`, each row summed in order and
-/// the row sums added in order, every term in `f64`.
+/// the row sums added in order, every term in `f64`; with `residuals`, each
+/// row's residuals are written as the row is summed.
 #[inline(always)]
 fn sum_rows<F: Float>(
     outputs: ArrayView2<F>,
     targets: ArrayView2<F>,
+    residuals: Option<Residuals<'_, F>>,
     term: impl Fn(f64, f64) -> f64,
 ) -> f64 {
     let term = |o: F, t: F| term(o.widen(), t.widen());
@@ -153,11 +179,28 @@ fn sum_rows<F: Float>(
     if let (Some(o), Some(t)) = (outputs.as_slice(), targets.as_slice())
         && width > 0
     {
-        return o
-            .chunks_exact(width)
-            .zip(t.chunks_exact(width))
-            .map(|(o, t)| row_sum(o, t))
-            .sum();
+        let rows = o.chunks_exact(width).zip(t.chunks_exact(width));
+        return match residuals {
+            None => rows.map(|(o, t)| row_sum(o, t)).sum(),
+            Some(mut r) => match r.delta.as_slice_mut() {
+                Some(d) => rows
+                    .zip(d.chunks_exact_mut(width))
+                    .map(|((o, t), d)| {
+                        d.iter_mut()
+                            .zip(o.iter().zip(t))
+                            .for_each(|(d, (&o, &t))| *d = (o - t) / r.n);
+                        row_sum(o, t)
+                    })
+                    .sum(),
+                None => {
+                    fill_residuals(r, outputs, targets);
+                    rows.map(|(o, t)| row_sum(o, t)).sum()
+                }
+            },
+        };
+    }
+    if let Some(r) = residuals {
+        fill_residuals(r, outputs, targets);
     }
     outputs
         .rows()
@@ -170,6 +213,14 @@ fn sum_rows<F: Float>(
                 .sum::<f64>()
         })
         .sum()
+}
+
+/// `(o − t)/n` into the residuals' buffer, for layouts that are not plain slices.
+fn fill_residuals<F: Float>(r: Residuals<'_, F>, outputs: ArrayView2<F>, targets: ArrayView2<F>) {
+    Zip::from(r.delta)
+        .and(&outputs)
+        .and(&targets)
+        .for_each(|d, &o, &t| *d = (o - t) / r.n);
 }
 
 fn clip(p: f64) -> f64 {
@@ -219,7 +270,7 @@ mod tests {
 
     fn delta(loss: Loss, f: Activation, o: &Array2<f64>, t: &Array2<f64>) -> Array2<f64> {
         let mut d = Array2::zeros(o.dim());
-        loss.output_delta(f, o.view(), t.view(), d.view_mut());
+        loss.total_and_output_delta(f, o.view(), t.view(), d.view_mut());
         d
     }
 
@@ -258,6 +309,37 @@ mod tests {
         assert!(Loss::CrossEntropy.supports(Activation::Sigmoid));
         assert!(!Loss::CrossEntropy.supports(Activation::Linear));
         assert!(!Loss::CrossEntropy.supports(Activation::Relu));
+    }
+
+    /// The total found in the pass that writes the deltas is `total`'s, bit
+    /// for bit, and the deltas are `(o − t)/n` (chained through the output's
+    /// derivative where it is not fused), for row-major outputs and for
+    /// column-major ones, which take the other path.
+    #[test]
+    fn the_loss_found_with_the_output_delta_is_the_total_bit_for_bit() {
+        // Probabilities away from 0 and 1 with a ragged spread, so that every
+        // term and every sum rounds.
+        let o = Array2::from_shape_fn((7, 3), |(i, j)| 0.05 + ((i * 7 + j * 3) % 11) as f64 / 12.3);
+        let t = Array2::from_shape_fn((7, 3), |(i, j)| if (i + j) % 3 == 0 { 1.0 } else { 0.0 });
+        let column_major = |a: &Array2<f64>| a.t().to_owned().reversed_axes();
+        for (loss, f) in [
+            (Loss::CrossEntropy, Activation::Softmax),
+            (Loss::CrossEntropy, Activation::Sigmoid),
+            (Loss::Mse, Activation::Linear),
+            (Loss::Mse, Activation::Sigmoid),
+        ] {
+            let mut expected = (&o - &t) / 7.0;
+            if (loss, f) == (Loss::Mse, Activation::Sigmoid) {
+                f.backprop(o.view(), expected.view_mut());
+            }
+            for (o, t) in [(o.clone(), t.clone()), (column_major(&o), column_major(&t))] {
+                let mut d = Array2::from_elem(o.dim(), f64::NAN);
+                let total = loss.total_and_output_delta(f, o.view(), t.view(), d.view_mut());
+                let alone = loss.total(f, o.view(), t.view());
+                assert_eq!(total.to_bits(), alone.to_bits(), "{loss:?} after {f:?}");
+                assert_eq!(d, expected, "{loss:?} after {f:?}");
+            }
+        }
     }
 
     #[test]

@@ -46,6 +46,7 @@ pub mod activation;
 pub(crate) mod backprop;
 pub(crate) mod float;
 mod gemm;
+mod leading;
 pub(crate) mod loss;
 pub(crate) mod metrics;
 pub mod network;

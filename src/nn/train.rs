@@ -41,7 +41,7 @@
 //! differ in the last bits, as may platforms whose `tanh`/`ln` differ (the
 //! `exp` of sigmoid and softmax is stet's own and the same everywhere).
 
-use ndarray::{Array2, ArrayView2, Zip, s};
+use ndarray::{Array2, ArrayView2, Zip};
 use rand::SeedableRng;
 use rand::seq::SliceRandom;
 use rand_chacha::ChaCha8Rng;
@@ -49,6 +49,7 @@ use serde::{Deserialize, Serialize};
 
 use super::backprop::Workspace;
 use super::float::{Float, Precision};
+use super::leading;
 use super::loss::Loss;
 use super::network::Network;
 use super::optimizer::{Optimizer, OptimizerState};
@@ -275,14 +276,14 @@ fn train_in<F: Float>(
         for start in (0..n).step_by(batch) {
             let end = (start + batch).min(n);
             let (xb, yb) = batches.get(&order, start, end);
-            let batch_loss = config
-                .loss
-                .total(output, workspace.forward(&network, xb), yb);
+            workspace.forward(&network, xb);
+            // The batch's loss comes with its gradient; a non-finite one stops
+            // the run before the network is updated with it.
+            let batch_loss = workspace.backward(&network, xb, yb, config.loss);
             if !batch_loss.is_finite() {
                 return stopped(network, history, StopReason::Diverged, epoch, monitor);
             }
             total += batch_loss;
-            workspace.backward(&network, xb, yb, config.loss);
             if config.l2 != 0.0 {
                 for (g, layer) in workspace.gradients.iter_mut().zip(&network.layers) {
                     Zip::from(&mut g.weights)
@@ -452,8 +453,8 @@ impl<'a, F: Float> Batches<'a, F> {
             self.filled = single;
         }
         (
-            self.x.slice(s![..end - start, ..]),
-            self.y.slice(s![..end - start, ..]),
+            leading::rows(&self.x, end - start),
+            leading::rows(&self.y, end - start),
         )
     }
 }
@@ -514,7 +515,7 @@ fn stopped<F: Float>(
 mod tests {
     use super::*;
     use crate::nn::{Activation, Init, Layer};
-    use ndarray::{Array2, array};
+    use ndarray::{Array2, array, s};
 
     fn sgd(learning_rate: f64, momentum: f64) -> Optimizer {
         Optimizer::Sgd {
