@@ -16,6 +16,7 @@ mod cluster;
 pub mod console;
 pub mod data;
 pub mod document;
+pub mod judge;
 pub mod nn;
 pub mod plan;
 pub(crate) mod report;

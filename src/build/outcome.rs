@@ -1,11 +1,13 @@
 //! What each step produces: the typed, serialisable results that the cache stores and
 //! the report and JSON summary read.
 
+use ndarray::Array2;
 use serde::{Deserialize, Serialize};
 
 use crate::data::{InputColumn, Scale, Task};
 use crate::document::spec::MetricName;
 use crate::document::spec::sweep::Varied;
+use crate::judge::Judgement;
 use crate::nn::{Activation, ClassificationMetrics, Loss, RegressionMetrics, TrainOutcome};
 
 /// Wall-clock seconds.
@@ -88,6 +90,9 @@ pub(crate) struct RunResult {
     pub seconds: Seconds,
     pub train: SetMetrics,
     pub test: Option<SetMetrics>,
+    /// The network's outputs on the held-out rows, in their order, for the paired
+    /// tests (`judge`); `None` without held-out rows.
+    pub held_out_outputs: Option<Array2<f64>>,
 }
 
 /// How a train step's networks were built, shared by all its runs.
@@ -110,6 +115,9 @@ pub(crate) struct FitResult {
     pub settings: Vec<Varied>,
     pub shape: ModelShape,
     pub runs: Vec<RunResult>,
+    /// The fit against the baseline and the model without a hidden layer on its
+    /// held-out rows; `None` without held-out rows.
+    pub judgement: Option<Judgement>,
 }
 
 /// A sweep's result: its fits in grid order and their ranking.
@@ -121,6 +129,9 @@ pub(crate) struct SweepResult {
     pub rank_rows: RowSet,
     /// Indices into `fits`, best first.
     pub ranking: Vec<usize>,
+    /// Per fit: whether its paired test against the best is not significant at 0.05
+    /// on the ranking rows; `None` for the best and when no test could be made.
+    pub within_noise_of_best: Vec<Option<bool>>,
 }
 
 impl SweepResult {

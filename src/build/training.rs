@@ -3,6 +3,8 @@
 
 use std::time::Instant;
 
+use ndarray::Array2;
+
 use crate::build::outcome::{DataSummary, ModelShape, RunResult, SetMetrics};
 use crate::data::{Prepared, Task};
 use crate::document::spec::{LossChoice, NetSpec, OutputChoice, TrainSpec, word};
@@ -158,13 +160,17 @@ pub(super) fn fit(
     );
     let seconds = started.elapsed().as_secs_f64();
     let measure = |rows| set_metrics(prepared.encoding.task, &fitted.network, rows, shape.loss);
-    let train_metrics = measure(&train_rows);
-    let test_metrics = has_test.then(|| measure(&test_rows));
+    let (train_metrics, _) = measure(&train_rows);
+    let (test_metrics, held_out_outputs) = match has_test.then(|| measure(&test_rows)) {
+        Some((metrics, outputs)) => (Some(metrics), Some(outputs)),
+        None => (None, None),
+    };
     RunResult {
         fit: fitted,
         seconds,
         train: train_metrics,
         test: test_metrics,
+        held_out_outputs,
     }
 }
 
@@ -203,10 +209,16 @@ pub(super) fn training_config(train: &TrainSpec, loss: Loss) -> TrainConfig {
     }
 }
 
-fn set_metrics(task: Task, network: &Network, rows: &nn::Rows, loss: Loss) -> SetMetrics {
+/// The network's metrics on `rows`, and its outputs there.
+fn set_metrics(
+    task: Task,
+    network: &Network,
+    rows: &nn::Rows,
+    loss: Loss,
+) -> (SetMetrics, Array2<f64>) {
     let seen = nn::evaluate(network, rows, loss);
     let (targets, outputs) = (seen.targets.view(), seen.outputs.view());
-    match task {
+    let metrics = match task {
         Task::Classify => SetMetrics::Classification {
             loss: seen.mean_loss,
             metrics: nn::classification_metrics(targets, outputs),
@@ -215,7 +227,8 @@ fn set_metrics(task: Task, network: &Network, rows: &nn::Rows, loss: Loss) -> Se
             loss: seen.mean_loss,
             metrics: nn::regression_metrics(targets, outputs),
         },
-    }
+    };
+    (metrics, seen.outputs)
 }
 
 #[cfg(test)]

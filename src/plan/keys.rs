@@ -7,7 +7,8 @@ use super::{Key, PlannedStep};
 
 /// Bumped whenever the meaning of a cached result changes, so old entries miss.
 /// 2: entries' checksums cover their names, and keys hold the crate version.
-pub(crate) const CACHE_FORMAT_VERSION: u32 = 2;
+/// 3: a run keeps its held-out outputs, for the paired tests of issue 14.
+pub(crate) const CACHE_FORMAT_VERSION: u32 = 3;
 
 /// A run's key depends on what it computes, not on step names, so identical runs in
 /// different steps share one entry.
@@ -21,6 +22,30 @@ pub(super) fn run_key(data_key: &str, net: &NetSpec, train: &TrainSpec, partitio
     hasher.update(b"run\0");
     hasher.update(data_key.as_bytes());
     hasher.update(&serde_json::to_vec(&(net, &settings, partition)).expect("specs serialise"));
+    hasher.finalize().to_hex().to_string()
+}
+
+/// The key of a partition's baseline and model without a hidden layer: its data and
+/// partition, never a network, so every fit on those rows shares one entry.
+pub(crate) fn reference_key(data_key: &str, partition: usize) -> Key {
+    let mut hasher = engine_hasher();
+    hasher.update(b"reference\0");
+    hasher.update(&crate::judge::JUDGE_VERSION.to_le_bytes());
+    hasher.update(data_key.as_bytes());
+    hasher.update(&(partition as u64).to_le_bytes());
+    hasher.finalize().to_hex().to_string()
+}
+
+/// The key of a fit's judgement: the runs it reads (each naming its data and
+/// partition) and the seed of its bootstrap.
+pub(crate) fn judgement_key<'a>(run_keys: impl Iterator<Item = &'a Key>, seed: u64) -> Key {
+    let mut hasher = engine_hasher();
+    hasher.update(b"judgement\0");
+    hasher.update(&crate::judge::JUDGE_VERSION.to_le_bytes());
+    hasher.update(&seed.to_le_bytes());
+    for key in run_keys {
+        hasher.update(key.as_bytes());
+    }
     hasher.finalize().to_hex().to_string()
 }
 

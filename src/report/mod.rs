@@ -4,6 +4,7 @@
 
 pub(crate) mod chart;
 pub(crate) mod compare_view;
+pub(crate) mod verdict;
 pub(crate) mod format;
 pub(crate) mod model_view;
 pub(crate) mod prose;
