@@ -392,3 +392,44 @@ fn r2_of(targets: ArrayView2<f64>, outputs: ArrayView2<f64>, sample: &[usize]) -
     let picked_outputs = outputs.select(Axis(0), sample);
     nn::regression_metrics(picked_targets.view(), picked_outputs.view()).r2
 }
+
+/// The seed of the paired bootstraps between the runs of a compare step, which has no
+/// seed of its own.
+const COMPARE_SEED: u64 = 0;
+
+/// Two runs of a compare step and their paired test.
+#[derive(Clone, Debug, PartialEq)]
+pub(crate) struct Pair {
+    pub a: usize,
+    pub b: usize,
+    pub outcome: PairOutcome,
+}
+
+#[derive(Clone, Debug, PartialEq)]
+pub(crate) enum PairOutcome {
+    Tested(Paired),
+    /// Held out on different rows (another data step or split).
+    NotPaired,
+    /// On the same rows, but too few for a test, or without held-out rows.
+    NotEnoughRows,
+}
+
+/// Every pair of `judgements` (in order, `a < b`) with its paired test on their common
+/// held-out rows.
+pub(crate) fn pairs(judgements: &[Option<&Judgement>]) -> Vec<Pair> {
+    let mut pairs = Vec::new();
+    for a in 0..judgements.len() {
+        for b in a + 1..judgements.len() {
+            let outcome = match (judgements[a], judgements[b]) {
+                (Some(first), Some(second)) if first.rows_key == second.rows_key => {
+                    paired(&first.network_errors, &second.network_errors, COMPARE_SEED)
+                        .map_or(PairOutcome::NotEnoughRows, PairOutcome::Tested)
+                }
+                (Some(_), Some(_)) => PairOutcome::NotPaired,
+                _ => PairOutcome::NotEnoughRows,
+            };
+            pairs.push(Pair { a, b, outcome });
+        }
+    }
+    pairs
+}

@@ -38,7 +38,7 @@ pub(crate) fn verdict(judgement: &Judgement) -> Verdict {
         .as_ref()
         .and_then(|all| all.iter().find(|(n, _)| n == name))
         .map_or(format!("({NOT_ENOUGH_ROWS})"), |(_, i)| {
-            format!("({}–{})", number(i.low), number(i.high))
+            format!("({}–{})", score(i.low), score(i.high))
         });
     let headline = match judgement.network {
         Scores::Classification { .. } => "held-out accuracy",
@@ -49,9 +49,9 @@ pub(crate) fn verdict(judgement: &Judgement) -> Verdict {
         BaselineRule::TrainingMean => "training mean",
     };
     let mut parts = vec![
-        format!("{headline} {} {interval}", number(value)),
-        format!("{baseline_name} {}", number(baseline)),
-        format!("without a hidden layer {}", number(linear)),
+        format!("{headline} {} {interval}", score(value)),
+        format!("{baseline_name} {}", score(baseline)),
+        format!("without a hidden layer {}", score(linear)),
         test_words(judgement.versus_linear.as_ref()),
     ];
     let beats_linear = judgement
@@ -97,7 +97,7 @@ fn test_words(test: Option<&Paired>) -> String {
 /// A test's number: the p-value, or the squared-error difference and its interval.
 pub(crate) fn evidence(test: &Paired) -> String {
     match test {
-        Paired::Mcnemar { p_value, .. } => format!("p = {}", p_text(*p_value)),
+        Paired::Mcnemar { p_value, .. } => p_text(*p_value),
         Paired::SquaredErrorDifference { mean, interval } => format!(
             "squared error {} by {} ({} to {})",
             if *mean < 0.0 { "lower" } else { "higher" },
@@ -111,11 +111,20 @@ pub(crate) fn evidence(test: &Paired) -> String {
 /// A p-value to two decimals (three under 0.01), the smallest as a bound.
 pub(crate) fn p_text(p: f64) -> String {
     if p < 0.001 {
-        "< 0.001".into()
+        "p < 0.001".into()
     } else if p < 0.01 {
-        format!("{p:.3}")
+        format!("p = {p:.3}")
     } else {
-        format!("{p:.2}")
+        format!("p = {p:.2}")
+    }
+}
+
+/// Accuracy or R² as a person reads it in a sentence: two decimals.
+fn score(value: f64) -> String {
+    if value.is_finite() {
+        format!("{value:.2}")
+    } else {
+        "—".into()
     }
 }
 
@@ -125,8 +134,8 @@ mod tests {
 
     #[test]
     fn p_values_keep_two_decimals_and_small_ones_a_bound() {
-        assert_eq!(p_text(0.4213), "0.42");
-        assert_eq!(p_text(0.0031), "0.003");
-        assert_eq!(p_text(0.00001), "< 0.001");
+        assert_eq!(p_text(0.4213), "p = 0.42");
+        assert_eq!(p_text(0.0031), "p = 0.003");
+        assert_eq!(p_text(0.00001), "p < 0.001");
     }
 }
