@@ -13,14 +13,14 @@ use ndarray::{Array1, Array2, ArrayView2, Axis, s};
 use serde::{Deserialize, Serialize};
 
 /// The L2 penalty λ on the weights: `Ridge(alpha=λ)`, `LogisticRegression(C=1/λ)`.
-pub(crate) const PENALTY: f64 = 1.0;
+pub const PENALTY: f64 = 1.0;
 
 /// Newton steps before giving up on a logistic fit (it converges in well under 30).
 const MAX_NEWTON_STEPS: usize = 100;
 
 /// A fitted linear model: `outputs = link(x · weights + intercepts)`.
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
-pub(crate) struct LinearModel {
+pub struct LinearModel {
     /// One column per output (`inputs × outputs`).
     pub weights: Array2<f64>,
     pub intercepts: Array1<f64>,
@@ -29,7 +29,7 @@ pub(crate) struct LinearModel {
 
 /// How the linear scores become outputs.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize)]
-pub(crate) enum Link {
+pub enum Link {
     /// Regression: the scores themselves.
     Identity,
     /// Two classes: the probability of the second, in one column.
@@ -40,7 +40,7 @@ pub(crate) enum Link {
 
 impl LinearModel {
     /// The model's outputs for scaled inputs `x`, shaped as a network's outputs.
-    pub(crate) fn predict(&self, x: ArrayView2<f64>) -> Array2<f64> {
+    pub fn predict(&self, x: ArrayView2<f64>) -> Array2<f64> {
         let scores = x.dot(&self.weights) + &self.intercepts;
         match self.link {
             Link::Identity => scores,
@@ -52,7 +52,7 @@ impl LinearModel {
 
 /// Ridge regression of every target column on `x` (scikit-learn's `Ridge`, which
 /// centres inputs and targets so the intercepts go unpenalised).
-pub(crate) fn fit_least_squares(x: ArrayView2<f64>, y: ArrayView2<f64>) -> LinearModel {
+pub fn fit_least_squares(x: ArrayView2<f64>, y: ArrayView2<f64>) -> LinearModel {
     let x_mean = x.mean_axis(Axis(0)).expect("training rows");
     let y_mean = y.mean_axis(Axis(0)).expect("training rows");
     let xc = &x - &x_mean;
@@ -71,7 +71,7 @@ pub(crate) fn fit_least_squares(x: ArrayView2<f64>, y: ArrayView2<f64>) -> Linea
 
 /// L2-penalised logistic regression: binary when `y` has one 0/1 column, multinomial
 /// when it is one-hot over several classes.
-pub(crate) fn fit_logistic(x: ArrayView2<f64>, y: ArrayView2<f64>) -> LinearModel {
+pub fn fit_logistic(x: ArrayView2<f64>, y: ArrayView2<f64>) -> LinearModel {
     let link = if y.ncols() == 1 {
         Link::Sigmoid
     } else {
