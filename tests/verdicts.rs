@@ -183,8 +183,11 @@ fn too_few_held_out_rows_say_so_instead_of_a_number() {
         assert!(fit["interval"].is_null(), "{fit}");
         assert!(fit["versus_linear"].is_null(), "{fit}");
     }
+    // Two held-out rows of the majority class: nothing can score above it.
+    assert_eq!(step(&summary, "one_class")["verdict"], "below_baseline");
     let lines = verdict_lines(&report(&ws, "tiny.html"));
     assert_eq!(lines.len(), 2, "{lines:?}");
+    assert!(lines[0].starts_with("THE NETWORK DOES NOT BEAT THE MAJORITY CLASS"), "{lines:?}");
     assert!(
         lines.iter().all(|line| line.contains("not enough held-out rows")),
         "{lines:?}"
@@ -213,6 +216,17 @@ fn the_model_without_a_hidden_layer_is_fitted_once_per_data_step_and_split() {
         "{again}"
     );
     assert_eq!(step(&again, "longer")["versus_linear"]["test"], "mcnemar_exact");
+}
+
+// With folds every row is held out once, by its own fold: the judgement pools them.
+#[test]
+fn with_folds_the_verdict_reads_every_row_held_out_once() {
+    let ws = Workspace::new();
+    let doc = ws.write("folds.md", &IRIS.replace("holdout: 0.3", "folds: 3"));
+    let summary = ws.build_ok(&doc, &[]);
+    let fit = step(&summary, "fit");
+    assert_eq!(fit["held_out_rows"], 150, "{fit}");
+    assert_eq!(fit["versus_linear"]["test"], "mcnemar_exact", "{fit}");
 }
 
 fn entries_named(cache: &std::path::Path, suffix: &str) -> usize {

@@ -59,8 +59,11 @@ pub fn fit_least_squares(x: ArrayView2<f64>, y: ArrayView2<f64>) -> LinearModel 
     let yc = &y - &y_mean;
     let mut gram = xc.t().dot(&xc);
     gram.diag_mut().mapv_inplace(|v| v + PENALTY);
+    // The penalty makes the system positive definite; only inputs so large that their
+    // products overflow can break the factorisation, and then the model's outputs are
+    // not numbers (shown as a dash) rather than a panic.
     let weights = solve_positive_definite(gram, xc.t().dot(&yc))
-        .expect("a ridge penalty makes the normal equations positive definite");
+        .unwrap_or_else(|| Array2::from_elem((x.ncols(), y.ncols()), f64::NAN));
     let intercepts = &y_mean - &x_mean.dot(&weights);
     LinearModel {
         weights,

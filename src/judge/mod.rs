@@ -433,3 +433,61 @@ pub(crate) fn pairs(judgements: &[Option<&Judgement>]) -> Vec<Pair> {
     }
     pairs
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use ndarray::array;
+
+    fn judged(rows_key: &str, correct: Vec<bool>) -> Judgement {
+        let scores = Scores::Classification {
+            accuracy: 0.5,
+            log_loss: 0.7,
+        };
+        Judgement {
+            rows_key: rows_key.into(),
+            held_out_rows: correct.len(),
+            network: scores.clone(),
+            baseline_rule: BaselineRule::MajorityClass,
+            baseline: scores.clone(),
+            linear_train: scores.clone(),
+            linear: scores,
+            intervals: None,
+            versus_linear: None,
+            network_errors: RowErrors::Correct(correct),
+        }
+    }
+
+    // Discordant rows: the first right and the second wrong on rows 0 and 1, the
+    // reverse on none: McNemar's p is 2 · ½² = 0.5.
+    #[test]
+    fn pairs_are_tested_on_the_same_rows_and_marked_on_different_ones() {
+        let a = judged("rows", vec![true, true, false, true]);
+        let b = judged("rows", vec![false, false, false, true]);
+        let c = judged("other", vec![true, false, true, true]);
+        let pairs = pairs(&[Some(&a), Some(&b), Some(&c), None]);
+        assert_eq!(pairs.len(), 6);
+        assert_eq!(
+            pairs[0].outcome,
+            PairOutcome::Tested(Paired::Mcnemar {
+                p_value: 0.5,
+                only_first: 2,
+                only_second: 0
+            })
+        );
+        assert_eq!(pairs[1].outcome, PairOutcome::NotPaired);
+        assert_eq!(pairs[2].outcome, PairOutcome::NotEnoughRows);
+    }
+
+    #[test]
+    fn one_row_or_one_class_is_not_enough_for_an_interval() {
+        assert!(!enough_rows(Task::Regress, array![[1.0]].view()));
+        assert!(enough_rows(Task::Regress, array![[1.0], [1.0]].view()));
+        assert!(!enough_rows(Task::Classify, array![[1.0], [1.0]].view()));
+        assert!(enough_rows(Task::Classify, array![[0.0], [1.0]].view()));
+        assert!(!enough_rows(
+            Task::Classify,
+            array![[0.0, 1.0, 0.0], [0.0, 1.0, 0.0]].view()
+        ));
+    }
+}

@@ -8,7 +8,7 @@ use super::view::{mean_curve, stat_text, stop_counts};
 use crate::build::outcome::{FitResult, RowSet, SetMetrics, SweepResult};
 use crate::document::spec::{ChartChoice, CompareSpec, MetricName};
 use super::format::number;
-use super::verdict::{NOT_ENOUGH_ROWS, p_text};
+use super::verdict::{NOT_ENOUGH_ROWS, evidence, p_text};
 use crate::judge::{self, PairOutcome, Paired};
 use crate::plan::describe;
 
@@ -39,6 +39,8 @@ pub(crate) struct SweepRow {
     pub best: bool,
     /// Its paired test against the best is not significant at 0.05.
     pub within_noise: bool,
+    /// Its verdict against the model without a hidden layer, in a few words.
+    pub versus_linear: String,
     pub settings: Vec<String>,
     pub values: Vec<String>,
     pub stop: String,
@@ -67,6 +69,7 @@ pub(crate) fn sweep_view(result: &SweepResult) -> SweepView {
                 rank: rank + 1,
                 best: rank == 0,
                 within_noise: result.within_noise_of_best.get(i) == Some(&Some(true)),
+                versus_linear: fit.judgement.as_ref().map_or("—".into(), versus_linear_cell),
                 settings: fit
                     .settings
                     .iter()
@@ -307,6 +310,21 @@ pub(crate) fn compare_view(spec: &CompareSpec, entries: &[Compared<'_>]) -> Comp
         pairs: pairs_view(entries),
         chart,
         chart_note,
+    }
+}
+
+/// A combination's paired test against the model without a hidden layer.
+fn versus_linear_cell(judgement: &crate::judge::Judgement) -> String {
+    match &judgement.versus_linear {
+        None => NOT_ENOUGH_ROWS.into(),
+        Some(test) => {
+            let words = match (test.significant(), test.first_better()) {
+                (true, true) => "beats it",
+                (true, false) => "worse",
+                (false, _) => "within noise",
+            };
+            format!("{words} ({})", evidence(test))
+        }
     }
 }
 
