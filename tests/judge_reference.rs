@@ -43,12 +43,24 @@ fn matrix(value: &Value) -> Vec<Vec<f64>> {
         .as_array()
         .unwrap()
         .iter()
-        .map(|row| row.as_array().unwrap().iter().map(|v| v.as_f64().unwrap()).collect())
+        .map(|row| {
+            row.as_array()
+                .unwrap()
+                .iter()
+                .map(|v| v.as_f64().unwrap())
+                .collect()
+        })
         .collect()
 }
 
 fn to_json(array: &Array2<f64>) -> Value {
-    json!(array.rows().into_iter().map(|r| r.to_vec()).collect::<Vec<_>>())
+    json!(
+        array
+            .rows()
+            .into_iter()
+            .map(|r| r.to_vec())
+            .collect::<Vec<_>>()
+    )
 }
 
 /// Fisher's Iris data (tests/data/README.md): the four measurements and the species index.
@@ -62,7 +74,10 @@ fn iris() -> (Array2<f64>, Vec<usize>) {
         x.extend((0..4).map(|i| record[i].parse::<f64>().unwrap()));
         labels.push(species.iter().position(|s| *s == &record[4]).unwrap());
     }
-    (Array2::from_shape_vec((labels.len(), 4), x).unwrap(), labels)
+    (
+        Array2::from_shape_vec((labels.len(), 4), x).unwrap(),
+        labels,
+    )
 }
 
 #[test]
@@ -70,9 +85,26 @@ fn wilson_intervals_and_mcnemar_p_values_match_statsmodels() {
     let Some(python) = reference_python("Wilson and McNemar against statsmodels") else {
         return;
     };
-    let proportions = [(0, 1), (1, 1), (0, 10), (8, 10), (10, 10), (45, 50), (88, 100), (1, 1000), (731, 1000)];
+    let proportions = [
+        (0, 1),
+        (1, 1),
+        (0, 10),
+        (8, 10),
+        (10, 10),
+        (45, 50),
+        (88, 100),
+        (1, 1000),
+        (731, 1000),
+    ];
     // McNemar reads only the discordant cells b and c.
-    let tables = [[5, 1, 9, 5], [10, 0, 0, 10], [3, 7, 7, 3], [40, 12, 3, 45], [0, 30, 41, 0], [200, 140, 170, 90]];
+    let tables = [
+        [5, 1, 9, 5],
+        [10, 0, 0, 10],
+        [3, 7, 7, 3],
+        [40, 12, 3, 45],
+        [0, 30, 41, 0],
+        [200, 140, 170, 90],
+    ];
     let request = json!({
         "wilson": proportions,
         "mcnemar": tables,
@@ -82,13 +114,22 @@ fn wilson_intervals_and_mcnemar_p_values_match_statsmodels() {
     let answer = reference(&python, &request);
     for ((k, n), expected) in proportions.iter().zip(matrix(&answer["wilson"])) {
         let ours = wilson(*k, *n);
-        assert!((ours.low - expected[0]).abs() < 1e-12, "{k}/{n}: {ours:?} against {expected:?}");
-        assert!((ours.high - expected[1]).abs() < 1e-12, "{k}/{n}: {ours:?} against {expected:?}");
+        assert!(
+            (ours.low - expected[0]).abs() < 1e-12,
+            "{k}/{n}: {ours:?} against {expected:?}"
+        );
+        assert!(
+            (ours.high - expected[1]).abs() < 1e-12,
+            "{k}/{n}: {ours:?} against {expected:?}"
+        );
     }
     for (table, expected) in tables.iter().zip(answer["mcnemar"].as_array().unwrap()) {
         let ours = mcnemar_exact(table[1], table[2]);
         let expected = expected.as_f64().unwrap();
-        assert!((ours - expected).abs() < 1e-12, "{table:?}: {ours} against {expected}");
+        assert!(
+            (ours - expected).abs() < 1e-12,
+            "{table:?}: {ours} against {expected}"
+        );
     }
 }
 
@@ -106,10 +147,14 @@ fn ridge_and_logistic_coefficients_match_scikit_learn_on_invented_rows_and_iris(
     let y = x.dot(&beta) + 0.7 + noise;
     // Iris, all three species (multinomial), and versicolor against virginica (binary).
     let (iris_x, labels) = iris();
-    let one_hot = Array2::from_shape_fn((labels.len(), 3), |(i, c)| f64::from(u8::from(labels[i] == c)));
+    let one_hot = Array2::from_shape_fn((labels.len(), 3), |(i, c)| {
+        f64::from(u8::from(labels[i] == c))
+    });
     let pair: Vec<usize> = (0..labels.len()).filter(|&i| labels[i] > 0).collect();
     let binary_x = iris_x.select(Axis(0), &pair);
-    let binary_y = Array2::from_shape_fn((pair.len(), 1), |(i, _)| f64::from(u8::from(labels[pair[i]] == 2)));
+    let binary_y = Array2::from_shape_fn((pair.len(), 1), |(i, _)| {
+        f64::from(u8::from(labels[pair[i]] == 2))
+    });
     let request = json!({
         "wilson": [],
         "mcnemar": [],
@@ -126,31 +171,55 @@ fn ridge_and_logistic_coefficients_match_scikit_learn_on_invented_rows_and_iris(
     for (output, row) in coef.iter().enumerate() {
         for (input, expected) in row.iter().enumerate() {
             let ours = ridge.weights[[input, output]];
-            assert!((ours - expected).abs() < 1e-8, "ridge weight {input},{output}: {ours} against {expected}");
+            assert!(
+                (ours - expected).abs() < 1e-8,
+                "ridge weight {input},{output}: {ours} against {expected}"
+            );
         }
         let expected = answer["ridge"]["intercept"][output].as_f64().unwrap();
-        assert!((ridge.intercepts[output] - expected).abs() < 1e-8, "ridge intercept {output}");
+        assert!(
+            (ridge.intercepts[output] - expected).abs() < 1e-8,
+            "ridge intercept {output}"
+        );
     }
 
-    for (case, (x, y)) in [(iris_x.view(), one_hot.view()), (binary_x.view(), binary_y.view())]
-        .into_iter()
-        .enumerate()
+    for (case, (x, y)) in [
+        (iris_x.view(), one_hot.view()),
+        (binary_x.view(), binary_y.view()),
+    ]
+    .into_iter()
+    .enumerate()
     {
         let model = fit_logistic(x, y);
         let expected = &answer["logistic"][case];
         for (output, row) in matrix(&expected["coef"]).iter().enumerate() {
             for (input, value) in row.iter().enumerate() {
                 let ours = model.weights[[input, output]];
-                assert!((ours - value).abs() < 1e-5, "case {case}, weight {input},{output}: {ours} against {value}");
+                assert!(
+                    (ours - value).abs() < 1e-5,
+                    "case {case}, weight {input},{output}: {ours} against {value}"
+                );
             }
         }
         // A softmax's intercepts are fixed only up to one shared constant: compare them
         // centred (stet keeps their sum at zero).
-        let theirs: Vec<f64> = expected["intercept"].as_array().unwrap().iter().map(|v| v.as_f64().unwrap()).collect();
-        let centre = if theirs.len() > 1 { theirs.iter().sum::<f64>() / theirs.len() as f64 } else { 0.0 };
+        let theirs: Vec<f64> = expected["intercept"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .map(|v| v.as_f64().unwrap())
+            .collect();
+        let centre = if theirs.len() > 1 {
+            theirs.iter().sum::<f64>() / theirs.len() as f64
+        } else {
+            0.0
+        };
         for (output, value) in theirs.iter().enumerate() {
             let ours = model.intercepts[output];
-            assert!((ours - (value - centre)).abs() < 1e-5, "case {case}, intercept {output}: {ours} against {value}");
+            assert!(
+                (ours - (value - centre)).abs() < 1e-5,
+                "case {case}, intercept {output}: {ours} against {value}"
+            );
         }
     }
 }
@@ -160,7 +229,10 @@ fn r2(target: &[f64], predicted: &[f64], sample: &[usize]) -> f64 {
     let n = sample.len() as f64;
     let mean = sample.iter().map(|&i| target[i]).sum::<f64>() / n;
     let total: f64 = sample.iter().map(|&i| (target[i] - mean).powi(2)).sum();
-    let residual: f64 = sample.iter().map(|&i| (target[i] - predicted[i]).powi(2)).sum();
+    let residual: f64 = sample
+        .iter()
+        .map(|&i| (target[i] - predicted[i]).powi(2))
+        .sum();
     1.0 - residual / total
 }
 

@@ -63,7 +63,10 @@ fn on_iris_the_network_does_not_beat_the_model_without_a_hidden_layer() {
     assert!((majority - 1.0 / 3.0).abs() < 1e-12, "{majority}");
     let [low, high] = interval(fit, "accuracy");
     let accuracy = fit["metrics"]["test"]["accuracy"].as_f64().unwrap();
-    assert!(low < accuracy && accuracy <= high, "{low} {accuracy} {high}");
+    assert!(
+        low < accuracy && accuracy <= high,
+        "{low} {accuracy} {high}"
+    );
     let lines = verdict_lines(&report(&ws, "iris.html"));
     assert_eq!(lines.len(), 1, "{lines:?}");
     assert!(lines[0].contains("within noise"), "{lines:?}");
@@ -84,8 +87,12 @@ fn linear_rows(rows: usize) -> String {
     for _ in 0..rows {
         let (a, b) = (4.0 * uniform() - 2.0, 4.0 * uniform() - 2.0);
         // Box–Muller.
-        let noise = (-2.0 * (1.0 - uniform()).ln()).sqrt() * (std::f64::consts::TAU * uniform()).cos();
-        csv.push_str(&format!("{a:.6},{b:.6},{:.6}\n", 3.0 * a - 2.0 * b + 1.0 + 0.5 * noise));
+        let noise =
+            (-2.0 * (1.0 - uniform()).ln()).sqrt() * (std::f64::consts::TAU * uniform()).cos();
+        csv.push_str(&format!(
+            "{a:.6},{b:.6},{:.6}\n",
+            3.0 * a - 2.0 * b + 1.0 + 0.5 * noise
+        ));
     }
     csv
 }
@@ -127,19 +134,38 @@ fn on_the_hives_demo_the_networks_beat_the_model_without_a_hidden_layer() {
         assert!(p < 0.05, "{id}: {p}");
     }
     let lines = verdict_lines(&report(&ws, "experiments/hives.html"));
-    assert!(lines.iter().all(|line| line.contains("the network beats")), "{lines:?}");
+    assert!(
+        lines.iter().all(|line| line.contains("the network beats")),
+        "{lines:?}"
+    );
 
     let sweep = step(&summary, "rates");
     let runs = sweep["runs"].as_array().unwrap();
-    let marks: Vec<&Value> = runs.iter().map(|run| &run["within_noise_of_best"]).collect();
-    assert_eq!(marks.iter().filter(|mark| mark.is_null()).count(), 1, "{marks:?}");
-    assert!(marks.iter().all(|mark| mark.is_null() || mark.is_boolean()), "{marks:?}");
+    let marks: Vec<&Value> = runs
+        .iter()
+        .map(|run| &run["within_noise_of_best"])
+        .collect();
+    assert_eq!(
+        marks.iter().filter(|mark| mark.is_null()).count(),
+        1,
+        "{marks:?}"
+    );
+    assert!(
+        marks.iter().all(|mark| mark.is_null() || mark.is_boolean()),
+        "{marks:?}"
+    );
 
     // Five runs on the same held-out rows: ten pairs, each with McNemar's test.
     let pairs = step(&summary, "fits")["pairs"].as_array().unwrap().clone();
     assert_eq!(pairs.len(), 10, "{pairs:?}");
-    assert!(pairs.iter().all(|pair| pair["test"] == "mcnemar_exact"), "{pairs:?}");
-    assert_eq!((pairs[0]["a"].as_str(), pairs[0]["b"].as_str()), (Some("base"), Some("no_momentum")));
+    assert!(
+        pairs.iter().all(|pair| pair["test"] == "mcnemar_exact"),
+        "{pairs:?}"
+    );
+    assert_eq!(
+        (pairs[0]["a"].as_str(), pairs[0]["b"].as_str()),
+        (Some("base"), Some("no_momentum"))
+    );
 }
 
 #[test]
@@ -166,7 +192,10 @@ fn runs_held_out_on_different_rows_are_not_paired() {
 #[test]
 fn too_few_held_out_rows_say_so_instead_of_a_number() {
     let ws = Workspace::new();
-    ws.write("tiny.csv", "x,label\n1,a\n2,a\n3,a\n4,a\n5,a\n6,a\n7,a\n8,a\n9,b\n10,b\n");
+    ws.write(
+        "tiny.csv",
+        "x,label\n1,a\n2,a\n3,a\n4,a\n5,a\n6,a\n7,a\n8,a\n9,b\n10,b\n",
+    );
     ws.write("few.csv", "x,y\n1,2.0\n2,3.5\n3,4.0\n4,6.5\n5,7.0\n");
     let doc = ws.write(
         "tiny.md",
@@ -187,9 +216,14 @@ fn too_few_held_out_rows_say_so_instead_of_a_number() {
     assert_eq!(step(&summary, "one_class")["verdict"], "below_baseline");
     let lines = verdict_lines(&report(&ws, "tiny.html"));
     assert_eq!(lines.len(), 2, "{lines:?}");
-    assert!(lines[0].starts_with("THE NETWORK DOES NOT BEAT THE MAJORITY CLASS"), "{lines:?}");
     assert!(
-        lines.iter().all(|line| line.contains("not enough held-out rows")),
+        lines[0].starts_with("THE NETWORK DOES NOT BEAT THE MAJORITY CLASS"),
+        "{lines:?}"
+    );
+    assert!(
+        lines
+            .iter()
+            .all(|line| line.contains("not enough held-out rows")),
         "{lines:?}"
     );
 }
@@ -208,14 +242,24 @@ fn the_model_without_a_hidden_layer_is_fitted_once_per_data_step_and_split() {
     );
     ws.build_ok(&doc, &[]);
     let references = entries_named(&ws.path(".stet"), "reference");
-    assert_eq!(references, 1, "one reference entry for one data step and split");
+    assert_eq!(
+        references, 1,
+        "one reference entry for one data step and split"
+    );
     // A rebuild computes nothing: every step, and its judgement, comes from the cache.
     let again = ws.build_ok(&doc, &[]);
     assert!(
-        again["steps"].as_array().unwrap().iter().all(|s| s["status"] == "reused"),
+        again["steps"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .all(|s| s["status"] == "reused"),
         "{again}"
     );
-    assert_eq!(step(&again, "longer")["versus_linear"]["test"], "mcnemar_exact");
+    assert_eq!(
+        step(&again, "longer")["versus_linear"]["test"],
+        "mcnemar_exact"
+    );
 }
 
 // With folds every row is held out once, by its own fold: the judgement pools them.

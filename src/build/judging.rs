@@ -3,6 +3,7 @@
 //! or fitted once per data step and partition, however many fits read them.
 
 use std::collections::HashMap;
+use std::collections::hash_map::Entry;
 use std::sync::Arc;
 
 use ndarray::Array2;
@@ -24,11 +25,15 @@ pub(super) fn judge_fits(
     task: Task,
     cache: &Cache,
     prepared: &mut HashMap<usize, Arc<Prepared>>,
-) -> Result<Vec<Option<Judgement>>, StepError> {
-    let cached: Vec<Option<Judgement>> = step
+) -> Result<Vec<Option<Box<Judgement>>>, StepError> {
+    let cached: Vec<Option<Box<Judgement>>> = step
         .fits
         .iter()
-        .map(|fit| cache.load(&fit.judgement_key(), EntryKind::Judgement))
+        .map(|fit| {
+            cache
+                .load(&fit.judgement_key(), EntryKind::Judgement)
+                .map(Box::new)
+        })
         .collect();
     let mut references: HashMap<Key, Reference> = HashMap::new();
     for ((fit, fit_runs), judgement) in step.fits.iter().zip(runs).zip(&cached) {
@@ -37,9 +42,10 @@ pub(super) fn judge_fits(
         }
         for run in fit.judged_runs() {
             let key = reference_key(&plan.steps[fit.data].key, run.partition);
-            if !references.contains_key(&key) {
-                let reference = load_or_fit(plan, fit.data, run.partition, &key, cache, prepared)?;
-                references.insert(key, reference);
+            if let Entry::Vacant(slot) = references.entry(key) {
+                let reference =
+                    load_or_fit(plan, fit.data, run.partition, slot.key(), cache, prepared)?;
+                slot.insert(reference);
             }
         }
     }
@@ -65,7 +71,7 @@ pub(super) fn judge_fits(
                 .collect();
             let judgement = judge::judge(task, data_key, &parts, fit.judged_runs()[0].seed);
             cache.store(&fit.judgement_key(), EntryKind::Judgement, &judgement);
-            Some(judgement)
+            Some(Box::new(judgement))
         })
         .collect())
 }

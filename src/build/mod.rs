@@ -599,7 +599,7 @@ fn fit_all<'t>(
 fn assemble(
     step: &PlannedStep,
     fits: PendingFits,
-    judgements: Vec<Option<judge::Judgement>>,
+    judgements: Vec<Option<Box<judge::Judgement>>>,
     status: Status,
     records: &[Option<StepResult>],
     plan: &Plan,

@@ -117,7 +117,7 @@ pub(crate) struct FitResult {
     pub runs: Vec<RunResult>,
     /// The fit against the baseline and the model without a hidden layer on its
     /// held-out rows; `None` without held-out rows.
-    pub judgement: Option<Judgement>,
+    pub judgement: Option<Box<Judgement>>,
 }
 
 /// A sweep's result: its fits in grid order and their ranking.

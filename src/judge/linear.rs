@@ -89,7 +89,10 @@ pub fn fit_logistic(x: ArrayView2<f64>, y: ArrayView2<f64>) -> LinearModel {
     let mut objective = logistic_objective(&model, x, y);
     for _ in 0..MAX_NEWTON_STEPS {
         let (gradient, hessian) = logistic_derivatives(&model, x, y);
-        if gradient.iter().all(|g| g.abs() <= 1e-11 * (1.0 + x.nrows() as f64)) {
+        if gradient
+            .iter()
+            .all(|g| g.abs() <= 1e-11 * (1.0 + x.nrows() as f64))
+        {
             break;
         }
         let Some(step) = solve_positive_definite(hessian, gradient.insert_axis(Axis(1))) else {
@@ -185,7 +188,9 @@ fn logistic_derivatives(
     let mut hessian = Array2::zeros((outputs * width, outputs * width));
     for k in 0..outputs {
         let block = augmented.t().dot(&residual.column(k));
-        gradient.slice_mut(s![k * width..(k + 1) * width]).assign(&block);
+        gradient
+            .slice_mut(s![k * width..(k + 1) * width])
+            .assign(&block);
         for l in 0..outputs {
             // ∂p_k/∂z_l = p_k (δ_kl − p_l); for one sigmoid column, p (1 − p).
             let kronecker = f64::from(u8::from(k == l));
@@ -234,7 +239,7 @@ fn solve_positive_definite(a: Array2<f64>, b: Array2<f64>) -> Option<Array2<f64>
             let dot: f64 = (0..j).map(|k| lower[[i, k]] * lower[[j, k]]).sum();
             if i == j {
                 let pivot = a[[i, i]] - dot;
-                if !(pivot > 0.0) {
+                if pivot.is_nan() || pivot <= 0.0 {
                     return None;
                 }
                 lower[[i, i]] = pivot.sqrt();
@@ -266,9 +271,12 @@ mod tests {
     // By hand: 4x + 2y = 2, 2x + 3y = 1 gives x = 1/2, y = 0.
     #[test]
     fn cholesky_solves_a_small_positive_definite_system() {
-        let x = solve_positive_definite(array![[4.0, 2.0], [2.0, 3.0]], array![[2.0], [1.0]])
-            .unwrap();
-        assert!((x[[0, 0]] - 0.5).abs() < 1e-15 && x[[1, 0]].abs() < 1e-15, "{x}");
+        let x =
+            solve_positive_definite(array![[4.0, 2.0], [2.0, 3.0]], array![[2.0], [1.0]]).unwrap();
+        assert!(
+            (x[[0, 0]] - 0.5).abs() < 1e-15 && x[[1, 0]].abs() < 1e-15,
+            "{x}"
+        );
         assert!(solve_positive_definite(array![[0.0]], array![[1.0]]).is_none());
     }
 

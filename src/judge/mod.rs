@@ -306,7 +306,9 @@ fn class_of(row: ndarray::ArrayView1<f64>) -> usize {
 fn row_errors(task: Task, targets: ArrayView2<f64>, outputs: ArrayView2<f64>) -> RowErrors {
     let rows = targets.rows().into_iter().zip(outputs.rows());
     match task {
-        Task::Classify => RowErrors::Correct(rows.map(|(t, o)| class_of(t) == class_of(o)).collect()),
+        Task::Classify => {
+            RowErrors::Correct(rows.map(|(t, o)| class_of(t) == class_of(o)).collect())
+        }
         Task::Regress => RowErrors::Squared(
             rows.map(|(t, o)| (&o - &t).mapv(|e| e * e).mean().unwrap_or(0.0))
                 .collect(),
@@ -332,15 +334,24 @@ fn intervals(
             let losses = row_log_losses(targets, outputs);
             vec![
                 ("accuracy".into(), stats::wilson(correct, n)),
-                ("log_loss".into(), stats::bootstrap(n, seed, |s| mean_of(&losses, s))),
+                (
+                    "log_loss".into(),
+                    stats::bootstrap(n, seed, |s| mean_of(&losses, s)),
+                ),
             ]
         }
         Task::Regress => {
             let squared: Vec<f64> = per_row(targets, outputs, |e| e * e);
             let absolute: Vec<f64> = per_row(targets, outputs, f64::abs);
             vec![
-                ("mse".into(), stats::bootstrap(n, seed, |s| mean_of(&squared, s))),
-                ("mae".into(), stats::bootstrap(n, seed, |s| mean_of(&absolute, s))),
+                (
+                    "mse".into(),
+                    stats::bootstrap(n, seed, |s| mean_of(&squared, s)),
+                ),
+                (
+                    "mae".into(),
+                    stats::bootstrap(n, seed, |s| mean_of(&absolute, s)),
+                ),
                 (
                     "r2".into(),
                     stats::bootstrap(n, seed, |s| r2_of(targets, outputs, s)),

@@ -145,8 +145,14 @@ mod tests {
     #[test]
     fn the_wilson_interval_of_eight_in_ten_matches_statsmodels() {
         let interval = wilson(8, 10);
-        assert!((interval.low - 0.49016247153664183).abs() < 1e-12, "{interval:?}");
-        assert!((interval.high - 0.9433178485456247).abs() < 1e-12, "{interval:?}");
+        assert!(
+            (interval.low - 0.49016247153664183).abs() < 1e-12,
+            "{interval:?}"
+        );
+        assert!(
+            (interval.high - 0.9433178485456247).abs() < 1e-12,
+            "{interval:?}"
+        );
     }
 
     // By hand: C(10,0)+C(10,1) = 11 of 1024 outcomes, doubled: 22/1024.
@@ -161,9 +167,8 @@ mod tests {
     #[test]
     fn a_bootstrap_is_the_same_for_the_same_seed_and_moves_with_another() {
         let values: Vec<f64> = (0..50).map(|i| (i * 7 % 13) as f64).collect();
-        let mean = |sample: &[usize]| {
-            sample.iter().map(|&i| values[i]).sum::<f64>() / sample.len() as f64
-        };
+        let mean =
+            |sample: &[usize]| sample.iter().map(|&i| values[i]).sum::<f64>() / sample.len() as f64;
         let first = bootstrap(values.len(), 3, mean);
         assert_eq!(first, bootstrap(values.len(), 3, mean));
         assert_ne!(first, bootstrap(values.len(), 4, mean));

@@ -4,11 +4,11 @@
 use serde::Serialize;
 
 use super::chart::{self, Axes, Series};
+use super::format::number;
+use super::verdict::{NOT_ENOUGH_ROWS, evidence, p_text};
 use super::view::{mean_curve, stat_text, stop_counts};
 use crate::build::outcome::{FitResult, RowSet, SetMetrics, SweepResult};
 use crate::document::spec::{ChartChoice, CompareSpec, MetricName};
-use super::format::number;
-use super::verdict::{NOT_ENOUGH_ROWS, evidence, p_text};
 use crate::judge::{self, PairOutcome, Paired};
 use crate::plan::describe;
 
@@ -69,7 +69,10 @@ pub(crate) fn sweep_view(result: &SweepResult) -> SweepView {
                 rank: rank + 1,
                 best: rank == 0,
                 within_noise: result.within_noise_of_best.get(i) == Some(&Some(true)),
-                versus_linear: fit.judgement.as_ref().map_or("—".into(), versus_linear_cell),
+                versus_linear: fit
+                    .judgement
+                    .as_deref()
+                    .map_or("—".into(), versus_linear_cell),
                 settings: fit
                     .settings
                     .iter()
@@ -366,7 +369,7 @@ fn pairs_view(entries: &[Compared<'_>]) -> Option<PairsView> {
     if entries.len() < 2 {
         return None;
     }
-    let judgements: Vec<_> = entries.iter().map(|e| e.fit.judgement.as_ref()).collect();
+    let judgements: Vec<_> = entries.iter().map(|e| e.fit.judgement.as_deref()).collect();
     let regression = judgements
         .iter()
         .flatten()

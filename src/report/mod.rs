@@ -4,12 +4,12 @@
 
 pub(crate) mod chart;
 pub(crate) mod compare_view;
-pub(crate) mod verdict;
 pub(crate) mod format;
 pub(crate) mod model_view;
 pub(crate) mod prose;
 pub(crate) mod settings;
 pub(crate) mod summary;
+pub(crate) mod verdict;
 pub(crate) mod view;
 
 use std::path::{Path, PathBuf};

@@ -4,10 +4,10 @@
 use serde_json::{Map, Value, json};
 
 use super::format::stop_code;
+use super::verdict::verdict;
 use crate::build::outcome::{FitResult, MetricStat, Outcome, RowSet, RunResult, SetMetrics};
 use crate::build::{BuildResult, Status};
 use crate::document::spec::sweep::Varied;
-use super::verdict::verdict;
 use crate::document::spec::word;
 use crate::judge::stats::{self, Interval};
 use crate::judge::{self, Judgement, PairOutcome, Paired, Scores};
@@ -189,7 +189,7 @@ fn compare_pairs(plan: &Plan, results: &BuildResult, step: &PlannedStep) -> Valu
                 Outcome::Sweep(sweep) => sweep.best(),
                 _ => return None,
             };
-            Some((plan.steps[u].id.as_str(), fit.judgement.as_ref()))
+            Some((plan.steps[u].id.as_str(), fit.judgement.as_deref()))
         })
         .collect();
     let judgements: Vec<Option<&Judgement>> = runs.iter().map(|(_, j)| *j).collect();

@@ -63,7 +63,10 @@ pub(crate) fn verdict(judgement: &Judgement) -> Verdict {
     let tone = if below_baseline {
         parts.insert(
             0,
-            format!("THE NETWORK DOES NOT BEAT THE {}", baseline_name.to_uppercase()),
+            format!(
+                "THE NETWORK DOES NOT BEAT THE {}",
+                baseline_name.to_uppercase()
+            ),
         );
         Tone::BelowBaseline
     } else if beats_linear {

@@ -7,8 +7,8 @@ use super::chart::{self, Series};
 use super::format::{mean_sd, number, seconds, stop_reason};
 use super::verdict::{NOT_ENOUGH_ROWS, Verdict, verdict};
 use crate::build::outcome::{DataSummary, FitResult, MetricStat, RowSet, SetMetrics};
-use crate::judge::{BaselineRule, Judgement};
 use crate::document::spec::word;
+use crate::judge::{BaselineRule, Judgement};
 use crate::nn::ClassificationMetrics;
 
 /// What a data step's card shows.
@@ -159,9 +159,8 @@ pub(crate) fn judged_view(judgement: &Judgement) -> JudgedView {
                 }),
         }
     };
-    let values = |scores: &crate::judge::Scores| {
-        scores.named().iter().map(|(_, v)| number(*v)).collect()
-    };
+    let values =
+        |scores: &crate::judge::Scores| scores.named().iter().map(|(_, v)| number(*v)).collect();
     let baseline = match judgement.baseline_rule {
         BaselineRule::MajorityClass => "majority class (training frequencies)",
         BaselineRule::TrainingMean => "training mean",
@@ -290,8 +289,8 @@ pub(crate) fn train_view(result: &FitResult, classes: Option<&[String]>) -> Trai
         confusion: classes.and_then(|labels| confusion_view(result, labels)),
         hints: shape.hints.clone(),
         folds,
-        verdict: result.judgement.as_ref().map(verdict),
-        judged: result.judgement.as_ref().map(judged_view),
+        verdict: result.judgement.as_deref().map(verdict),
+        judged: result.judgement.as_deref().map(judged_view),
     }
 }
 
