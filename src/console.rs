@@ -7,7 +7,7 @@ use crate::build::ShareSummary;
 use crate::build::share::Share;
 use crate::cache::pruning::Cleaning;
 use crate::document::DocumentErrors;
-use crate::{BuildSummary, Dispatched, Error, StatusReport};
+use crate::{BuildSummary, Dispatched, Error, StatusReport, Unpacked};
 
 /// One line for one of the two streams.
 #[derive(Clone, Debug, PartialEq, Eq)]
@@ -41,6 +41,35 @@ pub fn build(summary: &BuildSummary) -> Vec<Line> {
         summary.ran,
         summary.reused,
         summary.failed.len()
+    )));
+    lines
+}
+
+/// `stet unpack`: each file written, each file the report could not include with its
+/// hash and where to put it, then the command that rebuilds.
+pub fn unpacked(unpacked: &Unpacked) -> Vec<Line> {
+    let mut lines: Vec<Line> = unpacked
+        .written
+        .iter()
+        .map(|path| Line::Out(format!("wrote {}", path.display())))
+        .collect();
+    for missing in &unpacked.missing {
+        lines.push(Line::Out(format!(
+            "not included: {} (BLAKE3 {}): {}",
+            missing.place.display(),
+            missing.blake3,
+            missing.why
+        )));
+    }
+    if !unpacked.missing.is_empty() {
+        lines.push(Line::Err(
+            "put each file not included at its place; the build checks it against the hash above"
+                .into(),
+        ));
+    }
+    lines.push(Line::Err(format!(
+        "rebuild with: stet build {}",
+        unpacked.document.display()
     )));
     lines
 }

@@ -12,10 +12,13 @@
 
 pub(crate) mod build;
 pub(crate) mod cache;
+mod carry;
 mod cluster;
 pub mod console;
 pub mod data;
+mod diff;
 pub mod document;
+pub(crate) mod export;
 pub mod judge;
 pub mod nn;
 pub mod plan;
@@ -26,9 +29,14 @@ pub use build::ShareSummary;
 pub use build::share::{Share, ShareError};
 pub use cache::freshness::StepStatus;
 pub use cache::pruning::Cleaning;
+pub use carry::CarryError;
+pub use carry::inputs::RecordError;
+pub use carry::unpack::{MissingFile, UnpackError, Unpacked};
 pub use cluster::DispatchError;
+pub use diff::{Comparison, DiffError};
 pub use report::TemplateError;
 
+use std::borrow::Cow;
 use std::path::{Path, PathBuf};
 use std::time::Duration;
 
@@ -60,9 +68,15 @@ pub struct BuildOptions {
     pub jobs: usize,
     pub templates: Option<PathBuf>,
     pub allow_html: bool,
+    /// The most the experiment the report carries may take compressed, in bytes, with
+    /// the files its steps read; over it (and with `None`) those files are left out.
+    pub embed_limit: Option<u64>,
     /// Where the document may read and write, and the resource limits.
     pub plan: plan::PlanOptions,
 }
+
+/// The default of `--embed-data-mb`.
+pub const DEFAULT_EMBED_MB: u64 = 10;
 
 /// Why a command could not be carried out (exit code 2).
 #[derive(Debug, thiserror::Error)]
@@ -80,6 +94,12 @@ pub enum Error {
     Dispatch(#[from] DispatchError),
     #[error(transparent)]
     Templates(#[from] TemplateError),
+    #[error(transparent)]
+    Unpack(#[from] UnpackError),
+    #[error(transparent)]
+    Record(#[from] RecordError),
+    #[error(transparent)]
+    Diff(#[from] DiffError),
 }
 
 /// What a finished build did.
@@ -100,6 +120,9 @@ pub struct Loaded {
     pub(crate) name: String,
     pub document: Document,
     pub(crate) hash: String,
+    /// The document's text as read, before line endings were normalised: what the
+    /// report carries, so an unpacked document has the same hash.
+    pub(crate) original: String,
     pub plan: Plan,
 }
 
@@ -135,6 +158,7 @@ pub fn load(path: &Path, options: &plan::PlanOptions) -> Result<Loaded, Error> {
         }
     };
     let hash = blake3::hash(source.as_bytes()).to_hex().to_string();
+    let original = source.clone();
     let source = document::normalised(source);
     let (document, mut problems) = document::parse(&source);
     let base_dir = path.parent().unwrap_or(Path::new("."));
@@ -154,6 +178,7 @@ pub fn load(path: &Path, options: &plan::PlanOptions) -> Result<Loaded, Error> {
         name,
         document,
         hash,
+        original,
         plan,
     })
 }
@@ -178,6 +203,7 @@ pub fn build(options: &BuildOptions) -> Result<BuildSummary, Error> {
         None => report::Templates::built_in(),
     };
     let loaded = load(&options.document, &options.plan)?;
+    check_recorded_inputs(&options.document, &loaded)?;
     let cache = open_cache(&options.cache, &options.document);
     let targets = check_outputs(options, &loaded, &cache)?;
     remove_stale_temporaries(&loaded.plan, &targets);
@@ -195,8 +221,16 @@ pub fn build(options: &BuildOptions) -> Result<BuildSummary, Error> {
     };
     let mut results = build::execute(&loaded.plan, &cache, &run_options);
     manifest::store(&cache, &options.document, &loaded.plan);
-    write_model_files(&loaded.plan, &mut results.steps);
+    write_model_files(&loaded.plan, &loaded.hash, &mut results.steps);
     let built_at = build_time();
+    let summary = report::summary::summary(&loaded.name, &loaded.hash, &loaded.plan, &results);
+    let carried = carry::carry(&carry::Carrying {
+        document: &options.document,
+        source: loaded.original.as_bytes(),
+        plan: &loaded.plan,
+        summary: &summary,
+        embed_limit: options.embed_limit,
+    });
     let html = report::render(
         &report::ReportInput {
             document: &loaded.document,
@@ -206,13 +240,14 @@ pub fn build(options: &BuildOptions) -> Result<BuildSummary, Error> {
             results: &results,
             allow_html: options.allow_html,
             built_at: &built_at,
+            report_file: &report_file_name(&targets.report),
+            carried: &carried,
         },
         &templates,
     )
     .map_err(|error| Error::Usage(format!("rendering the report: {error:#}")))?;
     write_output(&targets.report, html.as_bytes())?;
     if let Some(json_path) = &targets.json {
-        let summary = report::summary::summary(&loaded.name, &loaded.hash, &loaded.plan, &results);
         let text = serde_json::to_string_pretty(&summary).expect("a JSON value serialises");
         write_output(json_path, text.as_bytes())?;
     }
@@ -222,6 +257,111 @@ pub fn build(options: &BuildOptions) -> Result<BuildSummary, Error> {
         &results,
         cache.take_warnings(),
     ))
+}
+
+/// The report's file name, as the footer's unpack command names it.
+fn report_file_name(report: &Path) -> String {
+    report.file_name().map_or_else(
+        || report.display().to_string(),
+        |name| name.to_string_lossy().into_owned(),
+    )
+}
+
+/// Refuses, at their `file:` settings, files whose bytes differ from those recorded
+/// beside a document that `stet unpack` wrote without them.
+fn check_recorded_inputs(document: &Path, loaded: &Loaded) -> Result<(), Error> {
+    let problems = carry::inputs::check(document, loaded)?;
+    if problems.is_empty() {
+        return Ok(());
+    }
+    Err(Error::Document(DocumentErrors::for_file(
+        document,
+        loaded.document.source.clone(),
+        problems,
+    )))
+}
+
+/// `stet unpack`: writes the document and the files a report carries into `dir`
+/// (default: a folder named after the report), refusing paths that would land outside
+/// it and, without `force`, files that exist. Nothing is written when it refuses.
+pub fn unpack(report: &Path, dir: Option<&Path>, force: bool) -> Result<Unpacked, Error> {
+    let unpacking = carry::unpack::prepare(report, dir, force)?;
+    let mut written = Vec::new();
+    for (path, bytes) in unpacking.writes {
+        if let Some(parent) = path.parent() {
+            std::fs::create_dir_all(parent).map_err(|source| Error::Io {
+                context: format!("creating {}", parent.display()),
+                source,
+            })?;
+        }
+        write_output(&path, &bytes)?;
+        written.push(path);
+    }
+    Ok(Unpacked {
+        document: written[0].clone(),
+        written,
+        missing: unpacking.missing,
+    })
+}
+
+/// What `stet diff` writes, and how it prints.
+#[derive(Clone, Debug, Default)]
+pub struct DiffOptions {
+    pub html: Option<PathBuf>,
+    pub json: Option<PathBuf>,
+    /// Step headings in bold (for a terminal, never when piped).
+    pub colour: bool,
+}
+
+/// `stet diff`: compares two builds, each a report or a `--json` summary, and writes
+/// the page and the JSON asked for (never over either input). Returns the lines to
+/// print: the comparison when no file was asked for, else what was written.
+pub fn diff(old: &Path, new: &Path, outputs: &DiffOptions) -> Result<Vec<String>, Error> {
+    let comparison = diff::compare_files(old, new)?;
+    if let (Some(html), Some(json)) = (&outputs.html, &outputs.json)
+        && html == json
+    {
+        return Err(Error::Usage(format!(
+            "--html and --json both name {}",
+            html.display()
+        )));
+    }
+    for (flag, output) in [("--html", &outputs.html), ("--json", &outputs.json)] {
+        if let Some(output) = output
+            && [old, new].iter().any(|input| same_file(input, output))
+        {
+            return Err(Error::Usage(format!(
+                "{flag} {}: that is one of the builds being compared",
+                output.display()
+            )));
+        }
+    }
+    let mut lines = Vec::new();
+    if let Some(path) = &outputs.html {
+        let html = report::diff_view::render(&comparison, &report::Templates::built_in())
+            .map_err(|error| Error::Usage(format!("rendering the comparison: {error:#}")))?;
+        write_output(path, html.as_bytes())?;
+        lines.push(format!("wrote {}", path.display()));
+    }
+    if let Some(path) = &outputs.json {
+        let text = serde_json::to_string_pretty(&comparison).expect("a comparison serialises");
+        write_output(path, text.as_bytes())?;
+        lines.push(format!("wrote {}", path.display()));
+    }
+    if lines.is_empty() {
+        lines = diff::text::lines(&comparison, outputs.colour);
+    } else if !comparison.matched_any() {
+        lines.push("no step matched: the two builds share no step id".into());
+    }
+    Ok(lines)
+}
+
+/// Whether two paths name one file (an output path that does not exist yet names none).
+fn same_file(a: &Path, b: &Path) -> bool {
+    match (a.canonicalize(), b.canonicalize()) {
+        (Ok(a), Ok(b)) => a == b,
+        _ => false,
+    }
 }
 
 /// The report path as the user gave it, or `DOC.html` beside the document.
@@ -475,12 +615,12 @@ fn summarise(
 /// Writes the file each predict and export step asked for. A write that fails (the
 /// plan checked every path, but the disk may still refuse) fails its step in place, so
 /// the report is still written and shows why.
-fn write_model_files(plan: &Plan, records: &mut [StepResult]) {
+fn write_model_files(plan: &Plan, document_hash: &str, records: &mut [StepResult]) {
     for (step, record) in plan.steps.iter().zip(records.iter_mut()) {
-        let (Some(output), Some(bytes)) = (&step.output, model_file(record)) else {
+        let (Some(output), Some(bytes)) = (&step.output, model_file(record, document_hash)) else {
             continue;
         };
-        if let Err(error) = atomic::write(&output.path, bytes) {
+        if let Err(error) = atomic::write(&output.path, &bytes) {
             record.status = build::Status::Failed {
                 error: format!("writing {}: {error}", output.path.display()),
             };
@@ -488,11 +628,11 @@ fn write_model_files(plan: &Plan, records: &mut [StepResult]) {
     }
 }
 
-/// The bytes a predict or export step's result saves.
-fn model_file(record: &StepResult) -> Option<&[u8]> {
+/// The bytes a predict or export step's result saves; an export names the document.
+fn model_file<'a>(record: &'a StepResult, document_hash: &str) -> Option<Cow<'a, [u8]>> {
     match &record.outcome {
-        Some(outcome::Outcome::Predict(result)) => Some(result.csv.as_bytes()),
-        Some(outcome::Outcome::Export(result)) => Some(result.json.as_bytes()),
+        Some(outcome::Outcome::Predict(result)) => Some(Cow::Borrowed(result.csv.as_bytes())),
+        Some(outcome::Outcome::Export(result)) => Some(Cow::Owned(result.file(document_hash))),
         _ => None,
     }
 }

@@ -1,6 +1,7 @@
 //! The `stet` command: parse the command line, call the library, print what happened
 //! and map it to an exit code (0 all steps succeeded, 1 a step failed, 2 unusable input).
 
+use std::io::IsTerminal;
 use std::path::PathBuf;
 use std::process::ExitCode;
 use std::time::Duration;
@@ -93,6 +94,13 @@ enum Command {
         /// Render raw HTML in the document's prose instead of showing it as text.
         #[arg(long)]
         allow_html: bool,
+        /// The most the experiment the report carries may take, compressed, with the
+        /// data files its steps read; past it the report carries only their hashes.
+        #[arg(long, value_name = "MIB", default_value_t = stet::DEFAULT_EMBED_MB)]
+        embed_data_mb: u64,
+        /// Carry only the document and the hashes of its data files, not the files.
+        #[arg(long)]
+        no_embed_data: bool,
         /// Train only share K of N of the uncached runs into the cache and render no
         /// report (what each task of `stet dispatch` runs).
         #[arg(long, value_name = "K/N")]
@@ -142,6 +150,30 @@ enum Command {
         #[command(flatten)]
         flags: DocumentFlags,
     },
+    /// Write out the document and data files a report carries, ready to rebuild.
+    Unpack {
+        /// The report (HTML) that `stet build` wrote.
+        report: PathBuf,
+        /// The folder to write into [default: one named after the report, here].
+        dir: Option<PathBuf>,
+        /// Replace files that already exist.
+        #[arg(long)]
+        force: bool,
+    },
+    /// Compare two builds, each a report or a --json summary: settings changed, status,
+    /// how each metric moved, steps and sweep combinations added or removed.
+    Diff {
+        /// The earlier build.
+        old: PathBuf,
+        /// The later build.
+        new: PathBuf,
+        /// Write the comparison as a page in the report's look instead of printing it.
+        #[arg(long, value_name = "OUT.html")]
+        html: Option<PathBuf>,
+        /// Write the comparison as JSON for scripts instead of printing it.
+        #[arg(long, value_name = "OUT.json")]
+        json: Option<PathBuf>,
+    },
     /// Print the JSON Schema of step blocks and front matter, for editors.
     Schema,
 }
@@ -168,6 +200,8 @@ fn run(command: Command) -> Result<ExitCode, Error> {
             jobs,
             templates,
             allow_html,
+            embed_data_mb,
+            no_embed_data,
             shard,
             flags,
         } => {
@@ -183,6 +217,7 @@ fn run(command: Command) -> Result<ExitCode, Error> {
                 jobs: jobs.unwrap_or_else(default_jobs),
                 templates,
                 allow_html,
+                embed_limit: (!no_embed_data).then_some(embed_data_mb << 20),
                 plan: flags.options(),
             };
             if let Some(share) = shard {
@@ -215,6 +250,7 @@ fn run(command: Command) -> Result<ExitCode, Error> {
                 jobs: default_jobs(),
                 templates: None,
                 allow_html: false,
+                embed_limit: Some(stet::DEFAULT_EMBED_MB << 20),
                 plan: flags.options(),
             };
             let dispatched =
@@ -244,6 +280,25 @@ fn run(command: Command) -> Result<ExitCode, Error> {
             let cleaning =
                 stet::clean(&documents, &cache_choice(cache), &flags.options(), dry_run)?;
             console::print(&console::clean(&cleaning, dry_run));
+            Ok(ExitCode::SUCCESS)
+        }
+        Command::Unpack { report, dir, force } => {
+            let unpacked = stet::unpack(&report, dir.as_deref(), force)?;
+            console::print(&console::unpacked(&unpacked));
+            Ok(ExitCode::SUCCESS)
+        }
+        Command::Diff {
+            old,
+            new,
+            html,
+            json,
+        } => {
+            // Plain text when piped, or when the reader asked for no colour.
+            let colour = std::io::stdout().is_terminal() && std::env::var_os("NO_COLOR").is_none();
+            let lines = stet::diff(&old, &new, &stet::DiffOptions { html, json, colour })?;
+            for line in lines {
+                println!("{line}");
+            }
             Ok(ExitCode::SUCCESS)
         }
         Command::Schema => {

@@ -18,6 +18,7 @@ fn settings(split: Split, seed: u64) -> DataSettings {
         scale: Scale::Standard,
         missing: Missing::Error,
         split,
+        validation: None,
         seed,
     }
 }

@@ -30,6 +30,7 @@ fn hives_prepare_as_three_class_classification_with_one_hot_sites() {
         scale: Scale::Standard,
         missing: Missing::Error,
         split: Split::Holdout(0.25),
+        validation: None,
         seed: 1,
     };
     let p = prepare(&read("hives.csv"), &settings, DEFAULT_MAX_CATEGORIES).unwrap();
@@ -70,6 +71,7 @@ fn greenhouse_prepares_as_regression_with_one_hot_crops() {
         scale: Scale::Minmax,
         missing: Missing::Error,
         split: Split::Folds(5),
+        validation: None,
         seed: 1,
     };
     let p = prepare(&read("greenhouse.csv"), &settings, DEFAULT_MAX_CATEGORIES).unwrap();

@@ -163,3 +163,21 @@ fn a_step_with_a_field_the_schema_does_not_describe_fails_the_summary_schema() {
         assert!(!validator.is_valid(&changed), "'{id}' with colour passed");
     }
 }
+
+// Issue 14: validation metrics appear beside the training and held-out ones, in a train
+// step, in each fold and in each sweep run.
+#[test]
+fn a_summary_with_validation_rows_matches_the_summary_schema() {
+    let ws = Workspace::new();
+    let doc = ws.write(
+        "validation.md",
+        "```yaml data iris\nfile: iris.csv\ntarget: species\nfolds: 3\nvalidation: 0.2\n```\n\n\
+         ```yaml net small\nhidden: [3]\n```\n\n\
+         ```yaml train fit\ndata: iris\nnet: small\nepochs: 20\npatience: 3\n```\n\n\
+         ```yaml sweep rates\nfrom: fit\nvary:\n  learning_rate: [0.01, 0.1]\n```\n",
+    );
+    let summary = ws.build_ok(&doc, &[]);
+    assert!(step(&summary, "fit")["folds"][0]["metrics"]["validation"]["accuracy"].is_number());
+    assert!(step(&summary, "rates")["runs"][1]["metrics"]["validation"].is_object());
+    assert_matches_schema(&summary, "a document with validation");
+}

@@ -102,6 +102,7 @@ fn settings(control: &[u8; 5], headers: &[String]) -> Option<DataSettings> {
         scale,
         missing,
         split,
+        validation: None,
         seed: u64::from(seed),
     })
 }

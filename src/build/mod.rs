@@ -14,6 +14,7 @@ mod result;
 pub(crate) mod share;
 mod training;
 
+use std::borrow::Cow;
 use std::collections::HashMap;
 use std::sync::Arc;
 use std::time::Instant;
@@ -368,8 +369,10 @@ fn summarise(step: &PlannedStep, prepared: &Prepared) -> DataSummary {
             .iter()
             .map(|partition| PartitionSummary {
                 train_rows: partition.train_rows.len(),
+                validation_rows: partition.validation_rows.len(),
                 test_rows: partition.test_rows.len(),
                 train_classes: counts(&partition.train_rows),
+                validation_classes: counts(&partition.validation_rows),
                 test_classes: counts(&partition.test_rows),
             })
             .collect(),
@@ -631,7 +634,7 @@ fn assemble(
                 Task::Classify => MetricName::Accuracy,
                 Task::Regress => MetricName::Loss,
             });
-            let rank_rows = results[0].report_rows();
+            let rank_rows = results[0].choice_rows();
             if results[0].metric(rank_by, rank_rows).is_none() {
                 return StepResult::failed(format!(
                     "rank_by {} is not a metric of this {} task",
@@ -683,28 +686,38 @@ fn use_model_step(
     let Upstream::Model { model: model_index } = step.upstream else {
         unreachable!("predict and export read a model")
     };
-    let model = match records[model_index]
+    let outcome = records[model_index]
         .as_ref()
-        .and_then(|r| r.outcome.as_ref())
-    {
-        Some(Outcome::Train(fit)) => fit,
-        _ => {
-            return StepResult::failed(format!(
-                "not run: its model '{}' failed",
-                plan.steps[model_index].id
-            ));
-        }
-    };
+        .and_then(|r| r.outcome.as_ref());
+    if !matches!(outcome, Some(Outcome::Train(_) | Outcome::Sweep(_))) {
+        return StepResult::failed(format!(
+            "not run: its model '{}' failed",
+            plan.steps[model_index].id
+        ));
+    }
     let started = Instant::now();
-    let (data, _) = plan.steps[model_index]
-        .train_inputs()
-        .expect("a model is a train step's");
+    // A train step has one fit and a sweep's fits all read the same data step.
+    let data = plan.steps[model_index].fits[0].data;
     let computed = prepared_for(plan, data, cache, prepared).and_then(|ready| {
+        // Which of the model step's fits is used: a sweep's best, a train step's only.
+        let (model, fit_index) = match outcome {
+            Some(Outcome::Sweep(sweep)) => (
+                Cow::Owned(sweep.best_model(ready.partitions.len())),
+                sweep.ranking[0],
+            ),
+            Some(Outcome::Train(fit)) => (Cow::Borrowed(fit), 0),
+            _ => unreachable!("checked above: the model is a train step's or a sweep's"),
+        };
         match &step.spec {
             StepSpec::Predict(_) => {
-                model_use::predict(model, &ready, &step.files[0]).map(Outcome::Predict)
+                model_use::predict(&model, &ready, &step.files[0]).map(Outcome::Predict)
             }
-            _ => model_use::export(model, &ready).map(Outcome::Export),
+            StepSpec::Export(export) => {
+                let provenance = model_use::provenance(plan, model_index, fit_index, &model);
+                model_use::export(&model, &ready, export.format, provenance)
+                    .map(|result| Outcome::Export(Box::new(result)))
+            }
+            _ => unreachable!("only predict and export use a model"),
         }
         .map_err(StepError::from)
     });

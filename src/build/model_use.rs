@@ -1,18 +1,16 @@
-//! Using a trained model: predictions for new rows, and the JSON export that lets other
-//! programs apply the model without stet. Both return data; the command layer writes
-//! any files.
+//! Using a trained model: predictions for new rows, and the export that lets other
+//! programs apply the model without stet (its file formats are `crate::export`'s). Both
+//! return data; the command layer writes any files.
 
-use serde_json::json;
+use serde_json::{Value, json};
 
-use crate::build::outcome::{ExportResult, FitResult, PredictResult};
-use crate::data::{self, ColumnKind, Prepared, Task};
-use crate::document::spec::word;
-use crate::nn::activation::LEAKY_SLOPE;
-use crate::nn::{Activation, Network};
+use crate::build::outcome::{FitResult, PredictResult};
+use crate::data::{self, Prepared, Task};
+use crate::document::spec::{ExportFormat, TrainSpec, word};
+use crate::export::{self, ExportResult, ExportedModel, Provenance};
+use crate::nn::{BatchSize, Network, Optimizer};
+use crate::plan::Plan;
 use crate::plan::input_file::{InputFile, ReadError};
-
-/// Version of the export format; bumped when its meaning changes.
-pub(super) const EXPORT_FORMAT_VERSION: u32 = 1;
 
 /// Why a model could not be used.
 #[derive(Debug, thiserror::Error)]
@@ -29,6 +27,12 @@ pub(crate) enum ModelUseError {
         file: String,
         error: data::DataError,
     },
+    /// ONNX names each graph input after its feature, so names must be unique and
+    /// clear of the names stet gives the graph's inner values and output.
+    #[error(
+        "the feature '{name}' cannot name an ONNX input: another feature, the output or a name stet uses inside the graph (starting with 'stet:') has it; rename the column"
+    )]
+    OnnxInputName { name: String },
     /// Writing the predictions' CSV into memory; no file is involved.
     #[error("writing predictions: {0}")]
     WritePredictions(#[from] csv::Error),
@@ -138,68 +142,100 @@ pub(super) fn predict(
     })
 }
 
-/// The model as JSON: input columns and their encoding, scaling, layers with weights,
-/// biases and activations, and class labels (the format is described in the README).
+/// The model and where it came from, ready to be written in the step's format.
 pub(super) fn export(
     model: &FitResult,
     prepared: &Prepared,
-) -> Result<crate::build::outcome::ExportResult, ModelUseError> {
+    format: ExportFormat,
+    provenance: Provenance,
+) -> Result<ExportResult, ModelUseError> {
     let network = single_network(model)?;
     let encoding = &prepared.encoding;
-    let scaler = &prepared.partitions[0].scaler;
-    let inputs: Vec<serde_json::Value> = encoding
-        .columns
-        .iter()
-        .map(|column| match &column.kind {
-            ColumnKind::Numeric => json!({"name": column.name, "kind": "numeric"}),
-            ColumnKind::Categorical { categories } => {
-                json!({"name": column.name, "kind": "categorical", "categories": categories})
-            }
-        })
-        .collect();
-    let layers: Vec<serde_json::Value> = network
-        .layers
-        .iter()
-        .map(|layer| {
-            let weights: Vec<Vec<f64>> = layer
-                .weights
-                .rows()
-                .into_iter()
-                .map(|row| row.to_vec())
-                .collect();
-            json!({
-                "inputs": layer.weights.nrows(),
-                "outputs": layer.weights.ncols(),
-                "activation": word(&layer.activation),
-                "weights": weights,
-                "biases": layer.biases.to_vec(),
-            })
-        })
-        .collect();
-    let output = match (&encoding.classes, network.output_size()) {
-        (Some(_), 1) => "the probability of classes[1]; classes[0] has one minus it",
-        (Some(_), _) => "one probability per class, in the order of classes",
-        (None, _) => "the predicted value of each target, in the order of targets",
+    let exported = ExportedModel {
+        task: encoding.task,
+        inputs: encoding.columns.clone(),
+        features: encoding.feature_names.clone(),
+        scaler: prepared.partitions[0].scaler.clone(),
+        network: network.clone(),
+        targets: encoding.target_names.clone(),
+        classes: encoding.classes.clone(),
     };
-    let uses_leaky = network
-        .layers
-        .iter()
-        .any(|l| l.activation == Activation::LeakyRelu);
-    let mut document = json!({
-        "format": "stet-model",
-        "version": EXPORT_FORMAT_VERSION,
-        "task": word(&encoding.task),
-        "inputs": inputs,
-        "features": encoding.feature_names,
-        "scaling": {"kind": word(&scaler.kind), "offset": scaler.offset, "divisor": scaler.divisor},
-        "layers": layers,
-        "targets": encoding.target_names,
-        "classes": encoding.classes,
-        "output": output,
-    });
-    if uses_leaky {
-        document["leaky_relu_slope"] = json!(LEAKY_SLOPE);
+    if format == ExportFormat::Onnx
+        && let Some(name) = export::clashing_input_name(&exported)
+    {
+        return Err(ModelUseError::OnnxInputName {
+            name: name.to_string(),
+        });
     }
-    let json = serde_json::to_string_pretty(&document).expect("a JSON value serialises");
-    Ok(ExportResult { json })
+    Ok(ExportResult {
+        format,
+        model: exported,
+        provenance,
+    })
+}
+
+/// Where the model of the step `model_step` came from: its settings as applied, its
+/// run's key, its held-out metrics and its data file. `fit_index` picks the fit among
+/// the step's fits: 0 for a train step, the best combination for a sweep.
+pub(super) fn provenance(
+    plan: &Plan,
+    model_step: usize,
+    fit_index: usize,
+    model: &FitResult,
+) -> Provenance {
+    let step = &plan.steps[model_step];
+    let fit = &step.fits[fit_index];
+    let data = &plan.steps[fit.data];
+    let file = &data.files[0];
+    Provenance {
+        stet_version: env!("CARGO_PKG_VERSION").to_string(),
+        model_step: step.id.clone(),
+        run_key: fit.runs[0].key.to_string(),
+        net_settings: serde_json::to_string(&fit.net).expect("settings serialise"),
+        train_settings: applied_train_settings(&fit.train).to_string(),
+        held_out: model.runs[0].test.as_ref().map(|metrics| {
+            metrics
+                .named()
+                .into_iter()
+                .map(|(name, value)| (name.to_string(), value))
+                .collect()
+        }),
+        data_file: file.written.clone(),
+        data_hash: file.hash.to_hex().to_string(),
+    }
+}
+
+/// The train settings as applied, named and shaped as a document writes them: the
+/// key's serialisation nests the optimizer's settings under its name, tags the batch
+/// size and leaves out the default precision.
+fn applied_train_settings(train: &TrainSpec) -> Value {
+    let mut settings = serde_json::to_value(train).expect("settings serialise");
+    match train.optimizer {
+        Optimizer::Sgd {
+            learning_rate,
+            momentum,
+        } => {
+            settings["optimizer"] = json!("sgd");
+            settings["learning_rate"] = json!(learning_rate);
+            settings["momentum"] = json!(momentum);
+        }
+        Optimizer::Adam {
+            learning_rate,
+            beta1,
+            beta2,
+            epsilon,
+        } => {
+            settings["optimizer"] = json!("adam");
+            settings["learning_rate"] = json!(learning_rate);
+            settings["beta1"] = json!(beta1);
+            settings["beta2"] = json!(beta2);
+            settings["epsilon"] = json!(epsilon);
+        }
+    }
+    settings["batch"] = match train.batch {
+        BatchSize::Rows(rows) => json!(rows),
+        BatchSize::Full => json!(word(&BatchSize::Full)),
+    };
+    settings["precision"] = json!(word(&train.precision));
+    settings
 }

@@ -1,12 +1,15 @@
 //! What each step produces: the typed, serialisable results that the cache stores and
 //! the report and JSON summary read.
 
+use std::borrow::Borrow;
+
 use ndarray::Array2;
 use serde::{Deserialize, Serialize};
 
 use crate::data::{InputColumn, Scale, Task};
 use crate::document::spec::MetricName;
 use crate::document::spec::sweep::Varied;
+use crate::export::ExportResult;
 use crate::judge::Judgement;
 use crate::nn::{Activation, ClassificationMetrics, Loss, RegressionMetrics, TrainOutcome};
 
@@ -44,9 +47,12 @@ impl DataSummary {
 /// Row counts of one partition, with class balance for classification.
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
 pub(crate) struct PartitionSummary {
+    /// Rows fitted on (the validation rows not among them).
     pub train_rows: usize,
+    pub validation_rows: usize,
     pub test_rows: usize,
     pub train_classes: Vec<usize>,
+    pub validation_classes: Vec<usize>,
     pub test_classes: Vec<usize>,
 }
 
@@ -89,6 +95,8 @@ pub(crate) struct RunResult {
     pub fit: TrainOutcome,
     pub seconds: Seconds,
     pub train: SetMetrics,
+    /// On the training rows set aside by `validation`; `None` without them.
+    pub validation: Option<SetMetrics>,
     pub test: Option<SetMetrics>,
     /// The network's outputs on the held-out rows, in their order, for the paired
     /// tests (`judge`); `None` without held-out rows.
@@ -139,6 +147,16 @@ impl SweepResult {
     pub(crate) fn best(&self) -> &FitResult {
         &self.fits[self.ranking[0]]
     }
+
+    /// The best fit as a model to use: its first seed's runs only (one network per
+    /// partition), since repeats are the same settings trained again.
+    pub(crate) fn best_model(&self, partitions: usize) -> FitResult {
+        let best = self.best();
+        FitResult {
+            runs: best.runs.iter().take(partitions).cloned().collect(),
+            ..best.clone()
+        }
+    }
 }
 
 /// A predict step's result: one row of outputs per input row.
@@ -157,12 +175,6 @@ pub(crate) struct PredictResult {
     pub csv: String,
 }
 
-/// An export step's result: the model as JSON text.
-#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
-pub(crate) struct ExportResult {
-    pub json: String,
-}
-
 /// A step's result.
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
 #[serde(rename_all = "snake_case")]
@@ -174,7 +186,8 @@ pub(crate) enum Outcome {
     /// A comparison is drawn from its runs' results when the report is rendered.
     Compare,
     Predict(PredictResult),
-    Export(ExportResult),
+    /// Boxed: the network and its provenance outweigh every other result.
+    Export(Box<ExportResult>),
 }
 
 /// A metric over a train step's runs: the mean and, with several runs, the sample
@@ -190,6 +203,8 @@ pub(crate) struct MetricStat {
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize)]
 pub(crate) enum RowSet {
     Train,
+    /// Training rows set aside by the data step's `validation`, not fitted on.
+    Validation,
     Test,
 }
 
@@ -214,24 +229,54 @@ impl FitResult {
             RowSet::Train
         }
     }
+
+    /// The rows a choice between fits is made on: validation rows when every run
+    /// has them, so held-out rows are scored once and steer nothing; else as reported.
+    pub(crate) fn choice_rows(&self) -> RowSet {
+        if self.runs.iter().all(|run| run.validation.is_some()) {
+            RowSet::Validation
+        } else {
+            self.report_rows()
+        }
+    }
 }
 
 /// Ranks fits by a metric's mean, best first; fits without a finite value go last.
-pub(crate) fn rank(fits: &[FitResult], metric: MetricName, rows: RowSet) -> Vec<usize> {
-    let value = |fit: &FitResult| {
-        fit.metric(metric, rows)
+/// Ties are broken by the loss on the same rows, then by document (grid) order.
+pub(crate) fn rank<F: Borrow<FitResult>>(
+    fits: &[F],
+    metric: MetricName,
+    rows: RowSet,
+) -> Vec<usize> {
+    let value = |fit: &F, metric: MetricName| {
+        fit.borrow()
+            .metric(metric, rows)
             .map(|stat| stat.mean)
             .filter(|mean| mean.is_finite())
     };
     let mut order: Vec<usize> = (0..fits.len()).collect();
-    order.sort_by(|&a, &b| match (value(&fits[a]), value(&fits[b])) {
+    // A stable sort, so fits equal on both keys keep their grid order.
+    order.sort_by(|&a, &b| {
+        compare_metric(value(&fits[a], metric), value(&fits[b], metric), metric).then_with(|| {
+            compare_metric(
+                value(&fits[a], MetricName::Loss),
+                value(&fits[b], MetricName::Loss),
+                MetricName::Loss,
+            )
+        })
+    });
+    order
+}
+
+/// Better first; a missing (or non-finite) value after any value.
+fn compare_metric(a: Option<f64>, b: Option<f64>, metric: MetricName) -> std::cmp::Ordering {
+    match (a, b) {
         (Some(x), Some(y)) if metric.higher_is_better() => y.total_cmp(&x),
         (Some(x), Some(y)) => x.total_cmp(&y),
         (Some(_), None) => std::cmp::Ordering::Less,
         (None, Some(_)) => std::cmp::Ordering::Greater,
         (None, None) => std::cmp::Ordering::Equal,
-    });
-    order
+    }
 }
 
 /// Each headline metric over some runs; `None` when a run lacks the rows.
@@ -242,6 +287,7 @@ fn metric_stats<'a>(
     let named: Vec<Vec<(&'static str, f64)>> = runs
         .map(|run| match rows {
             RowSet::Train => Some(run.train.named()),
+            RowSet::Validation => run.validation.as_ref().map(SetMetrics::named),
             RowSet::Test => run.test.as_ref().map(SetMetrics::named),
         })
         .collect::<Option<_>>()?;
@@ -273,6 +319,69 @@ pub(crate) fn mean_and_sd(values: &[f64]) -> (f64, Option<f64>) {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    /// A one-run fit whose held-out rows score `accuracy` and `loss`.
+    fn scored(accuracy: f64, loss: f64) -> FitResult {
+        let network = crate::nn::Network::initialise(
+            &[1, 1],
+            crate::nn::Activation::Tanh,
+            crate::nn::Activation::Sigmoid,
+            crate::nn::Init::Xavier,
+            0,
+        );
+        let metrics = SetMetrics::Classification {
+            loss,
+            metrics: ClassificationMetrics {
+                accuracy,
+                log_loss: loss,
+                confusion: Vec::new(),
+                precision: Vec::new(),
+                recall: Vec::new(),
+            },
+        };
+        FitResult {
+            settings: Vec::new(),
+            shape: ModelShape {
+                sizes: vec![1, 1],
+                hidden: Activation::Tanh,
+                output: Activation::Sigmoid,
+                loss: Loss::CrossEntropy,
+                hints: Vec::new(),
+            },
+            runs: vec![RunResult {
+                fit: TrainOutcome {
+                    network,
+                    history: Vec::new(),
+                    stop: crate::nn::StopReason::EpochLimit,
+                    epochs_run: 1,
+                    best_epoch: None,
+                },
+                seconds: 0.0,
+                train: metrics.clone(),
+                validation: None,
+                test: Some(metrics),
+                held_out_outputs: None,
+            }],
+            judgement: None,
+        }
+    }
+
+    // Issue 14: a tie in the ranking metric goes to the lower loss on the same rows,
+    // and a tie in both to the combination written first.
+    #[test]
+    fn ties_in_the_ranking_metric_go_to_the_lower_loss_then_to_grid_order() {
+        let fits = [
+            scored(0.9, 0.40),
+            scored(0.9, 0.30),
+            scored(0.8, 0.10),
+            scored(0.9, 0.30),
+            scored(f64::NAN, 0.01),
+        ];
+        assert_eq!(
+            rank(&fits, MetricName::Accuracy, RowSet::Test),
+            [1, 3, 0, 2, 4]
+        );
+    }
 
     // Computed by hand: mean 7/3; squared deviations 16/9 + 1/9 + 25/9 = 42/9, over n − 1 = 2
     // gives 7/3, whose square root is 1.5275252316519468 (numpy: np.std([1, 2, 4], ddof=1)).

@@ -140,6 +140,7 @@ pub(super) fn fit(
             .scaled(&part.scaler.offset, &part.scaler.divisor)
     };
     let (train_rows, test_rows) = (subset(&part.train_rows), subset(&part.test_rows));
+    let validation_rows = subset(&part.validation_rows);
     let started = Instant::now();
     let network = Network::initialise(
         &shape.sizes,
@@ -150,11 +151,20 @@ pub(super) fn fit(
     );
     let config = training_config(train, shape.loss);
     let has_test = !test_rows.is_empty();
+    let has_validation = !validation_rows.is_empty();
+    // Patience watches the validation rows when there are any, so the held-out
+    // rows never steer the stop; without them it watches the held-out rows, as
+    // before validation existed.
+    let watched = if has_validation {
+        Some(validation_rows)
+    } else {
+        has_test.then_some(test_rows)
+    };
     let fitted = nn::train_at(
         train.precision,
         network,
         train_rows,
-        has_test.then_some(test_rows),
+        watched,
         &config,
         |_, _| {},
     );
@@ -165,10 +175,12 @@ pub(super) fn fit(
         Some((metrics, outputs)) => (Some(metrics), Some(outputs)),
         None => (None, None),
     };
+    let validation_metrics = has_validation.then(|| measure(&validation_rows).0);
     RunResult {
         fit: fitted,
         seconds,
         train: train_metrics,
+        validation: validation_metrics,
         test: test_metrics,
         held_out_outputs,
     }

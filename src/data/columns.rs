@@ -110,6 +110,7 @@ mod tests {
             scale: Scale::Standard,
             missing: Missing::Error,
             split: Split::Holdout(0.2),
+            validation: None,
             seed: 1,
         }
     }

@@ -542,6 +542,7 @@ mod tests {
             scale: super::super::Scale::Standard,
             missing: super::super::Missing::Error,
             split: super::super::Split::Holdout(0.2),
+            validation: None,
             seed: 1,
         };
         let error = super::super::prepare(&table, &settings, super::super::DEFAULT_MAX_CATEGORIES)

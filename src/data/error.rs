@@ -294,6 +294,30 @@ pub enum DataError {
         value: f64,
     },
 
+    /// The validation fraction is outside (0, 1).
+    #[error("validation fraction {value} is out of range: expected a number above 0 and below 1")]
+    ValidationOutOfRange {
+        /// The fraction given.
+        value: f64,
+    },
+
+    /// Setting validation rows aside would leave a class (or, regressing, the
+    /// partition) with no training row.
+    #[error(
+        "validation {fraction} takes all {count} training rows of {}, leaving none to train on: \
+         use a smaller validation fraction{}",
+        class.as_ref().map_or("the partition".to_string(), |class| format!("class `{class}`")),
+        if *count == 1 { " or a smaller holdout" } else { "" }
+    )]
+    ValidationLeavesNoTraining {
+        /// The validation fraction given.
+        fraction: f64,
+        /// The class left without training rows; `None` when regressing.
+        class: Option<String>,
+        /// Its training rows before validation rows were set aside.
+        count: usize,
+    },
+
     /// Fewer than two folds were asked for.
     #[error("{folds} folds asked for: cross-validation needs at least 2 folds")]
     TooFewFolds {

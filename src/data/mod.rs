@@ -23,6 +23,7 @@ pub(crate) use encode::InputColumn;
 pub use encode::{ColumnKind, DEFAULT_MAX_CATEGORIES};
 pub(crate) use error::DataError;
 pub use prepare::{Prepared, prepare};
+pub(crate) use scale::Scaler;
 pub use settings::{DataSettings, Missing, Scale, Split, Task};
 pub(crate) use table::read_header;
 pub use table::{Table, read_table};

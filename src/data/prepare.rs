@@ -23,6 +23,9 @@ use super::table::Table;
 pub struct Partition {
     /// Indices into the kept rows (rows of [`Prepared::x`]), sorted.
     pub train_rows: Vec<usize>,
+    /// Training rows set aside for patience and sweep ranking (not fitted on), sorted;
+    /// empty without `validation`.
+    pub validation_rows: Vec<usize>,
     /// Indices into the kept rows, sorted; empty for a holdout of 0.
     pub test_rows: Vec<usize>,
     /// Fitted on `train_rows` only.
@@ -131,22 +134,29 @@ pub fn prepare(
         _ => None,
     };
     let numeric = encoded.encoding.numeric_mask();
-    let partitions = split::split_rows(settings.split, kept.len(), strata, settings.seed)?
-        .into_iter()
-        .map(|s| {
-            let scaler = Scaler::fit(settings.scale, encoded.x.view(), &s.train, &numeric);
-            if let Some(feature) = scaler.first_overflow() {
-                return Err(DataError::ScaleOverflow {
-                    column: encoded.encoding.feature_names[feature].clone(),
-                });
-            }
-            Ok(Partition {
-                scaler,
-                train_rows: s.train,
-                test_rows: s.test,
-            })
+    let partitions = split::split_rows(
+        settings.split,
+        settings.validation,
+        kept.len(),
+        strata,
+        settings.seed,
+    )?
+    .into_iter()
+    .map(|s| {
+        let scaler = Scaler::fit(settings.scale, encoded.x.view(), &s.train, &numeric);
+        if let Some(feature) = scaler.first_overflow() {
+            return Err(DataError::ScaleOverflow {
+                column: encoded.encoding.feature_names[feature].clone(),
+            });
+        }
+        Ok(Partition {
+            scaler,
+            train_rows: s.train,
+            validation_rows: s.validation,
+            test_rows: s.test,
         })
-        .collect::<Result<_, _>>()?;
+    })
+    .collect::<Result<_, _>>()?;
 
     Ok(Prepared {
         encoding: encoded.encoding,
@@ -224,6 +234,7 @@ mod tests {
             scale: Scale::Standard,
             missing: Missing::Error,
             split: Split::Holdout(0.0),
+            validation: None,
             seed: 1,
         }
     }

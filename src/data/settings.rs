@@ -63,6 +63,11 @@ pub struct DataSettings {
     pub missing: Missing,
     /// Train/test division.
     pub split: Split,
+    /// Fraction of each partition's training rows set aside, stratified like the
+    /// holdout, for patience and sweep ranking. Left out of the serialisation when
+    /// unset, so documents without it keep their keys.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub validation: Option<f64>,
     /// Seed of the random shuffles that make the split.
     pub seed: u64,
 }

@@ -9,7 +9,7 @@
 
 use std::path::Path;
 
-use crate::data::{Split, Task, read_header};
+use crate::data::{DataError, Split, Task, prepare, read_header, read_table};
 use crate::document::problem::nearest;
 use crate::document::spec::{
     CompareSpec, DataSpec, LossChoice, MetricName, NetSpec, OutputChoice, PredictSpec, SweepSpec,
@@ -17,15 +17,23 @@ use crate::document::spec::{
 };
 use crate::document::{Document, Problem, StepSpec};
 use crate::nn::Optimizer;
-use crate::plan::{FitPlan, PlannedStep, describe};
+use crate::plan::{FitPlan, Limits, PlannedStep, describe};
 
 /// Every check of this module over a planned document's steps.
-pub(super) fn check(document: &Document, steps: &[PlannedStep], problems: &mut Vec<Problem>) {
+pub(super) fn check(
+    document: &Document,
+    steps: &[PlannedStep],
+    limits: Limits,
+    problems: &mut Vec<Problem>,
+) {
     let lookup = Lookup { document, steps };
     for step in steps {
         let at = |setting: &str| lookup.span(&step.id, setting);
         match &step.spec {
-            StepSpec::Data(data) => check_columns(step, data, &at, problems),
+            StepSpec::Data(data) => {
+                check_columns(step, data, &at, problems);
+                check_validation(step, data, limits, &at, problems);
+            }
             StepSpec::Train(train) => check_train(&lookup, train, &at, problems),
             StepSpec::Sweep(sweep) => check_sweep(&lookup, sweep, &step.fits, &at, problems),
             StepSpec::Compare(compare) => check_compare(&lookup, compare, &at, problems),
@@ -117,8 +125,9 @@ fn metric_list(task: Task) -> String {
     names.join(", ")
 }
 
-fn holds_out_no_rows(data: &DataSpec) -> bool {
-    data.settings.split == Split::Holdout(0.0)
+/// No rows for patience to watch: none held out and none set aside for validation.
+fn no_rows_to_watch(data: &DataSpec) -> bool {
+    data.settings.split == Split::Holdout(0.0) && data.settings.validation.is_none()
 }
 
 fn check_train(
@@ -131,7 +140,7 @@ fn check_train(
     else {
         return;
     };
-    if train.patience.is_some() && holds_out_no_rows(data) {
+    if train.patience.is_some() && no_rows_to_watch(data) {
         problems.push(patience_problem(at("patience"), data_id, ""));
     }
     if let Some(message) = loss_misfit(net, &train.net, train, data_id, settled_task(data)) {
@@ -144,7 +153,7 @@ fn patience_problem(span: std::ops::Range<usize>, data_id: &str, prefix: &str) -
         span,
         format!("{prefix}patience stops on the held-out rows' loss, but data step '{data_id}' holds out no rows (holdout: 0)"),
     )
-    .with_help("hold out rows (holdout above 0, or folds), or remove patience")
+    .with_help("hold out rows (holdout above 0, or folds), set validation rows aside, or remove patience")
 }
 
 /// Why cross-entropy cannot train this net on this data, if it cannot.
@@ -189,7 +198,7 @@ fn check_sweep(
             "vary: momentum has no effect here: every combination trains with adam, which keeps its own moment estimates",
         ));
     }
-    if varies("patience") && holds_out_no_rows(data) {
+    if varies("patience") && no_rows_to_watch(data) {
         problems.push(patience_problem(at("vary"), data_id, "vary: "));
     }
     if varies("loss") || varies("output") {
@@ -288,6 +297,38 @@ fn check_columns(
                 &header,
             ));
         }
+    }
+}
+
+/// `validation` with the holdout (or fold) leaves every class some training rows.
+/// Only the data says which classes there are and how many rows each has, so the
+/// split is made here, once, to refuse such fractions at their line before anything
+/// runs; other problems with the file are the data step's to report when it runs.
+fn check_validation(
+    step: &PlannedStep,
+    data: &DataSpec,
+    limits: Limits,
+    at: &dyn Fn(&str) -> std::ops::Range<usize>,
+    problems: &mut Vec<Problem>,
+) {
+    if data.settings.validation.is_none() {
+        return;
+    }
+    // The plan hashed the file within the size limit; reading stops past that length.
+    let Some(Ok(table)) = step
+        .files
+        .first()
+        .map(|file| file.read(|reader| read_table(reader)))
+    else {
+        return;
+    };
+    if let Err(error @ DataError::ValidationLeavesNoTraining { .. }) =
+        prepare(&table, &data.settings, limits.max_categories)
+    {
+        problems.push(
+            Problem::new(at("validation"), error.to_string())
+                .with_help("validation is a fraction of the rows left for training after the holdout (or each fold's held-out rows)"),
+        );
     }
 }
 

@@ -71,7 +71,8 @@ pub enum Upstream {
     Compare {
         runs: Vec<usize>,
     },
-    /// Predict and export: the train step whose model they use.
+    /// Predict and export: the train step whose model they use, or the sweep whose
+    /// best combination they use.
     Model {
         model: usize,
     },
@@ -368,7 +369,7 @@ pub(crate) fn plan(
             &mut problems,
         );
     }
-    checks::check(document, &steps, &mut problems);
+    checks::check(document, &steps, options.limits, &mut problems);
     if !problems.is_empty() {
         return Err(problems);
     }
@@ -418,7 +419,7 @@ fn upstream_of(
     spec: &StepSpec,
     found: impl Fn(&str, &[StepKind]) -> Option<usize>,
 ) -> Option<Upstream> {
-    const MODELS: &[StepKind] = &[StepKind::Train];
+    use crate::document::spec::MODEL_KINDS as MODELS;
     Some(match spec {
         StepSpec::Data(_) | StepSpec::Net(_) => Upstream::Nothing,
         StepSpec::Train(train) => Upstream::Train {

@@ -20,7 +20,7 @@ const EMPTY_WORDS: &[&str] = &["~", "null", "Null", "NULL"];
 /// Folders that belong to version control: writing there can wreck a repository.
 const VERSION_CONTROL: &[&str] = &[".git", ".hg", ".svn"];
 /// The file that marks a project's root (see `confinement`).
-const PROJECT_MARKER: &str = ".stet-project";
+pub(crate) const PROJECT_MARKER: &str = ".stet-project";
 
 /// Why a path may not be written.
 #[derive(Clone, Debug, PartialEq, Eq, thiserror::Error)]

@@ -6,8 +6,8 @@ use serde::Serialize;
 use super::chart::{self, Axes, Series};
 use super::format::number;
 use super::verdict::{NOT_ENOUGH_ROWS, evidence, p_text};
-use super::view::{mean_curve, stat_text, stop_counts};
-use crate::build::outcome::{FitResult, RowSet, SetMetrics, SweepResult};
+use super::view::{HONEST_CHOICE, mean_curve, stat_text, stop_counts};
+use crate::build::outcome::{FitResult, RowSet, SetMetrics, SweepResult, rank};
 use crate::document::spec::{ChartChoice, CompareSpec, MetricName};
 use crate::judge::{self, PairOutcome, Paired};
 use crate::plan::describe;
@@ -31,6 +31,8 @@ pub(crate) struct SweepView {
     /// The ranking metric against a numeric setting, when one was varied.
     pub setting_chart: Option<String>,
     pub setting_chart_note: String,
+    /// Said when the held-out rows chose the best, so its score is optimistic.
+    pub choice_note: Option<String>,
 }
 
 #[derive(Serialize)]
@@ -46,9 +48,11 @@ pub(crate) struct SweepRow {
     pub stop: String,
 }
 
-fn rows_label(rows: RowSet) -> &'static str {
+/// How a card names a set of rows.
+pub(crate) fn rows_label(rows: RowSet) -> &'static str {
     match rows {
         RowSet::Test => "held out",
+        RowSet::Validation => "validation",
         RowSet::Train => "training",
     }
 }
@@ -124,6 +128,11 @@ pub(crate) fn sweep_view(result: &SweepResult) -> SweepView {
         noise_note: noise_note(result),
         setting_chart,
         setting_chart_note,
+        choice_note: (result.rank_rows == RowSet::Test).then(|| {
+            format!(
+                "The best was chosen on the held-out rows, so its held-out score is optimistic. {HONEST_CHOICE}"
+            )
+        }),
     }
 }
 
@@ -206,6 +215,8 @@ fn capitalise(text: &str) -> String {
 #[derive(Serialize)]
 pub(crate) struct CompareView {
     pub metric_names: Vec<String>,
+    /// How the best run was chosen: the metric and the rows.
+    pub best_note: String,
     pub rows: Vec<CompareRow>,
     /// The paired tests between the runs; `None` for a single run.
     pub pairs: Option<PairsView>,
@@ -219,6 +230,7 @@ pub(crate) struct CompareRow {
     pub what: String,
     pub rows_label: &'static str,
     pub values: Vec<String>,
+    pub best: bool,
 }
 
 /// One entry of a comparison: an id and the fit it stands for.
@@ -243,11 +255,17 @@ pub(crate) fn compare_view(spec: &CompareSpec, entries: &[Compared<'_>]) -> Comp
             .first()
             .map_or(Vec::new(), |e| default_metrics(e.fit))
     });
+    let choice = common_choice_rows(entries);
+    let best_by = metrics.first().copied().unwrap_or(MetricName::Loss);
+    let fits: Vec<&FitResult> = entries.iter().map(|entry| entry.fit).collect();
+    let best = rank(&fits, best_by, choice).first().copied();
     let rows = entries
         .iter()
-        .map(|entry| {
+        .enumerate()
+        .map(|(index, entry)| {
             let rows = entry.fit.report_rows();
             CompareRow {
+                best: Some(index) == best,
                 id: entry.id.to_string(),
                 what: entry.what.clone(),
                 rows_label: rows_label(rows),
@@ -266,12 +284,15 @@ pub(crate) fn compare_view(spec: &CompareSpec, entries: &[Compared<'_>]) -> Comp
     let (chart, chart_note) = match spec.chart {
         ChartChoice::None => (None, String::new()),
         ChartChoice::Loss => {
+            // The training loss favours the most overfit run, so the chart shows
+            // the loss on rows the runs did not fit whenever they all have some.
+            let unfitted = choice != RowSet::Train;
             let series: Vec<Series> = entries
                 .iter()
                 .take(MAX_LINES)
                 .map(|entry| Series {
                     label: entry.id.to_string(),
-                    points: mean_curve(&entry.fit.runs, false),
+                    points: mean_curve(&entry.fit.runs, unfitted),
                     dashed: false,
                 })
                 .collect();
@@ -282,7 +303,10 @@ pub(crate) fn compare_view(spec: &CompareSpec, entries: &[Compared<'_>]) -> Comp
             };
             (
                 Some(chart::line_chart(&series, &Axes::loss(spec.log_scale))),
-                format!("Mean training loss per epoch of each run, {scale}."),
+                format!(
+                    "Mean {} loss per epoch of each run, {scale}.",
+                    rows_label(choice).replace(' ', "-")
+                ),
             )
         }
         ChartChoice::Metric => {
@@ -308,6 +332,11 @@ pub(crate) fn compare_view(spec: &CompareSpec, entries: &[Compared<'_>]) -> Comp
         }
     };
     CompareView {
+        best_note: format!(
+            "★ best by {} on the {} rows",
+            best_by.key().replace('_', " "),
+            rows_label(choice)
+        ),
         metric_names: metrics.iter().map(|m| m.key().replace('_', " ")).collect(),
         rows,
         pairs: pairs_view(entries),
@@ -405,4 +434,20 @@ fn pairs_view(entries: &[Compared<'_>]) -> Option<PairsView> {
             "Paired tests on the held-out rows both runs share: McNemar's exact p-value (under 0.05 is a real difference); runs held out on different rows are not paired."
         },
     })
+}
+
+/// The rows every compared run can be judged on: validation rows when all have
+/// them, held-out rows when all have those, else training rows.
+fn common_choice_rows(entries: &[Compared<'_>]) -> RowSet {
+    let all = |rows: RowSet| entries.iter().all(|entry| entry.fit.choice_rows() == rows);
+    if all(RowSet::Validation) {
+        RowSet::Validation
+    } else if entries
+        .iter()
+        .all(|entry| entry.fit.report_rows() == RowSet::Test)
+    {
+        RowSet::Test
+    } else {
+        RowSet::Train
+    }
 }

@@ -4,6 +4,7 @@
 
 pub(crate) mod chart;
 pub(crate) mod compare_view;
+pub(crate) mod diff_view;
 pub(crate) mod format;
 pub(crate) mod model_view;
 pub(crate) mod prose;
@@ -18,10 +19,11 @@ use minijinja::Environment;
 use pulldown_cmark::{Event, Parser, Tag};
 use serde::Serialize;
 
-use crate::build::outcome::Outcome;
+use crate::build::outcome::{Outcome, SweepResult};
 use crate::build::{BuildResult, Status};
+use crate::carry::Carried;
 use crate::document::{Document, Piece, StepSpec};
-use crate::plan::{Plan, short_key};
+use crate::plan::{Plan, Upstream, short_key};
 use compare_view::{CompareView, Compared, SweepView, compare_view, sweep_view};
 use format::seconds;
 use model_view::{ExportView, PredictView, export_view, predict_view};
@@ -33,6 +35,7 @@ const BUILT_IN: &[(&str, &str)] = &[
     ("report.html", include_str!("../../templates/report.html")),
     ("step.html", include_str!("../../templates/step.html")),
     ("style.css", include_str!("../../templates/style.css")),
+    ("diff.html", include_str!("../../templates/diff.html")),
 ];
 
 /// A loaded set of templates.
@@ -100,6 +103,10 @@ pub(crate) struct ReportInput<'a> {
     pub allow_html: bool,
     /// When the build ran, already formatted.
     pub built_at: &'a str,
+    /// The report's file name, for the footer's unpack command.
+    pub report_file: &'a str,
+    /// The experiment the report carries.
+    pub carried: &'a Carried,
 }
 
 #[derive(Serialize)]
@@ -113,6 +120,10 @@ struct ReportView<'a> {
     document_name: &'a str,
     document_hash: &'a str,
     pieces: Vec<PieceView>,
+    /// The footer's sentence on unpacking, its command, and the block it unpacks.
+    unpack_hint: String,
+    unpack_command: String,
+    experiment: &'a str,
 }
 
 #[derive(Serialize)]
@@ -141,6 +152,8 @@ struct StepView {
     export: Option<ExportView>,
     /// Where a predict or export step wrote its file.
     wrote: Option<String>,
+    /// For a predict or export step reading a sweep: which combination it used.
+    model_choice: Option<String>,
 }
 
 /// Renders the report to a string.
@@ -158,11 +171,30 @@ pub(crate) fn render(
         document_name: input.document_name,
         document_hash: input.document_hash,
         pieces: pieces(input),
+        unpack_hint: unpack_hint(input),
+        unpack_command: format!("stet unpack {}", input.report_file),
+        experiment: &input.carried.html,
     };
     templates
         .env
         .get_template("report.html")?
         .render(minijinja::value::Serde(&view))
+}
+
+/// Says that the report can be unpacked, and what an unpacked copy will lack.
+fn unpack_hint(input: &ReportInput<'_>) -> String {
+    match input.carried.left_out {
+        0 => "This report carries its document and data files; to write them out, ready to \
+              rebuild, run"
+            .into(),
+        left_out => format!(
+            "This report carries its document and the hashes of its data files ({left_out} \
+             not included: supply {} and the build checks {} against the hashes); to write \
+             the document out, run",
+            if left_out == 1 { "it" } else { "them" },
+            if left_out == 1 { "it" } else { "them" },
+        ),
+    }
 }
 
 /// The front matter's title, else the first heading's text, else the file name.
@@ -288,7 +320,7 @@ fn step_view(input: &ReportInput<'_>, index: usize, yaml: &str, beside_html: Str
         status_text,
         error,
         beside_html,
-        settings: settings::rows(&step.spec, &step.written),
+        settings: settings::rows(&step.spec, &step.written, record.outcome.as_ref()),
         yaml: yaml.to_string(),
         data: match &record.outcome {
             Some(Outcome::Data(summary)) => Some(data_view(summary)),
@@ -313,7 +345,7 @@ fn step_view(input: &ReportInput<'_>, index: usize, yaml: &str, beside_html: Str
             _ => None,
         },
         export: match &record.outcome {
-            Some(Outcome::Export(result)) => Some(export_view(result)),
+            Some(Outcome::Export(result)) => Some(export_view(result, input.document_hash)),
             _ => None,
         },
         wrote: match (&step.spec, &record.outcome) {
@@ -321,7 +353,29 @@ fn step_view(input: &ReportInput<'_>, index: usize, yaml: &str, beside_html: Str
             (StepSpec::Export(spec), Some(_)) => Some(spec.write.clone()),
             _ => None,
         },
+        model_choice: match (&step.upstream, &record.outcome) {
+            (Upstream::Model { model }, Some(_)) => match &input.results.steps[*model].outcome {
+                Some(Outcome::Sweep(sweep)) => Some(format!(
+                    "Uses sweep '{}': {}, its first seed.",
+                    input.plan.steps[*model].id,
+                    sweep_choice(sweep)
+                )),
+                _ => None,
+            },
+            _ => None,
+        },
     }
+}
+
+/// Which of a sweep's combinations is its best, and on which rows it was chosen.
+fn sweep_choice(sweep: &SweepResult) -> String {
+    format!(
+        "the best of {} combinations ({}), chosen by {} on the {} rows",
+        sweep.fits.len(),
+        crate::plan::describe(&sweep.best().settings),
+        sweep.rank_by.key().replace('_', " "),
+        compare_view::rows_label(sweep.rank_rows)
+    )
 }
 
 /// The fits a compare step lists: a train step's own, a sweep's best combination.
@@ -342,11 +396,7 @@ fn compared<'a>(
                 }),
                 Outcome::Sweep(sweep) => Some(Compared {
                     id,
-                    what: format!(
-                        "best of {} combinations: {}",
-                        sweep.fits.len(),
-                        crate::plan::describe(&sweep.best().settings)
-                    ),
+                    what: sweep_choice(sweep),
                     fit: sweep.best(),
                 }),
                 _ => None,

@@ -3,7 +3,9 @@
 use serde::Serialize;
 
 use super::format::number;
-use crate::build::outcome::{ExportResult, PredictResult};
+use crate::build::outcome::PredictResult;
+use crate::document::spec::ExportFormat;
+use crate::export::ExportResult;
 
 /// Rows a predict card shows; the written CSV has them all.
 const SHOWN_ROWS: usize = 50;
@@ -51,15 +53,19 @@ pub(crate) fn predict_view(result: &PredictResult) -> PredictView {
 pub(crate) struct ExportView {
     pub bytes: usize,
     pub layers: usize,
+    /// The file format's name as people write it.
+    pub format: &'static str,
 }
 
-pub(crate) fn export_view(result: &ExportResult) -> ExportView {
-    let layers = serde_json::from_str::<serde_json::Value>(&result.json)
-        .ok()
-        .and_then(|doc| doc["layers"].as_array().map(Vec::len))
-        .unwrap_or(0);
+/// The written file's size is that of the bytes the build wrote, stamped with the
+/// same document hash.
+pub(crate) fn export_view(result: &ExportResult, document_hash: &str) -> ExportView {
     ExportView {
-        bytes: result.json.len(),
-        layers,
+        bytes: result.file(document_hash).len(),
+        layers: result.model.network.layers.len(),
+        format: match result.format {
+            ExportFormat::Json => "JSON",
+            ExportFormat::Onnx => "ONNX",
+        },
     }
 }

@@ -3,10 +3,12 @@
 
 use serde::Serialize;
 
+use super::compare_view::rows_label;
+use crate::build::outcome::Outcome;
 use crate::data::Split;
 use crate::document::StepSpec;
 use crate::document::spec::sweep::value_text;
-use crate::document::spec::{Written, word};
+use crate::document::spec::{MetricName, Written, word};
 use crate::nn::{BatchSize, Optimizer};
 
 /// One row of a settings table.
@@ -19,7 +21,13 @@ pub(crate) struct SettingRow {
 }
 
 /// The settings rows of a step; `written` tells the settings written apart from defaults.
-pub(crate) fn rows(spec: &StepSpec, written: &Written) -> Vec<SettingRow> {
+/// `outcome`, the step's result when it has one, names what a default resolved to
+/// where only the data decides it (a sweep's ranking metric and rows).
+pub(crate) fn rows(
+    spec: &StepSpec,
+    written: &Written,
+    outcome: Option<&Outcome>,
+) -> Vec<SettingRow> {
     let row = |name: &'static str, value: String| SettingRow {
         default: !written.contains(name),
         name,
@@ -51,6 +59,12 @@ pub(crate) fn rows(spec: &StepSpec, written: &Written) -> Vec<SettingRow> {
                 Split::Holdout(fraction) => row("holdout", fraction.to_string()),
                 Split::Folds(folds) => row("folds", folds.to_string()),
             });
+            rows.push(row(
+                "validation",
+                settings
+                    .validation
+                    .map_or("none".into(), |fraction| fraction.to_string()),
+            ));
             rows.push(row("seed", settings.seed.to_string()));
             rows
         }
@@ -121,12 +135,7 @@ pub(crate) fn rows(spec: &StepSpec, written: &Written) -> Vec<SettingRow> {
                 });
             }
             rows.push(row("repeat", sweep.repeat.to_string()));
-            rows.push(row(
-                "rank_by",
-                sweep
-                    .rank_by
-                    .map_or("accuracy or loss, held out".into(), |m| m.key().to_string()),
-            ));
+            rows.push(row("rank_by", rank_by_text(sweep.rank_by, outcome)));
             rows
         }
         StepSpec::Compare(compare) => vec![
@@ -155,7 +164,24 @@ pub(crate) fn rows(spec: &StepSpec, written: &Written) -> Vec<SettingRow> {
         StepSpec::Export(export) => vec![
             row("model", export.model.clone()),
             row("write", export.write.clone()),
+            row("format", word(&export.format).to_string()),
         ],
+    }
+}
+
+/// The metric a sweep ranked by and on which rows, once it ran; before, what the
+/// default depends on.
+fn rank_by_text(written: Option<MetricName>, outcome: Option<&Outcome>) -> String {
+    match outcome {
+        Some(Outcome::Sweep(sweep)) => format!(
+            "{}, on the {} rows",
+            sweep.rank_by.key(),
+            rows_label(sweep.rank_rows)
+        ),
+        _ => written.map_or(
+            "accuracy to classify, loss to regress; on the validation rows, else held out".into(),
+            |metric| metric.key().to_string(),
+        ),
     }
 }
 
@@ -183,7 +209,7 @@ mod tests {
     #[test]
     fn settings_not_written_in_the_block_are_marked_as_defaults() {
         let parsed = parsed_train("data: d\nnet: n\nepochs: 40\n");
-        let rows = rows(&parsed.spec, &parsed.written);
+        let rows = rows(&parsed.spec, &parsed.written, None);
         let default_of = |name: &str| rows.iter().find(|row| row.name == name).unwrap().default;
         assert!(!default_of("epochs"));
         assert!(!default_of("data"));

@@ -7,6 +7,7 @@ use super::format::stop_code;
 use super::verdict::verdict;
 use crate::build::outcome::{FitResult, MetricStat, Outcome, RowSet, RunResult, SetMetrics};
 use crate::build::{BuildResult, Status};
+use crate::document::StepSpec;
 use crate::document::spec::sweep::Varied;
 use crate::document::spec::word;
 use crate::judge::stats::{self, Interval};
@@ -42,6 +43,7 @@ pub(crate) fn summary(
                 }
             }
             object.insert("key".into(), json!(step.key));
+            object.insert("settings".into(), spec_settings(&step.spec));
             match &record.outcome {
                 Some(Outcome::Train(result)) => {
                     object.insert(
@@ -94,10 +96,25 @@ pub(crate) fn summary(
     json!({"document": document_name, "hash": document_hash, "steps": steps})
 }
 
+/// A step's settings with defaults applied, as its key reads them, without the kind.
+fn spec_settings(spec: &StepSpec) -> Value {
+    match serde_json::to_value(spec).expect("a spec serialises") {
+        Value::Object(tagged) => tagged.into_iter().next().map_or(Value::Null, |(_, v)| v),
+        other => other,
+    }
+}
+
 fn train_fields(result: &FitResult, object: &mut Map<String, Value>) {
     let mut metrics = Map::new();
     let mut sd = Map::new();
-    for (name, rows) in [("train", RowSet::Train), ("test", RowSet::Test)] {
+    // Validation appears only where a data step set rows aside, so summaries of
+    // documents without it keep their shape.
+    let sets = [
+        ("train", RowSet::Train),
+        ("validation", RowSet::Validation),
+        ("test", RowSet::Test),
+    ];
+    for (name, rows) in sets {
         if let Some(stats) = result.metric_stats(rows) {
             metrics.insert(name.into(), stat_means(&stats));
             if result.runs.len() > 1 {
@@ -244,6 +261,9 @@ fn stop(run: &RunResult) -> Value {
 fn fold(run: &RunResult) -> Value {
     let mut metrics = Map::new();
     metrics.insert("train".into(), set(&run.train));
+    if let Some(validation) = &run.validation {
+        metrics.insert("validation".into(), set(validation));
+    }
     if let Some(test) = &run.test {
         metrics.insert("test".into(), set(test));
     }

@@ -9,7 +9,7 @@ use super::verdict::{NOT_ENOUGH_ROWS, Verdict, verdict};
 use crate::build::outcome::{DataSummary, FitResult, MetricStat, RowSet, SetMetrics};
 use crate::document::spec::word;
 use crate::judge::{BaselineRule, Judgement};
-use crate::nn::ClassificationMetrics;
+use crate::nn::{ClassificationMetrics, StopReason};
 
 /// What a data step's card shows.
 #[derive(Serialize)]
@@ -36,6 +36,8 @@ pub(crate) struct ColumnView {
 pub(crate) struct ClassRow {
     pub label: String,
     pub train: usize,
+    /// `None` when the data step sets no validation rows aside.
+    pub validation: Option<usize>,
     pub test: usize,
 }
 
@@ -82,17 +84,27 @@ pub(crate) fn data_view(summary: &DataSummary) -> DataView {
         })
         .collect();
     let first = &summary.partitions[0];
-    let split = if summary.partitions.len() > 1 {
-        format!(
-            "{} folds of about {} held-out rows each",
-            summary.partitions.len(),
-            first.test_rows
-        )
-    } else {
-        format!(
+    let split = match (summary.partitions.len(), first.validation_rows) {
+        (1, 0) => format!(
             "{} training rows, {} held out",
             first.train_rows, first.test_rows
-        )
+        ),
+        (1, validation) => format!(
+            "{} training rows, {validation} validation rows, {} held out",
+            first.train_rows, first.test_rows
+        ),
+        (folds, validation) => {
+            let folds = format!(
+                "{folds} folds of about {} held-out rows each",
+                first.test_rows
+            );
+            match validation {
+                0 => folds,
+                rows => {
+                    format!("{folds}, about {rows} validation rows in each fold's training rows")
+                }
+            }
+        }
     };
     let classes = summary
         .classes
@@ -102,6 +114,8 @@ pub(crate) fn data_view(summary: &DataSummary) -> DataView {
         .map(|(i, label)| ClassRow {
             label: label.clone(),
             train: first.train_classes.get(i).copied().unwrap_or(0),
+            validation: (first.validation_rows > 0)
+                .then(|| first.validation_classes.get(i).copied().unwrap_or(0)),
             test: first.test_classes.get(i).copied().unwrap_or(0),
         })
         .collect();
@@ -134,6 +148,10 @@ pub(crate) struct TrainView {
     pub folds: Vec<FoldRow>,
     pub verdict: Option<Verdict>,
     pub judged: Option<JudgedView>,
+    /// Which rows the chart's second line (and patience) measured: "validation" or "held-out".
+    pub watched_rows: &'static str,
+    /// Said when the held-out rows chose the weights, so their score is optimistic.
+    pub choice_note: Option<String>,
 }
 
 /// The held-out scores of the network, the baseline and the model without a hidden
@@ -254,6 +272,12 @@ pub(crate) fn train_view(result: &FitResult, classes: Option<&[String]>) -> Trai
         rows: "training",
         values: stat_values(&train_stats),
     }];
+    if let Some(stats) = result.metric_stats(RowSet::Validation) {
+        metric_rows.push(MetricRow {
+            rows: "validation",
+            values: stat_values(&stats),
+        });
+    }
     if let Some(stats) = &test_stats {
         metric_rows.push(MetricRow {
             rows: "held out",
@@ -291,8 +315,29 @@ pub(crate) fn train_view(result: &FitResult, classes: Option<&[String]>) -> Trai
         folds,
         verdict: result.judgement.as_deref().map(verdict),
         judged: result.judgement.as_deref().map(judged_view),
+        watched_rows: match result.choice_rows() {
+            RowSet::Validation => "validation",
+            _ => "held-out",
+        },
+        choice_note: early_stop_note(result),
     }
 }
+
+/// Patience that stopped a run on the held-out rows chose its weights on them too.
+fn early_stop_note(result: &FitResult) -> Option<String> {
+    let stopped_early = result
+        .runs
+        .iter()
+        .any(|run| run.fit.stop == StopReason::NoImprovement);
+    (stopped_early && result.choice_rows() == RowSet::Test).then(|| {
+        format!(
+            "Stopped early on the held-out rows, which also chose the weights kept, so the held-out score is optimistic. {HONEST_CHOICE}"
+        )
+    })
+}
+
+/// How to make a choice without the held-out rows.
+pub(crate) const HONEST_CHOICE: &str = "Set validation on the data step to choose on training rows set aside instead; folds show how much a score moves with the rows held out.";
 
 fn stat_values(stats: &[MetricStat]) -> Vec<String> {
     stats.iter().map(stat_text).collect()

@@ -305,7 +305,14 @@ fn data_settings(g: &mut Draw<'_, '_>, tables: &[Table], out: &mut Lines) -> Dra
         &["1", "42"],
         &["-1", "1e30", "18446744073709551616"],
     )?;
-    unknown(g, out, "validation", "0.2")
+    maybe(
+        g,
+        out,
+        (1, 3),
+        "validation",
+        &["0.2", "0.25", "0.5"],
+        &["0", "1", "-0.1", "1.5", "x", ".nan"],
+    )
 }
 
 /// Widths for `hidden`: small lists, and now and then a broken or deeply nested one.
@@ -516,7 +523,7 @@ fn write_path(g: &mut Draw<'_, '_>) -> Drawn<String> {
 }
 
 fn predict_settings(g: &mut Draw<'_, '_>, skeleton: &Skeleton, out: &mut Lines) -> Drawn<()> {
-    let model = reference(g, skeleton, &["train"])?;
+    let model = reference(g, skeleton, &["train", "sweep"])?;
     push(out, "model", model);
     let file = one_of(g, NAMES, &["missing.csv", "sub", OUTSIDE_SECRET])?;
     push(out, "file", file);
@@ -528,11 +535,18 @@ fn predict_settings(g: &mut Draw<'_, '_>, skeleton: &Skeleton, out: &mut Lines) 
 }
 
 fn export_settings(g: &mut Draw<'_, '_>, skeleton: &Skeleton, out: &mut Lines) -> Drawn<()> {
-    let model = reference(g, skeleton, &["train"])?;
+    let model = reference(g, skeleton, &["train", "sweep"])?;
     push(out, "model", model);
     let write = write_path(g)?;
     push(out, "write", write);
-    unknown(g, out, "format", "onnx")
+    maybe(
+        g,
+        out,
+        (1, 2),
+        "format",
+        &["json", "onnx"],
+        &["pdf", "[onnx]"],
+    )
 }
 
 /// One fenced step block; its header line, keys, layout and fence may be mutated.

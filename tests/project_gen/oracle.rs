@@ -218,6 +218,7 @@ fn build_options(root: &Path) -> BuildOptions {
         jobs: 1,
         templates: None,
         allow_html: false,
+        embed_limit: Some(stet::DEFAULT_EMBED_MB << 20),
         plan: PlanOptions::default(),
     }
 }

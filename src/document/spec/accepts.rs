@@ -7,6 +7,7 @@ use std::sync::LazyLock;
 use serde_yaml::Value;
 
 use super::compare::ChartChoice;
+use super::model_use::ExportFormat;
 use super::sweep::{MetricName, value_text};
 use super::{LossChoice, OptimizerKind, OutputChoice};
 use crate::data::{Missing, Scale, Task};
@@ -45,6 +46,7 @@ fn accepts(setting: &str) -> Option<Accepts> {
         "loss" => Word(words::<LossChoice>()),
         "optimizer" => Word(words::<OptimizerKind>()),
         "precision" => Word(words::<Precision>()),
+        "format" => Word(words::<ExportFormat>()),
         "task" => Word(words::<Task>()),
         "scale" => Word(words::<Scale>()),
         "missing" => Word(words::<Missing>()),
@@ -57,13 +59,17 @@ fn accepts(setting: &str) -> Option<Accepts> {
         "inputs" => Described("a list of column names"),
         "holdout" => Described("the fraction of rows held out, from 0 up to (not including) 1"),
         "folds" => Described("a whole number of folds, 2 or more"),
+        "validation" => Described(
+            "the fraction of training rows set aside for patience and sweep ranking, above 0 and below 1",
+        ),
         "seed" => Described("a whole number, 0 or more"),
         "hidden" => Described(
             "a list of layer widths, each a whole number of 1 or more, such as [8] or [16, 8]",
         ),
         "data" => Described("the id of a data step"),
         "net" => Described("the id of a net step"),
-        "from" | "model" => Described("the id of a train step"),
+        "from" => Described("the id of a train step"),
+        "model" => Described("the id of a train step, or of a sweep (its best combination)"),
         "runs" => Described("a list of train and sweep ids"),
         "learning_rate" => Described("a positive number"),
         "momentum" => Described("a number from 0 up to (not including) 1"),
@@ -230,6 +236,7 @@ mod tests {
         assert_eq!(serde_words::<Missing>(), words_of::<Missing>());
         assert_eq!(serde_words::<MetricName>(), words_of::<MetricName>());
         assert_eq!(serde_words::<ChartChoice>(), words_of::<ChartChoice>());
+        assert_eq!(serde_words::<ExportFormat>(), words_of::<ExportFormat>());
         let mut hidden = HIDDEN_ACTIVATIONS.clone();
         hidden.push("softmax");
         hidden.sort();

@@ -12,6 +12,7 @@ pub(crate) mod sweep;
 use std::sync::LazyLock;
 
 use schemars::JsonSchema;
+use serde::de::DeserializeOwned;
 use serde::{Deserialize, Deserializer, Serialize};
 use serde_yaml::{Mapping, Value};
 
@@ -23,7 +24,7 @@ use super::yaml::{self, Block};
 use crate::data::{DataSettings, Missing, Scale, Split, Task};
 use crate::nn::{Activation, BatchSize, Init, Optimizer, Precision};
 pub(crate) use compare::{ChartChoice, CompareSpec};
-pub(crate) use model_use::{ExportSpec, PredictSpec};
+pub(crate) use model_use::{ExportFormat, ExportSpec, PredictSpec};
 use schema::{BatchSchema, Word, no_default};
 pub(crate) use sweep::{MetricName, SweepSpec};
 
@@ -56,22 +57,42 @@ impl StepKind {
         word(&self)
     }
 
+    /// The one place that names each kind's raw settings struct: `action` is done with
+    /// that type, so the setting names and the editors' schema cannot miss a kind.
+    pub(crate) fn with_raw<A: RawAction>(self, action: A) -> A::Output {
+        match self {
+            StepKind::Data => action.with::<RawData>(),
+            StepKind::Net => action.with::<RawNet>(),
+            StepKind::Train => action.with::<RawTrain>(),
+            StepKind::Sweep => action.with::<sweep::RawSweep>(),
+            StepKind::Compare => action.with::<compare::RawCompare>(),
+            StepKind::Predict => action.with::<model_use::RawPredict>(),
+            StepKind::Export => action.with::<model_use::RawExport>(),
+        }
+    }
+
     /// The settings a block of this kind may set: the keys its raw struct reads.
     pub fn settings(self) -> &'static [&'static str] {
-        match self {
-            StepKind::Data => fields::<RawData>(),
-            StepKind::Net => fields::<RawNet>(),
-            StepKind::Train => fields::<RawTrain>(),
-            StepKind::Sweep => fields::<sweep::RawSweep>(),
-            StepKind::Compare => fields::<compare::RawCompare>(),
-            StepKind::Predict => fields::<model_use::RawPredict>(),
-            StepKind::Export => fields::<model_use::RawExport>(),
+        struct Fields;
+        impl RawAction for Fields {
+            type Output = &'static [&'static str];
+            fn with<R: DeserializeOwned + JsonSchema>(self) -> Self::Output {
+                fields::<R>()
+            }
         }
+        self.with_raw(Fields)
     }
 
     pub(crate) fn from_word(word: &str) -> Option<StepKind> {
         StepKind::ALL.into_iter().find(|kind| kind.word() == word)
     }
+}
+
+/// Something done with a step kind's raw settings struct, whichever type it is
+/// (see [`StepKind::with_raw`]).
+pub(crate) trait RawAction {
+    type Output;
+    fn with<R: DeserializeOwned + JsonSchema>(self) -> Self::Output;
 }
 
 /// A step's validated settings, defaults applied.
@@ -179,6 +200,10 @@ pub(crate) struct ParsedStep {
     pub(crate) written: Written,
 }
 
+/// What predict and export may read as `model`: a train step, or a sweep, which
+/// stands for its best combination.
+pub(crate) const MODEL_KINDS: &[StepKind] = &[StepKind::Train, StepKind::Sweep];
+
 fn reference<'a>(id: &'a str, setting: &'static str, kinds: &'static [StepKind]) -> Reference<'a> {
     Reference { id, setting, kinds }
 }
@@ -205,10 +230,8 @@ impl StepSpec {
                 .iter()
                 .map(|id| reference(id, "runs", &[StepKind::Train, StepKind::Sweep]))
                 .collect(),
-            StepSpec::Predict(predict) => {
-                vec![reference(&predict.model, "model", &[StepKind::Train])]
-            }
-            StepSpec::Export(export) => vec![reference(&export.model, "model", &[StepKind::Train])],
+            StepSpec::Predict(predict) => vec![reference(&predict.model, "model", MODEL_KINDS)],
+            StepSpec::Export(export) => vec![reference(&export.model, "model", MODEL_KINDS)],
         }
     }
 }
@@ -228,6 +251,7 @@ struct RawData {
     missing: Option<Missing>,
     holdout: Option<f64>,
     folds: Option<usize>,
+    validation: Option<f64>,
     seed: Option<u64>,
 }
 
@@ -588,6 +612,12 @@ fn validate_data(raw: RawData, default_seed: u64, check: &mut Checker<'_>) -> Da
             Split::Holdout(holdout)
         }
     };
+    if let Some(validation) = raw.validation {
+        // Written so that NaN fails too.
+        check.require(validation > 0.0 && validation < 1.0, "validation", || {
+            format!("validation is the fraction of training rows set aside: expected above 0 and below 1, not {validation}")
+        });
+    }
     DataSpec {
         file: raw.file,
         settings: DataSettings {
@@ -597,6 +627,7 @@ fn validate_data(raw: RawData, default_seed: u64, check: &mut Checker<'_>) -> Da
             scale: raw.scale.unwrap_or(Scale::Standard),
             missing: raw.missing.unwrap_or(Missing::Error),
             split,
+            validation: raw.validation,
             seed: raw.seed.unwrap_or(default_seed),
         },
     }

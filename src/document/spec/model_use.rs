@@ -3,8 +3,8 @@
 use schemars::JsonSchema;
 use serde::{Deserialize, Serialize};
 
-use super::Checker;
-use super::schema::no_default;
+use super::schema::{Word, no_default};
+use super::{Checker, word};
 
 #[derive(Deserialize, JsonSchema)]
 #[serde(deny_unknown_fields)]
@@ -62,22 +62,60 @@ fn present<'de, D: serde::Deserializer<'de>>(
 pub(super) struct RawExport {
     model: String,
     write: String,
+    #[schemars(with = "Option<Word<ExportFormat>>")]
+    format: Option<ExportFormat>,
 }
 
-/// `export`: a trained model written as JSON for use from other programs.
+/// The file format an export writes.
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(rename_all = "snake_case")]
+pub(crate) enum ExportFormat {
+    /// stet's own JSON, described in the README.
+    #[default]
+    Json,
+    /// The open model-exchange standard, for runtimes and other frameworks.
+    Onnx,
+}
+
+/// `export`: a trained model written as a file for use from other programs.
 #[derive(Clone, Debug, PartialEq, Serialize)]
 pub struct ExportSpec {
     pub(crate) model: String,
-    /// The JSON file to write, relative to the document's folder.
+    /// The file to write, relative to the document's folder.
     pub(crate) write: String,
+    /// Always serialised, so that export keys from before the setting (and before the
+    /// JSON format's provenance) are not reused.
+    pub(crate) format: ExportFormat,
 }
 
 pub(super) fn validate_export(raw: RawExport, check: &mut Checker<'_>) -> ExportSpec {
     check.require(!raw.write.trim().is_empty(), "write", || {
         "write must name a file".into()
     });
+    let format = raw.format.unwrap_or_default();
+    if let Some(other) = format_of_extension(&raw.write).filter(|other| *other != format) {
+        check.require(false, "write", || {
+            format!(
+                "write names a .{} file, but the export's format is {}: set format: {} or change the file's extension",
+                word(&other),
+                word(&format),
+                word(&other)
+            )
+        });
+    }
     ExportSpec {
         model: raw.model,
         write: raw.write,
+        format,
     }
+}
+
+/// The export format a file's extension names, if any: a `.json` file that holds
+/// ONNX bytes (or the reverse) is a slip that the loading program would only report
+/// as a corrupt file.
+fn format_of_extension(file: &str) -> Option<ExportFormat> {
+    let extension = std::path::Path::new(file).extension()?.to_str()?;
+    [ExportFormat::Json, ExportFormat::Onnx]
+        .into_iter()
+        .find(|format| extension.eq_ignore_ascii_case(word(format)))
 }

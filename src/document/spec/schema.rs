@@ -14,10 +14,8 @@ use serde::de::DeserializeOwned;
 use serde_json::{Value, json};
 
 use super::accepts;
-use super::compare::RawCompare;
-use super::model_use::{RawExport, RawPredict};
-use super::sweep::{FIXED, RawSweep};
-use super::{NET_KEYS, RawData, RawNet, RawTrain, StepKind, TRAIN_KEYS};
+use super::sweep::FIXED;
+use super::{NET_KEYS, RawAction, StepKind, TRAIN_KEYS};
 use crate::document::FrontMatter;
 use crate::document::names::words;
 
@@ -74,15 +72,14 @@ fn describe_settings(definition: &mut Value) {
 
 /// A reference to the definition of `kind`'s settings, added to the generator.
 fn kind_schema(kind: StepKind, generator: &mut SchemaGenerator) -> Schema {
-    match kind {
-        StepKind::Data => generator.subschema_for::<RawData>(),
-        StepKind::Net => generator.subschema_for::<RawNet>(),
-        StepKind::Train => generator.subschema_for::<RawTrain>(),
-        StepKind::Sweep => generator.subschema_for::<RawSweep>(),
-        StepKind::Compare => generator.subschema_for::<RawCompare>(),
-        StepKind::Predict => generator.subschema_for::<RawPredict>(),
-        StepKind::Export => generator.subschema_for::<RawExport>(),
+    struct Subschema<'g>(&'g mut SchemaGenerator);
+    impl RawAction for Subschema<'_> {
+        type Output = Schema;
+        fn with<R: DeserializeOwned + JsonSchema>(self) -> Schema {
+            self.0.subschema_for::<R>()
+        }
     }
+    kind.with_raw(Subschema(generator))
 }
 
 /// A setting that takes one word of the enum `T`: the words serde reads for it.
