@@ -3,10 +3,12 @@
 //! here, beside the values they describe, so that `main.rs` only prints them and the
 //! wording can be tested without running the binary.
 
-use crate::build::ShareSummary;
+use std::io::IsTerminal;
+
 use crate::build::share::Share;
+use crate::build::{Progress, ShareSummary};
 use crate::cache::pruning::Cleaning;
-use crate::document::DocumentErrors;
+use crate::document::{Decoration, DocumentErrors};
 use crate::{BuildSummary, Dispatched, Error, StatusReport, Unpacked};
 
 /// One line for one of the two streams.
@@ -166,27 +168,65 @@ pub fn clean(cleaning: &Cleaning, dry_run: bool) -> Vec<Line> {
 }
 
 /// Why a command could not be carried out: document problems with their source line
-/// marked (miette), anything else as one line.
-pub fn error(error: &Error) -> Vec<Line> {
+/// marked, decorated for a terminal or plain, anything else as one line.
+pub fn error(error: &Error, decoration: Decoration) -> Vec<Line> {
     match error {
-        Error::Document(errors) => document_problems(errors),
+        Error::Document(errors) => document_problems(errors, decoration),
         other => vec![Line::Err(format!("error: {other}"))],
     }
 }
 
-fn document_problems(errors: &DocumentErrors) -> Vec<Line> {
-    let handler = miette::GraphicalReportHandler::new();
-    let mut lines: Vec<Line> = errors
-        .diagnostics()
+/// Bold and colour when stderr is a terminal; plain ASCII for a file or a pipe.
+pub fn stderr_decoration() -> Decoration {
+    if std::io::stderr().is_terminal() {
+        Decoration::Terminal
+    } else {
+        Decoration::Plain
+    }
+}
+
+/// [`error`] as plain text, for the page `stet watch` serves.
+pub(crate) fn error_text(failure: &Error) -> String {
+    let lines: Vec<String> = error(failure, Decoration::Plain)
         .into_iter()
-        .map(|diagnostic| {
-            let mut out = String::new();
-            match handler.render_report(&mut out, &diagnostic) {
-                // The rendering ends with its own line break.
-                Ok(()) => Line::Err(out.strip_suffix('\n').unwrap_or(&out).to_string()),
-                Err(_) => Line::Err(format!("error: {diagnostic}")),
-            }
-        })
+        .map(|(Line::Out(text) | Line::Err(text))| text)
+        .collect();
+    lines.join("\n")
+}
+
+/// `stet build`'s bar while runs train; drawn only when stderr is a terminal.
+pub(crate) struct TrainingBar(indicatif::ProgressBar);
+
+impl TrainingBar {
+    pub(crate) fn new() -> Self {
+        let style = indicatif::ProgressStyle::with_template(
+            "training {bar:30} {pos}/{len} runs, {elapsed}",
+        )
+        .expect("a valid progress template");
+        let target = indicatif::ProgressDrawTarget::stderr();
+        Self(indicatif::ProgressBar::with_draw_target(None, target).with_style(style))
+    }
+}
+
+impl Progress for TrainingBar {
+    fn training(&self, runs: usize) {
+        self.0.set_length(runs as u64);
+    }
+
+    fn trained(&self, _step: &str) {
+        self.0.inc(1);
+    }
+
+    fn finished(&self) {
+        self.0.finish_and_clear();
+    }
+}
+
+fn document_problems(errors: &DocumentErrors, decoration: Decoration) -> Vec<Line> {
+    let mut lines: Vec<Line> = errors
+        .rendered(decoration)
+        .into_iter()
+        .map(Line::Err)
         .collect();
     lines.push(Line::Err(format!(
         "{}: {} problem(s); nothing was written",

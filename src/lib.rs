@@ -3,7 +3,8 @@
 //! The flow is document → plan → build → report: [`document`] parses the Markdown and
 //! the step settings, [`plan`] resolves references and computes cache keys, `build`
 //! executes what the `cache` does not hold, and `report` renders HTML and JSON;
-//! `cluster` spreads a document's runs over a Slurm job array. The command layer
+//! `cluster` spreads a document's runs over a Slurm job array; `watch` builds again
+//! on every change and serves the report to a browser. The command layer
 //! (`main.rs`) only parses flags, calls the entry points here, prints the lines
 //! [`console`] formats and maps the outcome to an exit code.
 
@@ -23,7 +24,9 @@ pub mod judge;
 pub mod nn;
 pub mod plan;
 pub(crate) mod report;
+mod watch;
 pub use document::spec::schema;
+pub use watch::{WatchError, WatchOptions, watch};
 
 pub use build::ShareSummary;
 pub use build::share::{Share, ShareError};
@@ -38,6 +41,7 @@ pub use report::TemplateError;
 
 use std::borrow::Cow;
 use std::path::{Path, PathBuf};
+use std::sync::atomic::{AtomicBool, Ordering};
 use std::time::Duration;
 
 use build::{BuildResult, RunOptions, StepResult, outcome, share};
@@ -100,6 +104,8 @@ pub enum Error {
     Record(#[from] RecordError),
     #[error(transparent)]
     Diff(#[from] DiffError),
+    #[error(transparent)]
+    Watch(#[from] WatchError),
 }
 
 /// What a finished build did.
@@ -195,31 +201,108 @@ fn open_cache(choice: &CacheChoice, document: &Path) -> Cache {
     }
 }
 
+/// Largest image file a report embeds; a larger one stays a link.
+const MAX_IMAGE_BYTES: u64 = 4 << 20;
+
+/// The images the prose shows from files inside the document's project, as `data:`
+/// URIs, so a mailed report stays whole. Destinations are taken as written (relative
+/// to the document); images that are missing, too large, outside the project or not of
+/// a known image type are left out and stay links.
+fn embedded_images(document: &Document, document_path: &Path) -> report::prose::Embedded {
+    let dir = document_path.parent().unwrap_or(Path::new(""));
+    let mut images = report::prose::Embedded::new();
+    for piece in &document.pieces {
+        let document::Piece::Prose(markdown) = piece else {
+            continue;
+        };
+        for destination in report::prose::local_image_destinations(markdown) {
+            if images.contains_key(&destination) {
+                continue;
+            }
+            if let Some(uri) = image_data_uri(dir, &dir.join(&destination)) {
+                images.insert(destination, uri);
+            }
+        }
+    }
+    images
+}
+
+fn image_data_uri(document_dir: &Path, path: &Path) -> Option<String> {
+    use base64::Engine;
+    let extension = path.extension()?.to_str()?.to_ascii_lowercase();
+    let media_type = match extension.as_str() {
+        "png" => "image/png",
+        "jpg" | "jpeg" => "image/jpeg",
+        "gif" => "image/gif",
+        "webp" => "image/webp",
+        // An SVG shown through <img> runs no script and loads nothing.
+        "svg" => "image/svg+xml",
+        _ => return None,
+    };
+    if !plan::inside_project(document_dir, path) {
+        return None;
+    }
+    let bytes = input_file::read_regular(path, MAX_IMAGE_BYTES).ok()?;
+    let encoded = base64::engine::general_purpose::STANDARD.encode(bytes);
+    Some(format!("data:{media_type};base64,{encoded}"))
+}
+
 /// `stet build`: runs what is not cached and writes the report (and the JSON summary).
 /// Nothing is written when the document cannot be used.
 pub fn build(options: &BuildOptions) -> Result<BuildSummary, Error> {
+    let bar = console::TrainingBar::new();
+    let never = AtomicBool::new(false);
+    let built = build_observed(options, &bar, &never)?;
+    Ok(built.summary.expect("a build nobody stops finishes"))
+}
+
+/// What [`build_observed`] did, for `stet watch`.
+pub(crate) struct Observed {
+    /// The files the document's steps read (empty when it could not be planned).
+    pub(crate) inputs: Vec<PathBuf>,
+    /// `None` when `stop` was set during training: nothing was written.
+    pub(crate) summary: Option<BuildSummary>,
+    /// The report written, when one was.
+    pub(crate) html: Option<String>,
+}
+
+/// The one build behind `stet build` and `stet watch`: runs what is not cached,
+/// telling `progress` about each run, and writes the report. When `stop` is set while
+/// runs train, the runs started finish (and are cached), the rest are not started and
+/// nothing else is written, since a newer build will.
+pub(crate) fn build_observed(
+    options: &BuildOptions,
+    progress: &dyn build::Progress,
+    stop: &AtomicBool,
+) -> Result<Observed, Error> {
     let templates = match &options.templates {
         Some(dir) => report::Templates::with_overrides(dir)?,
         None => report::Templates::built_in(),
     };
     let loaded = load(&options.document, &options.plan)?;
     check_recorded_inputs(&options.document, &loaded)?;
+    let inputs = loaded
+        .plan
+        .steps
+        .iter()
+        .flat_map(|step| step.files.iter().map(|file| file.path.clone()))
+        .collect();
     let cache = open_cache(&options.cache, &options.document);
     let targets = check_outputs(options, &loaded, &cache)?;
     remove_stale_temporaries(&loaded.plan, &targets);
-    let progress =
-        indicatif::ProgressBar::with_draw_target(None, indicatif::ProgressDrawTarget::stderr())
-            .with_style(
-                indicatif::ProgressStyle::with_template(
-                    "training {bar:30} {pos}/{len} runs, {elapsed}",
-                )
-                .expect("a valid progress template"),
-            );
     let run_options = RunOptions {
         jobs: options.jobs,
         progress: Some(progress),
+        stop: Some(stop),
     };
     let mut results = build::execute(&loaded.plan, &cache, &run_options);
+    if stop.load(Ordering::Relaxed) {
+        return Ok(Observed {
+            inputs,
+            summary: None,
+            html: None,
+        });
+    }
     manifest::store(&cache, &options.document, &loaded.plan);
     write_model_files(&loaded.plan, &loaded.hash, &mut results.steps);
     let built_at = build_time();
@@ -239,6 +322,7 @@ pub fn build(options: &BuildOptions) -> Result<BuildSummary, Error> {
             plan: &loaded.plan,
             results: &results,
             allow_html: options.allow_html,
+            images: &embedded_images(&loaded.document, &options.document),
             built_at: &built_at,
             report_file: &report_file_name(&targets.report),
             carried: &carried,
@@ -251,12 +335,17 @@ pub fn build(options: &BuildOptions) -> Result<BuildSummary, Error> {
         let text = serde_json::to_string_pretty(&summary).expect("a JSON value serialises");
         write_output(json_path, text.as_bytes())?;
     }
-    Ok(summarise(
+    let summary = summarise(
         report_path(options),
         &loaded.plan,
         &results,
         cache.take_warnings(),
-    ))
+    );
+    Ok(Observed {
+        inputs,
+        summary: Some(summary),
+        html: Some(html),
+    })
 }
 
 /// The report's file name, as the footer's unpack command names it.
@@ -450,6 +539,7 @@ pub fn build_share(
     let run_options = RunOptions {
         jobs: options.jobs,
         progress: None,
+        stop: None,
     };
     Ok(build::execute_share(
         &loaded.plan,

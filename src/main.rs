@@ -8,7 +8,7 @@ use std::time::Duration;
 
 use clap::{Parser, Subcommand};
 use stet::plan::{Limits, PlanOptions};
-use stet::{BuildOptions, CacheChoice, Error, Share, console};
+use stet::{BuildOptions, CacheChoice, Error, Share, WatchOptions, console};
 
 #[derive(Parser)]
 #[command(
@@ -174,6 +174,25 @@ enum Command {
         #[arg(long, value_name = "OUT.json")]
         json: Option<PathBuf>,
     },
+    /// Build, serve the report on 127.0.0.1, and build again whenever the document or a
+    /// file it reads changes; the open page updates itself.
+    Watch {
+        document: PathBuf,
+        /// The port to serve on [default: a free one, printed].
+        #[arg(long, value_name = "N")]
+        port: Option<u16>,
+        /// The cache folder [default: $STET_CACHE, else .stet/ beside the document].
+        #[arg(long, value_name = "DIR")]
+        cache: Option<PathBuf>,
+        /// Training runs at once [default: the number of cores].
+        #[arg(long, value_name = "N")]
+        jobs: Option<usize>,
+        /// Open the page in the system browser, when one is found.
+        #[arg(long)]
+        open: bool,
+        #[command(flatten)]
+        flags: DocumentFlags,
+    },
     /// Print the JSON Schema of step blocks and front matter, for editors.
     Schema,
 }
@@ -183,7 +202,7 @@ fn main() -> ExitCode {
     match run(cli.command) {
         Ok(code) => code,
         Err(error) => {
-            console::print(&console::error(&error));
+            console::print(&console::error(&error, console::stderr_decoration()));
             ExitCode::from(2)
         }
     }
@@ -299,6 +318,32 @@ fn run(command: Command) -> Result<ExitCode, Error> {
             for line in lines {
                 println!("{line}");
             }
+            Ok(ExitCode::SUCCESS)
+        }
+        Command::Watch {
+            document,
+            port,
+            cache,
+            jobs,
+            open,
+            flags,
+        } => {
+            let build = BuildOptions {
+                document,
+                output: None,
+                json: None,
+                cache: cache_choice(cache),
+                jobs: jobs.unwrap_or_else(default_jobs),
+                templates: None,
+                allow_html: false,
+                embed_limit: Some(stet::DEFAULT_EMBED_MB << 20),
+                plan: flags.options(),
+            };
+            stet::watch(WatchOptions {
+                build,
+                port: port.unwrap_or(0),
+                open,
+            })?;
             Ok(ExitCode::SUCCESS)
         }
         Command::Schema => {

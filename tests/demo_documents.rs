@@ -16,7 +16,12 @@ fn build_demo(name: &str, steps: usize, charts: usize) {
 
     let html = std::fs::read_to_string(doc.with_extension("html")).unwrap();
     assert_eq!(html.matches("<section class=\"step ").count(), steps);
-    assert_eq!(html.matches("<svg").count(), charts);
+    // The data cards' small histograms (one per numeric column) are not charts.
+    assert!(
+        html.contains("<svg class=\"histogram\""),
+        "the data cards draw histograms"
+    );
+    assert_eq!(html.matches("<svg class=\"chart\"").count(), charts);
     assert!(html.contains("<table class=\"grid numeric metrics\">"));
     assert!(
         html.contains("<style>") && !html.contains("<link "),
@@ -51,14 +56,16 @@ fn build_demo(name: &str, steps: usize, charts: usize) {
 
 #[test]
 fn the_hives_demo_builds_a_complete_report() {
-    // 4 trains, a sweep with its loss and learning-rate charts, a compare.
-    build_demo("hives.md", 11, 7);
+    // 4 trains, a sweep (a heat map over its two settings, a plot for each, its loss
+    // chart), a compare.
+    build_demo("hives.md", 11, 9);
 }
 
 #[test]
 fn the_greenhouse_demo_builds_a_complete_report() {
-    // 4 trains, a sweep over non-numeric settings (one chart), a compare.
-    build_demo("greenhouse.md", 11, 6);
+    // 4 trains, a sweep over two non-numeric settings (a heat map, a plot for each,
+    // its loss chart), a compare.
+    build_demo("greenhouse.md", 11, 9);
 }
 
 #[test]

@@ -275,3 +275,26 @@ fn csv_problems_name_the_file_line_and_column() {
         "{single}"
     );
 }
+
+#[test]
+fn a_document_problem_prints_its_location_source_line_marker_and_help_in_plain_ascii() {
+    let ws = Workspace::new();
+    let doc = ws.write(
+        "doc.md",
+        &format!("{DATA}```yaml train t\ndata: iris\nnet: n\nlearnig_rate: 0.1\n```\n"),
+    );
+    let output = common::stet(&["build".into(), doc.display().to_string()], ws.dir.path());
+    assert_eq!(output.status.code(), Some(2));
+    let stderr = String::from_utf8(output.stderr).unwrap();
+    let lines: Vec<&str> = stderr.lines().collect();
+    // The block starts on line 10, so `learnig_rate` is on line 13, column 1.
+    let location = format!("{}:13:1: unknown setting", doc.display());
+    assert!(lines[0].starts_with(&location), "{stderr}");
+    assert_eq!(lines[1], "    learnig_rate: 0.1");
+    assert!(lines[2].starts_with("    ^^^^"), "{stderr}");
+    assert!(lines[3].starts_with("help: "), "{stderr}");
+    assert!(
+        stderr.is_ascii(),
+        "not a terminal, so no colour or box drawing: {stderr}"
+    );
+}

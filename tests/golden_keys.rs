@@ -38,10 +38,11 @@ seed: 2
 ```
 "#;
 
-// Cache format 3 (issue 14, a validation split): runs store their metrics on
-// validation rows and prepared partitions their validation rows, so every key and
-// entry changed on purpose. `validation` itself is left out of a data spec's
-// serialisation when unset, so only the format version moved these keys.
+// Cache format 3 (issue 14, a validation split; issue 15, the data card): runs store
+// their metrics on validation rows, prepared partitions their validation rows and a data
+// step's summary entry its data card, so every key and entry changed on purpose.
+// `validation` itself is left out of a data spec's serialisation when unset, so only
+// the format version moved these keys.
 
 // Cache format 4 (issue 14, the verdicts): a run's entry keeps its held-out outputs
 // for the paired tests.
@@ -73,7 +74,7 @@ const MARKER_ENTRY: &str =
     "7374657400656e3235aad952806044702e527dcef2740ec6b5e7d9331b494c4845668035399d17aa";
 
 /// The BLAKE3 of the entry file holding the data step's summary (too long to pin whole).
-const DATA_ENTRY_HASH: &str = "d966d8464aacb69cd2294961d0187200b43ec855e2ae65abddd63dcf0dde8cea";
+const DATA_ENTRY_HASH: &str = "2c6c1114572e056772bd1d16fae0a042b5867298aee8b820c4fa469cff9acfe1";
 
 fn workspace() -> (Workspace, std::path::PathBuf) {
     let ws = Workspace::new();

@@ -132,7 +132,8 @@ fn a_summary_with_a_wrong_status_word_fails_the_summary_schema() {
 }
 
 #[test]
-fn a_failed_step_without_its_error_or_a_train_without_metrics_fails_the_schema() {
+fn a_failed_step_without_its_error_a_train_without_metrics_or_a_data_step_without_its_card_fails_the_schema()
+ {
     let ws = Workspace::new();
     let summary = summary_with_a_failure(&ws);
     let validator = validator();
@@ -140,6 +141,8 @@ fn a_failed_step_without_its_error_or_a_train_without_metrics_fails_the_schema()
         ("on_broken", "error"),
         ("fit", "metrics"),
         ("fit", "seconds"),
+        ("iris", "columns"),
+        ("iris", "warnings"),
     ] {
         let mut changed = summary.clone();
         let at = step_index(&changed, id);

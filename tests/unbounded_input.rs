@@ -68,7 +68,7 @@ fn an_error_past_column_65535_is_shown_with_its_line_cut_short() {
     let text = stderr(&output);
     assert!(text.contains("doc.md:2:105012"), "{text}");
     assert!(
-        text.contains("| … 2, 2") && text.contains("2, 2]]"),
+        text.contains("\n    ... 2, 2") && text.contains("2, 2]]"),
         "{text}"
     );
     assert!(
@@ -110,7 +110,7 @@ fn a_70000_character_unknown_key_is_shown_cut_short() {
     assert_refused(&ws, &output, "doc.html");
     let text = stderr(&output);
     assert!(text.contains("doc.md:3:70001"), "{text}");
-    assert!(text.contains("| …kkk"), "{text}");
+    assert!(text.contains("\n    ...kkk"), "{text}");
     assert!(
         text.lines().all(|line| line.chars().count() < 400),
         "{text}"

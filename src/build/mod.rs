@@ -17,6 +17,7 @@ mod training;
 use std::borrow::Cow;
 use std::collections::HashMap;
 use std::sync::Arc;
+use std::sync::atomic::{AtomicBool, Ordering};
 use std::time::Instant;
 
 use rayon::prelude::*;
@@ -73,13 +74,30 @@ pub(crate) enum StepError {
 }
 
 /// What a build may use.
-#[derive(Clone, Debug)]
-pub(crate) struct RunOptions {
+#[derive(Clone, Copy)]
+pub(crate) struct RunOptions<'a> {
     /// Threads for training runs.
     pub jobs: usize,
-    /// Shown while runs train; hidden when stderr is not a terminal.
-    pub progress: Option<indicatif::ProgressBar>,
+    /// Told about each run as it is trained.
+    pub progress: Option<&'a dyn Progress>,
+    /// Set when the build is no longer wanted (`stet watch` saw a newer document): runs
+    /// already started finish and are cached, the rest are not started.
+    pub stop: Option<&'a AtomicBool>,
 }
+
+/// Told about training as it happens, from the training threads: the console's bar
+/// for `stet build`, the served page's progress line for `stet watch`.
+pub(crate) trait Progress: Sync {
+    /// `runs` runs are about to be trained.
+    fn training(&self, runs: usize);
+    /// One run of step `step` was trained and cached.
+    fn trained(&self, step: &str);
+    /// Training is over, finished or stopped.
+    fn finished(&self);
+}
+
+/// Why a run was not started: the build it belonged to was stopped.
+const STOPPED: &str = "not run: the build was stopped";
 
 /// One network to fit.
 struct RunTask<'a> {
@@ -289,9 +307,10 @@ fn run_data_step(
         return StepResult::new(Status::Reused, Outcome::Data(summary));
     }
     let started = Instant::now();
-    match prepare_data(step, limits) {
-        Ok(ready) => {
-            let summary = summarise(step, &ready);
+    let read = read_data(step).and_then(|table| Ok((prepare_table(step, &table, limits)?, table)));
+    match read {
+        Ok((ready, table)) => {
+            let summary = summarise(step, &ready, data::card::describe(&table, &ready));
             cache.store(&step.key, EntryKind::Prepared, &ready);
             cache.store(&step.key, EntryKind::DataSummary, &summary);
             prepared.insert(index, Arc::new(ready));
@@ -307,13 +326,24 @@ fn run_data_step(
 }
 
 fn prepare_data(step: &PlannedStep, limits: Limits) -> Result<Prepared, StepError> {
+    prepare_table(step, &read_data(step)?, limits)
+}
+
+/// The data step's file as a table.
+fn read_data(step: &PlannedStep) -> Result<data::Table, StepError> {
+    Ok(step.files[0].read(|reader| data::read_table(reader))?)
+}
+
+fn prepare_table(
+    step: &PlannedStep,
+    table: &data::Table,
+    limits: Limits,
+) -> Result<Prepared, StepError> {
     let StepSpec::Data(spec) = &step.spec else {
         unreachable!("a data step has a data spec")
     };
-    let file = &step.files[0];
-    let table = file.read(|reader| data::read_table(reader))?;
-    data::prepare(&table, &spec.settings, limits.max_categories).map_err(|error| StepError::Data {
-        file: file.written.clone(),
+    data::prepare(table, &spec.settings, limits.max_categories).map_err(|error| StepError::Data {
+        file: step.files[0].written.clone(),
         error,
     })
 }
@@ -342,7 +372,7 @@ fn prepared_for(
     Ok(ready)
 }
 
-fn summarise(step: &PlannedStep, prepared: &Prepared) -> DataSummary {
+fn summarise(step: &PlannedStep, prepared: &Prepared, card: data::card::DataCard) -> DataSummary {
     let StepSpec::Data(spec) = &step.spec else {
         unreachable!("a data step has a data spec")
     };
@@ -376,6 +406,7 @@ fn summarise(step: &PlannedStep, prepared: &Prepared) -> DataSummary {
                 test_classes: counts(&partition.test_rows),
             })
             .collect(),
+        card,
     }
 }
 
@@ -567,14 +598,22 @@ fn fit_all<'t>(
     let (unique, unfit): (Vec<usize>, Vec<usize>) = unique
         .iter()
         .partition(|&&i| !unprepared.contains_key(&tasks[i].data));
-    if let Some(bar) = &options.progress {
-        bar.set_length(unique.len() as u64);
+    if let Some(progress) = options.progress {
+        progress.training(unique.len());
     }
+    let stopped = || {
+        options
+            .stop
+            .is_some_and(|stop| stop.load(Ordering::Relaxed))
+    };
     // On the caller's pool (`arithmetic_pool`).
     let results = unique
         .par_iter()
         .map(|&i| {
             let task = &tasks[i];
+            if stopped() {
+                return (task.key, Err(STOPPED.to_string()));
+            }
             let result = fit(
                 &prepared[&task.data],
                 task.partition,
@@ -583,14 +622,14 @@ fn fit_all<'t>(
                 &task.train,
             );
             cache.store(task.key, EntryKind::Run, &result);
-            if let Some(bar) = &options.progress {
-                bar.inc(1);
+            if let Some(progress) = options.progress {
+                progress.trained(&plan.steps[task.step].id);
             }
             (task.key, Ok(result))
         })
         .collect::<HashMap<_, _>>();
-    if let Some(bar) = &options.progress {
-        bar.finish_and_clear();
+    if let Some(progress) = options.progress {
+        progress.finished();
     }
     let failed = unfit
         .iter()

@@ -6,6 +6,7 @@ use std::borrow::Borrow;
 use ndarray::Array2;
 use serde::{Deserialize, Serialize};
 
+use crate::data::card::DataCard;
 use crate::data::{InputColumn, Scale, Task};
 use crate::document::spec::MetricName;
 use crate::document::spec::sweep::Varied;
@@ -30,6 +31,8 @@ pub(crate) struct DataSummary {
     pub scale: Scale,
     /// Training and held-out rows of each partition (one for a holdout, k for folds).
     pub partitions: Vec<PartitionSummary>,
+    /// Column statistics over every row read, and the warnings.
+    pub card: DataCard,
 }
 
 impl DataSummary {
@@ -101,6 +104,17 @@ pub(crate) struct RunResult {
     /// The network's outputs on the held-out rows, in their order, for the paired
     /// tests (`judge`); `None` without held-out rows.
     pub held_out_outputs: Option<Array2<f64>>,
+}
+
+impl RunResult {
+    /// The metrics on `rows`; `None` when this run has no such rows.
+    pub(crate) fn metrics_on(&self, rows: RowSet) -> Option<&SetMetrics> {
+        match rows {
+            RowSet::Train => Some(&self.train),
+            RowSet::Validation => self.validation.as_ref(),
+            RowSet::Test => self.test.as_ref(),
+        }
+    }
 }
 
 /// How a train step's networks were built, shared by all its runs.
@@ -285,11 +299,7 @@ fn metric_stats<'a>(
     rows: RowSet,
 ) -> Option<Vec<MetricStat>> {
     let named: Vec<Vec<(&'static str, f64)>> = runs
-        .map(|run| match rows {
-            RowSet::Train => Some(run.train.named()),
-            RowSet::Validation => run.validation.as_ref().map(SetMetrics::named),
-            RowSet::Test => run.test.as_ref().map(SetMetrics::named),
-        })
+        .map(|run| run.metrics_on(rows).map(SetMetrics::named))
         .collect::<Option<_>>()?;
     let first = named.first()?;
     Some(

@@ -261,6 +261,7 @@ mod tests {
             classes,
             scale: crate::data::Scale::Standard,
             partitions: Vec::new(),
+            card: crate::data::card::DataCard::default(),
         }
     }
 

@@ -26,6 +26,11 @@ impl CodedColumn {
         self.ends.len()
     }
 
+    /// Number of rows.
+    pub(crate) fn rows(&self) -> usize {
+        self.codes.len()
+    }
+
     /// The code of row `row`'s text.
     pub(crate) fn code(&self, row: usize) -> usize {
         self.codes.get(row)
@@ -64,6 +69,14 @@ impl Default for Codes {
 }
 
 impl Codes {
+    fn len(&self) -> usize {
+        match self {
+            Codes::U8(codes) => codes.len(),
+            Codes::U16(codes) => codes.len(),
+            Codes::U32(codes) => codes.len(),
+        }
+    }
+
     fn get(&self, row: usize) -> usize {
         match self {
             Codes::U8(codes) => usize::from(codes[row]),

@@ -9,6 +9,7 @@
 //! [`Encoding::encode_inputs`](encode::Encoding::encode_inputs) encodes new rows for
 //! prediction.
 
+pub(crate) mod card;
 mod coded_column;
 mod columns;
 mod encode;

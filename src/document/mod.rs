@@ -16,7 +16,7 @@ use pulldown_cmark::{CodeBlockKind, Event, Options, Parser, Tag, TagEnd};
 
 pub(crate) use front::FrontMatter;
 use problem::nearest;
-pub use problem::{DocumentErrors, Problem};
+pub use problem::{Decoration, DocumentErrors, Problem};
 pub use spec::{StepKind, StepSpec};
 
 /// A parsed document: front matter and the pieces of its body in order.

@@ -1,14 +1,10 @@
-//! Problems found in a document, each tied to a byte span of its source, and the
-//! miette diagnostic that prints them with the offending line marked.
+//! Problems found in a document, each tied to a byte span of its source, and their
+//! layout for the terminal: `file:line:column: message` (which editors and terminals
+//! can jump to), the source line with a marker under the problem, then `help:`.
 
 use std::fmt;
 use std::ops::Range;
 use std::path::Path;
-
-use miette::{
-    Diagnostic, LabeledSpan, MietteError, MietteSpanContents, NamedSource, SourceCode, SourceSpan,
-    SpanContents,
-};
 
 /// One thing wrong with a document: where it is and what was expected there.
 #[derive(Clone, Debug, PartialEq, Eq)]
@@ -70,16 +66,29 @@ pub struct DocumentErrors {
 }
 
 impl DocumentErrors {
-    /// One diagnostic per problem, ready for a miette report handler.
-    pub fn diagnostics(&self) -> Vec<ProblemDiagnostic> {
+    /// Each problem in stet's layout, one text of several lines per problem.
+    pub fn rendered(&self, decoration: Decoration) -> Vec<String> {
         self.problems
             .iter()
-            .map(|problem| ProblemDiagnostic {
-                location: self.location(problem),
-                problem: problem.clone(),
-                source: NamedSource::new(self.path.clone(), Excerpt::new(&self.source, problem)),
-            })
+            .map(|problem| self.render(problem, decoration))
             .collect()
+    }
+
+    fn render(&self, problem: &Problem, decoration: Decoration) -> String {
+        let excerpt = Excerpt::new(&self.source, problem, decoration);
+        let marker = "^".repeat(excerpt.marker.len().max(1));
+        let indent = " ".repeat(SOURCE_INDENT + excerpt.marker.start);
+        let source_indent = " ".repeat(SOURCE_INDENT);
+        let mut out = format!(
+            "{}\n{source_indent}{}\n{indent}{}",
+            decoration.strong(&format!("{}: {}", self.location(problem), problem.message)),
+            excerpt.text,
+            decoration.marker(&marker)
+        );
+        if let Some(help) = &problem.help {
+            out.push_str(&format!("\n{} {help}", decoration.help("help:")));
+        }
+        out
     }
 
     /// `path:line:column` of a problem.
@@ -108,156 +117,130 @@ impl fmt::Display for DocumentErrors {
 
 impl std::error::Error for DocumentErrors {}
 
-/// A single problem as a miette diagnostic with its source attached.
-#[derive(Debug)]
-pub struct ProblemDiagnostic {
-    problem: Problem,
-    location: String,
-    source: NamedSource<Excerpt>,
+/// How a problem is drawn: plain ASCII decoration for files and pipes; bold and
+/// colour on a terminal. The source line is shown as written either way, its control
+/// characters replaced so it cannot move the cursor or change colours.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum Decoration {
+    Plain,
+    Terminal,
 }
 
-impl fmt::Display for ProblemDiagnostic {
-    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
-        write!(f, "{}: {}", self.location, self.problem.message)
+impl Decoration {
+    fn styled(self, code: &str, text: &str) -> String {
+        match self {
+            Decoration::Plain => text.to_string(),
+            Decoration::Terminal => format!("\x1b[{code}m{text}\x1b[0m"),
+        }
+    }
+
+    fn strong(self, text: &str) -> String {
+        self.styled("1", text)
+    }
+
+    fn marker(self, text: &str) -> String {
+        self.styled("1;31", text)
+    }
+
+    fn help(self, text: &str) -> String {
+        self.styled("1;36", text)
+    }
+
+    /// What stands for the part of a line left out.
+    fn ellipsis(self) -> &'static str {
+        match self {
+            Decoration::Plain => "...",
+            Decoration::Terminal => "…",
+        }
     }
 }
 
-impl std::error::Error for ProblemDiagnostic {}
-
-impl Diagnostic for ProblemDiagnostic {
-    fn source_code(&self) -> Option<&dyn miette::SourceCode> {
-        Some(&self.source)
-    }
-
-    fn labels(&self) -> Option<Box<dyn Iterator<Item = LabeledSpan> + '_>> {
-        let label = &self.source.inner().label;
-        let span = SourceSpan::new(label.start.into(), label.len());
-        let label = LabeledSpan::new_with_span(Some("here".into()), span);
-        Some(Box::new(std::iter::once(label)))
-    }
-
-    fn help(&self) -> Option<Box<dyn fmt::Display + '_>> {
-        self.problem
-            .help
-            .as_ref()
-            .map(|help| Box::new(help) as Box<dyn fmt::Display>)
-    }
-}
-
-/// Longest line shown whole under a problem. A longer one is cut, around the
-/// problem's column on its own line: miette pads its markers with a width argument,
-/// which panics past 65,535 columns, and a screen of one line helps nobody.
+/// Spaces before the source line and its marker.
+const SOURCE_INDENT: usize = 4;
+/// Longest line shown whole under a problem. A longer one is cut to a window around
+/// the problem's column: a screen of one line helps nobody.
 const SHOWN_LINE_CHARS: usize = 160;
 /// Characters shown before the problem's column when its line is cut.
 const CHARS_BEFORE_PROBLEM: usize = 60;
 
-/// The source as a problem's diagnostic shows it: every line that is too long cut
-/// short with an ellipsis, the problem's own line cut to a window around the problem.
-/// Lines keep their numbers, and the header shows the problem's true column.
+/// The problem's line as shown: cut to a window around the problem when long, and
+/// where the marker goes in it, in characters.
 #[derive(Debug)]
 struct Excerpt {
     text: String,
-    /// Where the marker goes in `text`; never wider than the problem's shown line.
-    label: Range<usize>,
-    /// 0-based column of the problem in the real line, in characters.
-    column: usize,
+    marker: Range<usize>,
 }
 
 impl Excerpt {
-    fn new(source: &str, problem: &Problem) -> Excerpt {
-        // miette draws no marker at the very end of the source, where an unclosed
-        // block or a missing step is found, so such a problem marks the last character.
-        let start = if problem.span.start < source.len() {
-            problem.span.start
+    fn new(source: &str, problem: &Problem, decoration: Decoration) -> Excerpt {
+        let start = char_floor(source, problem.span.start);
+        let mut line_start = source[..start].rfind('\n').map_or(0, |i| i + 1);
+        // A problem at the very end, after the last line break (an unclosed block, a
+        // document of front matter only), is marked just past the last line.
+        if line_start == source.len() && line_start > 0 {
+            line_start = source[..line_start - 1].rfind('\n').map_or(0, |i| i + 1);
+        }
+        let line_end = source[line_start..]
+            .find('\n')
+            .map_or(source.len(), |i| line_start + i);
+        let line = &source[line_start..line_end];
+        let (column, width) = if start > line_end {
+            (line.chars().count(), 1)
         } else {
-            source.char_indices().next_back().map_or(0, |(i, _)| i)
+            let end = char_floor(source, problem.span.end.clamp(start, line_end));
+            (
+                source[line_start..start].chars().count(),
+                source[start..end].chars().count(),
+            )
         };
-        let end = problem.span.end.max(start + 1);
-        let mut excerpt = Excerpt {
-            text: String::with_capacity(source.len().min(1 << 16)),
-            label: 0..0,
-            column: 0,
-        };
-        let mut line_start = 0;
-        for line in source.split_inclusive('\n') {
-            let body = line.trim_end_matches('\n');
-            let ending = &line[body.len()..];
-            if (line_start..line_start + line.len()).contains(&start) {
-                excerpt.push_problem_line(body, start - line_start, end - line_start);
-            } else {
-                excerpt.push_cut(body);
-            }
-            excerpt.text.push_str(ending);
-            line_start += line.len();
-        }
-        excerpt
+        Excerpt::windowed(line, column, width, decoration)
     }
 
-    /// Appends `line` cut to [`SHOWN_LINE_CHARS`].
-    fn push_cut(&mut self, line: &str) {
-        match line.char_indices().nth(SHOWN_LINE_CHARS) {
-            Some((cut, _)) => {
-                self.text.push_str(&line[..cut]);
-                self.text.push('…');
-            }
-            None => self.text.push_str(line),
-        }
-    }
-
-    /// Appends the problem's line, cut to a window around the marker from byte
-    /// `start` to byte `end` of the line, and records where the marker falls.
-    fn push_problem_line(&mut self, line: &str, start: usize, end: usize) {
-        self.column = line[..start].chars().count();
-        let chars = line.chars().count();
-        let first = if chars <= SHOWN_LINE_CHARS {
+    /// `line` cut to [`SHOWN_LINE_CHARS`] around `column`, with the marker from
+    /// `column` over `width` characters, kept inside what is shown.
+    fn windowed(line: &str, column: usize, width: usize, decoration: Decoration) -> Excerpt {
+        let chars: Vec<char> = line.chars().map(shown_char).collect();
+        let first = if chars.len() <= SHOWN_LINE_CHARS {
             0
         } else {
-            self.column.saturating_sub(CHARS_BEFORE_PROBLEM)
+            column.saturating_sub(CHARS_BEFORE_PROBLEM)
         };
-        let last = chars.min(first + SHOWN_LINE_CHARS);
-        let byte_of = |char_index: usize| {
-            line.char_indices()
-                .nth(char_index)
-                .map_or(line.len(), |(i, _)| i)
-        };
-        let (from, to) = (byte_of(first), byte_of(last));
+        let last = chars.len().min(first + SHOWN_LINE_CHARS);
+        let mut text = String::new();
+        let mut offset = 0;
         if first > 0 {
-            self.text.push('…');
+            text.push_str(decoration.ellipsis());
+            offset = decoration.ellipsis().chars().count();
         }
-        let shown_start = self.text.len();
-        self.text.push_str(&line[from..to]);
-        // A marker at the line's end (an empty line, a problem at the end of the
-        // source) keeps its one column.
-        let marker_end = end.clamp(start + 1, to.max(start + 1));
-        self.label = shown_start + (start - from)..shown_start + (marker_end - from);
-        if to < line.len() {
-            self.text.push('…');
+        text.extend(&chars[first..last]);
+        if last < chars.len() {
+            text.push_str(decoration.ellipsis());
+        }
+        let marker_start = offset + column - first;
+        let marker_end = marker_start + width.min(last.saturating_sub(column)).max(1);
+        Excerpt {
+            text,
+            marker: marker_start..marker_end,
         }
     }
 }
 
-impl SourceCode for Excerpt {
-    fn read_span<'a>(
-        &'a self,
-        span: &SourceSpan,
-        context_lines_before: usize,
-        context_lines_after: usize,
-    ) -> Result<Box<dyn SpanContents<'a> + 'a>, MietteError> {
-        let contents = self
-            .text
-            .read_span(span, context_lines_before, context_lines_after)?;
-        // The header's `file:line:column` reads the marker's span with no context;
-        // miette would count bytes of the cut line, where the real column is wanted.
-        if context_lines_before == 0 && span.offset() == self.label.start {
-            return Ok(Box::new(MietteSpanContents::new(
-                contents.data(),
-                *contents.span(),
-                contents.line(),
-                self.column,
-                contents.line_count(),
-            )));
-        }
-        Ok(contents)
+/// `offset` within `source`, moved back to the start of the character it falls in.
+fn char_floor(source: &str, offset: usize) -> usize {
+    let mut offset = offset.min(source.len());
+    while !source.is_char_boundary(offset) {
+        offset -= 1;
+    }
+    offset
+}
+
+/// A character as the source line shows it: a tab as one space (so the marker lines
+/// up), any other control character as a replacement mark.
+fn shown_char(c: char) -> char {
+    match c {
+        '\t' => ' ',
+        c if c.is_control() => '\u{fffd}',
+        c => c,
     }
 }
 
@@ -290,15 +273,19 @@ mod tests {
         let errors = DocumentErrors {
             path: "doc.md".into(),
             source: source.into(),
-            problems: vec![Problem::new(span, "wrong")],
+            problems: vec![Problem::new(span, "wrong").with_help("try another")],
         };
-        let handler =
-            miette::GraphicalReportHandler::new_themed(miette::GraphicalTheme::unicode_nocolor());
-        let mut out = String::new();
-        handler
-            .render_report(&mut out, &errors.diagnostics()[0])
-            .unwrap();
-        out
+        errors.rendered(Decoration::Plain).remove(0)
+    }
+
+    #[test]
+    fn a_problem_reads_location_message_source_line_marker_then_help() {
+        let out = rendered("a: 1\nlearnig_rate: 0.1\n", 5..17);
+        assert_eq!(
+            out,
+            "doc.md:2:1: wrong\n    learnig_rate: 0.1\n    ^^^^^^^^^^^^\nhelp: try another"
+        );
+        assert!(out.is_ascii());
     }
 
     // Seen while fuzzing: a problem at the end of the document (an unclosed block
@@ -306,12 +293,27 @@ mod tests {
     // with no marker at all.
     #[test]
     fn a_problem_at_the_end_of_the_source_is_still_marked() {
-        for source in ["ab\ncd", "---\ntitle: x\n---\n", "ab\ncé"] {
-            let out = rendered(source, source.len()..source.len());
-            assert!(out.contains("here"), "{source:?}:\n{out}");
-        }
-        let out = rendered("ab\ncd", 1..1);
-        assert!(out.contains(" 1 │ ab\n   ·  ┬\n"), "{out}");
+        assert!(rendered("ab\ncd", 5..5).contains("\n    cd\n      ^\n"));
+        assert!(rendered("---\ntitle: x\n---\n", 17..17).contains("\n    ---\n       ^\n"));
+        assert!(rendered("ab\ncd", 1..1).contains("\n    ab\n     ^\n"));
+    }
+
+    #[test]
+    fn a_long_line_is_cut_around_the_problem_and_keeps_its_real_column() {
+        let source = format!("{}bad{}", "x".repeat(70_000), "y".repeat(500));
+        let out = rendered(&source, 70_000..70_003);
+        let lines: Vec<&str> = out.lines().collect();
+        assert!(lines[0].starts_with("doc.md:1:70001: "), "{}", lines[0]);
+        assert!(lines[1].chars().count() < 200);
+        let marker_at = lines[2].find('^').unwrap();
+        assert_eq!(&lines[1][marker_at..marker_at + 3], "bad");
+        assert_eq!(lines[2].trim(), "^^^");
+    }
+
+    #[test]
+    fn control_characters_in_the_source_cannot_reach_the_terminal() {
+        let out = rendered("a\x1b[31m: 1\n", 0..1);
+        assert!(!out.contains('\x1b'), "{out:?}");
     }
 
     #[test]

@@ -9,7 +9,8 @@ use super::{Key, PlannedStep};
 /// 2: entries' checksums cover their names, and keys hold the crate version.
 /// 3: a run stores its metrics on validation rows, a prepared partition its
 ///    validation rows and a data summary their counts (all empty without
-///    `validation`), so version 2 entries no longer decode.
+///    `validation`), and a data step's summary carries its data card (column
+///    statistics and warnings), so version 2 entries no longer decode.
 /// 4: a run keeps its held-out outputs, for the paired tests of issue 14.
 pub(crate) const CACHE_FORMAT_VERSION: u32 = 4;
 

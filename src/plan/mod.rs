@@ -183,6 +183,12 @@ pub struct Plan {
     pub(crate) limits: Limits,
 }
 
+/// Whether `file` lies inside the project of the document in `document_dir`, links
+/// resolved: the report embeds only such images, whatever `--allow-outside` says.
+pub(crate) fn inside_project(document_dir: &Path, file: &Path) -> bool {
+    confinement::is_inside(file, &confinement::project_root(document_dir))
+}
+
 impl Plan {
     pub fn index_of(&self, id: &str) -> Option<usize> {
         self.steps.iter().position(|step| step.id == id)

@@ -3,10 +3,12 @@
 
 use serde::Serialize;
 
-use super::chart::{self, Axes, Series};
+use super::chart::{self, Axes, Bar, HeatMap, Positions, Series};
 use super::format::number;
 use super::verdict::{NOT_ENOUGH_ROWS, evidence, p_text};
-use super::view::{HONEST_CHOICE, mean_curve, stat_text, stop_counts};
+use super::view::{
+    HONEST_CHOICE, log_loss_is_loss, mean_curve, shown_stats, stat_text, stop_counts,
+};
 use crate::build::outcome::{FitResult, RowSet, SetMetrics, SweepResult, rank};
 use crate::document::spec::{ChartChoice, CompareSpec, MetricName};
 use crate::judge::{self, PairOutcome, Paired};
@@ -22,17 +24,29 @@ pub(crate) struct SweepView {
     pub metric_names: Vec<String>,
     pub rows_label: &'static str,
     pub rank_by: String,
+    pub combinations: usize,
+    /// The best [`TOP_ROWS`] combinations, shown in the card.
     pub rows: Vec<SweepRow>,
+    /// The rest, under a disclosure.
+    pub more_rows: Vec<SweepRow>,
     pub runs_per_combination: usize,
     pub loss_chart: String,
     pub loss_chart_note: String,
     /// How many combinations are within noise of the best, or why none was tested.
     pub noise_note: String,
-    /// The ranking metric against a numeric setting, when one was varied.
-    pub setting_chart: Option<String>,
-    pub setting_chart_note: String,
+    /// The ranking metric over the first two varied settings, when there are two.
+    pub heat_map: Option<Figure>,
+    /// The ranking metric against each varied setting.
+    pub marginals: Vec<Figure>,
     /// Said when the held-out rows chose the best, so its score is optimistic.
     pub choice_note: Option<String>,
+}
+
+/// A chart and its caption.
+#[derive(Serialize)]
+pub(crate) struct Figure {
+    pub svg: String,
+    pub note: String,
 }
 
 #[derive(Serialize)]
@@ -59,11 +73,12 @@ pub(crate) fn rows_label(rows: RowSet) -> &'static str {
 
 pub(crate) fn sweep_view(result: &SweepResult) -> SweepView {
     let first = &result.fits[0];
+    let hide = log_loss_is_loss(&result.fits);
     let stats_names: Vec<&'static str> = first
         .metric_stats(result.rank_rows)
-        .map(|stats| stats.iter().map(|s| s.name).collect())
+        .map(|stats| shown_stats(stats, hide).iter().map(|s| s.name).collect())
         .unwrap_or_default();
-    let rows = result
+    let mut rows: Vec<SweepRow> = result
         .ranking
         .iter()
         .enumerate()
@@ -84,7 +99,7 @@ pub(crate) fn sweep_view(result: &SweepResult) -> SweepView {
                     .collect(),
                 values: fit
                     .metric_stats(result.rank_rows)
-                    .map(|stats| stats.iter().map(stat_text).collect())
+                    .map(|stats| shown_stats(stats, hide).iter().map(stat_text).collect())
                     .unwrap_or_default(),
                 stop: stop_counts(fit),
             }
@@ -98,11 +113,8 @@ pub(crate) fn sweep_view(result: &SweepResult) -> SweepView {
         .collect();
     let series: Vec<Series> = shown
         .iter()
-        .map(|fit| Series {
-            label: describe(&fit.settings),
-            points: mean_curve(&fit.runs, false),
-            dashed: false,
-        })
+        .enumerate()
+        .map(|(n, fit)| Series::nth(n, describe(&fit.settings), mean_curve(&fit.runs, false)))
         .collect();
     let loss_chart_note = if result.fits.len() > MAX_LINES {
         format!(
@@ -111,7 +123,6 @@ pub(crate) fn sweep_view(result: &SweepResult) -> SweepView {
     } else {
         "Mean training loss per epoch of each combination, log scale.".to_string()
     };
-    let (setting_chart, setting_chart_note) = setting_chart(result);
     SweepView {
         setting_names: first
             .settings
@@ -121,13 +132,15 @@ pub(crate) fn sweep_view(result: &SweepResult) -> SweepView {
         metric_names: stats_names.iter().map(|n| n.replace('_', " ")).collect(),
         rows_label: rows_label(result.rank_rows),
         rank_by: result.rank_by.key().replace('_', " "),
+        combinations: result.fits.len(),
+        more_rows: rows.split_off(rows.len().min(TOP_ROWS)),
         rows,
         runs_per_combination: first.runs.len(),
         loss_chart: chart::line_chart(&series, &Axes::loss(true)),
         loss_chart_note,
         noise_note: noise_note(result),
-        setting_chart,
-        setting_chart_note,
+        heat_map: heat_map(result),
+        marginals: marginals(result),
         choice_note: (result.rank_rows == RowSet::Test).then(|| {
             format!(
                 "The best was chosen on the held-out rows, so its held-out score is optimistic. {HONEST_CHOICE}"
@@ -136,72 +149,168 @@ pub(crate) fn sweep_view(result: &SweepResult) -> SweepView {
     }
 }
 
-/// The ranking metric against the first varied setting whose values are all numbers,
-/// averaged over the other settings' values; a log axis when the values span a
-/// factor of 20 or more (learning rates usually do).
-fn setting_chart(result: &SweepResult) -> (Option<String>, String) {
-    let names: Vec<&String> = result.fits[0]
-        .settings
+/// Sweeps with more rows than this show the best ones and the rest under a disclosure.
+const TOP_ROWS: usize = 10;
+
+/// The ranking metric's value in every run of a fit (each seed and fold).
+fn run_values(result: &SweepResult, fit: &FitResult) -> Vec<f64> {
+    let key = result.rank_by.key();
+    fit.runs
         .iter()
-        .map(|varied| &varied.name)
-        .collect();
-    for (position, name) in names.iter().enumerate() {
-        let mut points: Vec<(f64, Vec<f64>)> = Vec::new();
-        let numeric = result
-            .fits
-            .iter()
-            .all(|fit| fit.settings[position].number().is_some());
-        if !numeric {
-            continue;
+        .filter_map(|run| run.metrics_on(result.rank_rows))
+        .filter_map(|set| set.named().into_iter().find(|(name, _)| *name == key))
+        .map(|(_, value)| value)
+        .collect()
+}
+
+/// A varied setting's values in the order first met, and each one's runs' values of
+/// the ranking metric (over seeds and every other setting).
+fn by_value(result: &SweepResult, position: usize) -> Vec<(String, Option<f64>, Vec<f64>)> {
+    let mut groups: Vec<(String, Option<f64>, Vec<f64>)> = Vec::new();
+    for fit in &result.fits {
+        let varied = &fit.settings[position];
+        let values = run_values(result, fit);
+        match groups.iter_mut().find(|(text, _, _)| *text == varied.text) {
+            Some((_, _, group)) => group.extend(values),
+            None => groups.push((varied.text.clone(), varied.number(), values)),
         }
-        for fit in &result.fits {
-            let x = fit.settings[position].number().expect("checked numeric");
-            let Some(stat) = fit.metric(result.rank_by, result.rank_rows) else {
-                continue;
+    }
+    if groups.iter().all(|(_, number, _)| number.is_some()) {
+        groups.sort_by(|a, b| a.1.unwrap_or(0.0).total_cmp(&b.1.unwrap_or(0.0)));
+    }
+    groups
+}
+
+/// Mean and sample standard deviation (0 for fewer than two values).
+fn mean_and_sd(values: &[f64]) -> (f64, f64) {
+    let finite: Vec<f64> = values.iter().copied().filter(|v| v.is_finite()).collect();
+    if finite.is_empty() {
+        return (f64::NAN, 0.0);
+    }
+    let n = finite.len() as f64;
+    let mean = finite.iter().sum::<f64>() / n;
+    let sd = if finite.len() > 1 {
+        (finite.iter().map(|v| (v - mean).powi(2)).sum::<f64>() / (n - 1.0)).sqrt()
+    } else {
+        0.0
+    };
+    (mean, sd)
+}
+
+/// The ranking metric (mean over seeds and other settings) over the first two varied
+/// settings, the one with more values down the side so the cells stay wide enough for
+/// their numbers.
+fn heat_map(result: &SweepResult) -> Option<Figure> {
+    let first = &result.fits[0].settings;
+    if first.len() < 2 {
+        return None;
+    }
+    let (mut across, mut down) = (0, 1);
+    let count = |position| by_value(result, position).len();
+    if count(across) > count(down) {
+        std::mem::swap(&mut across, &mut down);
+    }
+    let columns: Vec<String> = by_value(result, across).into_iter().map(|g| g.0).collect();
+    let rows: Vec<String> = by_value(result, down).into_iter().map(|g| g.0).collect();
+    let mut runs = vec![vec![Vec::new(); columns.len()]; rows.len()];
+    for fit in &result.fits {
+        let column = columns.iter().position(|c| *c == fit.settings[across].text);
+        let row = rows.iter().position(|r| *r == fit.settings[down].text);
+        if let (Some(row), Some(column)) = (row, column) {
+            runs[row][column].extend(run_values(result, fit));
+        }
+    }
+    let cells: Vec<Vec<f64>> = runs
+        .iter()
+        .map(|row| row.iter().map(|values| mean_and_sd(values).0).collect())
+        .collect();
+    let higher_is_better = result.rank_by.higher_is_better();
+    let best = best_cell(&cells, higher_is_better);
+    let metric = result.rank_by.key().replace('_', " ");
+    let svg = chart::heat_map(&HeatMap {
+        x_name: &first[across].name,
+        x_labels: columns,
+        y_name: &first[down].name,
+        y_labels: rows,
+        cells,
+        best,
+        higher_is_better,
+    });
+    let others = if first.len() > 2 {
+        " and the other settings"
+    } else {
+        ""
+    };
+    Some(Figure {
+        svg,
+        note: format!(
+            "{} on the {} rows, mean over seeds{others}; lighter is better, the best cell outlined.",
+            capitalise(&metric),
+            rows_label(result.rank_rows)
+        ),
+    })
+}
+
+/// The (row, column) of the best finite cell.
+fn best_cell(cells: &[Vec<f64>], higher_is_better: bool) -> Option<(usize, usize)> {
+    let mut best: Option<((usize, usize), f64)> = None;
+    for (i, row) in cells.iter().enumerate() {
+        for (j, &value) in row.iter().enumerate() {
+            let better = match best {
+                None => value.is_finite(),
+                Some((_, b)) if higher_is_better => value > b,
+                Some((_, b)) => value < b,
             };
-            match points.iter_mut().find(|(px, _)| *px == x) {
-                Some((_, values)) => values.push(stat.mean),
-                None => points.push((x, vec![stat.mean])),
+            if better {
+                best = Some(((i, j), value));
             }
         }
-        if points.len() < 2 {
-            continue;
-        }
-        points.sort_by(|a, b| a.0.total_cmp(&b.0));
-        let line: Vec<(f64, f64)> = points
-            .iter()
-            .map(|(x, values)| (*x, values.iter().sum::<f64>() / values.len() as f64))
-            .collect();
-        let (lo, hi) = (line[0].0, line[line.len() - 1].0);
-        let log_x = lo > 0.0 && hi / lo >= 20.0;
-        let metric = result.rank_by.key().replace('_', " ");
-        let svg = chart::line_chart(
-            &[Series {
-                label: metric.clone(),
-                points: line,
-                dashed: false,
-            }],
-            &Axes {
-                x_label: name,
-                y_label: &metric,
-                log_x,
-                log_y: false,
-            },
-        );
-        let note = format!(
-            "{} on the {} rows against {name}{}{}.",
-            capitalise(&metric),
-            rows_label(result.rank_rows),
-            if names.len() > 1 {
-                ", averaged over the other settings"
-            } else {
-                ""
-            },
-            if log_x { " (log axis)" } else { "" }
-        );
-        return (Some(svg), note);
     }
-    (None, String::new())
+    best.map(|(at, _)| at)
+}
+
+/// Numbers spanning more than this factor get a log axis (learning rates usually do).
+const LOG_SPAN: f64 = 20.0;
+
+/// For each varied setting, the ranking metric's mean ± sd over seeds and the other
+/// settings at each of its values; numbers on a number line, other values as categories.
+fn marginals(result: &SweepResult) -> Vec<Figure> {
+    let metric = result.rank_by.key().replace('_', " ");
+    result.fits[0]
+        .settings
+        .iter()
+        .enumerate()
+        .map(|(position, varied)| {
+            let groups = by_value(result, position);
+            let means: Vec<(f64, f64)> = groups.iter().map(|g| mean_and_sd(&g.2)).collect();
+            let numbers: Option<Vec<f64>> = groups.iter().map(|g| g.1).collect();
+            let positions = match numbers {
+                Some(values) => {
+                    let (lo, hi) = values
+                        .iter()
+                        .fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), &v| {
+                            (lo.min(v), hi.max(v))
+                        });
+                    let log = lo > 0.0 && hi / lo > LOG_SPAN;
+                    Positions::Numbers { values, log }
+                }
+                None => Positions::Categories(groups.iter().map(|g| g.0.clone()).collect()),
+            };
+            let log_note = match positions {
+                Positions::Numbers { log: true, .. } => " (log axis)",
+                _ => "",
+            };
+            Figure {
+                svg: chart::marginal_chart(&positions, &means, &varied.name, &metric),
+                note: format!(
+                    "{} on the {} rows at each {}{log_note}: mean ± sd over seeds and the other settings.",
+                    capitalise(&metric),
+                    rows_label(result.rank_rows),
+                    varied.name
+                ),
+            }
+        })
+        .collect()
 }
 
 fn capitalise(text: &str) -> String {
@@ -290,10 +399,13 @@ pub(crate) fn compare_view(spec: &CompareSpec, entries: &[Compared<'_>]) -> Comp
             let series: Vec<Series> = entries
                 .iter()
                 .take(MAX_LINES)
-                .map(|entry| Series {
-                    label: entry.id.to_string(),
-                    points: mean_curve(&entry.fit.runs, unfitted),
-                    dashed: false,
+                .enumerate()
+                .map(|(n, entry)| {
+                    Series::nth(
+                        n,
+                        entry.id.to_string(),
+                        mean_curve(&entry.fit.runs, unfitted),
+                    )
                 })
                 .collect();
             let scale = if spec.log_scale {
@@ -311,14 +423,15 @@ pub(crate) fn compare_view(spec: &CompareSpec, entries: &[Compared<'_>]) -> Comp
         }
         ChartChoice::Metric => {
             let metric = metrics.first().copied().unwrap_or(MetricName::Loss);
-            let bars: Vec<(String, f64)> = entries
+            let bars: Vec<Bar> = entries
                 .iter()
                 .map(|entry| {
-                    let value = entry
-                        .fit
-                        .metric(metric, entry.fit.report_rows())
-                        .map_or(f64::NAN, |s| s.mean);
-                    (entry.id.to_string(), value)
+                    let stat = entry.fit.metric(metric, entry.fit.report_rows());
+                    Bar {
+                        label: entry.id.to_string(),
+                        value: stat.as_ref().map_or(f64::NAN, |s| s.mean),
+                        spread: stat.and_then(|s| s.sd),
+                    }
                 })
                 .collect();
             let name = metric.key().replace('_', " ");

@@ -2,10 +2,12 @@
 //! from minijinja templates compiled into the binary (or read from `--templates DIR`).
 //! Renderers return strings; only the command layer writes files.
 
+pub(crate) mod card_view;
 pub(crate) mod chart;
 pub(crate) mod compare_view;
 pub(crate) mod diff_view;
 pub(crate) mod format;
+pub(crate) mod headline;
 pub(crate) mod model_view;
 pub(crate) mod prose;
 pub(crate) mod settings;
@@ -101,6 +103,8 @@ pub(crate) struct ReportInput<'a> {
     pub plan: &'a Plan,
     pub results: &'a BuildResult,
     pub allow_html: bool,
+    /// Local images the prose shows, read by the command layer.
+    pub images: &'a prose::Embedded,
     /// When the build ran, already formatted.
     pub built_at: &'a str,
     /// The report's file name, for the footer's unpack command.
@@ -119,6 +123,7 @@ struct ReportView<'a> {
     version: &'static str,
     document_name: &'a str,
     document_hash: &'a str,
+    headlines: Vec<headline::Headline>,
     pieces: Vec<PieceView>,
     /// The footer's sentence on unpacking, its command, and the block it unpacks.
     unpack_hint: String,
@@ -161,8 +166,10 @@ pub(crate) fn render(
     input: &ReportInput<'_>,
     templates: &Templates,
 ) -> Result<String, minijinja::Error> {
+    let title = title(input);
     let view = ReportView {
-        title: title(input),
+        pieces: pieces(input, &title),
+        title,
         author: input.document.front.author.as_deref(),
         notes: input.document.front.notes.as_deref(),
         built_at: input.built_at,
@@ -170,7 +177,7 @@ pub(crate) fn render(
         version: env!("CARGO_PKG_VERSION"),
         document_name: input.document_name,
         document_hash: input.document_hash,
-        pieces: pieces(input),
+        headlines: headline::headlines(input.plan, input.results),
         unpack_hint: unpack_hint(input),
         unpack_command: format!("stet unpack {}", input.report_file),
         experiment: &input.carried.html,
@@ -235,17 +242,22 @@ fn run_summary(results: &BuildResult) -> String {
     summary
 }
 
-fn pieces(input: &ReportInput<'_>) -> Vec<PieceView> {
+fn pieces(input: &ReportInput<'_>, title: &str) -> Vec<PieceView> {
     let mut views = Vec::new();
     let mut pending_prose: Option<&str> = None;
     let flush = |views: &mut Vec<PieceView>, prose: &str| {
         views.push(PieceView::Prose {
-            html: prose::render(prose, input.allow_html),
+            html: prose::render(prose, input.allow_html, input.images),
         })
     };
     for (index, piece) in input.document.pieces.iter().enumerate() {
         match piece {
             Piece::Prose(markdown) => {
+                let markdown = if index == 0 {
+                    without_leading_title(markdown, title)
+                } else {
+                    markdown.as_str()
+                };
                 if let Some(previous) = pending_prose.replace(markdown) {
                     flush(&mut views, previous);
                 }
@@ -268,7 +280,7 @@ fn pieces(input: &ReportInput<'_>) -> Vec<PieceView> {
                     input,
                     step_index,
                     &block.yaml,
-                    prose::render(beside, input.allow_html),
+                    prose::render(beside, input.allow_html, input.images),
                 ))));
             }
         }
@@ -277,6 +289,31 @@ fn pieces(input: &ReportInput<'_>) -> Vec<PieceView> {
         flush(&mut views, rest);
     }
     views
+}
+
+/// The document's prose without its leading `# Title` when that is the report's title,
+/// which the masthead already shows.
+fn without_leading_title<'a>(markdown: &'a str, title: &str) -> &'a str {
+    let mut events = Parser::new(markdown).into_offset_iter();
+    let Some((Event::Start(Tag::Heading { level, .. }), heading)) = events.next() else {
+        return markdown;
+    };
+    if level != pulldown_cmark::HeadingLevel::H1 {
+        return markdown;
+    }
+    let mut text = String::new();
+    for (event, _) in events {
+        match event {
+            Event::Text(t) | Event::Code(t) => text.push_str(&t),
+            Event::End(pulldown_cmark::TagEnd::Heading(_)) => break,
+            _ => {}
+        }
+    }
+    if text.trim() == title.trim() {
+        &markdown[heading.end..]
+    } else {
+        markdown
+    }
 }
 
 /// Splits the prose before a step at its last heading: the part up to the heading
@@ -415,6 +452,17 @@ mod tests {
         assert_eq!(lead, "# Title\n\nIntro.\n\n");
         assert_eq!(beside, "## Base run\n\nWhy.\n");
         assert_eq!(split_lead("Only prose.\n"), ("", "Only prose.\n"));
+    }
+
+    #[test]
+    fn a_leading_title_heading_is_left_out_of_the_prose_only_when_it_is_the_title() {
+        let markdown = "# Hives\n\nIntro.\n\n## Data\n";
+        assert_eq!(
+            without_leading_title(markdown, "Hives"),
+            "\nIntro.\n\n## Data\n"
+        );
+        assert_eq!(without_leading_title(markdown, "Other"), markdown);
+        assert_eq!(without_leading_title("## Hives\n", "Hives"), "## Hives\n");
     }
 
     #[test]

@@ -55,6 +55,8 @@ pub(crate) struct ExportView {
     pub layers: usize,
     /// The file format's name as people write it.
     pub format: &'static str,
+    /// Whether the file lists class labels (a classifier's export).
+    pub classes: bool,
 }
 
 /// The written file's size is that of the bytes the build wrote, stamped with the
@@ -67,5 +69,6 @@ pub(crate) fn export_view(result: &ExportResult, document_hash: &str) -> ExportV
             ExportFormat::Json => "JSON",
             ExportFormat::Onnx => "ONNX",
         },
+        classes: result.model.classes.is_some(),
     }
 }

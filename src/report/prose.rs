@@ -2,24 +2,64 @@
 //! allows it, because reports are opened by people other than the document's author.
 //! Links keep only destinations that cannot run code or reach the reader's machine,
 //! and images are never loaded: opening a report must not fetch anything (issue 12).
+//! A local image inside the project is embedded as a `data:` URI instead (issue 16), so
+//! a mailed report stays whole; any other image is shown as a link.
 
+use std::collections::HashMap;
 use std::iter::Peekable;
 
 use pulldown_cmark::{CowStr, Event, LinkType, Parser, Tag, TagEnd, html};
 
 use crate::document::markdown_options;
 
+/// Images the report embeds: each destination as written in the prose, with its
+/// `data:` URI. Made by the command layer, which reads the files.
+pub(crate) type Embedded = HashMap<String, String>;
+
+/// The destinations of the images in some prose that may be local files: those with no
+/// scheme (a relative or absolute path).
+pub(crate) fn local_image_destinations(markdown: &str) -> Vec<String> {
+    Parser::new_ext(markdown, markdown_options())
+        .filter_map(|event| match event {
+            Event::Start(Tag::Image { dest_url, .. }) if scheme_of(&dest_url).is_none() => {
+                Some(dest_url.to_string())
+            }
+            _ => None,
+        })
+        .collect()
+}
+
 /// Renders Markdown; with `allow_html` false, raw HTML blocks and inline tags are escaped.
-/// Link destinations are filtered and images shown as links whatever `allow_html` says.
-pub(crate) fn render(markdown: &str, allow_html: bool) -> String {
+/// Link destinations are filtered and images shown as links whatever `allow_html` says,
+/// except those in `embedded`, which are shown from their `data:` URI.
+pub(crate) fn render(markdown: &str, allow_html: bool, embedded: &Embedded) -> String {
     let events = Parser::new_ext(markdown, markdown_options()).map(|event| match event {
         Event::Html(raw) | Event::InlineHtml(raw) if !allow_html => Event::Text(raw),
         other => other,
     });
     let mut out = String::with_capacity(markdown.len() * 3 / 2);
+    let events = events.map(|event| match event {
+        Event::Start(Tag::Image {
+            link_type,
+            dest_url,
+            title,
+            id,
+        }) if embedded.contains_key(dest_url.as_ref()) => Event::Start(Tag::Image {
+            link_type,
+            dest_url: CowStr::from(format!("{EMBEDDED_MARK}{}", embedded[dest_url.as_ref()])),
+            title,
+            id,
+        }),
+        other => other,
+    });
     html::push_html(&mut out, SafeLinks::new(events));
     out
 }
+
+/// Marks an image destination replaced by its embedded `data:` URI, so `SafeLinks`
+/// keeps that image (a `data:` URI written in the prose is still refused). A NUL cannot
+/// come from Markdown: the parser replaces it.
+const EMBEDDED_MARK: &str = "\0embedded:";
 
 /// Schemes a report may link to. Everything else (`javascript:`, `vbscript:`, `data:`,
 /// `file:`, schemes nobody has heard of) could run code or open something on the
@@ -56,10 +96,20 @@ fn scheme_of(url: &str) -> Option<&str> {
 /// is ever written.
 struct SafeLinks<'a, I: Iterator<Item = Event<'a>>> {
     events: Peekable<I>,
-    /// For each open link or image, whether its start was kept (so is its end).
-    open: Vec<bool>,
+    /// For each open link or image, what its start became (so its end matches).
+    open: Vec<Opened>,
     /// The URL to show as an image link's text when the image has no alt text.
     pending_text: Option<CowStr<'a>>,
+}
+
+/// What the start of a link or image was written as.
+#[derive(Clone, Copy, PartialEq)]
+enum Opened {
+    Link,
+    /// Left out: only its text is shown.
+    Dropped,
+    /// An embedded image.
+    Image,
 }
 
 impl<'a, I: Iterator<Item = Event<'a>>> SafeLinks<'a, I> {
@@ -73,12 +123,13 @@ impl<'a, I: Iterator<Item = Event<'a>>> SafeLinks<'a, I> {
 
     /// Links cannot nest in HTML: inside a kept link, an image is only its alt text.
     fn inside_kept_link(&self) -> bool {
-        self.open.iter().any(|&kept| kept)
+        self.open.contains(&Opened::Link)
     }
 
     fn start_link(&mut self, dest_url: &str) -> bool {
         let keep = is_allowed_destination(dest_url) && !self.inside_kept_link();
-        self.open.push(keep);
+        self.open
+            .push(if keep { Opened::Link } else { Opened::Dropped });
         keep
     }
 }
@@ -99,6 +150,20 @@ impl<'a, I: Iterator<Item = Event<'a>>> Iterator for SafeLinks<'a, I> {
                     }
                 }
                 Event::Start(Tag::Image {
+                    link_type,
+                    dest_url,
+                    title,
+                    id,
+                }) if dest_url.starts_with(EMBEDDED_MARK) => {
+                    self.open.push(Opened::Image);
+                    return Some(Event::Start(Tag::Image {
+                        link_type,
+                        dest_url: CowStr::from(dest_url[EMBEDDED_MARK.len()..].to_string()),
+                        title,
+                        id,
+                    }));
+                }
+                Event::Start(Tag::Image {
                     dest_url,
                     title,
                     id,
@@ -116,11 +181,11 @@ impl<'a, I: Iterator<Item = Event<'a>>> Iterator for SafeLinks<'a, I> {
                         }));
                     }
                 }
-                Event::End(TagEnd::Link | TagEnd::Image) => {
-                    if self.open.pop() == Some(true) {
-                        return Some(Event::End(TagEnd::Link));
-                    }
-                }
+                Event::End(TagEnd::Link | TagEnd::Image) => match self.open.pop() {
+                    Some(Opened::Link) => return Some(Event::End(TagEnd::Link)),
+                    Some(Opened::Image) => return Some(Event::End(TagEnd::Image)),
+                    Some(Opened::Dropped) | None => {}
+                },
                 other => return Some(other),
             }
         }
@@ -134,15 +199,15 @@ mod tests {
     #[test]
     fn raw_html_is_escaped_unless_allowed() {
         let markdown = "Hello <script>alert(1)</script> *world*\n";
-        let safe = render(markdown, false);
+        let safe = render(markdown, false, &Embedded::new());
         assert!(safe.contains("&lt;script&gt;"), "{safe}");
         assert!(safe.contains("<em>world</em>"));
-        assert!(render(markdown, true).contains("<script>"));
+        assert!(render(markdown, true, &Embedded::new()).contains("<script>"));
     }
 
     #[test]
     fn github_tables_render() {
-        let html = render("| a | b |\n|---|---|\n| 1 | 2 |\n", false);
+        let html = render("| a | b |\n|---|---|\n| 1 | 2 |\n", false, &Embedded::new());
         assert!(
             html.contains("<table>") && html.contains("<td>2</td>"),
             "{html}"
@@ -185,6 +250,7 @@ mod tests {
         let html = render(
             "![plot](https://example.org/p.png) ![](http://x.example/q.gif)",
             false,
+            &Embedded::new(),
         );
         assert!(!html.contains("<img"), "{html}");
         assert!(
@@ -195,5 +261,28 @@ mod tests {
             html.contains(r#"<a href="http://x.example/q.gif">http://x.example/q.gif</a>"#),
             "{html}"
         );
+    }
+
+    #[test]
+    fn an_embedded_image_is_an_img_from_its_data_uri_and_others_stay_links() {
+        let embedded = Embedded::from([(
+            "plots/p.png".to_string(),
+            "data:image/png;base64,AAAA".to_string(),
+        )]);
+        let html = render(
+            "![a plot](plots/p.png) ![raw](data:image/png;base64,BBBB) ![away](other.png)",
+            false,
+            &embedded,
+        );
+        assert!(
+            html.contains(r#"<img src="data:image/png;base64,AAAA" alt="a plot" />"#),
+            "{html}"
+        );
+        assert!(
+            !html.contains("BBBB\""),
+            "a data: URI in the prose is refused: {html}"
+        );
+        assert!(html.contains(r#"<a href="other.png">away</a>"#), "{html}");
+        assert_eq!(html.matches("<img").count(), 1);
     }
 }

@@ -3,13 +3,15 @@
 
 use serde_json::{Map, Value, json};
 
+use super::card_view::warning_text;
 use super::format::stop_code;
 use super::verdict::verdict;
 use crate::build::outcome::{FitResult, MetricStat, Outcome, RowSet, RunResult, SetMetrics};
 use crate::build::{BuildResult, Status};
+use crate::data::card::{ColumnProfile, DataCard, Values};
 use crate::document::StepSpec;
+use crate::document::names::word;
 use crate::document::spec::sweep::Varied;
-use crate::document::spec::word;
 use crate::judge::stats::{self, Interval};
 use crate::judge::{self, Judgement, PairOutcome, Paired, Scores};
 use crate::plan::{Plan, PlannedStep};
@@ -85,6 +87,7 @@ pub(crate) fn summary(
                 Some(Outcome::Compare) => {
                     object.insert("pairs".into(), compare_pairs(plan, results, step));
                 }
+                Some(Outcome::Data(data)) => data_fields(&data.card, &mut object),
                 Some(Outcome::Predict(predict)) => {
                     object.insert("rows".into(), json!(predict.lines.len()));
                 }
@@ -102,6 +105,58 @@ fn spec_settings(spec: &StepSpec) -> Value {
         Value::Object(tagged) => tagged.into_iter().next().map_or(Value::Null, |(_, v)| v),
         other => other,
     }
+}
+
+/// A data step's column statistics and warnings.
+fn data_fields(card: &DataCard, object: &mut Map<String, Value>) {
+    let columns = card.columns.iter().map(column_stats).collect();
+    object.insert("columns".into(), Value::Array(columns));
+    let warnings = card
+        .warnings
+        .iter()
+        .map(|warning| {
+            json!({
+                "column": warning.column(),
+                "code": word(&warning.code()),
+                "message": warning_text(warning),
+            })
+        })
+        .collect();
+    object.insert("warnings".into(), Value::Array(warnings));
+}
+
+fn column_stats(column: &ColumnProfile) -> Value {
+    let mut object = Map::new();
+    object.insert("name".into(), json!(column.name));
+    object.insert("role".into(), json!(word(&column.role)));
+    object.insert("count".into(), json!(column.count));
+    object.insert("missing".into(), json!(column.missing));
+    object.insert("distinct".into(), json!(column.distinct));
+    match &column.values {
+        Values::Numeric(stats) => {
+            object.insert("kind".into(), json!("numeric"));
+            if let Some(stats) = stats {
+                for (name, value) in [
+                    ("min", Some(stats.min)),
+                    ("median", Some(stats.median)),
+                    ("max", Some(stats.max)),
+                    ("mean", Some(stats.mean)),
+                    ("sd", stats.sd),
+                ] {
+                    object.insert(name.into(), value.map_or(Value::Null, number));
+                }
+            }
+        }
+        Values::Text { most_common } => {
+            object.insert("kind".into(), json!("text"));
+            let listed = most_common
+                .iter()
+                .map(|(value, count)| json!({"value": value, "count": count}))
+                .collect();
+            object.insert("most_common".into(), Value::Array(listed));
+        }
+    }
+    Value::Object(object)
 }
 
 fn train_fields(result: &FitResult, object: &mut Map<String, Value>) {

@@ -3,7 +3,8 @@
 
 use serde::Serialize;
 
-use super::chart::{self, Series};
+use super::card_view::{CardView, card_view};
+use super::chart::{self, Dash, Series, Weight};
 use super::format::{mean_sd, number, seconds, stop_reason};
 use super::verdict::{NOT_ENOUGH_ROWS, Verdict, verdict};
 use crate::build::outcome::{DataSummary, FitResult, MetricStat, RowSet, SetMetrics};
@@ -18,18 +19,12 @@ pub(crate) struct DataView {
     pub rows_read: usize,
     pub rows_dropped: usize,
     pub features: usize,
-    pub columns: Vec<ColumnView>,
+    /// Column statistics and warnings.
+    pub card: CardView,
     pub targets: String,
     pub split: String,
     pub classes: Vec<ClassRow>,
     pub scale: String,
-}
-
-#[derive(Serialize)]
-pub(crate) struct ColumnView {
-    pub name: String,
-    pub kind: String,
-    pub note: String,
 }
 
 #[derive(Serialize)]
@@ -41,48 +36,7 @@ pub(crate) struct ClassRow {
     pub test: usize,
 }
 
-/// Fewest categories at which a text input whose values are mostly unique to a row
-/// is flagged as looking like an identifier (below it, a small table's few texts).
-const IDENTIFIER_LIKE_CATEGORIES: usize = 20;
-
 pub(crate) fn data_view(summary: &DataSummary) -> DataView {
-    let rows_used = summary.rows_read - summary.rows_dropped;
-    let columns = summary
-        .columns
-        .iter()
-        .map(|column| {
-            let mut notes = Vec::new();
-            let kind = match &column.kind {
-                crate::data::ColumnKind::Numeric => "numeric".to_string(),
-                crate::data::ColumnKind::Categorical { categories } => {
-                    notes.push(format!("one-hot: {}", categories.join(", ")));
-                    if categories.len() >= IDENTIFIER_LIKE_CATEGORIES
-                        && 2 * categories.len() > rows_used
-                    {
-                        notes.push(
-                            "most values occur on one row only, like an identifier or free \
-                             text: each adds an input with little to learn from; consider \
-                             listing `inputs:` without it"
-                                .to_string(),
-                        );
-                    }
-                    format!("text, {} categories", categories.len())
-                }
-            };
-            if column.constant {
-                notes.push(
-                    "constant on the training rows: carries no information, left unscaled"
-                        .to_string(),
-                );
-            }
-            let note = notes.join("; ");
-            ColumnView {
-                name: column.name.clone(),
-                kind,
-                note,
-            }
-        })
-        .collect();
     let first = &summary.partitions[0];
     let split = match (summary.partitions.len(), first.validation_rows) {
         (1, 0) => format!(
@@ -124,7 +78,7 @@ pub(crate) fn data_view(summary: &DataSummary) -> DataView {
         rows_read: summary.rows_read,
         rows_dropped: summary.rows_dropped,
         features: summary.feature_count,
-        columns,
+        card: card_view(summary),
         targets: summary.target_names.join(", "),
         split,
         classes,
@@ -260,10 +214,16 @@ pub(crate) fn train_view(result: &FitResult, classes: Option<&[String]>) -> Trai
         })
         .collect::<Vec<_>>()
         .join(" → ");
-    let train_stats = result
-        .metric_stats(RowSet::Train)
-        .expect("every run has training rows");
-    let test_stats = result.metric_stats(RowSet::Test);
+    let hide = log_loss_is_loss(std::slice::from_ref(result));
+    let train_stats = shown_stats(
+        result
+            .metric_stats(RowSet::Train)
+            .expect("every run has training rows"),
+        hide,
+    );
+    let test_stats = result
+        .metric_stats(RowSet::Test)
+        .map(|stats| shown_stats(stats, hide));
     let metric_names = train_stats
         .iter()
         .map(|stat| stat.name.replace('_', " "))
@@ -291,15 +251,19 @@ pub(crate) fn train_view(result: &FitResult, classes: Option<&[String]>) -> Trai
     } else {
         runs.iter()
             .enumerate()
-            .map(|(i, run)| fold_row(i, run))
+            .map(|(i, run)| fold_row(i, run, hide))
             .collect()
     };
     let stop = stop_counts(result);
     let epochs = if single {
-        runs[0].fit.epochs_run.to_string()
+        format!("{} epochs", runs[0].fit.epochs_run)
     } else {
         let total: usize = runs.iter().map(|run| run.fit.epochs_run).sum();
-        format!("{} on average", total / runs.len())
+        format!(
+            "{} epochs on average over {} runs",
+            total / runs.len(),
+            runs.len()
+        )
     };
     TrainView {
         layers,
@@ -351,8 +315,30 @@ pub(crate) fn stat_text(stat: &MetricStat) -> String {
     }
 }
 
+/// Whether every run's log loss is its loss (a classifier trained on cross-entropy),
+/// so that tables show the one column "loss" for the two.
+pub(crate) fn log_loss_is_loss(fits: &[FitResult]) -> bool {
+    fits.iter()
+        .flat_map(|fit| &fit.runs)
+        .flat_map(|run| std::iter::once(&run.train).chain(run.test.as_ref()))
+        .all(|set| match set {
+            SetMetrics::Classification { loss, metrics } => {
+                (loss - metrics.log_loss).abs() <= 1e-9 * loss.abs().max(1.0)
+            }
+            SetMetrics::Regression { .. } => true,
+        })
+}
+
+/// The metrics a table shows: log loss only when it is not the loss again.
+pub(crate) fn shown_stats(stats: Vec<MetricStat>, hide_log_loss: bool) -> Vec<MetricStat> {
+    stats
+        .into_iter()
+        .filter(|stat| !(hide_log_loss && stat.name == "log_loss"))
+        .collect()
+}
+
 /// A fold's row in the per-fold table: its held-out metrics.
-fn fold_row(index: usize, run: &crate::build::outcome::RunResult) -> FoldRow {
+fn fold_row(index: usize, run: &crate::build::outcome::RunResult, hide_log_loss: bool) -> FoldRow {
     let set = run.test.as_ref().unwrap_or(&run.train);
     FoldRow {
         fold: index + 1,
@@ -361,6 +347,7 @@ fn fold_row(index: usize, run: &crate::build::outcome::RunResult) -> FoldRow {
         values: set
             .named()
             .iter()
+            .filter(|(name, _)| !(hide_log_loss && *name == "log_loss"))
             .map(|(_, value)| number(*value))
             .collect(),
     }
@@ -386,42 +373,90 @@ pub(crate) fn stop_counts(result: &FitResult) -> String {
     }
 }
 
-/// Training and validation loss per epoch; with folds, one pair of lines per fold.
+/// Training and validation loss per epoch. With folds, each fold is a thin line and the
+/// mean over folds a bold one, one legend entry each for training and validation.
 fn loss_chart(result: &FitResult) -> String {
-    let several = result.runs.len() > 1;
+    let runs = &result.runs;
     let mut series = Vec::new();
-    for (i, run) in result.runs.iter().enumerate() {
-        let suffix = if several {
-            format!(" (fold {})", i + 1)
-        } else {
-            String::new()
-        };
-        let history = &run.fit.history;
-        series.push(Series {
-            label: format!("training{suffix}"),
-            points: chart::thin(
-                history
-                    .iter()
-                    .enumerate()
-                    .map(|(e, l)| ((e + 1) as f64, l.train))
-                    .collect(),
-            ),
-            dashed: false,
-        });
-        let validation: Vec<(f64, f64)> = history
-            .iter()
-            .enumerate()
-            .filter_map(|(e, l)| l.validation.map(|v| ((e + 1) as f64, v)))
-            .collect();
-        if !validation.is_empty() {
-            series.push(Series {
-                label: format!("validation{suffix}"),
-                points: chart::thin(validation),
-                dashed: true,
-            });
+    let (train_label, validation_label) = if runs.len() > 1 {
+        let of = format!(" (mean of {} folds)", runs.len());
+        (format!("training{of}"), format!("validation{of}"))
+    } else {
+        ("training".to_string(), "validation".to_string())
+    };
+    if runs.len() > 1 {
+        for run in runs {
+            series.push(loss_line(
+                None,
+                history_curve(run, false),
+                false,
+                Weight::Thin,
+            ));
+            series.push(loss_line(
+                None,
+                history_curve(run, true),
+                true,
+                Weight::Thin,
+            ));
         }
     }
+    let weight = if runs.len() > 1 {
+        Weight::Bold
+    } else {
+        Weight::Regular
+    };
+    series.push(loss_line(
+        Some(train_label),
+        mean_curve(runs, false),
+        false,
+        weight,
+    ));
+    let validation = mean_curve(runs, true);
+    if !validation.is_empty() {
+        series.push(loss_line(Some(validation_label), validation, true, weight));
+    }
+    series.retain(|line| !line.points.is_empty());
     chart::line_chart(&series, &chart::Axes::loss(true))
+}
+
+/// A line of a loss chart: training loss in the first colour, solid; validation in the
+/// second, dashed.
+fn loss_line(
+    label: Option<String>,
+    points: Vec<(f64, f64)>,
+    validation: bool,
+    weight: Weight,
+) -> Series {
+    Series {
+        label,
+        points,
+        colour: usize::from(validation),
+        dash: if validation {
+            Dash::Dashed
+        } else {
+            Dash::Solid
+        },
+        weight,
+    }
+}
+
+/// One run's loss per epoch, thinned for drawing.
+fn history_curve(run: &crate::build::outcome::RunResult, validation: bool) -> Vec<(f64, f64)> {
+    chart::thin(
+        run.fit
+            .history
+            .iter()
+            .enumerate()
+            .filter_map(|(e, losses)| {
+                let value = if validation {
+                    losses.validation
+                } else {
+                    Some(losses.train)
+                };
+                value.map(|v| ((e + 1) as f64, v))
+            })
+            .collect(),
+    )
 }
 
 /// The confusion matrix summed over runs, on held-out rows when there are any.

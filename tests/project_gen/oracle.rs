@@ -14,6 +14,7 @@ use std::sync::Mutex;
 use std::sync::mpsc;
 use std::time::Duration;
 
+use stet::document::Decoration;
 use stet::plan::PlanOptions;
 use stet::{BuildOptions, BuildSummary, CacheChoice, Error};
 
@@ -283,12 +284,8 @@ fn located(errors: &stet::document::DocumentErrors) -> Vec<Failure> {
             message: p.message.clone(),
         })
         .collect();
-    let handler = miette::GraphicalReportHandler::new();
-    for diagnostic in errors.diagnostics() {
-        let rendered = std::panic::catch_unwind(AssertUnwindSafe(|| {
-            let mut out = String::new();
-            let _ = handler.render_report(&mut out, &diagnostic);
-        }));
+    for decoration in [Decoration::Plain, Decoration::Terminal] {
+        let rendered = std::panic::catch_unwind(AssertUnwindSafe(|| errors.rendered(decoration)));
         if let Err(payload) = rendered {
             let Failure::Panic { message, .. } = panic_failure(&*payload) else {
                 unreachable!("panic_failure makes a panic");
