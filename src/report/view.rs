@@ -138,7 +138,10 @@ pub(crate) fn judged_view(judgement: &Judgement) -> JudgedView {
         BaselineRule::TrainingMean => "training mean",
     };
     JudgedView {
-        metric_names: names.iter().map(|(n, _)| n.replace('_', " ")).collect(),
+        metric_names: names
+            .iter()
+            .map(|(n, _)| format!("held-out {}", n.replace('_', " ")))
+            .collect(),
         rows: vec![
             MetricRow {
                 rows: "network",
@@ -156,12 +159,18 @@ pub(crate) fn judged_view(judgement: &Judgement) -> JudgedView {
                 rows: "without a hidden layer",
                 values: values(&judgement.linear),
             },
-            MetricRow {
-                rows: "without a hidden layer, training rows",
-                values: values(&judgement.linear_train),
-            },
         ],
-        note: format!("{} held-out rows", judgement.held_out_rows),
+        note: format!(
+            "{} held-out rows; without a hidden layer on its own training rows: {}",
+            judgement.held_out_rows,
+            judgement
+                .linear_train
+                .named()
+                .iter()
+                .map(|(n, v)| format!("{} {}", n.replace('_', " "), number(*v)))
+                .collect::<Vec<_>>()
+                .join(", ")
+        ),
     }
 }
 
