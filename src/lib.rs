@@ -20,6 +20,7 @@ pub mod data;
 mod diff;
 pub mod document;
 pub(crate) mod export;
+pub mod judge;
 pub mod nn;
 pub mod plan;
 pub(crate) mod report;

@@ -247,12 +247,17 @@ fn clean_removes_exactly_the_unreferenced_entries() {
     );
     ws.build_ok(&doc, &[]);
     let after_edit = entry_files(&ws.path(".stet"));
-    assert_eq!(after_edit.len(), before.len() + 1, "one new run entry");
+    // The edited step's run and its judgement (issue 14); its reference is shared.
+    assert_eq!(
+        after_edit.len(),
+        before.len() + 2,
+        "one new run entry and its judgement"
+    );
 
     let output = stet(&["clean".into(), doc.display().to_string()], ws.dir.path());
     assert!(output.status.success());
     let stdout = String::from_utf8_lossy(&output.stdout);
-    assert!(stdout.starts_with("removed 1 cache entries"), "{stdout}");
+    assert!(stdout.starts_with("removed 2 cache entries"), "{stdout}");
     let remaining = entry_files(&ws.path(".stet"));
     assert_eq!(remaining.len(), before.len());
     let rebuilt = ws.build_ok(&doc, &[]);

@@ -7,6 +7,7 @@
 //! One run is `training`; predictions and exports are `model_use`; the results each
 //! step kind produces are `outcome`; a cluster task's part of the runs is `share`.
 
+mod judging;
 mod model_use;
 pub(crate) mod outcome;
 mod result;
@@ -25,6 +26,7 @@ use crate::cache::{Cache, EntryKind};
 use crate::data::{self, Prepared, Task};
 use crate::document::StepSpec;
 use crate::document::spec::MetricName;
+use crate::judge;
 use crate::plan::input_file::ReadError;
 use crate::plan::{Key, Limits, Plan, PlannedStep, Upstream, describe, weights_between};
 use model_use::ModelUseError;
@@ -248,7 +250,14 @@ fn execute_steps(plan: &Plan, cache: &Cache, options: &RunOptions) -> BuildResul
             Some(&seconds) => Status::Ran { seconds },
             None => Status::Reused,
         };
-        records[index] = Some(assemble(&plan.steps[index], fits, status, &records, plan));
+        let step = &plan.steps[index];
+        let judged = data_summary(plan, &records, step.fits[0].data).and_then(|summary| {
+            judging::judge_fits(plan, step, &fits.runs, summary.task, cache, &mut prepared)
+        });
+        records[index] = Some(match judged {
+            Ok(judgements) => assemble(step, fits, judgements, status, &records, plan),
+            Err(error) => StepResult::failed(error),
+        });
     }
 
     for &index in &plan.order {
@@ -632,6 +641,7 @@ fn fit_all<'t>(
 fn assemble(
     step: &PlannedStep,
     fits: PendingFits,
+    judgements: Vec<Option<Box<judge::Judgement>>>,
     status: Status,
     records: &[Option<StepResult>],
     plan: &Plan,
@@ -642,13 +652,15 @@ fn assemble(
         .iter()
         .zip(fits.shapes)
         .zip(fits.runs)
-        .map(|((fit_plan, shape), runs)| FitResult {
+        .zip(judgements)
+        .map(|(((fit_plan, shape), runs), judgement)| FitResult {
             settings: fit_plan.settings.clone(),
             shape,
             runs: runs
                 .into_iter()
                 .map(|run| run.expect("every run fitted or cached"))
                 .collect(),
+            judgement,
         })
         .collect();
     let outcome = match &step.spec {
@@ -670,12 +682,16 @@ fn assemble(
                 ));
             }
             let ranking = rank(&results, rank_by, rank_rows);
-            Outcome::Sweep(SweepResult {
+            let mut sweep_result = SweepResult {
                 fits: results,
                 rank_by,
                 rank_rows,
                 ranking,
-            })
+                within_noise_of_best: Vec::new(),
+            };
+            sweep_result.within_noise_of_best =
+                judging::within_noise_of_best(&sweep_result, step.fits[0].train.seed);
+            Outcome::Sweep(sweep_result)
         }
         _ => Outcome::Train(
             results

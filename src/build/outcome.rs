@@ -3,6 +3,7 @@
 
 use std::borrow::Borrow;
 
+use ndarray::Array2;
 use serde::{Deserialize, Serialize};
 
 use crate::data::card::DataCard;
@@ -10,6 +11,7 @@ use crate::data::{InputColumn, Scale, Task};
 use crate::document::spec::MetricName;
 use crate::document::spec::sweep::Varied;
 use crate::export::ExportResult;
+use crate::judge::Judgement;
 use crate::nn::{Activation, ClassificationMetrics, Loss, RegressionMetrics, TrainOutcome};
 
 /// Wall-clock seconds.
@@ -99,6 +101,9 @@ pub(crate) struct RunResult {
     /// On the training rows set aside by `validation`; `None` without them.
     pub validation: Option<SetMetrics>,
     pub test: Option<SetMetrics>,
+    /// The network's outputs on the held-out rows, in their order, for the paired
+    /// tests (`judge`); `None` without held-out rows.
+    pub held_out_outputs: Option<Array2<f64>>,
 }
 
 impl RunResult {
@@ -132,6 +137,9 @@ pub(crate) struct FitResult {
     pub settings: Vec<Varied>,
     pub shape: ModelShape,
     pub runs: Vec<RunResult>,
+    /// The fit against the baseline and the model without a hidden layer on its
+    /// held-out rows; `None` without held-out rows.
+    pub judgement: Option<Box<Judgement>>,
 }
 
 /// A sweep's result: its fits in grid order and their ranking.
@@ -143,6 +151,9 @@ pub(crate) struct SweepResult {
     pub rank_rows: RowSet,
     /// Indices into `fits`, best first.
     pub ranking: Vec<usize>,
+    /// Per fit: whether its paired test against the best is not significant at 0.05
+    /// on the ranking rows; `None` for the best and when no test could be made.
+    pub within_noise_of_best: Vec<Option<bool>>,
 }
 
 impl SweepResult {
@@ -359,7 +370,9 @@ mod tests {
                 train: metrics.clone(),
                 validation: None,
                 test: Some(metrics),
+                held_out_outputs: None,
             }],
+            judgement: None,
         }
     }
 

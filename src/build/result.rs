@@ -120,6 +120,7 @@ mod tests {
                 hints: Vec::new(),
             },
             runs: Vec::new(),
+            judgement: None,
         })
     }
 

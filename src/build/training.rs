@@ -3,6 +3,8 @@
 
 use std::time::Instant;
 
+use ndarray::Array2;
+
 use crate::build::outcome::{DataSummary, ModelShape, RunResult, SetMetrics};
 use crate::data::{Prepared, Task};
 use crate::document::spec::{LossChoice, NetSpec, OutputChoice, TrainSpec, word};
@@ -168,15 +170,19 @@ pub(super) fn fit(
     );
     let seconds = started.elapsed().as_secs_f64();
     let measure = |rows| set_metrics(prepared.encoding.task, &fitted.network, rows, shape.loss);
-    let train_metrics = measure(&train_rows);
-    let test_metrics = has_test.then(|| measure(&test_rows));
-    let validation_metrics = has_validation.then(|| measure(&validation_rows));
+    let (train_metrics, _) = measure(&train_rows);
+    let (test_metrics, held_out_outputs) = match has_test.then(|| measure(&test_rows)) {
+        Some((metrics, outputs)) => (Some(metrics), Some(outputs)),
+        None => (None, None),
+    };
+    let validation_metrics = has_validation.then(|| measure(&validation_rows).0);
     RunResult {
         fit: fitted,
         seconds,
         train: train_metrics,
         validation: validation_metrics,
         test: test_metrics,
+        held_out_outputs,
     }
 }
 
@@ -215,10 +221,16 @@ pub(super) fn training_config(train: &TrainSpec, loss: Loss) -> TrainConfig {
     }
 }
 
-fn set_metrics(task: Task, network: &Network, rows: &nn::Rows, loss: Loss) -> SetMetrics {
+/// The network's metrics on `rows`, and its outputs there.
+fn set_metrics(
+    task: Task,
+    network: &Network,
+    rows: &nn::Rows,
+    loss: Loss,
+) -> (SetMetrics, Array2<f64>) {
     let seen = nn::evaluate(network, rows, loss);
     let (targets, outputs) = (seen.targets.view(), seen.outputs.view());
-    match task {
+    let metrics = match task {
         Task::Classify => SetMetrics::Classification {
             loss: seen.mean_loss,
             metrics: nn::classification_metrics(targets, outputs),
@@ -227,7 +239,8 @@ fn set_metrics(task: Task, network: &Network, rows: &nn::Rows, loss: Loss) -> Se
             loss: seen.mean_loss,
             metrics: nn::regression_metrics(targets, outputs),
         },
-    }
+    };
+    (metrics, seen.outputs)
 }
 
 #[cfg(test)]

@@ -52,7 +52,7 @@ pub(crate) struct Manifest {
 }
 
 /// The file names of every cache entry a plan's steps use: their results, and a data
-/// step's prepared matrices.
+/// step's prepared matrices, and each fit's judgement and references.
 pub(crate) fn entries_of(plan: &Plan) -> BTreeSet<String> {
     let mut names = BTreeSet::new();
     for step in &plan.steps {
@@ -61,6 +61,9 @@ pub(crate) fn entries_of(plan: &Plan) -> BTreeSet<String> {
         }
         if step.kind == StepKind::Data {
             names.insert(entry_name(&step.key, EntryKind::Prepared));
+        }
+        for (key, kind) in step.judge_entries(&plan.steps) {
+            names.insert(entry_name(&key, kind));
         }
     }
     names

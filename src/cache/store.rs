@@ -36,16 +36,22 @@ pub(crate) enum EntryKind {
     Export,
     /// One trained network on one partition.
     Run,
+    /// A partition's baseline and model without a hidden layer.
+    Reference,
+    /// A fit held against its references on the held-out rows.
+    Judgement,
 }
 
 impl EntryKind {
-    const ALL: [EntryKind; 6] = [
+    const ALL: [EntryKind; 8] = [
         EntryKind::DataSummary,
         EntryKind::Prepared,
         EntryKind::Marker,
         EntryKind::Predict,
         EntryKind::Export,
         EntryKind::Run,
+        EntryKind::Reference,
+        EntryKind::Judgement,
     ];
 
     fn suffix(self) -> &'static str {

@@ -11,7 +11,8 @@ use super::{Key, PlannedStep};
 ///    validation rows and a data summary their counts (all empty without
 ///    `validation`), and a data step's summary carries its data card (column
 ///    statistics and warnings), so version 2 entries no longer decode.
-pub(crate) const CACHE_FORMAT_VERSION: u32 = 3;
+/// 4: a run keeps its held-out outputs, for the paired tests of issue 14.
+pub(crate) const CACHE_FORMAT_VERSION: u32 = 4;
 
 /// A run's key depends on what it computes, not on step names, so identical runs in
 /// different steps share one entry.
@@ -25,6 +26,30 @@ pub(super) fn run_key(data_key: &str, net: &NetSpec, train: &TrainSpec, partitio
     hasher.update(b"run\0");
     hasher.update(data_key.as_bytes());
     hasher.update(&serde_json::to_vec(&(net, &settings, partition)).expect("specs serialise"));
+    hasher.finalize().to_hex().to_string()
+}
+
+/// The key of a partition's baseline and model without a hidden layer: its data and
+/// partition, never a network, so every fit on those rows shares one entry.
+pub(crate) fn reference_key(data_key: &str, partition: usize) -> Key {
+    let mut hasher = engine_hasher();
+    hasher.update(b"reference\0");
+    hasher.update(&crate::judge::JUDGE_VERSION.to_le_bytes());
+    hasher.update(data_key.as_bytes());
+    hasher.update(&(partition as u64).to_le_bytes());
+    hasher.finalize().to_hex().to_string()
+}
+
+/// The key of a fit's judgement: the runs it reads (each naming its data and
+/// partition) and the seed of its bootstrap.
+pub(crate) fn judgement_key<'a>(run_keys: impl Iterator<Item = &'a Key>, seed: u64) -> Key {
+    let mut hasher = engine_hasher();
+    hasher.update(b"judgement\0");
+    hasher.update(&crate::judge::JUDGE_VERSION.to_le_bytes());
+    hasher.update(&seed.to_le_bytes());
+    for key in run_keys {
+        hasher.update(key.as_bytes());
+    }
     hasher.finalize().to_hex().to_string()
 }
 

@@ -11,7 +11,7 @@ mod checks;
 mod confinement;
 mod fits;
 pub(crate) mod input_file;
-mod keys;
+pub(crate) mod keys;
 pub(crate) mod outputs;
 
 use crate::cache::EntryKind;
@@ -103,6 +103,23 @@ pub struct FitPlan {
     pub runs: Vec<RunPlan>,
 }
 
+impl FitPlan {
+    /// The runs a judgement reads: on each partition, the first seed's.
+    pub(crate) fn judged_runs(&self) -> Vec<&RunPlan> {
+        let mut seen = std::collections::BTreeSet::new();
+        self.runs
+            .iter()
+            .filter(|run| seen.insert(run.partition))
+            .collect()
+    }
+
+    /// The key of this fit's judgement; its bootstrap draws from the first run's seed.
+    pub(crate) fn judgement_key(&self) -> Key {
+        let runs = self.judged_runs();
+        keys::judgement_key(runs.iter().map(|run| &run.key), runs[0].seed)
+    }
+}
+
 /// One network to fit: a seed on one partition.
 #[derive(Clone, Debug)]
 pub struct RunPlan {
@@ -118,6 +135,20 @@ impl PlannedStep {
             Upstream::Train { data, net } => Some((data, net)),
             _ => None,
         }
+    }
+
+    /// The cache entries of each fit's judgement and of the references it reads
+    /// (`judge`): kept by `clean`, recomputed when missing without retraining.
+    pub(crate) fn judge_entries(&self, steps: &[PlannedStep]) -> Vec<(Key, EntryKind)> {
+        let mut entries = Vec::new();
+        for fit in &self.fits {
+            entries.push((fit.judgement_key(), EntryKind::Judgement));
+            for run in fit.judged_runs() {
+                let key = keys::reference_key(&steps[fit.data].key, run.partition);
+                entries.push((key, EntryKind::Reference));
+            }
+        }
+        entries
     }
 
     /// The cache entries that hold this step's result: all present means a build

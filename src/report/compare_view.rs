@@ -4,11 +4,14 @@
 use serde::Serialize;
 
 use super::chart::{self, Axes, Bar, HeatMap, Positions, Series};
+use super::format::number;
+use super::verdict::{NOT_ENOUGH_ROWS, evidence, p_text};
 use super::view::{
     HONEST_CHOICE, log_loss_is_loss, mean_curve, shown_stats, stat_text, stop_counts,
 };
 use crate::build::outcome::{FitResult, RowSet, SetMetrics, SweepResult, rank};
 use crate::document::spec::{ChartChoice, CompareSpec, MetricName};
+use crate::judge::{self, PairOutcome, Paired};
 use crate::plan::describe;
 
 /// Lines a chart of several fits draws at most, so that it stays legible.
@@ -29,6 +32,8 @@ pub(crate) struct SweepView {
     pub runs_per_combination: usize,
     pub loss_chart: String,
     pub loss_chart_note: String,
+    /// How many combinations are within noise of the best, or why none was tested.
+    pub noise_note: String,
     /// The ranking metric over the first two varied settings, when there are two.
     pub heat_map: Option<Figure>,
     /// The ranking metric against each varied setting.
@@ -48,6 +53,10 @@ pub(crate) struct Figure {
 pub(crate) struct SweepRow {
     pub rank: usize,
     pub best: bool,
+    /// Its paired test against the best is not significant at 0.05.
+    pub within_noise: bool,
+    /// Its verdict against the model without a hidden layer, in a few words.
+    pub versus_linear: String,
     pub settings: Vec<String>,
     pub values: Vec<String>,
     pub stop: String,
@@ -78,6 +87,11 @@ pub(crate) fn sweep_view(result: &SweepResult) -> SweepView {
             SweepRow {
                 rank: rank + 1,
                 best: rank == 0,
+                within_noise: result.within_noise_of_best.get(i) == Some(&Some(true)),
+                versus_linear: fit
+                    .judgement
+                    .as_deref()
+                    .map_or("—".into(), versus_linear_cell),
                 settings: fit
                     .settings
                     .iter()
@@ -124,6 +138,7 @@ pub(crate) fn sweep_view(result: &SweepResult) -> SweepView {
         runs_per_combination: first.runs.len(),
         loss_chart: chart::line_chart(&series, &Axes::loss(true)),
         loss_chart_note,
+        noise_note: noise_note(result),
         heat_map: heat_map(result),
         marginals: marginals(result),
         choice_note: (result.rank_rows == RowSet::Test).then(|| {
@@ -312,6 +327,8 @@ pub(crate) struct CompareView {
     /// How the best run was chosen: the metric and the rows.
     pub best_note: String,
     pub rows: Vec<CompareRow>,
+    /// The paired tests between the runs; `None` for a single run.
+    pub pairs: Option<PairsView>,
     pub chart: Option<String>,
     pub chart_note: String,
 }
@@ -435,9 +452,101 @@ pub(crate) fn compare_view(spec: &CompareSpec, entries: &[Compared<'_>]) -> Comp
         ),
         metric_names: metrics.iter().map(|m| m.key().replace('_', " ")).collect(),
         rows,
+        pairs: pairs_view(entries),
         chart,
         chart_note,
     }
+}
+
+/// A combination's paired test against the model without a hidden layer.
+fn versus_linear_cell(judgement: &crate::judge::Judgement) -> String {
+    match &judgement.versus_linear {
+        None => NOT_ENOUGH_ROWS.into(),
+        Some(test) => {
+            let words = match (test.significant(), test.first_better()) {
+                (true, true) => "beats it",
+                (true, false) => "worse",
+                (false, _) => "within noise",
+            };
+            format!("{words} ({})", evidence(test))
+        }
+    }
+}
+
+/// The sweep card's line on the combinations within noise of the best.
+fn noise_note(result: &SweepResult) -> String {
+    let others = result.fits.len().saturating_sub(1);
+    if others == 0 || result.rank_rows != RowSet::Test {
+        return String::new();
+    }
+    let tested = result.within_noise_of_best.iter().flatten().count();
+    if tested == 0 {
+        return format!("Within noise of the best: {NOT_ENOUGH_ROWS} for a paired test.");
+    }
+    let within = result
+        .within_noise_of_best
+        .iter()
+        .filter(|w| **w == Some(true))
+        .count();
+    format!(
+        "{within} of the other {others} combinations are within noise of the best (≈): their paired test against it on the held-out rows is not significant at 0.05, so the ranking between them is not settled."
+    )
+}
+
+/// The matrix of paired tests beneath a comparison's table.
+#[derive(Serialize)]
+pub(crate) struct PairsView {
+    pub ids: Vec<String>,
+    pub rows: Vec<PairsRow>,
+    pub note: &'static str,
+}
+
+#[derive(Serialize)]
+pub(crate) struct PairsRow {
+    pub id: String,
+    pub cells: Vec<String>,
+}
+
+fn pairs_view(entries: &[Compared<'_>]) -> Option<PairsView> {
+    if entries.len() < 2 {
+        return None;
+    }
+    let judgements: Vec<_> = entries.iter().map(|e| e.fit.judgement.as_deref()).collect();
+    let regression = judgements
+        .iter()
+        .flatten()
+        .any(|j| matches!(j.network, crate::judge::Scores::Regression { .. }));
+    let mut cells = vec![vec![String::from("—"); entries.len()]; entries.len()];
+    for pair in judge::pairs(&judgements) {
+        let text = match &pair.outcome {
+            PairOutcome::Tested(test) => match test {
+                Paired::Mcnemar { p_value, .. } => p_text(*p_value),
+                Paired::SquaredErrorDifference { interval, .. } => {
+                    format!("{} to {}", number(interval.low), number(interval.high))
+                }
+            },
+            PairOutcome::NotPaired => "not paired".into(),
+            PairOutcome::NotEnoughRows => NOT_ENOUGH_ROWS.into(),
+        };
+        cells[pair.a][pair.b] = text.clone();
+        cells[pair.b][pair.a] = text;
+    }
+    Some(PairsView {
+        ids: entries.iter().map(|e| e.id.to_string()).collect(),
+        rows: entries
+            .iter()
+            .zip(cells)
+            .map(|(e, cells)| PairsRow {
+                id: e.id.to_string(),
+                cells,
+            })
+            .collect(),
+        note: if regression {
+            "Paired tests on the held-out rows both runs share: the 95 % paired bootstrap interval of the row's squared error, row run minus column run (an interval without 0 is a real difference); runs held out on different rows are not paired."
+        } else {
+            "Paired tests on the held-out rows both runs share: McNemar's exact p-value (under 0.05 is a real difference); runs held out on different rows are not paired."
+        },
+    })
 }
 
 /// The rows every compared run can be judged on: validation rows when all have

@@ -12,6 +12,7 @@ pub(crate) mod model_view;
 pub(crate) mod prose;
 pub(crate) mod settings;
 pub(crate) mod summary;
+pub(crate) mod verdict;
 pub(crate) mod view;
 
 use std::path::{Path, PathBuf};

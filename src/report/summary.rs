@@ -5,13 +5,16 @@ use serde_json::{Map, Value, json};
 
 use super::card_view::warning_text;
 use super::format::stop_code;
+use super::verdict::verdict;
 use crate::build::outcome::{FitResult, MetricStat, Outcome, RowSet, RunResult, SetMetrics};
 use crate::build::{BuildResult, Status};
 use crate::data::card::{ColumnProfile, DataCard, Values};
 use crate::document::StepSpec;
 use crate::document::names::word;
 use crate::document::spec::sweep::Varied;
-use crate::plan::Plan;
+use crate::judge::stats::{self, Interval};
+use crate::judge::{self, Judgement, PairOutcome, Paired, Scores};
+use crate::plan::{Plan, PlannedStep};
 
 /// The summary as a JSON value.
 pub(crate) fn summary(
@@ -62,7 +65,8 @@ pub(crate) fn summary(
                         .fits
                         .iter()
                         .zip(&record.trained)
-                        .map(|(fit, &trained)| {
+                        .enumerate()
+                        .map(|(i, (fit, &trained))| {
                             let mut run = Map::new();
                             run.insert("settings".into(), settings(&fit.settings));
                             run.insert(
@@ -71,10 +75,17 @@ pub(crate) fn summary(
                             );
                             run.insert("runs_trained".into(), json!(trained));
                             train_fields(fit, &mut run);
+                            run.insert(
+                                "within_noise_of_best".into(),
+                                json!(sweep.within_noise_of_best.get(i).copied().flatten()),
+                            );
                             Value::Object(run)
                         })
                         .collect();
                     object.insert("runs".into(), Value::Array(runs));
+                }
+                Some(Outcome::Compare) => {
+                    object.insert("pairs".into(), compare_pairs(plan, results, step));
                 }
                 Some(Outcome::Data(data)) => data_fields(&data.card, &mut object),
                 Some(Outcome::Predict(predict)) => {
@@ -174,6 +185,100 @@ fn train_fields(result: &FitResult, object: &mut Map<String, Value>) {
         let folds = result.runs.iter().map(fold).collect();
         object.insert("folds".into(), Value::Array(folds));
     }
+    if let Some(judgement) = &result.judgement {
+        judgement_fields(judgement, object);
+    }
+}
+
+/// A fit against the baseline and the model without a hidden layer (`judge`).
+fn judgement_fields(judgement: &Judgement, object: &mut Map<String, Value>) {
+    object.insert("held_out_rows".into(), json!(judgement.held_out_rows));
+    object.insert(
+        "baseline".into(),
+        json!({"rule": word(&judgement.baseline_rule), "test": scores(&judgement.baseline)}),
+    );
+    object.insert(
+        "linear".into(),
+        json!({"train": scores(&judgement.linear_train), "test": scores(&judgement.linear)}),
+    );
+    let interval = judgement.intervals.as_ref().map(|all| {
+        let mut pairs = Map::new();
+        pairs.insert("level".into(), json!(stats::LEVEL));
+        for (name, interval) in all {
+            pairs.insert(name.clone(), pair(interval));
+        }
+        Value::Object(pairs)
+    });
+    object.insert("interval".into(), json!(interval));
+    object.insert(
+        "versus_linear".into(),
+        judgement.versus_linear.as_ref().map_or(Value::Null, paired),
+    );
+    object.insert("verdict".into(), json!(word(&verdict(judgement).tone)));
+}
+
+fn scores(scores: &Scores) -> Value {
+    Value::Object(
+        scores
+            .named()
+            .into_iter()
+            .map(|(k, v)| (k.to_string(), number(v)))
+            .collect(),
+    )
+}
+
+fn pair(interval: &Interval) -> Value {
+    json!([number(interval.low), number(interval.high)])
+}
+
+/// A paired test: McNemar's p-value, or the squared-error difference's interval.
+fn paired(test: &Paired) -> Value {
+    let mut object = match test {
+        Paired::Mcnemar {
+            p_value,
+            only_first,
+            only_second,
+        } => json!({"test": "mcnemar_exact", "p_value": number(*p_value),
+                    "only_first": only_first, "only_second": only_second}),
+        Paired::SquaredErrorDifference { mean, interval } => {
+            json!({"test": "paired_bootstrap", "difference": number(*mean),
+                   "interval": pair(interval), "level": stats::LEVEL})
+        }
+    };
+    object["significant"] = json!(test.significant());
+    object
+}
+
+/// A compare step's paired tests between its runs (a sweep stands for its best).
+fn compare_pairs(plan: &Plan, results: &BuildResult, step: &PlannedStep) -> Value {
+    let runs: Vec<(&str, Option<&Judgement>)> = step
+        .upstream
+        .all()
+        .into_iter()
+        .filter_map(|u| {
+            let fit = match results.steps[u].outcome.as_ref()? {
+                Outcome::Train(fit) => fit,
+                Outcome::Sweep(sweep) => sweep.best(),
+                _ => return None,
+            };
+            Some((plan.steps[u].id.as_str(), fit.judgement.as_deref()))
+        })
+        .collect();
+    let judgements: Vec<Option<&Judgement>> = runs.iter().map(|(_, j)| *j).collect();
+    let pairs = judge::pairs(&judgements)
+        .into_iter()
+        .map(|p| {
+            let mut object = match &p.outcome {
+                PairOutcome::Tested(test) => paired(test),
+                PairOutcome::NotPaired => json!({"test": "not_paired"}),
+                PairOutcome::NotEnoughRows => json!({"test": "not_enough_rows"}),
+            };
+            object["a"] = json!(runs[p.a].0);
+            object["b"] = json!(runs[p.b].0);
+            object
+        })
+        .collect();
+    Value::Array(pairs)
 }
 
 /// A sweep combination's settings as an object of the values as written.

@@ -6,8 +6,10 @@ use serde::Serialize;
 use super::card_view::{CardView, card_view};
 use super::chart::{self, Dash, Series, Weight};
 use super::format::{mean_sd, number, seconds, stop_reason};
+use super::verdict::{NOT_ENOUGH_ROWS, Verdict, verdict};
 use crate::build::outcome::{DataSummary, FitResult, MetricStat, RowSet, SetMetrics};
 use crate::document::spec::word;
+use crate::judge::{BaselineRule, Judgement};
 use crate::nn::{ClassificationMetrics, StopReason};
 
 /// What a data step's card shows.
@@ -98,10 +100,78 @@ pub(crate) struct TrainView {
     pub confusion: Option<ConfusionView>,
     pub hints: Vec<String>,
     pub folds: Vec<FoldRow>,
+    pub verdict: Option<Verdict>,
+    pub judged: Option<JudgedView>,
     /// Which rows the chart's second line (and patience) measured: "validation" or "held-out".
     pub watched_rows: &'static str,
     /// Said when the held-out rows chose the weights, so their score is optimistic.
     pub choice_note: Option<String>,
+}
+
+/// The held-out scores of the network, the baseline and the model without a hidden
+/// layer side by side, the network's with their 95 % intervals.
+#[derive(Serialize)]
+pub(crate) struct JudgedView {
+    pub metric_names: Vec<String>,
+    pub rows: Vec<MetricRow>,
+    /// How the held-out rows were pooled (folds: each row scored by its own fold).
+    pub note: String,
+}
+
+pub(crate) fn judged_view(judgement: &Judgement) -> JudgedView {
+    let names = judgement.network.named();
+    let interval_of = |name: &str| -> String {
+        match &judgement.intervals {
+            None => NOT_ENOUGH_ROWS.into(),
+            Some(all) => all
+                .iter()
+                .find(|(n, _)| n == name)
+                .map_or(String::new(), |(_, i)| {
+                    format!("{}–{}", number(i.low), number(i.high))
+                }),
+        }
+    };
+    let values =
+        |scores: &crate::judge::Scores| scores.named().iter().map(|(_, v)| number(*v)).collect();
+    let baseline = match judgement.baseline_rule {
+        BaselineRule::MajorityClass => "majority class (training frequencies)",
+        BaselineRule::TrainingMean => "training mean",
+    };
+    JudgedView {
+        metric_names: names
+            .iter()
+            .map(|(n, _)| format!("held-out {}", n.replace('_', " ")))
+            .collect(),
+        rows: vec![
+            MetricRow {
+                rows: "network",
+                values: values(&judgement.network),
+            },
+            MetricRow {
+                rows: "95 % interval",
+                values: names.iter().map(|(n, _)| interval_of(n)).collect(),
+            },
+            MetricRow {
+                rows: baseline,
+                values: values(&judgement.baseline),
+            },
+            MetricRow {
+                rows: "without a hidden layer",
+                values: values(&judgement.linear),
+            },
+        ],
+        note: format!(
+            "{} held-out rows; without a hidden layer on its own training rows: {}",
+            judgement.held_out_rows,
+            judgement
+                .linear_train
+                .named()
+                .iter()
+                .map(|(n, v)| format!("{} {}", n.replace('_', " "), number(*v)))
+                .collect::<Vec<_>>()
+                .join(", ")
+        ),
+    }
 }
 
 #[derive(Serialize)]
@@ -216,6 +286,8 @@ pub(crate) fn train_view(result: &FitResult, classes: Option<&[String]>) -> Trai
         confusion: classes.and_then(|labels| confusion_view(result, labels)),
         hints: shape.hints.clone(),
         folds,
+        verdict: result.judgement.as_deref().map(verdict),
+        judged: result.judgement.as_deref().map(judged_view),
         watched_rows: match result.choice_rows() {
             RowSet::Validation => "validation",
             _ => "held-out",

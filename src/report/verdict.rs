@@ -1,0 +1,144 @@
+//! A fit's judgement in one plain line for the top of its card: the held-out headline
+//! with its interval, the baseline, the model without a hidden layer, and what the
+//! paired test says. Worded by us; the numbers come from `judge`.
+
+use serde::Serialize;
+
+use super::format::number;
+use crate::judge::{BaselineRule, Judgement, Paired, Scores};
+
+/// Shown instead of an interval or a test the held-out rows cannot carry.
+pub(crate) const NOT_ENOUGH_ROWS: &str = "not enough held-out rows";
+
+/// How the network fared, for the card's styling.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "snake_case")]
+pub(crate) enum Tone {
+    /// Better than the model without a hidden layer, beyond noise.
+    Beats,
+    /// Not shown to be better than the model without a hidden layer.
+    DoesNotBeat,
+    /// No better than the baseline: the loudest warning.
+    BelowBaseline,
+}
+
+/// The verdict line and its tone.
+#[derive(Clone, Debug, PartialEq, Serialize)]
+pub(crate) struct Verdict {
+    pub text: String,
+    pub tone: Tone,
+}
+
+pub(crate) fn verdict(judgement: &Judgement) -> Verdict {
+    let (name, value) = judgement.network.headline();
+    let baseline = judgement.baseline.headline().1;
+    let linear = judgement.linear.headline().1;
+    let interval = judgement
+        .intervals
+        .as_ref()
+        .and_then(|all| all.iter().find(|(n, _)| n == name))
+        .map_or(format!("({NOT_ENOUGH_ROWS})"), |(_, i)| {
+            format!("({}–{})", score(i.low), score(i.high))
+        });
+    let headline = match judgement.network {
+        Scores::Classification { .. } => "held-out accuracy",
+        Scores::Regression { .. } => "held-out R²",
+    };
+    let baseline_name = match judgement.baseline_rule {
+        BaselineRule::MajorityClass => "majority class",
+        BaselineRule::TrainingMean => "training mean",
+    };
+    let mut parts = vec![
+        format!("{headline} {} {interval}", score(value)),
+        format!("{baseline_name} {}", score(baseline)),
+        format!("without a hidden layer {}", score(linear)),
+        test_words(judgement.versus_linear.as_ref()),
+    ];
+    let beats_linear = judgement
+        .versus_linear
+        .as_ref()
+        .is_some_and(|test| test.significant() && test.first_better());
+    // Accuracy and R² are both better higher.
+    let below_baseline = value <= baseline;
+    let tone = if below_baseline {
+        parts.insert(
+            0,
+            format!(
+                "THE NETWORK DOES NOT BEAT THE {}",
+                baseline_name.to_uppercase()
+            ),
+        );
+        Tone::BelowBaseline
+    } else if beats_linear {
+        Tone::Beats
+    } else {
+        Tone::DoesNotBeat
+    };
+    Verdict {
+        text: parts.join(" · "),
+        tone,
+    }
+}
+
+/// What the paired test against the model without a hidden layer says.
+fn test_words(test: Option<&Paired>) -> String {
+    let Some(test) = test else {
+        return format!("{NOT_ENOUGH_ROWS} for a test");
+    };
+    let evidence = evidence(test);
+    match (test.significant(), test.first_better()) {
+        (true, true) => format!("the network beats the model without a hidden layer ({evidence})"),
+        (true, false) => format!(
+            "the network does not beat the model without a hidden layer: it is worse ({evidence})"
+        ),
+        (false, _) => format!(
+            "the network does not beat the model without a hidden layer: the difference is within noise ({evidence})"
+        ),
+    }
+}
+
+/// A test's number: the p-value, or the squared-error difference and its interval.
+pub(crate) fn evidence(test: &Paired) -> String {
+    match test {
+        Paired::Mcnemar { p_value, .. } => p_text(*p_value),
+        Paired::SquaredErrorDifference { mean, interval } => format!(
+            "squared error {} by {} ({} to {})",
+            if *mean < 0.0 { "lower" } else { "higher" },
+            number(mean.abs()),
+            number(interval.low),
+            number(interval.high)
+        ),
+    }
+}
+
+/// A p-value to two decimals (three under 0.01), the smallest as a bound.
+pub(crate) fn p_text(p: f64) -> String {
+    if p < 0.001 {
+        "p < 0.001".into()
+    } else if p < 0.01 {
+        format!("p = {p:.3}")
+    } else {
+        format!("p = {p:.2}")
+    }
+}
+
+/// Accuracy or R² as a person reads it in a sentence: two decimals.
+fn score(value: f64) -> String {
+    if value.is_finite() {
+        format!("{value:.2}")
+    } else {
+        "—".into()
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn p_values_keep_two_decimals_and_small_ones_a_bound() {
+        assert_eq!(p_text(0.4213), "p = 0.42");
+        assert_eq!(p_text(0.0031), "p = 0.003");
+        assert_eq!(p_text(0.00001), "p < 0.001");
+    }
+}
