@@ -115,9 +115,14 @@ fn a_changed_learning_rate_shows_the_setting_old_to_new_and_how_each_metric_move
     assert_eq!(accuracy["old"].as_f64(), Some(was));
     assert_eq!(accuracy["new"].as_f64(), Some(is));
     assert_eq!(accuracy["difference"].as_f64(), Some(is - was));
-    assert!(
-        accuracy.get("within_new_interval").is_none(),
-        "no interval given"
+    // The new build's held-out interval decides whether the move is within noise.
+    let (low, high) = (
+        new_base["interval"]["accuracy"][0].as_f64().unwrap(),
+        new_base["interval"]["accuracy"][1].as_f64().unwrap(),
+    );
+    assert_eq!(
+        accuracy["within_new_interval"].as_bool(),
+        Some(low <= was && was <= high)
     );
     assert!(
         step(&comparison, "flowers")["settings"]
@@ -227,8 +232,25 @@ fn an_old_value_inside_the_new_summarys_interval_is_said_to_be_within_it() {
     let was = old["steps"][2]["metrics"]["test"]["accuracy"]
         .as_f64()
         .unwrap();
-    // An interval field as a summary with intervals gives it: around the old value.
-    new["steps"][2]["interval"] = serde_json::json!({"test": {"accuracy": [was - 0.1, was + 0.1]}});
+    // The build's own summary gives held-out intervals, so the diff judges against them.
+    let moves = diff_json(&ws, "old.json", "new.json");
+    let judged = |rows: &str| {
+        step(&moves, "base")["metrics"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .find(|m| m["rows"] == rows && m["name"] == "accuracy")
+            .unwrap()["within_new_interval"]
+            .clone()
+    };
+    assert!(judged("test").is_boolean(), "{moves}");
+    assert!(
+        judged("train").is_null(),
+        "training scores carry no interval"
+    );
+    // An interval around the old value.
+    new["steps"][2]["interval"] =
+        serde_json::json!({"level": 0.95, "accuracy": [was - 0.1, was + 0.1]});
     ws.write("new.json", &new.to_string());
     let comparison = diff_json(&ws, "old.json", "new.json");
     let accuracy = step(&comparison, "base")["metrics"]

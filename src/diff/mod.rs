@@ -285,7 +285,12 @@ fn metric_moves(old: &Value, new: &Value) -> Vec<MetricMove> {
         for name in names {
             let old_value = old_set[name].as_f64();
             let new_value = new_set[name].as_f64();
-            let interval = interval(&new["interval"][rows][name]);
+            // A summary gives intervals for held-out scores only:
+            // `interval: {"level": 0.95, "<metric>": [low, high], …}`.
+            let interval = match rows {
+                "test" => interval(&new["interval"][name]),
+                _ => None,
+            };
             moves.push(MetricMove {
                 rows: rows.to_string(),
                 name: name.clone(),
@@ -301,15 +306,11 @@ fn metric_moves(old: &Value, new: &Value) -> Vec<MetricMove> {
     moves
 }
 
-/// An interval written as `[low, high]` or `{"low": …, "high": …}`.
+/// An interval written as `[low, high]`; `None` for anything else (`null` when the
+/// held-out rows were too few).
 fn interval(value: &Value) -> Option<(f64, f64)> {
-    match value {
-        Value::Array(bounds) => Some((bounds.first()?.as_f64()?, bounds.get(1)?.as_f64()?)),
-        Value::Object(bounds) => {
-            Some((bounds.get("low")?.as_f64()?, bounds.get("high")?.as_f64()?))
-        }
-        _ => None,
-    }
+    let bounds = value.as_array()?;
+    Some((bounds.first()?.as_f64()?, bounds.get(1)?.as_f64()?))
 }
 
 /// A sweep's combinations matched by their settings.
@@ -380,15 +381,17 @@ mod tests {
     fn an_old_value_inside_the_new_interval_is_within_it() {
         let old = json!({"metrics": {"test": {"accuracy": 0.90}}});
         let new = json!({"metrics": {"test": {"accuracy": 0.92}},
-                         "interval": {"test": {"accuracy": [0.85, 0.97]}}});
+                         "interval": {"level": 0.95, "accuracy": [0.85, 0.97]}});
         let moves = metric_moves(&old, &new);
         assert_eq!(moves[0].within_new_interval, Some(true));
         let narrow = json!({"metrics": {"test": {"accuracy": 0.92}},
-                            "interval": {"test": {"accuracy": {"low": 0.91, "high": 0.93}}}});
+                            "interval": {"level": 0.95, "accuracy": [0.91, 0.93]}});
         assert_eq!(
             metric_moves(&old, &narrow)[0].within_new_interval,
             Some(false)
         );
+        let too_few = json!({"metrics": {"test": {"accuracy": 0.92}}, "interval": null});
+        assert_eq!(metric_moves(&old, &too_few)[0].within_new_interval, None);
         let without = json!({"metrics": {"test": {"accuracy": 0.92}}});
         assert_eq!(metric_moves(&old, &without)[0].within_new_interval, None);
     }
