@@ -38,4 +38,14 @@ fn the_hives_report_opens_with_its_title_once_and_a_summary_linking_to_each_fit(
     }
     assert_eq!(summary.matches("class=\"best\"").count(), 1, "{summary}");
     assert!(summary.contains("held out") && summary.contains("accuracy"));
+    // Each fit's interval and verdict in a few words (the hives demo's networks beat the
+    // model without a hidden layer: tests/verdicts.rs).
+    assert_eq!(
+        summary
+            .matches("beats the model without a hidden layer")
+            .count(),
+        5,
+        "{summary}"
+    );
+    assert!(summary.contains("95 % interval") && summary.contains("0.80–0.93"));
 }

@@ -6,6 +6,7 @@ use serde::Serialize;
 
 use super::compare_view::rows_label;
 use super::format::number;
+use super::verdict::{Verdict, headline_interval, short_verdict};
 use crate::build::BuildResult;
 use crate::build::outcome::{FitResult, Outcome, SetMetrics};
 use crate::document::spec::MetricName;
@@ -22,6 +23,10 @@ pub(crate) struct Headline {
     pub what: String,
     /// The best value of its metric among the lines.
     pub best: bool,
+    /// The held-out score's 95 % interval and the verdict in a few words, when the fit
+    /// was judged (it has held-out rows).
+    pub interval: Option<String>,
+    pub verdict: Option<Verdict>,
 }
 
 /// The metric a reader looks at first: accuracy for classification, R² for regression
@@ -62,6 +67,8 @@ pub(crate) fn headlines(plan: &Plan, results: &BuildResult) -> Vec<Headline> {
                 rows: rows_label(rows),
                 what,
                 best: false,
+                interval: fit.judgement.as_deref().and_then(headline_interval),
+                verdict: fit.judgement.as_deref().map(short_verdict),
             };
             Some((headline, metric, mean))
         })

@@ -30,37 +30,26 @@ pub(crate) struct Verdict {
 }
 
 pub(crate) fn verdict(judgement: &Judgement) -> Verdict {
-    let (name, value) = judgement.network.headline();
+    let value = judgement.network.headline().1;
     let baseline = judgement.baseline.headline().1;
     let linear = judgement.linear.headline().1;
-    let interval = judgement
-        .intervals
-        .as_ref()
-        .and_then(|all| all.iter().find(|(n, _)| n == name))
-        .map_or(format!("({NOT_ENOUGH_ROWS})"), |(_, i)| {
-            format!("({}–{})", score(i.low), score(i.high))
+    let interval = headline_interval(judgement)
+        .map_or(format!("({NOT_ENOUGH_ROWS})"), |interval| {
+            format!("({interval})")
         });
     let headline = match judgement.network {
         Scores::Classification { .. } => "held-out accuracy",
         Scores::Regression { .. } => "held-out R²",
     };
-    let baseline_name = match judgement.baseline_rule {
-        BaselineRule::MajorityClass => "majority class",
-        BaselineRule::TrainingMean => "training mean",
-    };
+    let baseline_name = baseline_name(judgement);
     let mut parts = vec![
         format!("{headline} {} {interval}", score(value)),
         format!("{baseline_name} {}", score(baseline)),
         format!("without a hidden layer {}", score(linear)),
         test_words(judgement.versus_linear.as_ref()),
     ];
-    let beats_linear = judgement
-        .versus_linear
-        .as_ref()
-        .is_some_and(|test| test.significant() && test.first_better());
-    // Accuracy and R² are both better higher.
-    let below_baseline = value <= baseline;
-    let tone = if below_baseline {
+    let tone = tone(judgement);
+    if tone == Tone::BelowBaseline {
         parts.insert(
             0,
             format!(
@@ -68,15 +57,57 @@ pub(crate) fn verdict(judgement: &Judgement) -> Verdict {
                 baseline_name.to_uppercase()
             ),
         );
+    }
+    Verdict {
+        text: parts.join(" · "),
+        tone,
+    }
+}
+
+/// The verdict in a few words, for the report's summary at the top.
+pub(crate) fn short_verdict(judgement: &Judgement) -> Verdict {
+    let tone = tone(judgement);
+    let text = match tone {
+        Tone::Beats => "beats the model without a hidden layer".to_string(),
+        Tone::DoesNotBeat => "does not beat the model without a hidden layer".to_string(),
+        Tone::BelowBaseline => format!("no better than the {}", baseline_name(judgement)),
+    };
+    Verdict { text, tone }
+}
+
+/// The 95 % interval of the headline score, as `low–high`; `None` when the held-out
+/// rows are too few.
+pub(crate) fn headline_interval(judgement: &Judgement) -> Option<String> {
+    let (name, _) = judgement.network.headline();
+    judgement
+        .intervals
+        .as_ref()?
+        .iter()
+        .find(|(n, _)| n == name)
+        .map(|(_, i)| format!("{}–{}", score(i.low), score(i.high)))
+}
+
+fn tone(judgement: &Judgement) -> Tone {
+    let value = judgement.network.headline().1;
+    let baseline = judgement.baseline.headline().1;
+    let beats_linear = judgement
+        .versus_linear
+        .as_ref()
+        .is_some_and(|test| test.significant() && test.first_better());
+    // Accuracy and R² are both better higher.
+    if value <= baseline {
         Tone::BelowBaseline
     } else if beats_linear {
         Tone::Beats
     } else {
         Tone::DoesNotBeat
-    };
-    Verdict {
-        text: parts.join(" · "),
-        tone,
+    }
+}
+
+fn baseline_name(judgement: &Judgement) -> &'static str {
+    match judgement.baseline_rule {
+        BaselineRule::MajorityClass => "majority class",
+        BaselineRule::TrainingMean => "training mean",
     }
 }
 
