@@ -134,19 +134,6 @@ impl Encoding {
             })
             .collect()
     }
-
-    /// One name per column of `y`: the target names for regression, the
-    /// target name for two classes (the column is 1 for `classes[1]`), and
-    /// `target=class` per class otherwise.
-    pub fn output_names(&self) -> Vec<String> {
-        match &self.classes {
-            Some(classes) if classes.len() > 2 => classes
-                .iter()
-                .map(|c| format!("{}={c}", self.target_names[0]))
-                .collect(),
-            _ => self.target_names.clone(),
-        }
-    }
 }
 
 /// The result of fitting an encoding to the kept rows of a table.
@@ -656,10 +643,6 @@ mod tests {
                 [1.0, 0.0, 0.0]
             ]
         );
-        assert_eq!(
-            e.encoding.output_names(),
-            vec!["status=healthy", "status=queenless", "status=swarming"]
-        );
     }
 
     #[test]
@@ -675,7 +658,6 @@ mod tests {
         .unwrap();
         assert_eq!(e.encoding.classes, Some(vec!["no".into(), "yes".into()]));
         assert_eq!(e.y, ndarray::array![[1.0], [0.0], [1.0]]);
-        assert_eq!(e.encoding.output_names(), vec!["ok"]);
     }
 
     #[test]
@@ -712,7 +694,6 @@ mod tests {
         assert_eq!(e.encoding.classes, None);
         assert_eq!(e.labels, None);
         assert_eq!(e.y, ndarray::array![[0.5, 7.0], [1.5, 8.0]]);
-        assert_eq!(e.encoding.output_names(), vec!["y1", "y2"]);
     }
 
     #[test]
