@@ -6,7 +6,7 @@
 
 use std::fmt::Write;
 
-use super::format::number;
+use super::format::{escaped, number};
 
 /// Width of every chart in SVG user units. The report shows a chart between about 370
 /// (a 420 px phone) and 520 CSS px wide, so `FONT` renders between 12 and 17 px.
@@ -274,21 +274,6 @@ fn range_of(values: impl Iterator<Item = f64>, log: bool, fallback: (f64, f64)) 
         let pad = lo.abs().max(1e-9) * 0.1;
         (lo - pad, hi + pad)
     }
-}
-
-/// Text escaped for SVG.
-fn escaped(text: &str) -> String {
-    let mut out = String::with_capacity(text.len());
-    for c in text.chars() {
-        match c {
-            '&' => out.push_str("&amp;"),
-            '<' => out.push_str("&lt;"),
-            '>' => out.push_str("&gt;"),
-            '"' => out.push_str("&quot;"),
-            _ => out.push(c),
-        }
-    }
-    out
 }
 
 /// A rough width of some text in user units (system sans-serif runs about 0.6 em a

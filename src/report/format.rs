@@ -2,6 +2,22 @@
 
 use crate::nn::StopReason;
 
+/// Text made safe to place between tags or in a quoted attribute.
+pub(crate) fn escaped(text: &str) -> String {
+    let mut out = String::with_capacity(text.len());
+    for c in text.chars() {
+        match c {
+            '&' => out.push_str("&amp;"),
+            '<' => out.push_str("&lt;"),
+            '>' => out.push_str("&gt;"),
+            '"' => out.push_str("&quot;"),
+            '\'' => out.push_str("&#39;"),
+            other => out.push(other),
+        }
+    }
+    out
+}
+
 /// A number with four significant digits; non-finite values as a dash.
 pub(crate) fn number(value: f64) -> String {
     if !value.is_finite() {

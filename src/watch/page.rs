@@ -6,6 +6,8 @@
 use base64::Engine;
 use sha2::{Digest, Sha256};
 
+use crate::report::format::escaped;
+
 /// The served page's only script.
 pub(crate) const SCRIPT: &str = include_str!("../../templates/watch.js");
 
@@ -125,22 +127,6 @@ fn with_policy(head: &str, policy: &str) -> String {
 fn live_element(tag: &str, id: &str, text: &str) -> String {
     let hidden = if text.is_empty() { " hidden" } else { "" };
     format!("<{tag} id=\"{id}\"{hidden}>{}</{tag}>", escaped(text))
-}
-
-/// Text made safe to place between tags or in a quoted attribute.
-fn escaped(text: &str) -> String {
-    let mut out = String::with_capacity(text.len());
-    for c in text.chars() {
-        match c {
-            '&' => out.push_str("&amp;"),
-            '<' => out.push_str("&lt;"),
-            '>' => out.push_str("&gt;"),
-            '"' => out.push_str("&quot;"),
-            '\'' => out.push_str("&#39;"),
-            other => out.push(other),
-        }
-    }
-    out
 }
 
 /// One server-sent event; every line of `data` gets its own `data:` field, and carriage
