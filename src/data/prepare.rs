@@ -14,7 +14,7 @@ use super::columns::{self, UsedColumns};
 use super::encode::{self, Encoding, is_missing, is_non_finite};
 use super::error::DataError;
 use super::scale::Scaler;
-use super::settings::{DataSettings, Missing};
+use super::settings::{DataSettings, Missing, Task};
 use super::split::{self, Strata};
 use super::table::Table;
 
@@ -137,6 +137,11 @@ pub fn prepare(
         _ => None,
     };
     let numeric = encoded.encoding.numeric_mask();
+    if settings.scale_target.is_some() && encoded.encoding.task == Task::Classify {
+        return Err(DataError::ScaleTargetOnClasses {
+            column: settings.target.join(", "),
+        });
+    }
     let target_scale = settings.target_scale(encoded.encoding.task);
     let every_target = vec![true; encoded.y.ncols()];
     let partitions = split::split_rows(
@@ -235,7 +240,7 @@ fn kept_rows(table: &Table, used: &UsedColumns, missing: Missing) -> Result<Vec<
 mod tests {
     use super::*;
     use crate::data::DEFAULT_MAX_CATEGORIES;
-    use crate::data::settings::{Scale, Split, Task};
+    use crate::data::settings::{Scale, Split};
     use crate::data::table::read_table;
 
     fn settings(target: &str) -> DataSettings {
