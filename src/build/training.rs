@@ -134,8 +134,8 @@ pub(super) fn fit(
     let part = &prepared.partitions[partition];
     // Targets are scaled once for the run (a column or a few, unlike the inputs);
     // with the identity scaling the data step's own matrix is read, unchanged.
-    let scaled_targets = (!part.target_scaler.is_identity())
-        .then(|| part.target_scaler.apply(prepared.y.view()));
+    let scaled_targets =
+        (!part.target_scaler.is_identity()).then(|| part.target_scaler.apply(prepared.y.view()));
     let targets = scaled_targets.as_ref().unwrap_or(&prepared.y);
     // Rows are read from the shared matrix and scaled batch by batch, so no run
     // holds a copy of the data set.
@@ -295,6 +295,7 @@ mod tests {
             target_names: vec!["y".into()],
             classes,
             scale: crate::data::Scale::Standard,
+            scale_target: crate::data::Scale::None,
             partitions: Vec::new(),
             card: crate::data::card::DataCard::default(),
         }
