@@ -23,7 +23,11 @@ fn diabetes_csv(ws: &Workspace, check: &str) -> Option<()> {
         .arg(ws.path("diabetes.csv"))
         .output()
         .unwrap();
-    assert!(run.status.success(), "{}", String::from_utf8_lossy(&run.stderr));
+    assert!(
+        run.status.success(),
+        "{}",
+        String::from_utf8_lossy(&run.stderr)
+    );
     Some(())
 }
 
@@ -80,7 +84,10 @@ fn diabetes_trains_in_scaled_units_and_reports_mae_in_the_targets_units() {
         "card {mae} against the CSV's {outside}"
     );
     let html = std::fs::read_to_string(doc.with_extension("html")).unwrap();
-    assert!(html.contains("loss (scaled targets)"), "the chart's axis says so");
+    assert!(
+        html.contains("loss (scaled targets)"),
+        "the chart's axis says so"
+    );
 }
 
 #[test]
