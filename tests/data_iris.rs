@@ -20,6 +20,7 @@ fn settings(split: Split, seed: u64) -> DataSettings {
         split,
         validation: None,
         seed,
+        scale_target: None,
     }
 }
 

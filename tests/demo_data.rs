@@ -32,6 +32,7 @@ fn hives_prepare_as_three_class_classification_with_one_hot_sites() {
         split: Split::Holdout(0.25),
         validation: None,
         seed: 1,
+        scale_target: None,
     };
     let p = prepare(&read("hives.csv"), &settings, DEFAULT_MAX_CATEGORIES).unwrap();
     assert_eq!(p.encoding.task, Task::Classify);
@@ -73,6 +74,7 @@ fn greenhouse_prepares_as_regression_with_one_hot_crops() {
         split: Split::Folds(5),
         validation: None,
         seed: 1,
+        scale_target: None,
     };
     let p = prepare(&read("greenhouse.csv"), &settings, DEFAULT_MAX_CATEGORIES).unwrap();
     assert_eq!(p.encoding.task, Task::Regress);

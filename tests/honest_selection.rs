@@ -45,6 +45,7 @@ fn greenhouse_settings(validation: Option<f64>) -> DataSettings {
         split: Split::Holdout(0.2),
         validation,
         seed: 5,
+        scale_target: None,
     }
 }
 
@@ -121,17 +122,47 @@ fn recorded_results(name: &str) -> Value {
     serde_json::from_slice(&std::fs::read(path).unwrap()).unwrap()
 }
 
+/// The demo `name`, with `scale_target: none` written into every data step when
+/// `raw_targets` (as before targets were scaled), built without the cache.
+fn demo_results(name: &str, raw_targets: bool) -> Value {
+    let ws = Workspace::new();
+    let doc = ws.demo(&format!("{name}.md"));
+    if raw_targets {
+        let text = std::fs::read_to_string(&doc).unwrap();
+        let mut written = String::new();
+        for line in text.split_inclusive('\n') {
+            written.push_str(line);
+            if line.starts_with("```yaml data ") {
+                written.push_str("scale_target: none\n");
+            }
+        }
+        std::fs::write(&doc, written).unwrap();
+    }
+    results_of(&ws.build_ok(&doc, &["--no-cache"]))
+}
+
 #[test]
 fn the_demo_documents_without_validation_train_exactly_as_before_it_existed() {
-    for name in ["hives", "greenhouse"] {
-        let ws = Workspace::new();
-        let doc = ws.demo(&format!("{name}.md"));
-        let summary = ws.build_ok(&doc, &["--no-cache"]);
-        assert!(
-            results_of(&summary) == recorded_results(name),
-            "{name}: the results moved without validation"
-        );
-    }
+    // The hives demo classifies, so target scaling never applies to it; the greenhouse
+    // demo regresses and keeps its old numbers with its targets left unscaled.
+    assert!(
+        demo_results("hives", false) == recorded_results("hives"),
+        "hives: the results moved without validation"
+    );
+    assert!(
+        demo_results("greenhouse", true) == recorded_results("greenhouse"),
+        "greenhouse: the results moved with scale_target: none"
+    );
+}
+
+/// The greenhouse demo with its default target scaling, recorded deliberately when
+/// `scale_target` was added (issue 15), in tests/data/demo-summaries/greenhouse-scaled.json.
+#[test]
+fn the_greenhouse_demo_trains_on_standard_scaled_targets_as_recorded() {
+    assert!(
+        demo_results("greenhouse", false) == recorded_results("greenhouse-scaled"),
+        "greenhouse: the results with scaled targets moved"
+    );
 }
 
 // ---- patience ----

@@ -193,3 +193,19 @@ fn a_varied_momentum_that_meets_no_sgd_combination_is_an_error() {
         "{message}"
     );
 }
+
+#[test]
+fn scale_target_on_a_classifying_data_step_is_an_error_at_its_line() {
+    let (at, message, help) = one_problem(&document(
+        "task: classify\nscale_target: standard",
+        "init: xavier",
+        "seed: 1",
+        "",
+    ));
+    assert_eq!(at, "5:1");
+    assert!(
+        message.contains("scale_target scales regression targets"),
+        "{message}"
+    );
+    assert!(help.unwrap().contains("remove scale_target"));
+}

@@ -195,7 +195,9 @@ fn the_json_export_says_where_its_model_came_from() {
     let summary = ws.build_ok(&doc, &[]);
     let export = read_json(ws.path("out/model.json"));
     assert_eq!(export["format"], "stet-model");
-    assert_eq!(export["version"], 2);
+    assert_eq!(export["version"], 3);
+    // A classifier's outputs are probabilities, never scaled.
+    assert_eq!(export["target_scaling"]["kind"], "none");
     let provenance = &export["provenance"];
     assert_eq!(provenance["stet_version"], env!("CARGO_PKG_VERSION"));
     assert_eq!(provenance["document_hash"], summary["hash"]);

@@ -104,5 +104,6 @@ fn settings(control: &[u8; 5], headers: &[String]) -> Option<DataSettings> {
         split,
         validation: None,
         seed: u64::from(seed),
+        scale_target: None,
     })
 }

@@ -394,6 +394,7 @@ fn summarise(step: &PlannedStep, prepared: &Prepared, card: data::card::DataCard
         target_names: encoding.target_names.clone(),
         classes: encoding.classes.clone(),
         scale: spec.settings.scale,
+        scale_target: spec.settings.target_scale(encoding.task),
         partitions: prepared
             .partitions
             .iter()

@@ -62,7 +62,11 @@ pub(super) fn predict(
             error,
         })?;
     let scaled = prepared.partitions[0].scaler.apply(x.view());
-    let raw = network.predict(scaled.view());
+    let mut raw = network.predict(scaled.view());
+    // Regression outputs back in the targets' units; class probabilities are never scaled.
+    prepared.partitions[0]
+        .target_scaler
+        .unapply_in_place(raw.view_mut());
     let encoding = &prepared.encoding;
 
     let (output_names, outputs, predicted): (Vec<String>, Vec<Vec<f64>>, Vec<String>) =
@@ -157,6 +161,7 @@ pub(super) fn export(
         features: encoding.feature_names.clone(),
         scaler: prepared.partitions[0].scaler.clone(),
         network: network.clone(),
+        target_scaler: prepared.partitions[0].target_scaler.clone(),
         targets: encoding.target_names.clone(),
         classes: encoding.classes.clone(),
     };

@@ -29,6 +29,8 @@ pub(crate) struct DataSummary {
     pub target_names: Vec<String>,
     pub classes: Option<Vec<String>>,
     pub scale: Scale,
+    /// How targets were scaled for training (`none` for classification).
+    pub scale_target: Scale,
     /// Training and held-out rows of each partition (one for a holdout, k for folds).
     pub partitions: Vec<PartitionSummary>,
     /// Column statistics over every row read, and the warnings.

@@ -3,10 +3,10 @@
 
 use std::time::Instant;
 
-use ndarray::Array2;
+use ndarray::{Array2, Axis};
 
 use crate::build::outcome::{DataSummary, ModelShape, RunResult, SetMetrics};
-use crate::data::{Prepared, Task};
+use crate::data::{Prepared, Scaler, Task};
 use crate::document::spec::{LossChoice, NetSpec, OutputChoice, TrainSpec, word};
 use crate::nn::{self, Activation, Loss, Network, TrainConfig};
 
@@ -132,10 +132,15 @@ pub(super) fn fit(
     train: &TrainSpec,
 ) -> RunResult {
     let part = &prepared.partitions[partition];
+    // Targets are scaled once for the run (a column or a few, unlike the inputs);
+    // with the identity scaling the data step's own matrix is read, unchanged.
+    let scaled_targets =
+        (!part.target_scaler.is_identity()).then(|| part.target_scaler.apply(prepared.y.view()));
+    let targets = scaled_targets.as_ref().unwrap_or(&prepared.y);
     // Rows are read from the shared matrix and scaled batch by batch, so no run
     // holds a copy of the data set.
     let subset = |rows| {
-        nn::Rows::all(prepared.x.view(), prepared.y.view())
+        nn::Rows::all(prepared.x.view(), targets.view())
             .pick(rows)
             .scaled(&part.scaler.offset, &part.scaler.divisor)
     };
@@ -169,13 +174,21 @@ pub(super) fn fit(
         |_, _| {},
     );
     let seconds = started.elapsed().as_secs_f64();
-    let measure = |rows| set_metrics(prepared.encoding.task, &fitted.network, rows, shape.loss);
-    let (train_metrics, _) = measure(&train_rows);
-    let (test_metrics, held_out_outputs) = match has_test.then(|| measure(&test_rows)) {
+    let scored = Scored {
+        task: prepared.encoding.task,
+        loss: shape.loss,
+        target_scaler: &part.target_scaler,
+        own_targets: &prepared.y,
+    };
+    let measure = |rows, picked| scored.metrics(&fitted.network, rows, picked);
+    let (train_metrics, _) = measure(&train_rows, &part.train_rows);
+    let held_out = has_test.then(|| measure(&test_rows, &part.test_rows));
+    let (test_metrics, held_out_outputs) = match held_out {
         Some((metrics, outputs)) => (Some(metrics), Some(outputs)),
         None => (None, None),
     };
-    let validation_metrics = has_validation.then(|| measure(&validation_rows).0);
+    let validation_metrics =
+        has_validation.then(|| measure(&validation_rows, &part.validation_rows).0);
     RunResult {
         fit: fitted,
         seconds,
@@ -221,26 +234,48 @@ pub(super) fn training_config(train: &TrainSpec, loss: Loss) -> TrainConfig {
     }
 }
 
-/// The network's metrics on `rows`, and its outputs there.
-fn set_metrics(
+/// How a run's outputs are scored: its task, its training loss, the scaling that
+/// maps its outputs back to the targets' own units, and those targets (all kept rows).
+struct Scored<'a> {
     task: Task,
-    network: &Network,
-    rows: &nn::Rows,
     loss: Loss,
-) -> (SetMetrics, Array2<f64>) {
-    let seen = nn::evaluate(network, rows, loss);
-    let (targets, outputs) = (seen.targets.view(), seen.outputs.view());
-    let metrics = match task {
-        Task::Classify => SetMetrics::Classification {
-            loss: seen.mean_loss,
-            metrics: nn::classification_metrics(targets, outputs),
-        },
-        Task::Regress => SetMetrics::Regression {
-            loss: seen.mean_loss,
-            metrics: nn::regression_metrics(targets, outputs),
-        },
-    };
-    (metrics, seen.outputs)
+    target_scaler: &'a Scaler,
+    own_targets: &'a Array2<f64>,
+}
+
+impl Scored<'_> {
+    /// The network's metrics on `rows` (whose targets are scaled as in training), and
+    /// its outputs there in the targets' units. The loss stays in the units training
+    /// saw, so it reads like the loss chart and `target_loss`; every other score
+    /// compares the outputs, mapped back, with the unscaled targets of rows `picked`
+    /// (the kept rows `rows` reads).
+    fn metrics(
+        &self,
+        network: &Network,
+        rows: &nn::Rows,
+        picked: &[usize],
+    ) -> (SetMetrics, Array2<f64>) {
+        let seen = nn::evaluate(network, rows, self.loss);
+        let (targets, outputs) = if self.target_scaler.is_identity() {
+            // The bits as they were before targets were scaled.
+            (seen.targets, seen.outputs)
+        } else {
+            let mut outputs = seen.outputs;
+            self.target_scaler.unapply_in_place(outputs.view_mut());
+            (self.own_targets.select(Axis(0), picked), outputs)
+        };
+        let metrics = match self.task {
+            Task::Classify => SetMetrics::Classification {
+                loss: seen.mean_loss,
+                metrics: nn::classification_metrics(targets.view(), outputs.view()),
+            },
+            Task::Regress => SetMetrics::Regression {
+                loss: seen.mean_loss,
+                metrics: nn::regression_metrics(targets.view(), outputs.view()),
+            },
+        };
+        (metrics, outputs)
+    }
 }
 
 #[cfg(test)]
@@ -260,6 +295,7 @@ mod tests {
             target_names: vec!["y".into()],
             classes,
             scale: crate::data::Scale::Standard,
+            scale_target: crate::data::Scale::None,
             partitions: Vec::new(),
             card: crate::data::card::DataCard::default(),
         }

@@ -112,6 +112,7 @@ mod tests {
             split: Split::Holdout(0.2),
             validation: None,
             seed: 1,
+            scale_target: None,
         }
     }
 

@@ -531,6 +531,7 @@ mod tests {
             split: super::super::Split::Holdout(0.2),
             validation: None,
             seed: 1,
+            scale_target: None,
         };
         let error = super::super::prepare(&table, &settings, super::super::DEFAULT_MAX_CATEGORIES)
             .unwrap_err()

@@ -195,6 +195,16 @@ pub enum DataError {
         column: String,
     },
 
+    /// `scale_target` is set but the target holds text, so the step classifies.
+    #[error(
+        "column `{column}` holds text, so this data step classifies and scale_target \
+         (which scales regression targets) does not apply; remove scale_target"
+    )]
+    ScaleTargetOnClasses {
+        /// The target column.
+        column: String,
+    },
+
     /// A used cell is empty or holds a missing-value marker and `missing: error` is set.
     #[error(
         "line {line}, column `{column}`: the value is missing ({}){}; \

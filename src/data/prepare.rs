@@ -14,7 +14,7 @@ use super::columns::{self, UsedColumns};
 use super::encode::{self, Encoding, is_missing, is_non_finite};
 use super::error::DataError;
 use super::scale::Scaler;
-use super::settings::{DataSettings, Missing};
+use super::settings::{DataSettings, Missing, Task};
 use super::split::{self, Strata};
 use super::table::Table;
 
@@ -30,6 +30,9 @@ pub struct Partition {
     pub test_rows: Vec<usize>,
     /// Fitted on `train_rows` only.
     pub scaler: Scaler,
+    /// Maps each target column onto the units the network trains in, fitted on
+    /// `train_rows` only; the identity for classification and `scale_target: none`.
+    pub target_scaler: Scaler,
 }
 
 /// The matrices of one partition, inputs scaled by its scaler, targets as in [`Prepared::y`].
@@ -134,6 +137,13 @@ pub fn prepare(
         _ => None,
     };
     let numeric = encoded.encoding.numeric_mask();
+    if settings.scale_target.is_some() && encoded.encoding.task == Task::Classify {
+        return Err(DataError::ScaleTargetOnClasses {
+            column: settings.target.join(", "),
+        });
+    }
+    let target_scale = settings.target_scale(encoded.encoding.task);
+    let every_target = vec![true; encoded.y.ncols()];
     let partitions = split::split_rows(
         settings.split,
         settings.validation,
@@ -149,8 +159,15 @@ pub fn prepare(
                 column: encoded.encoding.feature_names[feature].clone(),
             });
         }
+        let target_scaler = Scaler::fit(target_scale, encoded.y.view(), &s.train, &every_target);
+        if target_scaler.first_overflow().is_some() {
+            return Err(DataError::ScaleOverflow {
+                column: settings.target.join(", "),
+            });
+        }
         Ok(Partition {
             scaler,
+            target_scaler,
             train_rows: s.train,
             validation_rows: s.validation,
             test_rows: s.test,
@@ -223,7 +240,7 @@ fn kept_rows(table: &Table, used: &UsedColumns, missing: Missing) -> Result<Vec<
 mod tests {
     use super::*;
     use crate::data::DEFAULT_MAX_CATEGORIES;
-    use crate::data::settings::{Scale, Split, Task};
+    use crate::data::settings::{Scale, Split};
     use crate::data::table::read_table;
 
     fn settings(target: &str) -> DataSettings {
@@ -236,6 +253,7 @@ mod tests {
             split: Split::Holdout(0.0),
             validation: None,
             seed: 1,
+            scale_target: None,
         }
     }
 

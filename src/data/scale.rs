@@ -135,6 +135,31 @@ impl Scaler {
     }
 }
 
+impl Scaler {
+    /// Whether the map leaves every value as it is (offset 0, divisor 1).
+    pub(crate) fn is_identity(&self) -> bool {
+        self.offset.iter().all(|&o| o == 0.0) && self.divisor.iter().all(|&d| d == 1.0)
+    }
+
+    /// Map scaled values back to their own units, `x = x' · divisor + offset`,
+    /// overwriting them: how a network trained on scaled targets reports in the
+    /// targets' units.
+    ///
+    /// # Panics
+    /// If `x` does not have as many columns as the scaler was fitted on.
+    pub(crate) fn unapply_in_place(&self, mut x: ArrayViewMut2<f64>) {
+        assert_eq!(
+            x.ncols(),
+            self.offset.len(),
+            "the scaler was fitted on a different number of features"
+        );
+        for (j, mut column) in x.axis_iter_mut(Axis(1)).enumerate() {
+            let (o, d) = (self.offset[j], self.divisor[j]);
+            column.mapv_inplace(|v| v * d + o);
+        }
+    }
+}
+
 /// The sum of feature `j` over `rows`, as ndarray's `sum` gave it on that column of
 /// a copy of the rows (`sequential` is the sum in row order, starting from 0).
 ///
@@ -230,6 +255,16 @@ mod tests {
             let scaled = s.apply(x.view());
             assert!(scaled.iter().all(|v| v.abs() < 1e-15), "{kind:?}: {scaled}");
         }
+    }
+
+    #[test]
+    fn unapplying_a_standard_scaling_gives_back_the_values() {
+        let s = Scaler::fit(Scale::Standard, data().view(), &all(8), &[true, false]);
+        let mut back = s.apply(data().view());
+        s.unapply_in_place(back.view_mut());
+        assert!(back.iter().zip(data().iter()).all(|(a, b)| close(*a, *b)));
+        assert!(!s.is_identity());
+        assert!(Scaler::fit(Scale::None, data().view(), &all(8), &[true, true]).is_identity());
     }
 
     #[test]

@@ -70,6 +70,22 @@ pub struct DataSettings {
     pub validation: Option<f64>,
     /// Seed of the random shuffles that make the split.
     pub seed: u64,
+    /// Scaling of regression targets, fitted on training rows only; `None` means the
+    /// task's default ([`DataSettings::target_scale`]). Left out of the serialisation
+    /// when unset, like `validation`.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub scale_target: Option<Scale>,
+}
+
+impl DataSettings {
+    /// How targets are scaled for `task`: as written, else standard when regressing.
+    /// Class indicators are never scaled (the plan refuses `scale_target` there).
+    pub(crate) fn target_scale(&self, task: Task) -> Scale {
+        match task {
+            Task::Classify => Scale::None,
+            Task::Regress => self.scale_target.unwrap_or(Scale::Standard),
+        }
+    }
 }
 
 #[cfg(test)]

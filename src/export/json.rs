@@ -8,8 +8,9 @@ use crate::document::spec::word;
 use crate::nn::Activation;
 use crate::nn::activation::LEAKY_SLOPE;
 
-/// Version of the JSON format; bumped when its meaning changes. 2 added `provenance`.
-const FORMAT_VERSION: u32 = 2;
+/// Version of the JSON format; bumped when its meaning changes. 2 added `provenance`,
+/// 3 `target_scaling`.
+const FORMAT_VERSION: u32 = 3;
 
 /// The model as pretty-printed JSON.
 pub(super) fn encode(
@@ -18,6 +19,7 @@ pub(super) fn encode(
     document_hash: &str,
 ) -> String {
     let scaler = &model.scaler;
+    let target_scaler = &model.target_scaler;
     let mut document = json!({
         "format": "stet-model",
         "version": FORMAT_VERSION,
@@ -26,6 +28,11 @@ pub(super) fn encode(
         "features": model.features,
         "scaling": {"kind": word(&scaler.kind), "offset": scaler.offset, "divisor": scaler.divisor},
         "layers": layers(model),
+        "target_scaling": {
+            "kind": word(&target_scaler.kind),
+            "offset": target_scaler.offset,
+            "divisor": target_scaler.divisor,
+        },
         "targets": model.targets,
         "classes": model.classes,
         "output": model.output_meaning(),

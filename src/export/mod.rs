@@ -30,6 +30,9 @@ pub(crate) struct ExportedModel {
     /// Fitted on the training rows; maps each feature before the first layer.
     pub scaler: Scaler,
     pub network: Network,
+    /// Fitted on the training rows' targets; maps the network's outputs back to the
+    /// targets' units (`output · divisor + offset`). The identity for classification.
+    pub target_scaler: Scaler,
     pub targets: Vec<String>,
     /// Class labels in output order (classification only).
     pub classes: Option<Vec<String>>,

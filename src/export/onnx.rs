@@ -175,7 +175,8 @@ fn graph(model: &ExportedModel) -> GraphProto {
     let mut current = scaled;
     for (index, layer) in layers.iter().enumerate() {
         let number = index + 1;
-        let name = if number == layers.len() && !model.single_probability() {
+        let last_is_output = !model.single_probability() && model.target_scaler.is_identity();
+        let name = if number == layers.len() && last_is_output {
             output.to_string()
         } else {
             format!("{RESERVED_PREFIX}layer{number}")
@@ -184,6 +185,8 @@ fn graph(model: &ExportedModel) -> GraphProto {
     }
     if model.single_probability() {
         both_probabilities(&mut builder, &current, output);
+    } else if !model.target_scaler.is_identity() {
+        unscale_targets(&mut builder, model, &current, output);
     }
     let width = model.classes.as_ref().map_or(model.targets.len(), Vec::len);
     GraphProto {
@@ -225,6 +228,30 @@ fn scale(builder: &mut Builder, model: &ExportedModel, features: &str) -> String
         format!("{RESERVED_PREFIX}scaled"),
         None,
     )
+}
+
+/// `output · divisor + offset`, target by target: the network trained on scaled
+/// targets, and this gives its outputs in the targets' units, as stet reports them.
+fn unscale_targets(builder: &mut Builder, model: &ExportedModel, outputs: &str, name: &str) {
+    let width = model.targets.len();
+    let scaler = &model.target_scaler;
+    let divisor = builder.constant(
+        format!("{RESERVED_PREFIX}target_divisor"),
+        &[width],
+        scaler.divisor.clone(),
+    );
+    let offset = builder.constant(
+        format!("{RESERVED_PREFIX}target_offset"),
+        &[width],
+        scaler.offset.clone(),
+    );
+    let stretched = builder.node(
+        "Mul",
+        &[outputs, &divisor],
+        format!("{RESERVED_PREFIX}target_stretched"),
+        None,
+    );
+    builder.node("Add", &[&stretched, &offset], name.into(), None);
 }
 
 /// Two classes with one sigmoid output: `[1 − p, p]`, as stet's predictions list them.

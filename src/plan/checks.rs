@@ -33,6 +33,7 @@ pub(super) fn check(
             StepSpec::Data(data) => {
                 check_columns(step, data, &at, problems);
                 check_validation(step, data, limits, &at, problems);
+                check_scale_target(data, &at, problems);
             }
             StepSpec::Train(train) => check_train(&lookup, train, &at, problems),
             StepSpec::Sweep(sweep) => check_sweep(&lookup, sweep, &step.fits, &at, problems),
@@ -297,6 +298,23 @@ fn check_columns(
                 &header,
             ));
         }
+    }
+}
+
+/// `scale_target` on a classification task: class indicators are never scaled.
+fn check_scale_target(
+    data: &DataSpec,
+    at: &dyn Fn(&str) -> std::ops::Range<usize>,
+    problems: &mut Vec<Problem>,
+) {
+    if data.settings.scale_target.is_some() && settled_task(data) == Some(Task::Classify) {
+        problems.push(
+            Problem::new(
+                at("scale_target"),
+                "scale_target scales regression targets; this data step classifies",
+            )
+            .with_help("remove scale_target, or set `task: regress` for a numeric target"),
+        );
     }
 }
 

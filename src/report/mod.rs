@@ -24,6 +24,7 @@ use serde::Serialize;
 use crate::build::outcome::{Outcome, SweepResult};
 use crate::build::{BuildResult, Status};
 use crate::carry::Carried;
+use crate::data::Scale;
 use crate::document::{Document, Piece, StepSpec};
 use crate::plan::{Plan, Upstream, short_key};
 use compare_view::{CompareView, Compared, SweepView, compare_view, sweep_view};
@@ -338,17 +339,19 @@ fn step_view(input: &ReportInput<'_>, index: usize, yaml: &str, beside_html: Str
         Status::Reused => ("reused", "reused from the cache".to_string(), None),
         Status::Failed { error } => ("failed", "failed".to_string(), Some(error.clone())),
     };
-    let classes = match &step.spec {
+    let data_summary = match &step.spec {
         StepSpec::Train(train) => match input
             .plan
             .index_of(&train.data)
             .and_then(|d| input.results.steps[d].outcome.as_ref())
         {
-            Some(Outcome::Data(summary)) => summary.classes.clone(),
+            Some(Outcome::Data(summary)) => Some(summary),
             _ => None,
         },
         _ => None,
     };
+    let classes = data_summary.and_then(|summary| summary.classes.clone());
+    let scaled_targets = data_summary.is_some_and(|summary| summary.scale_target != Scale::None);
     StepView {
         id: step.id.clone(),
         kind: step.kind.word(),
@@ -364,7 +367,9 @@ fn step_view(input: &ReportInput<'_>, index: usize, yaml: &str, beside_html: Str
             _ => None,
         },
         train: match &record.outcome {
-            Some(Outcome::Train(result)) => Some(train_view(result, classes.as_deref())),
+            Some(Outcome::Train(result)) => {
+                Some(train_view(result, classes.as_deref(), scaled_targets))
+            }
             _ => None,
         },
         sweep: match &record.outcome {

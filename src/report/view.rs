@@ -209,7 +209,12 @@ pub(crate) struct ConfusionCell {
     pub diagonal: bool,
 }
 
-pub(crate) fn train_view(result: &FitResult, classes: Option<&[String]>) -> TrainView {
+/// `scaled_targets`: the run trained on scaled targets, so its loss is in those units.
+pub(crate) fn train_view(
+    result: &FitResult,
+    classes: Option<&[String]>,
+    scaled_targets: bool,
+) -> TrainView {
     let shape = &result.shape;
     let last = shape.sizes.len() - 1;
     let layers = shape
@@ -282,7 +287,7 @@ pub(crate) fn train_view(result: &FitResult, classes: Option<&[String]>) -> Trai
         stop,
         epochs,
         seconds: seconds(runs.iter().map(|run| run.seconds).sum()),
-        chart: loss_chart(result),
+        chart: loss_chart(result, scaled_targets),
         confusion: classes.and_then(|labels| confusion_view(result, labels)),
         hints: shape.hints.clone(),
         folds,
@@ -384,7 +389,8 @@ pub(crate) fn stop_counts(result: &FitResult) -> String {
 
 /// Training and validation loss per epoch. With folds, each fold is a thin line and the
 /// mean over folds a bold one, one legend entry each for training and validation.
-fn loss_chart(result: &FitResult) -> String {
+/// Trained on scaled targets, the axis says so: the loss is not in the targets' units.
+fn loss_chart(result: &FitResult, scaled_targets: bool) -> String {
     let runs = &result.runs;
     let mut series = Vec::new();
     let (train_label, validation_label) = if runs.len() > 1 {
@@ -425,7 +431,11 @@ fn loss_chart(result: &FitResult) -> String {
         series.push(loss_line(Some(validation_label), validation, true, weight));
     }
     series.retain(|line| !line.points.is_empty());
-    chart::line_chart(&series, &chart::Axes::loss(true))
+    let mut axes = chart::Axes::loss(true);
+    if scaled_targets {
+        axes.y_label = "loss (scaled targets)";
+    }
+    chart::line_chart(&series, &axes)
 }
 
 /// A line of a loss chart: training loss in the first colour, solid; validation in the

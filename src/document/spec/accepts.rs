@@ -48,7 +48,7 @@ fn accepts(setting: &str) -> Option<Accepts> {
         "precision" => Word(words::<Precision>()),
         "format" => Word(words::<ExportFormat>()),
         "task" => Word(words::<Task>()),
-        "scale" => Word(words::<Scale>()),
+        "scale" | "scale_target" => Word(words::<Scale>()),
         "missing" => Word(words::<Missing>()),
         "rank_by" => Word(words::<MetricName>()),
         "chart" => Word(words::<ChartChoice>()),

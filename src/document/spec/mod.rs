@@ -253,6 +253,8 @@ struct RawData {
     folds: Option<usize>,
     validation: Option<f64>,
     seed: Option<u64>,
+    #[schemars(with = "Option<Word<Scale>>")]
+    scale_target: Option<Scale>,
 }
 
 #[derive(Deserialize, JsonSchema)]
@@ -629,6 +631,7 @@ fn validate_data(raw: RawData, default_seed: u64, check: &mut Checker<'_>) -> Da
             split,
             validation: raw.validation,
             seed: raw.seed.unwrap_or(default_seed),
+            scale_target: raw.scale_target,
         },
     }
 }
