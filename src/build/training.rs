@@ -3,11 +3,10 @@
 
 use std::time::Instant;
 
-use ndarray::Array2;
-
 use crate::build::outcome::{DataSummary, ModelShape, RunResult, SetMetrics};
 use crate::data::{Prepared, Task};
 use crate::document::spec::{LossChoice, NetSpec, OutputChoice, TrainSpec, word};
+use crate::judge;
 use crate::nn::{self, Activation, Loss, Network, TrainConfig};
 
 /// Why a net and train step cannot fit the data they read (what only the data
@@ -172,10 +171,18 @@ pub(super) fn fit(
     let measure = |rows| set_metrics(prepared.encoding.task, &fitted.network, rows, shape.loss);
     let (train_metrics, _) = measure(&train_rows);
     let (test_metrics, held_out_outputs) = match has_test.then(|| measure(&test_rows)) {
-        Some((metrics, outputs)) => (Some(metrics), Some(outputs)),
+        Some((metrics, seen)) => (Some(metrics), Some(seen.outputs)),
         None => (None, None),
     };
-    let validation_metrics = has_validation.then(|| measure(&validation_rows).0);
+    let (validation_metrics, validation_errors) =
+        match has_validation.then(|| measure(&validation_rows)) {
+            Some((metrics, seen)) => {
+                let task = prepared.encoding.task;
+                let errors = judge::row_errors(task, seen.targets.view(), seen.outputs.view());
+                (Some(metrics), Some(errors))
+            }
+            None => (None, None),
+        };
     RunResult {
         fit: fitted,
         seconds,
@@ -183,6 +190,7 @@ pub(super) fn fit(
         validation: validation_metrics,
         test: test_metrics,
         held_out_outputs,
+        validation_errors,
     }
 }
 
@@ -221,13 +229,13 @@ pub(super) fn training_config(train: &TrainSpec, loss: Loss) -> TrainConfig {
     }
 }
 
-/// The network's metrics on `rows`, and its outputs there.
+/// The network's metrics on `rows`, and its outputs and the targets there.
 fn set_metrics(
     task: Task,
     network: &Network,
     rows: &nn::Rows,
     loss: Loss,
-) -> (SetMetrics, Array2<f64>) {
+) -> (SetMetrics, nn::train::Evaluation) {
     let seen = nn::evaluate(network, rows, loss);
     let (targets, outputs) = (seen.targets.view(), seen.outputs.view());
     let metrics = match task {
@@ -240,7 +248,7 @@ fn set_metrics(
             metrics: nn::regression_metrics(targets, outputs),
         },
     };
-    (metrics, seen.outputs)
+    (metrics, seen)
 }
 
 #[cfg(test)]

@@ -132,6 +132,31 @@ pub(crate) enum RowErrors {
     Squared(Vec<f64>),
 }
 
+impl RowErrors {
+    /// The rows of `parts` one after another; `None` when there are no parts or
+    /// they mix classification and regression.
+    pub(crate) fn joined(parts: &[&RowErrors]) -> Option<RowErrors> {
+        match parts.first()? {
+            RowErrors::Correct(_) => parts
+                .iter()
+                .map(|part| match part {
+                    RowErrors::Correct(rows) => Some(rows.iter().copied()),
+                    RowErrors::Squared(_) => None,
+                })
+                .collect::<Option<Vec<_>>>()
+                .map(|rows| RowErrors::Correct(rows.into_iter().flatten().collect())),
+            RowErrors::Squared(_) => parts
+                .iter()
+                .map(|part| match part {
+                    RowErrors::Squared(rows) => Some(rows.iter().copied()),
+                    RowErrors::Correct(_) => None,
+                })
+                .collect::<Option<Vec<_>>>()
+                .map(|rows| RowErrors::Squared(rows.into_iter().flatten().collect())),
+        }
+    }
+}
+
 /// A paired test of two models on the same held-out rows.
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
 #[serde(rename_all = "snake_case")]
@@ -303,7 +328,12 @@ fn class_of(row: ndarray::ArrayView1<f64>) -> usize {
     }
 }
 
-fn row_errors(task: Task, targets: ArrayView2<f64>, outputs: ArrayView2<f64>) -> RowErrors {
+/// How each row went: whether its class was right, or its squared error.
+pub(crate) fn row_errors(
+    task: Task,
+    targets: ArrayView2<f64>,
+    outputs: ArrayView2<f64>,
+) -> RowErrors {
     let rows = targets.rows().into_iter().zip(outputs.rows());
     match task {
         Task::Classify => {

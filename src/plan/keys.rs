@@ -12,7 +12,9 @@ use super::{Key, PlannedStep};
 ///    `validation`), and a data step's summary carries its data card (column
 ///    statistics and warnings), so version 2 entries no longer decode.
 /// 4: a run keeps its held-out outputs, for the paired tests of issue 14.
-pub(crate) const CACHE_FORMAT_VERSION: u32 = 4;
+/// 5: a run keeps how each validation row went, for the paired tests of a sweep
+///    ranked on validation rows.
+pub(crate) const CACHE_FORMAT_VERSION: u32 = 5;
 
 /// A run's key depends on what it computes, not on step names, so identical runs in
 /// different steps share one entry.
