@@ -16,7 +16,9 @@ use stats::Interval;
 
 /// Bumped when the baseline, the linear solver or the statistics change what they
 /// compute, so cached references and judgements miss.
-pub(crate) const JUDGE_VERSION: u32 = 1;
+///
+/// 2: a judgement keeps each fold's own intervals.
+pub(crate) const JUDGE_VERSION: u32 = 2;
 
 /// Held-out scores of one set of outputs.
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
@@ -247,6 +249,9 @@ pub(crate) struct Judgement {
     /// The network against the linear model (network first); `None` when too few rows.
     pub versus_linear: Option<Paired>,
     pub network_errors: RowErrors,
+    /// Per partition (fold), in order, the 95 % intervals of the network's scores on
+    /// that partition's held-out rows alone; `None` where they are too few.
+    pub part_intervals: Vec<Option<Vec<(String, Interval)>>>,
 }
 
 /// One partition's part of a judgement: its reference and the network's held-out
@@ -284,6 +289,13 @@ pub(crate) fn judge(task: Task, rows_key: &str, parts: &[Held<'_>], seed: u64) -
     let network_errors = row_errors(task, targets.view(), network.view());
     let linear_errors = row_errors(task, targets.view(), linear_outputs.view());
     let enough = enough_rows(task, targets.view());
+    let part_intervals = parts
+        .iter()
+        .map(|held| {
+            let targets = held.reference.targets.view();
+            enough_rows(task, targets).then(|| intervals(task, targets, held.outputs.view(), seed))
+        })
+        .collect();
     Judgement {
         rows_key: rows_key.to_string(),
         held_out_rows: targets.nrows(),
@@ -300,6 +312,7 @@ pub(crate) fn judge(task: Task, rows_key: &str, parts: &[Held<'_>], seed: u64) -
             .then(|| paired(&network_errors, &linear_errors, seed))
             .flatten(),
         network_errors,
+        part_intervals,
     }
 }
 
@@ -526,6 +539,7 @@ mod tests {
             intervals: None,
             versus_linear: None,
             network_errors: RowErrors::Correct(correct),
+            part_intervals: Vec::new(),
         }
     }
 

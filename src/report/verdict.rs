@@ -29,17 +29,23 @@ pub(crate) struct Verdict {
     pub tone: Tone,
 }
 
+/// The interval of the metric `name` as "low–high", or why there is none.
+pub(crate) fn interval_words(
+    intervals: Option<&[(String, crate::judge::stats::Interval)]>,
+    name: &str,
+) -> String {
+    intervals
+        .and_then(|all| all.iter().find(|(n, _)| n == name))
+        .map_or(NOT_ENOUGH_ROWS.to_string(), |(_, i)| {
+            format!("{}–{}", score(i.low), score(i.high))
+        })
+}
+
 pub(crate) fn verdict(judgement: &Judgement) -> Verdict {
     let (name, value) = judgement.network.headline();
     let baseline = judgement.baseline.headline().1;
     let linear = judgement.linear.headline().1;
-    let interval = judgement
-        .intervals
-        .as_ref()
-        .and_then(|all| all.iter().find(|(n, _)| n == name))
-        .map_or(format!("({NOT_ENOUGH_ROWS})"), |(_, i)| {
-            format!("({}–{})", score(i.low), score(i.high))
-        });
+    let interval = format!("({})", interval_words(judgement.intervals.as_deref(), name));
     let headline = match judgement.network {
         Scores::Classification { .. } => "held-out accuracy",
         Scores::Regression { .. } => "held-out R²",
