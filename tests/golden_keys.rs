@@ -47,34 +47,38 @@ seed: 2
 // Cache format 4 (issue 14, the verdicts): a run's entry keeps its held-out outputs
 // for the paired tests.
 
+// Cache format 5 (issue 15, `scale_target`): a prepared partition carries its target
+// scaler. Format 6 (issue 14, judging on validation rows): a run's entry keeps how each
+// validation row went, so a sweep ranked on them marks "within noise of the best".
+
 /// The step keys of `DOC`, in document order.
 const STEP_KEYS: [(&str, &str); 3] = [
     (
         "rows",
-        "560a20d43c05809488deabf9811912c9ef763f1eb575391f068321f552546d2e",
+        "2ae5fcde6ff3c414e944860153a0e695f01786300db735d81826444874a48d7e",
     ),
     (
         "small",
-        "a62b5b65708c829422304cb90840e8c0160c710825991ff691e34424a34d6f13",
+        "1b920d328b3dc17118565c4d19e32aebadd296e0d6c976f7db83a2f439fb7411",
     ),
     (
         "fit",
-        "106d925f31e7ae5de0e36114341b922fdf01b560a83fe73055bcaeda025c7dfe",
+        "750bd57f4546123e0e57048ce453f733e840d583dd6bc8c6b680c99c0932ea79",
     ),
 ];
 
 /// The run keys of the train step `fit` (one per fold).
 const RUN_KEYS: [&str; 2] = [
-    "e24e05456b641780d5fe8c23722a62531953e02abe0e42f5c4b31f95c5be77db",
-    "f644e4449448d7c34dc9d919d96c32fa508e5f36f58525f12c3be002dd43d8aa",
+    "8d43d3441524f9ef8c06aa0cc20629b1557e4bfa565b75a88f24c7df27550306",
+    "3c20d14694428af3a860a70454af67d48b0b48f549319f56ee6ee12189761223",
 ];
 
 /// The whole entry file of the net step `small` (a marker: header, no payload).
 const MARKER_ENTRY: &str =
-    "7374657400656e32eeb47ab760f43a6d764e0b16d609fe46ecc54b716539bab777ba22a25b76eb45";
+    "7374657400656e32ab91b0649577603bf2b722dce444fbe565a69d8a005a4f566c4d357e6cee2e23";
 
 /// The BLAKE3 of the entry file holding the data step's summary (too long to pin whole).
-const DATA_ENTRY_HASH: &str = "59524b49a5ebd8187282822c4ed12e1cc8c671f9af9e39142665b90b44576669";
+const DATA_ENTRY_HASH: &str = "f29b6454f2d7a0243f8fddcefa1114dc1707f282704c730961b54eef240dc47f";
 
 fn workspace() -> (Workspace, std::path::PathBuf) {
     let ws = Workspace::new();

@@ -277,6 +277,41 @@ fn a_sweep_with_validation_ranks_the_same_whatever_the_held_out_targets_are() {
     }
 }
 
+/// Each sweep run's `within_noise_of_best` mark, in grid order.
+fn noise_marks(sweep: &Value) -> Vec<Value> {
+    sweep["runs"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|run| run["within_noise_of_best"].clone())
+        .collect()
+}
+
+#[test]
+fn a_sweep_ranked_on_validation_rows_marks_within_noise_from_those_rows_alone() {
+    let ws = Workspace::new();
+    let doc = ws.write("doc.md", &greenhouse_doc(Some(0.25), RATES));
+    let before = ws.build_ok(&doc, &["--no-cache"]);
+    let marks = noise_marks(step(&before, "rates"));
+    // Every combination but the best is tested against it.
+    assert_eq!(
+        marks.iter().filter(|mark| mark.is_boolean()).count(),
+        marks.len() - 1,
+        "{marks:?}"
+    );
+    assert!(html_of(&doc).contains(
+        "within noise of the best (≈): their paired test against it on the validation rows"
+    ));
+
+    let csv = ws.path("demo-data/greenhouse.csv");
+    scramble_targets(
+        &csv,
+        &held_out_lines(&csv, &greenhouse_settings(Some(0.25))),
+    );
+    let after = ws.build_ok(&doc, &["--no-cache"]);
+    assert_eq!(noise_marks(step(&after, "rates")), marks);
+}
+
 #[test]
 fn a_sweep_without_validation_says_its_best_was_chosen_on_the_held_out_rows() {
     let ws = Workspace::new();

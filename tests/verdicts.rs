@@ -283,3 +283,40 @@ fn entries_named(cache: &std::path::Path, suffix: &str) -> usize {
     }
     count
 }
+
+/// The Wilson score interval at 95 % (Wilson, 1927): the reference formula, with z the
+/// normal 0.975 quantile.
+fn wilson(correct: f64, rows: f64) -> [f64; 2] {
+    let z = 1.959_963_984_540_054_f64;
+    let p = correct / rows;
+    let centre = (p + z * z / (2.0 * rows)) / (1.0 + z * z / rows);
+    let half =
+        z / (1.0 + z * z / rows) * (p * (1.0 - p) / rows + z * z / (4.0 * rows * rows)).sqrt();
+    [centre - half, centre + half]
+}
+
+#[test]
+fn each_fold_gets_the_interval_of_its_own_held_out_rows() {
+    let ws = Workspace::new();
+    let doc = ws.write("folds.md", &IRIS.replace("holdout: 0.3", "folds: 3"));
+    let summary = ws.build_ok(&doc, &[]);
+    let fit = step(&summary, "fit");
+    let folds = fit["folds"].as_array().unwrap();
+    assert_eq!(folds.len(), 3);
+    for fold in folds {
+        // Three stratified folds of Iris's 150 rows (50 per species) hold out 50 each.
+        let rows = 50.0;
+        let accuracy = fold["metrics"]["test"]["accuracy"].as_f64().unwrap();
+        let expected = wilson((accuracy * rows).round(), rows);
+        let got = interval(fold, "accuracy");
+        for (a, b) in got.iter().zip(expected) {
+            assert!(
+                (a - b).abs() < 1e-12,
+                "{fold}: {got:?} against {expected:?}"
+            );
+        }
+        assert!(fold["interval"]["log_loss"].is_array(), "{fold}");
+    }
+    let html = report(&ws, "folds.html");
+    assert!(html.contains("<th>held-out accuracy 95 % interval</th>"));
+}

@@ -9,11 +9,11 @@ use std::sync::Arc;
 use ndarray::Array2;
 use rayon::prelude::*;
 
-use super::outcome::{RunResult, SweepResult};
+use super::outcome::{FitResult, RowSet, RunResult, SweepResult};
 use super::{StepError, prepared_for};
 use crate::cache::{Cache, EntryKind};
 use crate::data::{Prepared, Task};
-use crate::judge::{self, Held, Judgement, Reference};
+use crate::judge::{self, Held, Judgement, Reference, RowErrors};
 use crate::plan::keys::reference_key;
 use crate::plan::{FitPlan, Key, Plan, PlannedStep};
 
@@ -78,12 +78,21 @@ pub(super) fn judge_fits(
 
 /// The held-out outputs of the runs a judgement reads; `None` without held-out rows.
 fn held_out<'a>(fit: &FitPlan, runs: &'a [Option<RunResult>]) -> Option<Vec<&'a Array2<f64>>> {
+    judged_of(fit, runs)
+        .into_iter()
+        .map(|run| run.as_ref()?.held_out_outputs.as_ref())
+        .collect()
+}
+
+/// The entries of `runs` (in the order of `fit.runs`) that a judgement reads: the
+/// first seed on each partition.
+fn judged_of<'a, T>(fit: &FitPlan, runs: &'a [T]) -> Vec<&'a T> {
     let judged = fit.judged_runs();
     fit.runs
         .iter()
         .zip(runs)
         .filter(|(plan, _)| judged.iter().any(|j| std::ptr::eq(*j, *plan)))
-        .map(|(_, run)| run.as_ref()?.held_out_outputs.as_ref())
+        .map(|(_, run)| run)
         .collect()
 }
 
@@ -105,23 +114,41 @@ fn load_or_fit(
 }
 
 /// Per fit of a sweep, whether its paired test against the best is not significant
-/// on the held-out rows it is ranked on.
-pub(super) fn within_noise_of_best(sweep: &SweepResult, seed: u64) -> Vec<Option<bool>> {
-    let best = sweep.ranking[0];
-    let best_errors = sweep.fits[best]
-        .judgement
-        .as_ref()
-        .map(|judgement| &judgement.network_errors);
-    sweep
+/// on the rows it is ranked on (validation or held-out rows).
+pub(super) fn within_noise_of_best(sweep: &SweepResult, step: &PlannedStep) -> Vec<Option<bool>> {
+    let errors: Vec<Option<RowErrors>> = sweep
         .fits
         .iter()
+        .zip(&step.fits)
+        .map(|(fit, plan)| ranked_row_errors(fit, plan, sweep.rank_rows))
+        .collect();
+    let best = sweep.ranking[0];
+    let seed = step.fits[0].train.seed;
+    errors
+        .iter()
         .enumerate()
-        .map(|(i, fit)| {
-            if i == best || sweep.rank_rows != super::outcome::RowSet::Test {
+        .map(|(i, fit_errors)| {
+            if i == best {
                 return None;
             }
-            let errors = &fit.judgement.as_ref()?.network_errors;
-            judge::paired(best_errors?, errors, seed).map(|test| !test.significant())
+            judge::paired(errors[best].as_ref()?, fit_errors.as_ref()?, seed)
+                .map(|test| !test.significant())
         })
         .collect()
+}
+
+/// How each of a fit's ranking rows went (its judged runs' rows, in partition order);
+/// `None` when it has none, or when it is ranked on its training rows.
+fn ranked_row_errors(fit: &FitResult, plan: &FitPlan, rows: RowSet) -> Option<RowErrors> {
+    match rows {
+        RowSet::Test => Some(fit.judgement.as_ref()?.network_errors.clone()),
+        RowSet::Validation => {
+            let parts: Option<Vec<&RowErrors>> = judged_of(plan, &fit.runs)
+                .into_iter()
+                .map(|run| run.validation_errors.as_ref())
+                .collect();
+            RowErrors::joined(&parts?)
+        }
+        RowSet::Train => None,
+    }
 }

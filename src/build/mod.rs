@@ -690,8 +690,7 @@ fn assemble(
                 ranking,
                 within_noise_of_best: Vec::new(),
             };
-            sweep_result.within_noise_of_best =
-                judging::within_noise_of_best(&sweep_result, step.fits[0].train.seed);
+            sweep_result.within_noise_of_best = judging::within_noise_of_best(&sweep_result, step);
             Outcome::Sweep(sweep_result)
         }
         _ => Outcome::Train(

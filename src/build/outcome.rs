@@ -11,7 +11,7 @@ use crate::data::{InputColumn, Scale, Task};
 use crate::document::spec::MetricName;
 use crate::document::spec::sweep::Varied;
 use crate::export::ExportResult;
-use crate::judge::Judgement;
+use crate::judge::{Judgement, RowErrors};
 use crate::nn::{Activation, ClassificationMetrics, Loss, RegressionMetrics, TrainOutcome};
 
 /// Wall-clock seconds.
@@ -106,6 +106,9 @@ pub(crate) struct RunResult {
     /// The network's outputs on the held-out rows, in their order, for the paired
     /// tests (`judge`); `None` without held-out rows.
     pub held_out_outputs: Option<Array2<f64>>,
+    /// How each validation row went, in their order, for the paired tests of a
+    /// sweep ranked on them; `None` without validation rows.
+    pub validation_errors: Option<RowErrors>,
 }
 
 impl RunResult {
@@ -373,6 +376,7 @@ mod tests {
                 validation: None,
                 test: Some(metrics),
                 held_out_outputs: None,
+                validation_errors: None,
             }],
             judgement: None,
         }

@@ -8,6 +8,7 @@ use ndarray::{Array2, Axis};
 use crate::build::outcome::{DataSummary, ModelShape, RunResult, SetMetrics};
 use crate::data::{Prepared, Scaler, Task};
 use crate::document::spec::{LossChoice, NetSpec, OutputChoice, TrainSpec, word};
+use crate::judge;
 use crate::nn::{self, Activation, Loss, Network, TrainConfig};
 
 /// Why a net and train step cannot fit the data they read (what only the data
@@ -181,14 +182,21 @@ pub(super) fn fit(
         own_targets: &prepared.y,
     };
     let measure = |rows, picked| scored.metrics(&fitted.network, rows, picked);
-    let (train_metrics, _) = measure(&train_rows, &part.train_rows);
+    let (train_metrics, ..) = measure(&train_rows, &part.train_rows);
     let held_out = has_test.then(|| measure(&test_rows, &part.test_rows));
     let (test_metrics, held_out_outputs) = match held_out {
-        Some((metrics, outputs)) => (Some(metrics), Some(outputs)),
+        Some((metrics, _, outputs)) => (Some(metrics), Some(outputs)),
         None => (None, None),
     };
-    let validation_metrics =
-        has_validation.then(|| measure(&validation_rows, &part.validation_rows).0);
+    let validation = has_validation.then(|| measure(&validation_rows, &part.validation_rows));
+    let (validation_metrics, validation_errors) = match validation {
+        Some((metrics, targets, outputs)) => {
+            let task = prepared.encoding.task;
+            let errors = judge::row_errors(task, targets.view(), outputs.view());
+            (Some(metrics), Some(errors))
+        }
+        None => (None, None),
+    };
     RunResult {
         fit: fitted,
         seconds,
@@ -196,6 +204,7 @@ pub(super) fn fit(
         validation: validation_metrics,
         test: test_metrics,
         held_out_outputs,
+        validation_errors,
     }
 }
 
@@ -245,8 +254,8 @@ struct Scored<'a> {
 
 impl Scored<'_> {
     /// The network's metrics on `rows` (whose targets are scaled as in training), and
-    /// its outputs there in the targets' units. The loss stays in the units training
-    /// saw, so it reads like the loss chart and `target_loss`; every other score
+    /// the targets and its outputs there in the targets' units. The loss stays in the
+    /// units training saw, so it reads like the loss chart and `target_loss`; every other score
     /// compares the outputs, mapped back, with the unscaled targets of rows `picked`
     /// (the kept rows `rows` reads).
     fn metrics(
@@ -254,7 +263,7 @@ impl Scored<'_> {
         network: &Network,
         rows: &nn::Rows,
         picked: &[usize],
-    ) -> (SetMetrics, Array2<f64>) {
+    ) -> (SetMetrics, Array2<f64>, Array2<f64>) {
         let seen = nn::evaluate(network, rows, self.loss);
         let (targets, outputs) = if self.target_scaler.is_identity() {
             // The bits as they were before targets were scaled.
@@ -274,7 +283,7 @@ impl Scored<'_> {
                 metrics: nn::regression_metrics(targets.view(), outputs.view()),
             },
         };
-        (metrics, outputs)
+        (metrics, targets, outputs)
     }
 }
 

@@ -16,7 +16,9 @@ use stats::Interval;
 
 /// Bumped when the baseline, the linear solver or the statistics change what they
 /// compute, so cached references and judgements miss.
-pub(crate) const JUDGE_VERSION: u32 = 1;
+///
+/// 2: a judgement keeps each fold's own intervals.
+pub(crate) const JUDGE_VERSION: u32 = 2;
 
 /// Held-out scores of one set of outputs.
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
@@ -132,6 +134,31 @@ pub(crate) enum RowErrors {
     Squared(Vec<f64>),
 }
 
+impl RowErrors {
+    /// The rows of `parts` one after another; `None` when there are no parts or
+    /// they mix classification and regression.
+    pub(crate) fn joined(parts: &[&RowErrors]) -> Option<RowErrors> {
+        match parts.first()? {
+            RowErrors::Correct(_) => parts
+                .iter()
+                .map(|part| match part {
+                    RowErrors::Correct(rows) => Some(rows.iter().copied()),
+                    RowErrors::Squared(_) => None,
+                })
+                .collect::<Option<Vec<_>>>()
+                .map(|rows| RowErrors::Correct(rows.into_iter().flatten().collect())),
+            RowErrors::Squared(_) => parts
+                .iter()
+                .map(|part| match part {
+                    RowErrors::Squared(rows) => Some(rows.iter().copied()),
+                    RowErrors::Correct(_) => None,
+                })
+                .collect::<Option<Vec<_>>>()
+                .map(|rows| RowErrors::Squared(rows.into_iter().flatten().collect())),
+        }
+    }
+}
+
 /// A paired test of two models on the same held-out rows.
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
 #[serde(rename_all = "snake_case")]
@@ -222,6 +249,9 @@ pub(crate) struct Judgement {
     /// The network against the linear model (network first); `None` when too few rows.
     pub versus_linear: Option<Paired>,
     pub network_errors: RowErrors,
+    /// Per partition (fold), in order, the 95 % intervals of the network's scores on
+    /// that partition's held-out rows alone; `None` where they are too few.
+    pub part_intervals: Vec<Option<Vec<(String, Interval)>>>,
 }
 
 /// One partition's part of a judgement: its reference and the network's held-out
@@ -259,6 +289,13 @@ pub(crate) fn judge(task: Task, rows_key: &str, parts: &[Held<'_>], seed: u64) -
     let network_errors = row_errors(task, targets.view(), network.view());
     let linear_errors = row_errors(task, targets.view(), linear_outputs.view());
     let enough = enough_rows(task, targets.view());
+    let part_intervals = parts
+        .iter()
+        .map(|held| {
+            let targets = held.reference.targets.view();
+            enough_rows(task, targets).then(|| intervals(task, targets, held.outputs.view(), seed))
+        })
+        .collect();
     Judgement {
         rows_key: rows_key.to_string(),
         held_out_rows: targets.nrows(),
@@ -275,6 +312,7 @@ pub(crate) fn judge(task: Task, rows_key: &str, parts: &[Held<'_>], seed: u64) -
             .then(|| paired(&network_errors, &linear_errors, seed))
             .flatten(),
         network_errors,
+        part_intervals,
     }
 }
 
@@ -303,7 +341,12 @@ fn class_of(row: ndarray::ArrayView1<f64>) -> usize {
     }
 }
 
-fn row_errors(task: Task, targets: ArrayView2<f64>, outputs: ArrayView2<f64>) -> RowErrors {
+/// How each row went: whether its class was right, or its squared error.
+pub(crate) fn row_errors(
+    task: Task,
+    targets: ArrayView2<f64>,
+    outputs: ArrayView2<f64>,
+) -> RowErrors {
     let rows = targets.rows().into_iter().zip(outputs.rows());
     match task {
         Task::Classify => {
@@ -496,6 +539,7 @@ mod tests {
             intervals: None,
             versus_linear: None,
             network_errors: RowErrors::Correct(correct),
+            part_intervals: Vec::new(),
         }
     }
 

@@ -14,7 +14,9 @@ use super::{Key, PlannedStep};
 /// 4: a run keeps its held-out outputs, for the paired tests of issue 14.
 /// 5: a prepared partition carries its target scaler (`scale_target`), and a
 ///    regression run trains on scaled targets by default.
-pub(crate) const CACHE_FORMAT_VERSION: u32 = 5;
+/// 6: a run keeps how each validation row went, for the paired tests of a sweep
+///    ranked on validation rows.
+pub(crate) const CACHE_FORMAT_VERSION: u32 = 6;
 
 /// A run's key depends on what it computes, not on step names, so identical runs in
 /// different steps share one entry.

@@ -476,7 +476,7 @@ fn versus_linear_cell(judgement: &crate::judge::Judgement) -> String {
 /// The sweep card's line on the combinations within noise of the best.
 fn noise_note(result: &SweepResult) -> String {
     let others = result.fits.len().saturating_sub(1);
-    if others == 0 || result.rank_rows != RowSet::Test {
+    if others == 0 || result.rank_rows == RowSet::Train {
         return String::new();
     }
     let tested = result.within_noise_of_best.iter().flatten().count();
@@ -488,8 +488,12 @@ fn noise_note(result: &SweepResult) -> String {
         .iter()
         .filter(|w| **w == Some(true))
         .count();
+    let rows = match result.rank_rows {
+        RowSet::Validation => "validation rows",
+        _ => "held-out rows",
+    };
     format!(
-        "{within} of the other {others} combinations are within noise of the best (≈): their paired test against it on the held-out rows is not significant at 0.05, so the ranking between them is not settled."
+        "{within} of the other {others} combinations are within noise of the best (≈): their paired test against it on the {rows} is not significant at 0.05, so the ranking between them is not settled."
     )
 }
 

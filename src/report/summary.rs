@@ -182,7 +182,16 @@ fn train_fields(result: &FitResult, object: &mut Map<String, Value>) {
         object.insert("stop".into(), stop(run));
     } else {
         object.insert("sd".into(), Value::Object(sd));
-        let folds = result.runs.iter().map(fold).collect();
+        let part_intervals = result
+            .judgement
+            .as_ref()
+            .map_or(&[][..], |judged| &judged.part_intervals[..]);
+        let folds = result
+            .runs
+            .iter()
+            .enumerate()
+            .map(|(i, run)| fold(run, part_intervals.get(i)))
+            .collect();
         object.insert("folds".into(), Value::Array(folds));
     }
     if let Some(judgement) = &result.judgement {
@@ -201,20 +210,23 @@ fn judgement_fields(judgement: &Judgement, object: &mut Map<String, Value>) {
         "linear".into(),
         json!({"train": scores(&judgement.linear_train), "test": scores(&judgement.linear)}),
     );
-    let interval = judgement.intervals.as_ref().map(|all| {
-        let mut pairs = Map::new();
-        pairs.insert("level".into(), json!(stats::LEVEL));
-        for (name, interval) in all {
-            pairs.insert(name.clone(), pair(interval));
-        }
-        Value::Object(pairs)
-    });
+    let interval = judgement.intervals.as_deref().map(interval_object);
     object.insert("interval".into(), json!(interval));
     object.insert(
         "versus_linear".into(),
         judgement.versus_linear.as_ref().map_or(Value::Null, paired),
     );
     object.insert("verdict".into(), json!(word(&verdict(judgement).tone)));
+}
+
+/// Per metric a `[low, high]` pair, and the `level`.
+fn interval_object(all: &[(String, Interval)]) -> Value {
+    let mut pairs = Map::new();
+    pairs.insert("level".into(), json!(stats::LEVEL));
+    for (name, interval) in all {
+        pairs.insert(name.clone(), pair(interval));
+    }
+    Value::Object(pairs)
 }
 
 fn scores(scores: &Scores) -> Value {
@@ -313,7 +325,9 @@ fn stop(run: &RunResult) -> Value {
     json!({"reason": stop_code(run.fit.stop), "epoch": run.fit.epochs_run})
 }
 
-fn fold(run: &RunResult) -> Value {
+/// A fold's run; `intervals` are those of its held-out rows when the judgement read
+/// it (`None` for a repeat's later seeds, `Some(None)` when its rows are too few).
+fn fold(run: &RunResult, intervals: Option<&Option<Vec<(String, Interval)>>>) -> Value {
     let mut metrics = Map::new();
     metrics.insert("train".into(), set(&run.train));
     if let Some(validation) = &run.validation {
@@ -322,7 +336,10 @@ fn fold(run: &RunResult) -> Value {
     if let Some(test) = &run.test {
         metrics.insert("test".into(), set(test));
     }
-    json!({"seconds": run.seconds, "metrics": metrics, "stop": stop(run)})
+    let interval = intervals
+        .and_then(|part| part.as_deref())
+        .map(interval_object);
+    json!({"seconds": run.seconds, "metrics": metrics, "stop": stop(run), "interval": interval})
 }
 
 fn set(metrics: &SetMetrics) -> Value {

@@ -5,6 +5,7 @@
 use serde::Serialize;
 
 use super::format::number;
+use crate::judge::stats::Interval;
 use crate::judge::{BaselineRule, Judgement, Paired, Scores};
 
 /// Shown instead of an interval or a test the held-out rows cannot carry.
@@ -29,14 +30,23 @@ pub(crate) struct Verdict {
     pub tone: Tone,
 }
 
+/// The interval of the metric `name` as "low–high", or why there is none.
+pub(crate) fn interval_words(intervals: Option<&[(String, Interval)]>, name: &str) -> String {
+    interval_text(intervals, name).unwrap_or_else(|| NOT_ENOUGH_ROWS.to_string())
+}
+
+fn interval_text(intervals: Option<&[(String, Interval)]>, name: &str) -> Option<String> {
+    intervals?
+        .iter()
+        .find(|(n, _)| n == name)
+        .map(|(_, i)| format!("{}–{}", score(i.low), score(i.high)))
+}
+
 pub(crate) fn verdict(judgement: &Judgement) -> Verdict {
-    let value = judgement.network.headline().1;
+    let (name, value) = judgement.network.headline();
     let baseline = judgement.baseline.headline().1;
     let linear = judgement.linear.headline().1;
-    let interval = headline_interval(judgement)
-        .map_or(format!("({NOT_ENOUGH_ROWS})"), |interval| {
-            format!("({interval})")
-        });
+    let interval = format!("({})", interval_words(judgement.intervals.as_deref(), name));
     let headline = match judgement.network {
         Scores::Classification { .. } => "held-out accuracy",
         Scores::Regression { .. } => "held-out R²",
@@ -78,13 +88,10 @@ pub(crate) fn short_verdict(judgement: &Judgement) -> Verdict {
 /// The 95 % interval of the headline score, as `low–high`; `None` when the held-out
 /// rows are too few.
 pub(crate) fn headline_interval(judgement: &Judgement) -> Option<String> {
-    let (name, _) = judgement.network.headline();
-    judgement
-        .intervals
-        .as_ref()?
-        .iter()
-        .find(|(n, _)| n == name)
-        .map(|(_, i)| format!("{}–{}", score(i.low), score(i.high)))
+    interval_text(
+        judgement.intervals.as_deref(),
+        judgement.network.headline().0,
+    )
 }
 
 fn tone(judgement: &Judgement) -> Tone {

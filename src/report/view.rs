@@ -6,7 +6,7 @@ use serde::Serialize;
 use super::card_view::{CardView, card_view};
 use super::chart::{self, Dash, Series, Weight};
 use super::format::{mean_sd, number, seconds, stop_reason};
-use super::verdict::{NOT_ENOUGH_ROWS, Verdict, verdict};
+use super::verdict::{NOT_ENOUGH_ROWS, Verdict, interval_words, verdict};
 use crate::build::outcome::{DataSummary, FitResult, MetricStat, RowSet, SetMetrics};
 use crate::document::spec::word;
 use crate::judge::{BaselineRule, Judgement};
@@ -100,6 +100,8 @@ pub(crate) struct TrainView {
     pub confusion: Option<ConfusionView>,
     pub hints: Vec<String>,
     pub folds: Vec<FoldRow>,
+    /// The heading of the fold table's interval column; empty without a judgement.
+    pub fold_interval: String,
     pub verdict: Option<Verdict>,
     pub judged: Option<JudgedView>,
     /// Which rows the chart's second line (and patience) measured: "validation" or "held-out".
@@ -186,6 +188,9 @@ pub(crate) struct FoldRow {
     pub stop: String,
     pub epochs: usize,
     pub values: Vec<String>,
+    /// The 95 % interval of the headline metric on this fold's held-out rows;
+    /// empty for a run the judgement does not read (a repeat's later seeds).
+    pub interval: String,
 }
 
 #[derive(Serialize)]
@@ -265,7 +270,7 @@ pub(crate) fn train_view(
     } else {
         runs.iter()
             .enumerate()
-            .map(|(i, run)| fold_row(i, run, hide))
+            .map(|(i, run)| fold_row(i, run, hide, result.judgement.as_deref()))
             .collect()
     };
     let stop = stop_counts(result);
@@ -291,6 +296,10 @@ pub(crate) fn train_view(
         confusion: classes.and_then(|labels| confusion_view(result, labels)),
         hints: shape.hints.clone(),
         folds,
+        fold_interval: result
+            .judgement
+            .as_deref()
+            .map_or(String::new(), fold_interval_heading),
         verdict: result.judgement.as_deref().map(verdict),
         judged: result.judgement.as_deref().map(judged_view),
         watched_rows: match result.choice_rows() {
@@ -351,10 +360,32 @@ pub(crate) fn shown_stats(stats: Vec<MetricStat>, hide_log_loss: bool) -> Vec<Me
         .collect()
 }
 
+/// The fold table's interval column heading, naming the headline metric.
+fn fold_interval_heading(judgement: &Judgement) -> String {
+    let metric = match judgement.network {
+        crate::judge::Scores::Classification { .. } => "accuracy",
+        crate::judge::Scores::Regression { .. } => "R²",
+    };
+    format!("held-out {metric} 95 % interval")
+}
+
 /// A fold's row in the per-fold table: its held-out metrics.
-fn fold_row(index: usize, run: &crate::build::outcome::RunResult, hide_log_loss: bool) -> FoldRow {
+fn fold_row(
+    index: usize,
+    run: &crate::build::outcome::RunResult,
+    hide_log_loss: bool,
+    judgement: Option<&Judgement>,
+) -> FoldRow {
     let set = run.test.as_ref().unwrap_or(&run.train);
+    let interval = judgement
+        .and_then(|judged| {
+            let name = judged.network.headline().0;
+            let part = judged.part_intervals.get(index)?;
+            Some(interval_words(part.as_deref(), name))
+        })
+        .unwrap_or_default();
     FoldRow {
+        interval,
         fold: index + 1,
         stop: stop_reason(run.fit.stop).to_string(),
         epochs: run.fit.epochs_run,
