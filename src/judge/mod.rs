@@ -4,6 +4,7 @@
 //! a paired test against the linear model (`stats`); the report words the verdict
 //! (`report/verdict.rs`). No I/O: the build caches what is computed here.
 
+pub mod diagnosis;
 pub mod linear;
 pub mod stats;
 
@@ -16,7 +17,7 @@ use stats::Interval;
 
 /// Bumped when the baseline, the linear solver or the statistics change what they
 /// compute, so cached references and judgements miss.
-pub(crate) const JUDGE_VERSION: u32 = 1;
+pub(crate) const JUDGE_VERSION: u32 = 2;
 
 /// Held-out scores of one set of outputs.
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
@@ -91,6 +92,8 @@ impl Scores {
 pub(crate) struct Reference {
     /// The held-out targets, in the partition's held-out row order.
     pub targets: Array2<f64>,
+    /// The file line of each held-out row, in that order.
+    pub lines: Vec<u64>,
     /// The baseline's output for every row: training class frequencies, or the
     /// training mean.
     pub baseline: Array1<f64>,
@@ -118,6 +121,11 @@ pub(crate) fn reference(prepared: &Prepared, partition: usize) -> Reference {
         linear_train: Scores::of(task, split.y_train.view(), train_outputs.view()),
         linear_outputs: model.predict(split.x_test.view()),
         targets: split.y_test,
+        lines: prepared.partitions[partition]
+            .test_rows
+            .iter()
+            .map(|&row| prepared.lines[row])
+            .collect(),
         baseline,
     }
 }
@@ -222,6 +230,10 @@ pub(crate) struct Judgement {
     /// The network against the linear model (network first); `None` when too few rows.
     pub versus_linear: Option<Paired>,
     pub network_errors: RowErrors,
+    /// File lines of the held-out rows, in the order of `network_errors`.
+    pub held_out_lines: Vec<u64>,
+    /// ROC, reliability or per-target fits of the network's held-out outputs.
+    pub diagnosis: diagnosis::Diagnosis,
 }
 
 /// One partition's part of a judgement: its reference and the network's held-out
@@ -275,6 +287,11 @@ pub(crate) fn judge(task: Task, rows_key: &str, parts: &[Held<'_>], seed: u64) -
             .then(|| paired(&network_errors, &linear_errors, seed))
             .flatten(),
         network_errors,
+        held_out_lines: parts
+            .iter()
+            .flat_map(|held| held.reference.lines.iter().copied())
+            .collect(),
+        diagnosis: diagnosis::diagnose(task, targets.view(), network.view()),
     }
 }
 
@@ -496,6 +513,10 @@ mod tests {
             intervals: None,
             versus_linear: None,
             network_errors: RowErrors::Correct(correct),
+            held_out_lines: Vec::new(),
+            diagnosis: diagnosis::Diagnosis::SeveralClasses {
+                auc_per_class: Vec::new(),
+            },
         }
     }
 
