@@ -123,3 +123,72 @@ fn auc_roc_points_and_brier_match_scikit_learn_on_the_breast_cancer_held_out_row
     let thresholds: Vec<f64> = points[1..].iter().map(|p| p["threshold"].as_f64().unwrap()).collect();
     assert_close(&thresholds, &numbers(&reference["thresholds"]), "thresholds");
 }
+
+/// A data step `id` on `file` with `target` and `holdout`, a net and a train step `fit`
+/// with `learning_rate`.
+fn document(file: &str, target: &str, holdout: f64, learning_rate: f64) -> String {
+    format!(
+        "# Diagnosis\n\n```yaml data rows\nfile: {file}\ntarget: {target}\nholdout: {holdout}\nseed: 3\n```\n\n\
+         ```yaml net small\nhidden: [4]\n```\n\n\
+         ```yaml train fit\ndata: rows\nnet: small\nlearning_rate: {learning_rate}\nepochs: 30\nseed: 1\n```\n"
+    )
+}
+
+#[test]
+fn several_classes_give_each_classs_auc_and_their_macro_mean() {
+    let ws = Workspace::new();
+    let doc = ws.write("iris.md", &document("iris.csv", "species", 0.3, 0.05));
+    let fit = step(&ws.build_ok(&doc, &[]), "fit").clone();
+    let each = numbers(&fit["auc_per_class"]);
+    assert_eq!(each.len(), 3, "one AUC per Iris species");
+    let mean = each.iter().sum::<f64>() / 3.0;
+    assert!((fit["auc"].as_f64().unwrap() - mean).abs() < 1e-15);
+}
+
+#[test]
+fn several_targets_are_each_scored_and_the_test_metrics_are_their_mean() {
+    let ws = Workspace::new();
+    let doc = ws.write(
+        "water.md",
+        &document("demo-data/greenhouse.csv", "[water_l, humidity_pct]", 0.25, 0.02),
+    );
+    let fit = step(&ws.build_ok(&doc, &[]), "fit").clone();
+    let targets = fit["targets"].as_array().expect("per-target metrics");
+    assert_eq!(targets.len(), 2);
+    for metric in ["mse", "mae", "r2"] {
+        let mean = targets.iter().map(|t| t[metric].as_f64().unwrap()).sum::<f64>() / 2.0;
+        let reported = fit["metrics"]["test"][metric].as_f64().unwrap();
+        assert!((reported - mean).abs() < 1e-9 * mean.abs().max(1.0), "{metric}");
+    }
+}
+
+#[test]
+fn a_diverged_regression_states_why_it_has_no_per_target_metrics() {
+    let ws = Workspace::new();
+    // A learning rate of 1e6 makes a linear-output network overflow within an epoch.
+    let doc = ws.write(
+        "diverged.md",
+        &document("demo-data/greenhouse.csv", "water_l", 0.25, 1e6),
+    );
+    let (output, summary) = ws.build(&doc, &[]);
+    assert!(!String::from_utf8_lossy(&output.stderr).contains("panicked"));
+    let fit = step(summary.as_ref().expect("a summary"), "fit").clone();
+    assert_eq!(fit["targets"], Value::Null);
+    let why = fit["unavailable"]["targets"].as_str().unwrap();
+    assert!(why.contains("not all finite"), "{why}");
+}
+
+#[test]
+fn a_single_held_out_row_states_why_there_are_no_per_target_metrics() {
+    let ws = Workspace::new();
+    let rows: String = (0..8).map(|i| format!("{i},{}\n", 2 * i + 1)).collect();
+    ws.write("eight.csv", &format!("x,y\n{rows}"));
+    let doc = ws.write("one.md", &document("eight.csv", "y", 0.125, 0.05));
+    let (output, summary) = ws.build(&doc, &[]);
+    assert!(!String::from_utf8_lossy(&output.stderr).contains("panicked"));
+    let fit = step(summary.as_ref().expect("a summary"), "fit").clone();
+    assert_eq!(fit["held_out_rows"], 1);
+    assert_eq!(fit["targets"], Value::Null);
+    let why = fit["unavailable"]["targets"].as_str().unwrap();
+    assert!(why.contains("only one held-out row"), "{why}");
+}

@@ -16,7 +16,7 @@ use crate::data::Task;
 pub(crate) enum Unavailable {
     #[error("there is only one held-out row")]
     OneRow,
-    #[error("the network's outputs are not all finite (the run diverged)")]
+    #[error("the network's outputs or their errors are not all finite (the run diverged)")]
     NotFinite,
     #[error("the held-out rows hold only one class, so nothing is ranked against it")]
     OneClass,
@@ -108,7 +108,7 @@ pub(crate) fn diagnose(task: Task, targets: ArrayView2<f64>, outputs: ArrayView2
     let usable = usable(targets, outputs);
     match task {
         Task::Regress => Diagnosis::Regression {
-            targets: usable.map(|()| target_fits(targets, outputs)),
+            targets: usable.and_then(|()| target_fits(targets, outputs)),
         },
         Task::Classify if targets.ncols() == 1 => {
             let (labels, scores) = (targets.column(0), outputs.column(0));
@@ -253,8 +253,13 @@ fn reliability(labels: ArrayView1<f64>, scores: ArrayView1<f64>) -> Reliability 
     }
 }
 
-fn target_fits(targets: ArrayView2<f64>, outputs: ArrayView2<f64>) -> Vec<TargetFit> {
-    (0..targets.ncols())
+/// Each target's fit; unavailable when a score overflows (huge but finite outputs of a
+/// run on its way to diverging).
+fn target_fits(
+    targets: ArrayView2<f64>,
+    outputs: ArrayView2<f64>,
+) -> Result<Vec<TargetFit>, Unavailable> {
+    let fits: Vec<TargetFit> = (0..targets.ncols())
         .map(|column| {
             let pick = |m: ArrayView2<f64>| m.slice(ndarray::s![.., column..=column]).to_owned();
             let (actual, predicted) = (pick(targets), pick(outputs));
@@ -263,7 +268,14 @@ fn target_fits(targets: ArrayView2<f64>, outputs: ArrayView2<f64>) -> Vec<Target
                 pairs: actual.iter().copied().zip(predicted.iter().copied()).collect(),
             }
         })
-        .collect()
+        .collect();
+    let overflowed = fits
+        .iter()
+        .any(|fit| fit.scores.named().iter().any(|(_, value)| !value.is_finite()));
+    if overflowed {
+        return Err(Unavailable::NotFinite);
+    }
+    Ok(fits)
 }
 
 #[cfg(test)]
