@@ -114,14 +114,38 @@ fn auc_roc_points_and_brier_match_scikit_learn_on_the_breast_cancer_held_out_row
         }),
     );
     // Reference values: sklearn.metrics.roc_auc_score, brier_score_loss and roc_curve.
-    assert_close(&[model["auc"].as_f64().unwrap()], &numbers(&reference["auc"]), "AUC");
-    assert_close(&[model["brier"].as_f64().unwrap()], &numbers(&reference["brier"]), "Brier");
+    assert_close(
+        &[model["auc"].as_f64().unwrap()],
+        &numbers(&reference["auc"]),
+        "AUC",
+    );
+    assert_close(
+        &[model["brier"].as_f64().unwrap()],
+        &numbers(&reference["brier"]),
+        "Brier",
+    );
     let points = model["roc"]["points"].as_array().unwrap();
-    let pick = |name: &str| -> Vec<f64> { points.iter().map(|p| p[name].as_f64().unwrap()).collect() };
-    assert_close(&pick("false_positive_rate"), &numbers(&reference["false_positive_rate"]), "FPR");
-    assert_close(&pick("true_positive_rate"), &numbers(&reference["true_positive_rate"]), "TPR");
-    let thresholds: Vec<f64> = points[1..].iter().map(|p| p["threshold"].as_f64().unwrap()).collect();
-    assert_close(&thresholds, &numbers(&reference["thresholds"]), "thresholds");
+    let pick =
+        |name: &str| -> Vec<f64> { points.iter().map(|p| p[name].as_f64().unwrap()).collect() };
+    assert_close(
+        &pick("false_positive_rate"),
+        &numbers(&reference["false_positive_rate"]),
+        "FPR",
+    );
+    assert_close(
+        &pick("true_positive_rate"),
+        &numbers(&reference["true_positive_rate"]),
+        "TPR",
+    );
+    let thresholds: Vec<f64> = points[1..]
+        .iter()
+        .map(|p| p["threshold"].as_f64().unwrap())
+        .collect();
+    assert_close(
+        &thresholds,
+        &numbers(&reference["thresholds"]),
+        "thresholds",
+    );
 }
 
 /// A data step `id` on `file` with `target` and `holdout`, a net and a train step `fit`
@@ -150,15 +174,27 @@ fn several_targets_are_each_scored_and_the_test_metrics_are_their_mean() {
     let ws = Workspace::new();
     let doc = ws.write(
         "water.md",
-        &document("demo-data/greenhouse.csv", "[water_l, humidity_pct]", 0.25, 0.02),
+        &document(
+            "demo-data/greenhouse.csv",
+            "[water_l, humidity_pct]",
+            0.25,
+            0.02,
+        ),
     );
     let fit = step(&ws.build_ok(&doc, &[]), "fit").clone();
     let targets = fit["targets"].as_array().expect("per-target metrics");
     assert_eq!(targets.len(), 2);
     for metric in ["mse", "mae", "r2"] {
-        let mean = targets.iter().map(|t| t[metric].as_f64().unwrap()).sum::<f64>() / 2.0;
+        let mean = targets
+            .iter()
+            .map(|t| t[metric].as_f64().unwrap())
+            .sum::<f64>()
+            / 2.0;
         let reported = fit["metrics"]["test"][metric].as_f64().unwrap();
-        assert!((reported - mean).abs() < 1e-9 * mean.abs().max(1.0), "{metric}");
+        assert!(
+            (reported - mean).abs() < 1e-9 * mean.abs().max(1.0),
+            "{metric}"
+        );
     }
 }
 
@@ -191,4 +227,69 @@ fn a_single_held_out_row_states_why_there_are_no_per_target_metrics() {
     assert_eq!(fit["targets"], Value::Null);
     let why = fit["unavailable"]["targets"].as_str().unwrap();
     assert!(why.contains("only one held-out row"), "{why}");
+}
+
+/// Forty rows of two classes that overlap on `x` (class `b` above 0.5 mostly).
+fn write_two_overlapping_classes(ws: &Workspace) {
+    let rows: String = (0..40)
+        .map(|i| {
+            let x = f64::from(i) / 40.0;
+            let class = if (x > 0.5) != (i % 7 == 0) { "b" } else { "a" };
+            format!("{x},{class}\n")
+        })
+        .collect();
+    ws.write("two.csv", &format!("x,class\n{rows}"));
+}
+
+#[test]
+fn a_two_class_card_shows_its_roc_curve_with_youdens_threshold_and_its_reliability_chart() {
+    let ws = Workspace::new();
+    write_two_overlapping_classes(&ws);
+    let doc = ws.write("two.md", &document("two.csv", "class", 0.5, 0.1));
+    let summary = ws.build_ok(&doc, &[]);
+    let report = std::fs::read_to_string(ws.path("two.html")).unwrap();
+    assert!(report.contains("ROC curve on the held-out rows"));
+    assert!(report.contains("Youden&#x27;s J") || report.contains("Youden's J"));
+    assert!(step(&summary, "fit")["brier"].is_number());
+    assert!(report.contains("Reliability on the held-out rows in 10 equal bins"));
+    assert!(report.contains("Brier score"));
+}
+
+#[test]
+fn regression_fit_plots_come_in_pairs_for_at_most_four_targets_and_list_the_rest() {
+    let ws = Workspace::new();
+    let rows: String = (0..30)
+        .map(|i| {
+            let x = f64::from(i);
+            format!(
+                "{x},{},{},{},{},{}\n",
+                2.0 * x,
+                x + 1.0,
+                3.0 - x,
+                x * 0.5,
+                x % 5.0
+            )
+        })
+        .collect();
+    ws.write("five.csv", &format!("x,t1,t2,t3,t4,t5\n{rows}"));
+    let doc = ws.write(
+        "five.md",
+        &document("five.csv", "[t1, t2, t3, t4, t5]", 0.3, 0.05),
+    );
+    ws.build_ok(&doc, &[]);
+    let report = std::fs::read_to_string(ws.path("five.html")).unwrap();
+    assert_eq!(
+        report
+            .matches("predicted against actual on the held-out rows")
+            .count(),
+        4
+    );
+    assert_eq!(
+        report
+            .matches("residual (actual − predicted) against predicted")
+            .count(),
+        4
+    );
+    assert!(report.contains("Not charted: t5."));
+    assert!(report.contains("Held-out R² per target: t1 R²"));
 }

@@ -92,7 +92,9 @@ impl Diagnosis {
     /// one-vs-rest AUCs for several (unavailable when any class's is).
     pub(crate) fn auc(&self) -> Option<Result<f64, Unavailable>> {
         match self {
-            Diagnosis::TwoClasses { roc, .. } => Some(roc.as_ref().map(|roc| roc.auc).map_err(|e| *e)),
+            Diagnosis::TwoClasses { roc, .. } => {
+                Some(roc.as_ref().map(|roc| roc.auc).map_err(|e| *e))
+            }
             Diagnosis::SeveralClasses { auc_per_class } => {
                 let all: Result<Vec<f64>, Unavailable> = auc_per_class.iter().cloned().collect();
                 Some(all.map(|all| all.iter().sum::<f64>() / all.len() as f64))
@@ -104,7 +106,11 @@ impl Diagnosis {
 
 /// The diagnosis of `outputs` against `targets` (held-out rows, as the engine
 /// encodes them: one 0/1 column for two classes, one-hot for several).
-pub(crate) fn diagnose(task: Task, targets: ArrayView2<f64>, outputs: ArrayView2<f64>) -> Diagnosis {
+pub(crate) fn diagnose(
+    task: Task,
+    targets: ArrayView2<f64>,
+    outputs: ArrayView2<f64>,
+) -> Diagnosis {
     let usable = usable(targets, outputs);
     match task {
         Task::Regress => Diagnosis::Regression {
@@ -120,7 +126,8 @@ pub(crate) fn diagnose(task: Task, targets: ArrayView2<f64>, outputs: ArrayView2
         Task::Classify => Diagnosis::SeveralClasses {
             auc_per_class: (0..targets.ncols())
                 .map(|class| {
-                    usable.and_then(|()| roc(targets.column(class), outputs.column(class)))
+                    usable
+                        .and_then(|()| roc(targets.column(class), outputs.column(class)))
                         .map(|roc| roc.auc)
                 })
                 .collect(),
@@ -191,9 +198,7 @@ fn corners(true_positives: &[f64], false_positives: &[f64]) -> Vec<usize> {
     let n = true_positives.len();
     let bends = |v: &[f64], i: usize| v[i + 1] - 2.0 * v[i] + v[i - 1] != 0.0;
     (0..n)
-        .filter(|&i| {
-            i == 0 || i == n - 1 || bends(true_positives, i) || bends(false_positives, i)
-        })
+        .filter(|&i| i == 0 || i == n - 1 || bends(true_positives, i) || bends(false_positives, i))
         .collect()
 }
 
@@ -265,13 +270,20 @@ fn target_fits(
             let (actual, predicted) = (pick(targets), pick(outputs));
             TargetFit {
                 scores: Scores::of(Task::Regress, actual.view(), predicted.view()),
-                pairs: actual.iter().copied().zip(predicted.iter().copied()).collect(),
+                pairs: actual
+                    .iter()
+                    .copied()
+                    .zip(predicted.iter().copied())
+                    .collect(),
             }
         })
         .collect();
-    let overflowed = fits
-        .iter()
-        .any(|fit| fit.scores.named().iter().any(|(_, value)| !value.is_finite()));
+    let overflowed = fits.iter().any(|fit| {
+        fit.scores
+            .named()
+            .iter()
+            .any(|(_, value)| !value.is_finite())
+    });
     if overflowed {
         return Err(Unavailable::NotFinite);
     }
@@ -311,7 +323,10 @@ mod tests {
             [(0.0, 0.0), (0.0, 0.5), (0.5, 0.5), (0.5, 1.0), (1.0, 1.0)]
         );
         let thresholds: Vec<Option<f64>> = roc.points.iter().map(|p| p.threshold).collect();
-        assert_eq!(thresholds, [None, Some(0.8), Some(0.4), Some(0.35), Some(0.1)]);
+        assert_eq!(
+            thresholds,
+            [None, Some(0.8), Some(0.4), Some(0.35), Some(0.1)]
+        );
         assert_eq!(roc.auc, 0.75);
         // J is 0.5 at (0, 0.5) and at (0.5, 1); the first is marked.
         assert_eq!(roc.youden, 1);

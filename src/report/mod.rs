@@ -5,6 +5,7 @@
 pub(crate) mod card_view;
 pub(crate) mod chart;
 pub(crate) mod compare_view;
+pub(crate) mod diagnosis_view;
 pub(crate) mod diff_view;
 pub(crate) mod format;
 pub(crate) mod headline;
@@ -338,16 +339,16 @@ fn step_view(input: &ReportInput<'_>, index: usize, yaml: &str, beside_html: Str
         Status::Reused => ("reused", "reused from the cache".to_string(), None),
         Status::Failed { error } => ("failed", "failed".to_string(), Some(error.clone())),
     };
-    let classes = match &step.spec {
+    let (classes, targets) = match &step.spec {
         StepSpec::Train(train) => match input
             .plan
             .index_of(&train.data)
             .and_then(|d| input.results.steps[d].outcome.as_ref())
         {
-            Some(Outcome::Data(summary)) => summary.classes.clone(),
-            _ => None,
+            Some(Outcome::Data(summary)) => (summary.classes.clone(), summary.target_names.clone()),
+            _ => (None, Vec::new()),
         },
-        _ => None,
+        _ => (None, Vec::new()),
     };
     StepView {
         id: step.id.clone(),
@@ -364,7 +365,7 @@ fn step_view(input: &ReportInput<'_>, index: usize, yaml: &str, beside_html: Str
             _ => None,
         },
         train: match &record.outcome {
-            Some(Outcome::Train(result)) => Some(train_view(result, classes.as_deref())),
+            Some(Outcome::Train(result)) => Some(train_view(result, classes.as_deref(), &targets)),
             _ => None,
         },
         sweep: match &record.outcome {

@@ -12,9 +12,9 @@ use crate::data::card::{ColumnProfile, DataCard, Values};
 use crate::document::StepSpec;
 use crate::document::names::word;
 use crate::document::spec::sweep::Varied;
+use crate::judge::diagnosis::{Diagnosis, Roc, Unavailable};
 use crate::judge::stats::{self, Interval};
 use crate::judge::{self, Judgement, PairOutcome, Paired, Scores};
-use crate::judge::diagnosis::{Diagnosis, Roc, Unavailable};
 use crate::plan::{Plan, PlannedStep};
 
 /// The summary as a JSON value.
