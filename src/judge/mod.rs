@@ -4,6 +4,7 @@
 //! a paired test against the linear model (`stats`); the report words the verdict
 //! (`report/verdict.rs`). No I/O: the build caches what is computed here.
 
+pub mod diagnosis;
 pub mod linear;
 pub mod stats;
 
@@ -18,7 +19,9 @@ use stats::Interval;
 /// compute, so cached references and judgements miss.
 ///
 /// 2: a judgement keeps each fold's own intervals.
-pub(crate) const JUDGE_VERSION: u32 = 2;
+/// 3: a judgement keeps the held-out rows' lines and their diagnosis (ROC,
+///    reliability, per-target fits).
+pub(crate) const JUDGE_VERSION: u32 = 3;
 
 /// Held-out scores of one set of outputs.
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
@@ -93,6 +96,8 @@ impl Scores {
 pub(crate) struct Reference {
     /// The held-out targets, in the partition's held-out row order.
     pub targets: Array2<f64>,
+    /// The file line of each held-out row, in that order.
+    pub lines: Vec<u64>,
     /// The baseline's output for every row: training class frequencies, or the
     /// training mean.
     pub baseline: Array1<f64>,
@@ -120,6 +125,11 @@ pub(crate) fn reference(prepared: &Prepared, partition: usize) -> Reference {
         linear_train: Scores::of(task, split.y_train.view(), train_outputs.view()),
         linear_outputs: model.predict(split.x_test.view()),
         targets: split.y_test,
+        lines: prepared.partitions[partition]
+            .test_rows
+            .iter()
+            .map(|&row| prepared.lines[row])
+            .collect(),
         baseline,
     }
 }
@@ -252,6 +262,10 @@ pub(crate) struct Judgement {
     /// Per partition (fold), in order, the 95 % intervals of the network's scores on
     /// that partition's held-out rows alone; `None` where they are too few.
     pub part_intervals: Vec<Option<Vec<(String, Interval)>>>,
+    /// File lines of the held-out rows, in the order of `network_errors`.
+    pub held_out_lines: Vec<u64>,
+    /// ROC, reliability or per-target fits of the network's held-out outputs.
+    pub diagnosis: diagnosis::Diagnosis,
 }
 
 /// One partition's part of a judgement: its reference and the network's held-out
@@ -313,6 +327,11 @@ pub(crate) fn judge(task: Task, rows_key: &str, parts: &[Held<'_>], seed: u64) -
             .flatten(),
         network_errors,
         part_intervals,
+        held_out_lines: parts
+            .iter()
+            .flat_map(|held| held.reference.lines.iter().copied())
+            .collect(),
+        diagnosis: diagnosis::diagnose(task, targets.view(), network.view()),
     }
 }
 
@@ -540,6 +559,10 @@ mod tests {
             versus_linear: None,
             network_errors: RowErrors::Correct(correct),
             part_intervals: Vec::new(),
+            held_out_lines: Vec::new(),
+            diagnosis: diagnosis::Diagnosis::SeveralClasses {
+                auc_per_class: Vec::new(),
+            },
         }
     }
 

@@ -44,6 +44,8 @@ pub(crate) enum Dash {
     Dashed,
     Dotted,
     Alternating,
+    /// No line: each point marked on its own (a scatter of held-out rows).
+    Points,
 }
 
 impl Dash {
@@ -55,6 +57,7 @@ impl Dash {
             Dash::Dashed => Some("7 4"),
             Dash::Dotted => Some("2 3"),
             Dash::Alternating => Some("9 3 2 3"),
+            Dash::Points => None,
         }
     }
 }
@@ -456,6 +459,10 @@ fn draw_line(canvas: &mut Canvas, line: &Series, points: &[(f64, f64)], x: &Scal
     if points.is_empty() {
         return;
     }
+    if line.dash == Dash::Points {
+        mark_points(canvas, line, points, x, y);
+        return;
+    }
     let mut path = String::new();
     for (i, &(px, py)) in points.iter().enumerate() {
         let command = if i == 0 { 'M' } else { 'L' };
@@ -467,15 +474,19 @@ fn draw_line(canvas: &mut Canvas, line: &Series, points: &[(f64, f64)], x: &Scal
         stroke_attributes(line)
     );
     if points.len() <= MAX_MARKED_POINTS {
-        let colour = PALETTE[line.colour % PALETTE.len()];
-        for &(px, py) in points {
-            let _ = write!(
-                canvas.body,
-                r#"<circle cx="{:.1}" cy="{:.1}" r="3" fill="{colour}"/>"#,
-                x.at(px),
-                y.at(py)
-            );
-        }
+        mark_points(canvas, line, points, x, y);
+    }
+}
+
+fn mark_points(canvas: &mut Canvas, line: &Series, points: &[(f64, f64)], x: &Scale, y: &Scale) {
+    let colour = PALETTE[line.colour % PALETTE.len()];
+    for &(px, py) in points {
+        let _ = write!(
+            canvas.body,
+            r#"<circle cx="{:.1}" cy="{:.1}" r="3" fill="{colour}"/>"#,
+            x.at(px),
+            y.at(py)
+        );
     }
 }
 

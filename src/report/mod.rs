@@ -5,6 +5,7 @@
 pub(crate) mod card_view;
 pub(crate) mod chart;
 pub(crate) mod compare_view;
+pub(crate) mod diagnosis_view;
 pub(crate) mod diff_view;
 pub(crate) mod format;
 pub(crate) mod headline;
@@ -351,6 +352,7 @@ fn step_view(input: &ReportInput<'_>, index: usize, yaml: &str, beside_html: Str
         _ => None,
     };
     let classes = data_summary.and_then(|summary| summary.classes.clone());
+    let targets = data_summary.map_or(Vec::new(), |summary| summary.target_names.clone());
     let scaled_targets = data_summary.is_some_and(|summary| summary.scale_target != Scale::None);
     StepView {
         id: step.id.clone(),
@@ -367,9 +369,12 @@ fn step_view(input: &ReportInput<'_>, index: usize, yaml: &str, beside_html: Str
             _ => None,
         },
         train: match &record.outcome {
-            Some(Outcome::Train(result)) => {
-                Some(train_view(result, classes.as_deref(), scaled_targets))
-            }
+            Some(Outcome::Train(result)) => Some(train_view(
+                result,
+                classes.as_deref(),
+                &targets,
+                scaled_targets,
+            )),
             _ => None,
         },
         sweep: match &record.outcome {

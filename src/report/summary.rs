@@ -12,6 +12,7 @@ use crate::data::card::{ColumnProfile, DataCard, Values};
 use crate::document::StepSpec;
 use crate::document::names::word;
 use crate::document::spec::sweep::Varied;
+use crate::judge::diagnosis::{Diagnosis, Roc, Unavailable};
 use crate::judge::stats::{self, Interval};
 use crate::judge::{self, Judgement, PairOutcome, Paired, Scores};
 use crate::plan::{Plan, PlannedStep};
@@ -217,6 +218,68 @@ fn judgement_fields(judgement: &Judgement, object: &mut Map<String, Value>) {
         judgement.versus_linear.as_ref().map_or(Value::Null, paired),
     );
     object.insert("verdict".into(), json!(word(&verdict(judgement).tone)));
+    object.insert("held_out_lines".into(), json!(judgement.held_out_lines));
+    diagnosis_fields(&judgement.diagnosis, object);
+}
+
+/// Where the fit goes wrong (`judge::diagnosis`): a value the rows cannot give is
+/// null, with its reason under `unavailable`.
+fn diagnosis_fields(diagnosis: &Diagnosis, object: &mut Map<String, Value>) {
+    let mut reasons = Map::new();
+    let mut known = |name: &str, value: Result<f64, Unavailable>| match value {
+        Ok(value) => number(value),
+        Err(why) => {
+            reasons.insert(name.into(), json!(why.to_string()));
+            Value::Null
+        }
+    };
+    if let Some(auc) = diagnosis.auc() {
+        object.insert("auc".into(), known("auc", auc));
+    }
+    match diagnosis {
+        Diagnosis::TwoClasses { roc, reliability } => {
+            let brier = reliability.as_ref().map(|r| r.brier).map_err(|e| *e);
+            object.insert("brier".into(), known("brier", brier));
+            let curve = roc.as_ref().ok().map(roc_fields);
+            object.insert("roc".into(), json!(curve));
+        }
+        Diagnosis::SeveralClasses { auc_per_class } => {
+            let each = auc_per_class
+                .iter()
+                .map(|auc| known("auc_per_class", *auc))
+                .collect();
+            object.insert("auc_per_class".into(), Value::Array(each));
+        }
+        Diagnosis::Regression { targets } => {
+            let each = targets.as_ref().ok().map(|fits| {
+                fits.iter()
+                    .map(|fit| scores(&fit.scores))
+                    .collect::<Vec<Value>>()
+            });
+            if let Err(why) = targets {
+                reasons.insert("targets".into(), json!(why.to_string()));
+            }
+            object.insert("targets".into(), json!(each));
+        }
+    }
+    if !reasons.is_empty() {
+        object.insert("unavailable".into(), Value::Object(reasons));
+    }
+}
+
+fn roc_fields(roc: &Roc) -> Value {
+    let points: Vec<Value> = roc
+        .points
+        .iter()
+        .map(|p| {
+            json!({
+                "false_positive_rate": number(p.false_positive_rate),
+                "true_positive_rate": number(p.true_positive_rate),
+                "threshold": p.threshold.map_or(Value::Null, number),
+            })
+        })
+        .collect();
+    json!({"points": points, "youden_threshold": roc.points[roc.youden].threshold})
 }
 
 /// Per metric a `[low, high]` pair, and the `level`.

@@ -5,6 +5,7 @@ use serde::Serialize;
 
 use super::card_view::{CardView, card_view};
 use super::chart::{self, Dash, Series, Weight};
+use super::diagnosis_view::{DiagnosisView, diagnosis_view};
 use super::format::{mean_sd, number, seconds, stop_reason};
 use super::verdict::{NOT_ENOUGH_ROWS, Verdict, interval_words, verdict};
 use crate::build::outcome::{DataSummary, FitResult, MetricStat, RowSet, SetMetrics};
@@ -104,6 +105,8 @@ pub(crate) struct TrainView {
     pub fold_interval: String,
     pub verdict: Option<Verdict>,
     pub judged: Option<JudgedView>,
+    /// ROC and reliability, or fit plots, of the held-out rows.
+    pub diagnosis: Option<DiagnosisView>,
     /// Which rows the chart's second line (and patience) measured: "validation" or "held-out".
     pub watched_rows: &'static str,
     /// Said when the held-out rows chose the weights, so their score is optimistic.
@@ -218,6 +221,7 @@ pub(crate) struct ConfusionCell {
 pub(crate) fn train_view(
     result: &FitResult,
     classes: Option<&[String]>,
+    targets: &[String],
     scaled_targets: bool,
 ) -> TrainView {
     let shape = &result.shape;
@@ -302,6 +306,10 @@ pub(crate) fn train_view(
             .map_or(String::new(), fold_interval_heading),
         verdict: result.judgement.as_deref().map(verdict),
         judged: result.judgement.as_deref().map(judged_view),
+        diagnosis: result
+            .judgement
+            .as_deref()
+            .map(|judgement| diagnosis_view(&judgement.diagnosis, classes, targets)),
         watched_rows: match result.choice_rows() {
             RowSet::Validation => "validation",
             _ => "held-out",

@@ -1,0 +1,295 @@
+//! Where a fit goes wrong, through the real binary: the ROC curve, AUC and Brier score
+//! against scikit-learn on the held-out rows, one-vs-rest AUC and per-target metrics in
+//! the summary, and a stated reason wherever the held-out rows cannot give a value.
+//!
+//! The scikit-learn check needs `STET_PYTHON` (see tests/common); without it it skips.
+
+mod common;
+
+use std::io::Write;
+use std::process::{Command, Stdio};
+
+use serde_json::{Value, json};
+
+use common::{Workspace, project, reference_python, step};
+
+fn numbers(value: &Value) -> Vec<f64> {
+    value
+        .as_array()
+        .expect("an array")
+        .iter()
+        .map(|v| v.as_f64().expect("a number"))
+        .collect()
+}
+
+fn assert_close(stet: &[f64], reference: &[f64], what: &str) {
+    assert_eq!(stet.len(), reference.len(), "{what}: lengths differ");
+    for (s, r) in stet.iter().zip(reference) {
+        assert!((s - r).abs() < 1e-12, "{what}: stet {s}, scikit-learn {r}");
+    }
+}
+
+/// Writes scikit-learn's bundled breast-cancer data (Wolberg, Street & Mangasarian,
+/// 1995; shipped with scikit-learn under its BSD licence) as `cancer.csv`: 30
+/// measurements `f0`..`f29` and the `diagnosis`, `malignant` or `benign`.
+fn write_breast_cancer(python: &std::path::Path, ws: &Workspace) {
+    let script = "import csv, sys\n\
+        from sklearn.datasets import load_breast_cancer\n\
+        d = load_breast_cancer()\n\
+        w = csv.writer(open(sys.argv[1], 'w', newline=''))\n\
+        w.writerow([f'f{i}' for i in range(d.data.shape[1])] + ['diagnosis'])\n\
+        for row, t in zip(d.data, d.target):\n    \
+            w.writerow([repr(float(v)) for v in row] + [d.target_names[t]])\n";
+    let status = Command::new(python)
+        .args(["-c", script])
+        .arg(ws.path("cancer.csv"))
+        .status()
+        .expect("the reference Python starts");
+    assert!(status.success(), "writing the breast-cancer data failed");
+}
+
+/// tests/reference/roc_reference.py on the exported model's held-out rows.
+fn scikit_learn_on(python: &std::path::Path, request: &Value) -> Value {
+    let mut child = Command::new(python)
+        .arg(project().join("tests/reference/roc_reference.py"))
+        .stdin(Stdio::piped())
+        .stdout(Stdio::piped())
+        .spawn()
+        .expect("the reference Python starts");
+    child
+        .stdin
+        .take()
+        .unwrap()
+        .write_all(request.to_string().as_bytes())
+        .unwrap();
+    let output = child.wait_with_output().unwrap();
+    assert!(output.status.success(), "the reference script failed");
+    serde_json::from_slice(&output.stdout).expect("the script writes JSON")
+}
+
+const CANCER: &str = "# Breast cancer
+
+```yaml data cancer
+file: cancer.csv
+target: diagnosis
+holdout: 0.3
+seed: 4
+```
+
+```yaml net small
+hidden: [6]
+```
+
+```yaml train model
+data: cancer
+net: small
+learning_rate: 0.01
+epochs: 40
+seed: 2
+```
+
+```yaml export json
+model: model
+write: out/model.json
+```
+";
+
+#[test]
+fn auc_roc_points_and_brier_match_scikit_learn_on_the_breast_cancer_held_out_rows() {
+    let Some(python) = reference_python("ROC, AUC and Brier against scikit-learn") else {
+        return;
+    };
+    let ws = Workspace::new();
+    write_breast_cancer(&python, &ws);
+    let doc = ws.write("cancer.md", CANCER);
+    let summary = ws.build_ok(&doc, &[]);
+    let model = step(&summary, "model");
+    let reference = scikit_learn_on(
+        &python,
+        &json!({
+            "model": ws.path("out/model.json"),
+            "rows": ws.path("cancer.csv"),
+            "target": "diagnosis",
+            "lines": model["held_out_lines"],
+        }),
+    );
+    // Reference values: sklearn.metrics.roc_auc_score, brier_score_loss and roc_curve.
+    assert_close(
+        &[model["auc"].as_f64().unwrap()],
+        &numbers(&reference["auc"]),
+        "AUC",
+    );
+    assert_close(
+        &[model["brier"].as_f64().unwrap()],
+        &numbers(&reference["brier"]),
+        "Brier",
+    );
+    let points = model["roc"]["points"].as_array().unwrap();
+    let pick =
+        |name: &str| -> Vec<f64> { points.iter().map(|p| p[name].as_f64().unwrap()).collect() };
+    assert_close(
+        &pick("false_positive_rate"),
+        &numbers(&reference["false_positive_rate"]),
+        "FPR",
+    );
+    assert_close(
+        &pick("true_positive_rate"),
+        &numbers(&reference["true_positive_rate"]),
+        "TPR",
+    );
+    let thresholds: Vec<f64> = points[1..]
+        .iter()
+        .map(|p| p["threshold"].as_f64().unwrap())
+        .collect();
+    assert_close(
+        &thresholds,
+        &numbers(&reference["thresholds"]),
+        "thresholds",
+    );
+}
+
+/// A data step `id` on `file` with `target` and `holdout`, a net and a train step `fit`
+/// with `learning_rate`.
+fn document(file: &str, target: &str, holdout: f64, learning_rate: f64) -> String {
+    format!(
+        "# Diagnosis\n\n```yaml data rows\nfile: {file}\ntarget: {target}\nholdout: {holdout}\nseed: 3\n```\n\n\
+         ```yaml net small\nhidden: [4]\n```\n\n\
+         ```yaml train fit\ndata: rows\nnet: small\nlearning_rate: {learning_rate}\nepochs: 30\nseed: 1\n```\n"
+    )
+}
+
+#[test]
+fn several_classes_give_each_classs_auc_and_their_macro_mean() {
+    let ws = Workspace::new();
+    let doc = ws.write("iris.md", &document("iris.csv", "species", 0.3, 0.05));
+    let fit = step(&ws.build_ok(&doc, &[]), "fit").clone();
+    let each = numbers(&fit["auc_per_class"]);
+    assert_eq!(each.len(), 3, "one AUC per Iris species");
+    let mean = each.iter().sum::<f64>() / 3.0;
+    assert!((fit["auc"].as_f64().unwrap() - mean).abs() < 1e-15);
+}
+
+#[test]
+fn several_targets_are_each_scored_and_the_test_metrics_are_their_mean() {
+    let ws = Workspace::new();
+    let doc = ws.write(
+        "water.md",
+        &document(
+            "demo-data/greenhouse.csv",
+            "[water_l, humidity_pct]",
+            0.25,
+            0.02,
+        ),
+    );
+    let fit = step(&ws.build_ok(&doc, &[]), "fit").clone();
+    let targets = fit["targets"].as_array().expect("per-target metrics");
+    assert_eq!(targets.len(), 2);
+    for metric in ["mse", "mae", "r2"] {
+        let mean = targets
+            .iter()
+            .map(|t| t[metric].as_f64().unwrap())
+            .sum::<f64>()
+            / 2.0;
+        let reported = fit["metrics"]["test"][metric].as_f64().unwrap();
+        assert!(
+            (reported - mean).abs() < 1e-9 * mean.abs().max(1.0),
+            "{metric}"
+        );
+    }
+}
+
+#[test]
+fn a_diverged_regression_states_why_it_has_no_per_target_metrics() {
+    let ws = Workspace::new();
+    // A learning rate of 1e6 makes a linear-output network overflow within an epoch.
+    let doc = ws.write(
+        "diverged.md",
+        &document("demo-data/greenhouse.csv", "water_l", 0.25, 1e6),
+    );
+    let (output, summary) = ws.build(&doc, &[]);
+    assert!(!String::from_utf8_lossy(&output.stderr).contains("panicked"));
+    let fit = step(summary.as_ref().expect("a summary"), "fit").clone();
+    assert_eq!(fit["targets"], Value::Null);
+    let why = fit["unavailable"]["targets"].as_str().unwrap();
+    assert!(why.contains("not all finite"), "{why}");
+}
+
+#[test]
+fn a_single_held_out_row_states_why_there_are_no_per_target_metrics() {
+    let ws = Workspace::new();
+    let rows: String = (0..8).map(|i| format!("{i},{}\n", 2 * i + 1)).collect();
+    ws.write("eight.csv", &format!("x,y\n{rows}"));
+    let doc = ws.write("one.md", &document("eight.csv", "y", 0.125, 0.05));
+    let (output, summary) = ws.build(&doc, &[]);
+    assert!(!String::from_utf8_lossy(&output.stderr).contains("panicked"));
+    let fit = step(summary.as_ref().expect("a summary"), "fit").clone();
+    assert_eq!(fit["held_out_rows"], 1);
+    assert_eq!(fit["targets"], Value::Null);
+    let why = fit["unavailable"]["targets"].as_str().unwrap();
+    assert!(why.contains("only one held-out row"), "{why}");
+}
+
+/// Forty rows of two classes that overlap on `x` (class `b` above 0.5 mostly).
+fn write_two_overlapping_classes(ws: &Workspace) {
+    let rows: String = (0..40)
+        .map(|i| {
+            let x = f64::from(i) / 40.0;
+            let class = if (x > 0.5) != (i % 7 == 0) { "b" } else { "a" };
+            format!("{x},{class}\n")
+        })
+        .collect();
+    ws.write("two.csv", &format!("x,class\n{rows}"));
+}
+
+#[test]
+fn a_two_class_card_shows_its_roc_curve_with_youdens_threshold_and_its_reliability_chart() {
+    let ws = Workspace::new();
+    write_two_overlapping_classes(&ws);
+    let doc = ws.write("two.md", &document("two.csv", "class", 0.5, 0.1));
+    let summary = ws.build_ok(&doc, &[]);
+    let report = std::fs::read_to_string(ws.path("two.html")).unwrap();
+    assert!(report.contains("ROC curve on the held-out rows"));
+    assert!(report.contains("Youden&#x27;s J") || report.contains("Youden's J"));
+    assert!(step(&summary, "fit")["brier"].is_number());
+    assert!(report.contains("Reliability on the held-out rows in 10 equal bins"));
+    assert!(report.contains("Brier score"));
+}
+
+#[test]
+fn regression_fit_plots_come_in_pairs_for_at_most_four_targets_and_list_the_rest() {
+    let ws = Workspace::new();
+    let rows: String = (0..30)
+        .map(|i| {
+            let x = f64::from(i);
+            format!(
+                "{x},{},{},{},{},{}\n",
+                2.0 * x,
+                x + 1.0,
+                3.0 - x,
+                x * 0.5,
+                x % 5.0
+            )
+        })
+        .collect();
+    ws.write("five.csv", &format!("x,t1,t2,t3,t4,t5\n{rows}"));
+    let doc = ws.write(
+        "five.md",
+        &document("five.csv", "[t1, t2, t3, t4, t5]", 0.3, 0.05),
+    );
+    ws.build_ok(&doc, &[]);
+    let report = std::fs::read_to_string(ws.path("five.html")).unwrap();
+    assert_eq!(
+        report
+            .matches("predicted against actual on the held-out rows")
+            .count(),
+        4
+    );
+    assert_eq!(
+        report
+            .matches("residual (actual − predicted) against predicted")
+            .count(),
+        4
+    );
+    assert!(report.contains("Not charted: t5."));
+    assert!(report.contains("Held-out R² per target: t1 R²"));
+}
