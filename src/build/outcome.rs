@@ -6,6 +6,7 @@ use std::borrow::Borrow;
 use ndarray::Array2;
 use serde::{Deserialize, Serialize};
 
+use crate::build::importance::InputImportance;
 use crate::data::card::DataCard;
 use crate::data::{InputColumn, Scale, Task};
 use crate::document::spec::MetricName;
@@ -104,6 +105,9 @@ pub(crate) struct RunResult {
     /// The network's outputs on the held-out rows, in their order, for the paired
     /// tests (`judge`); `None` without held-out rows.
     pub held_out_outputs: Option<Array2<f64>>,
+    /// Each input column's permutation importance on the held-out rows; `None`
+    /// without held-out rows or when the step turned it off.
+    pub importance: Option<Vec<InputImportance>>,
 }
 
 impl RunResult {
@@ -371,6 +375,7 @@ mod tests {
                 validation: None,
                 test: Some(metrics),
                 held_out_outputs: None,
+                importance: None,
             }],
             judgement: None,
         }

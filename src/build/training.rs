@@ -5,6 +5,7 @@ use std::time::Instant;
 
 use ndarray::Array2;
 
+use crate::build::importance::{IMPORTANCE_MAX_DEFAULT_INPUTS, Shuffles, permutation_importance};
 use crate::build::outcome::{DataSummary, ModelShape, RunResult, SetMetrics};
 use crate::data::{Prepared, Task};
 use crate::document::spec::{LossChoice, NetSpec, OutputChoice, TrainSpec, word};
@@ -176,6 +177,19 @@ pub(super) fn fit(
         None => (None, None),
     };
     let validation_metrics = has_validation.then(|| measure(&validation_rows).0);
+    let columns = &prepared.encoding.columns;
+    let wants_importance = train
+        .importance
+        .unwrap_or(columns.len() <= IMPORTANCE_MAX_DEFAULT_INPUTS);
+    let shuffles = Shuffles {
+        columns,
+        task: prepared.encoding.task,
+        loss: shape.loss,
+        repeats: train.importance_repeats,
+        seed: train.seed,
+    };
+    let importance = (wants_importance && has_test)
+        .then(|| permutation_importance(&fitted.network, &test_rows, &shuffles));
     RunResult {
         fit: fitted,
         seconds,
@@ -183,6 +197,7 @@ pub(super) fn fit(
         validation: validation_metrics,
         test: test_metrics,
         held_out_outputs,
+        importance,
     }
 }
 
@@ -206,6 +221,9 @@ pub(super) fn training_config(train: &TrainSpec, loss: Loss) -> TrainConfig {
         seed,
         // Chooses the float type `nn::train_at` trains in, so it is its argument.
         precision: _,
+        // Measured on the fitted network afterwards (`fit`), not while training.
+        importance: _,
+        importance_repeats: _,
     } = train;
     TrainConfig {
         loss,
@@ -293,6 +311,8 @@ mod tests {
             shuffle: true,
             seed: 0,
             precision: Precision::F64,
+            importance: None,
+            importance_repeats: 5,
         }
     }
 
@@ -349,6 +369,8 @@ mod tests {
             shuffle: false,
             seed: 99,
             precision: Precision::F32,
+            importance: Some(false),
+            importance_repeats: 3,
         };
         let config = training_config(&train, Loss::CrossEntropy);
         assert_eq!(
