@@ -11,6 +11,7 @@ use rand::seq::SliceRandom;
 use rand_chacha::ChaCha8Rng;
 use serde::{Deserialize, Serialize};
 
+use crate::build::outcome::RunResult;
 use crate::data::{ColumnKind, InputColumn, Task};
 use crate::nn::{self, Loss, Network};
 
@@ -117,4 +118,96 @@ fn score(
         Task::Regress => nn::regression_metrics(targets, outputs).r2,
     };
     (metric, seen.mean_loss)
+}
+
+/// One input column's importance over every shuffle of every run of a fit.
+#[derive(Clone, Debug, PartialEq)]
+pub(crate) struct ImportanceStat {
+    pub input: String,
+    /// Mean and sample standard deviation (n − 1; 0 for one shuffle) of the fall in
+    /// the ranking metric.
+    pub mean: f64,
+    pub sd: f64,
+    /// The same for the rise in held-out loss.
+    pub loss_mean: f64,
+    pub loss_sd: f64,
+}
+
+/// Each input's importance pooled over the runs' shuffles, most important first;
+/// `None` when no run measured it.
+pub(crate) fn pooled_importance(runs: &[RunResult]) -> Option<Vec<ImportanceStat>> {
+    let measured: Vec<&[InputImportance]> = runs
+        .iter()
+        .filter_map(|run| run.importance.as_deref())
+        .collect();
+    let first = measured.first()?;
+    let mut stats: Vec<ImportanceStat> = (0..first.len())
+        .map(|column| {
+            let drops: Vec<f64> = measured
+                .iter()
+                .flat_map(|run| run[column].metric_drops.iter().copied())
+                .collect();
+            let rises: Vec<f64> = measured
+                .iter()
+                .flat_map(|run| run[column].loss_rises.iter().copied())
+                .collect();
+            let (mean, sd) = mean_and_sd(&drops);
+            let (loss_mean, loss_sd) = mean_and_sd(&rises);
+            ImportanceStat {
+                input: first[column].input.clone(),
+                mean,
+                sd,
+                loss_mean,
+                loss_sd,
+            }
+        })
+        .collect();
+    stats.sort_by(|a, b| b.mean.total_cmp(&a.mean));
+    Some(stats)
+}
+
+/// Mean and sample standard deviation (n − 1), the standard deviation 0 for one value.
+fn mean_and_sd(values: &[f64]) -> (f64, f64) {
+    let n = values.len() as f64;
+    let mean = values.iter().sum::<f64>() / n;
+    if values.len() < 2 {
+        return (mean, 0.0);
+    }
+    let squares: f64 = values.iter().map(|v| (v - mean).powi(2)).sum();
+    (mean, (squares / (n - 1.0)).sqrt())
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    // Hand-computed: [1, 2, 3, 6] has mean 3 and squared deviations 4 + 1 + 0 + 9 = 14,
+    // so the sample sd is sqrt(14 / 3).
+    #[test]
+    fn the_spread_of_shuffles_is_the_sample_standard_deviation() {
+        let (mean, sd) = mean_and_sd(&[1.0, 2.0, 3.0, 6.0]);
+        assert_eq!(mean, 3.0);
+        assert!((sd - (14.0f64 / 3.0).sqrt()).abs() < 1e-15);
+        assert_eq!(mean_and_sd(&[0.5]), (0.5, 0.0));
+    }
+
+    #[test]
+    fn a_categorical_input_spans_one_feature_per_category() {
+        let column = |name: &str, kind| InputColumn {
+            name: name.into(),
+            kind,
+            constant: false,
+        };
+        let columns = [
+            column("x", ColumnKind::Numeric),
+            column(
+                "site",
+                ColumnKind::Categorical {
+                    categories: vec!["a".into(), "b".into(), "c".into()],
+                },
+            ),
+            column("z", ColumnKind::Numeric),
+        ];
+        assert_eq!(feature_ranges(&columns), vec![0..1, 1..4, 4..5]);
+    }
 }
