@@ -82,6 +82,24 @@ fn a_strong_input_outranks_a_weak_one_and_an_unused_input_scores_near_zero() {
 }
 
 #[test]
+fn the_train_card_draws_importance_as_bars_with_the_strongest_input_first() {
+    let ws = Workspace::new();
+    ws.write("rows.csv", &generated_rows());
+    let doc = ws.write("fit.md", &document(""));
+    ws.build_ok(&doc, &[]);
+    let html = std::fs::read_to_string(doc.with_extension("html")).unwrap();
+    let figure = html
+        .split(r#"<figure class="chart importance">"#)
+        .nth(1)
+        .expect("the train card has an importance chart");
+    let figure = figure.split("</figure>").next().unwrap();
+    assert!(figure.contains("fall in held-out R²"), "{figure}");
+    assert!(figure.contains("over 5 shuffles"), "{figure}");
+    let at = |input: &str| figure.find(&format!(">{input}</text>")).unwrap();
+    assert!(at("x1") < at("x2") && at("x2") < at("x3"), "{figure}");
+}
+
+#[test]
 fn importance_false_measures_nothing_and_a_rebuild_recomputes_nothing() {
     let ws = Workspace::new();
     ws.write("rows.csv", &generated_rows());
