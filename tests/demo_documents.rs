@@ -56,17 +56,18 @@ fn build_demo(name: &str, steps: usize, charts: usize) {
 
 #[test]
 fn the_hives_demo_builds_a_complete_report() {
-    // 4 trains, a sweep (a heat map over its two settings, a plot for each, its loss
-    // chart), a compare.
-    build_demo("hives.md", 11, 9);
+    // 4 trains (each a loss chart and an importance chart), a sweep (a heat map over
+    // its two settings, a plot for each, its loss chart), a compare.
+    build_demo("hives.md", 11, 13);
 }
 
 #[test]
 fn the_greenhouse_demo_builds_a_complete_report() {
-    // 4 trains, a sweep over two non-numeric settings (a heat map, a plot for each,
-    // its loss chart), a compare; and each train's one target gets a predicted-against-
-    // actual and a residual chart (8 more).
-    build_demo("greenhouse.md", 11, 17);
+    // 4 trains (each a loss chart and an importance chart), a sweep over two
+    // non-numeric settings (a heat map, a plot for each, its loss chart), a compare;
+    // and each train's one target gets a predicted-against-actual and a residual
+    // chart (8 more).
+    build_demo("greenhouse.md", 11, 21);
 }
 
 #[test]

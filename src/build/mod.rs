@@ -7,6 +7,7 @@
 //! One run is `training`; predictions and exports are `model_use`; the results each
 //! step kind produces are `outcome`; a cluster task's part of the runs is `share`.
 
+pub(crate) mod importance;
 mod judging;
 mod model_use;
 pub(crate) mod outcome;

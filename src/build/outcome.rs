@@ -6,6 +6,7 @@ use std::borrow::Borrow;
 use ndarray::Array2;
 use serde::{Deserialize, Serialize};
 
+use crate::build::importance::InputImportance;
 use crate::data::card::DataCard;
 use crate::data::{InputColumn, Scale, Task};
 use crate::document::spec::MetricName;
@@ -109,6 +110,9 @@ pub(crate) struct RunResult {
     /// How each validation row went, in their order, for the paired tests of a
     /// sweep ranked on them; `None` without validation rows.
     pub validation_errors: Option<RowErrors>,
+    /// Each input column's permutation importance on the held-out rows; `None`
+    /// without held-out rows or when the step turned it off.
+    pub importance: Option<Vec<InputImportance>>,
 }
 
 impl RunResult {
@@ -377,6 +381,7 @@ mod tests {
                 test: Some(metrics),
                 held_out_outputs: None,
                 validation_errors: None,
+                importance: None,
             }],
             judgement: None,
         }

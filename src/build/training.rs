@@ -5,6 +5,7 @@ use std::time::Instant;
 
 use ndarray::{Array2, Axis};
 
+use crate::build::importance::{IMPORTANCE_MAX_DEFAULT_INPUTS, Shuffles, permutation_importance};
 use crate::build::outcome::{DataSummary, ModelShape, RunResult, SetMetrics};
 use crate::data::{Prepared, Scaler, Task};
 use crate::document::spec::{LossChoice, NetSpec, OutputChoice, TrainSpec, word};
@@ -197,6 +198,19 @@ pub(super) fn fit(
         }
         None => (None, None),
     };
+    let columns = &prepared.encoding.columns;
+    let wants_importance = train
+        .importance
+        .unwrap_or(columns.len() <= IMPORTANCE_MAX_DEFAULT_INPUTS);
+    let shuffles = Shuffles {
+        columns,
+        task: prepared.encoding.task,
+        loss: shape.loss,
+        repeats: train.importance_repeats,
+        seed: train.seed,
+    };
+    let importance = (wants_importance && has_test)
+        .then(|| permutation_importance(&fitted.network, &test_rows, &shuffles));
     RunResult {
         fit: fitted,
         seconds,
@@ -205,6 +219,7 @@ pub(super) fn fit(
         test: test_metrics,
         held_out_outputs,
         validation_errors,
+        importance,
     }
 }
 
@@ -228,6 +243,9 @@ pub(super) fn training_config(train: &TrainSpec, loss: Loss) -> TrainConfig {
         seed,
         // Chooses the float type `nn::train_at` trains in, so it is its argument.
         precision: _,
+        // Measured on the fitted network afterwards (`fit`), not while training.
+        importance: _,
+        importance_repeats: _,
     } = train;
     TrainConfig {
         loss,
@@ -338,6 +356,8 @@ mod tests {
             shuffle: true,
             seed: 0,
             precision: Precision::F64,
+            importance: None,
+            importance_repeats: 5,
         }
     }
 
@@ -394,6 +414,8 @@ mod tests {
             shuffle: false,
             seed: 99,
             precision: Precision::F32,
+            importance: Some(false),
+            importance_repeats: 3,
         };
         let config = training_config(&train, Loss::CrossEntropy);
         assert_eq!(

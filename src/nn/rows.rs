@@ -145,8 +145,7 @@ impl<'a> Rows<'a> {
     }
 
     /// All rows gathered into new matrices `(inputs, targets)`: the scaled copy
-    /// that training avoids, which tests compare it with.
-    #[cfg(test)]
+    /// that training avoids; permutation importance reorders its columns.
     pub(crate) fn scaled_copy(&self) -> (Array2<f64>, Array2<f64>) {
         let mut x = Array2::zeros((self.len(), self.inputs()));
         let mut y = Array2::zeros((self.len(), self.targets()));

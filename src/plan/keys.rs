@@ -15,7 +15,7 @@ use super::{Key, PlannedStep};
 /// 5: a prepared partition carries its target scaler (`scale_target`), and a
 ///    regression run trains on scaled targets by default.
 /// 6: a run keeps how each validation row went, for the paired tests of a sweep
-///    ranked on validation rows.
+///    ranked on validation rows, and its inputs' permutation importance.
 pub(crate) const CACHE_FORMAT_VERSION: u32 = 6;
 
 /// A run's key depends on what it computes, not on step names, so identical runs in

@@ -6,6 +6,7 @@ use serde_json::{Map, Value, json};
 use super::card_view::warning_text;
 use super::format::stop_code;
 use super::verdict::verdict;
+use crate::build::importance::pooled_importance;
 use crate::build::outcome::{FitResult, MetricStat, Outcome, RowSet, RunResult, SetMetrics};
 use crate::build::{BuildResult, Status};
 use crate::data::card::{ColumnProfile, DataCard, Values};
@@ -54,6 +55,7 @@ pub(crate) fn summary(
                         json!(record.trained.iter().sum::<usize>()),
                     );
                     train_fields(result, &mut object);
+                    importance_field(result, &mut object);
                 }
                 Some(Outcome::Sweep(sweep)) => {
                     object.insert(
@@ -198,6 +200,26 @@ fn train_fields(result: &FitResult, object: &mut Map<String, Value>) {
     if let Some(judgement) = &result.judgement {
         judgement_fields(judgement, object);
     }
+}
+
+/// A train step's permutation importance, most important first.
+fn importance_field(result: &FitResult, object: &mut Map<String, Value>) {
+    let Some(stats) = pooled_importance(&result.runs) else {
+        return;
+    };
+    let inputs = stats
+        .iter()
+        .map(|stat| {
+            json!({
+                "input": stat.input,
+                "mean": number(stat.mean),
+                "sd": number(stat.sd),
+                "loss_mean": number(stat.loss_mean),
+                "loss_sd": number(stat.loss_sd),
+            })
+        })
+        .collect();
+    object.insert("importance".into(), Value::Array(inputs));
 }
 
 /// A fit against the baseline and the model without a hidden layer (`judge`).

@@ -8,6 +8,7 @@ use super::chart::{self, Dash, Series, Weight};
 use super::diagnosis_view::{DiagnosisView, diagnosis_view};
 use super::format::{mean_sd, number, seconds, stop_reason};
 use super::verdict::{NOT_ENOUGH_ROWS, Verdict, interval_words, verdict};
+use crate::build::importance::pooled_importance;
 use crate::build::outcome::{DataSummary, FitResult, MetricStat, RowSet, SetMetrics};
 use crate::document::spec::word;
 use crate::judge::{BaselineRule, Judgement};
@@ -111,6 +112,14 @@ pub(crate) struct TrainView {
     pub watched_rows: &'static str,
     /// Said when the held-out rows chose the weights, so their score is optimistic.
     pub choice_note: Option<String>,
+    pub importance: Option<ImportanceView>,
+}
+
+/// Which inputs the network leans on: permutation importance as a sorted bar chart.
+#[derive(Serialize)]
+pub(crate) struct ImportanceView {
+    pub chart: String,
+    pub note: String,
 }
 
 /// The held-out scores of the network, the baseline and the model without a hidden
@@ -315,7 +324,43 @@ pub(crate) fn train_view(
             _ => "held-out",
         },
         choice_note: early_stop_note(result),
+        importance: importance_view(result),
     }
+}
+
+/// The permutation importance chart, most important input first; `None` when the
+/// step did not measure it.
+fn importance_view(result: &FitResult) -> Option<ImportanceView> {
+    let stats = pooled_importance(&result.runs)?;
+    let metric = match result.runs[0].test.as_ref()? {
+        SetMetrics::Classification { .. } => "accuracy",
+        SetMetrics::Regression { .. } => "R²",
+    };
+    let bars: Vec<chart::Bar> = stats
+        .iter()
+        .map(|stat| chart::Bar {
+            label: stat.input.clone(),
+            value: stat.mean,
+            spread: Some(stat.sd),
+        })
+        .collect();
+    let shuffles: usize = result
+        .runs
+        .iter()
+        .filter_map(|run| run.importance.as_ref())
+        .map(|inputs| inputs.first().map_or(0, |input| input.metric_drops.len()))
+        .sum();
+    let loss_rises = stats
+        .iter()
+        .map(|stat| format!("{} {}", stat.input, mean_sd(stat.loss_mean, stat.loss_sd)))
+        .collect::<Vec<_>>()
+        .join(", ");
+    Some(ImportanceView {
+        chart: chart::bar_chart(&bars, &format!("fall in held-out {metric}")),
+        note: format!(
+            "Permutation importance: the fall in held-out {metric} when one input's values are shuffled across the held-out rows, mean ± sd over {shuffles} shuffles (a categorical input's one-hot columns move together). Rise in held-out loss: {loss_rises}."
+        ),
+    })
 }
 
 /// Patience that stopped a run on the held-out rows chose its weights on them too.

@@ -163,6 +163,21 @@ pub struct TrainSpec {
     /// that the keys of runs written before the setting existed stay valid.
     #[serde(skip_serializing_if = "Precision::is_f64")]
     pub(crate) precision: Precision,
+    /// Permutation importance on the held-out rows; `None` leaves it to the data (on
+    /// up to `IMPORTANCE_MAX_DEFAULT_INPUTS` input columns). Left out of the
+    /// serialisation when unset, like `precision`, so keys of documents without it stay.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub(crate) importance: Option<bool>,
+    /// Shuffles per input column; left out of the serialisation at its default.
+    #[serde(skip_serializing_if = "is_default_importance_repeats")]
+    pub(crate) importance_repeats: usize,
+}
+
+/// Shuffles per input column when `importance_repeats` is not written.
+pub(crate) const DEFAULT_IMPORTANCE_REPEATS: usize = 5;
+
+fn is_default_importance_repeats(repeats: &usize) -> bool {
+    *repeats == DEFAULT_IMPORTANCE_REPEATS
 }
 
 /// The settings a block wrote, by name; the rest took their defaults. Kept beside a
@@ -310,6 +325,8 @@ pub(crate) struct RawTrain {
     seed: Option<u64>,
     #[schemars(with = "Option<Word<Precision>>")]
     precision: Option<Precision>,
+    importance: Option<bool>,
+    importance_repeats: Option<usize>,
 }
 /// The train settings, which a sweep may also vary.
 pub(crate) static TRAIN_KEYS: LazyLock<&[&str]> = LazyLock::new(fields::<RawTrain>);
@@ -691,6 +708,8 @@ impl RawTrain {
             shuffle,
             seed,
             precision,
+            importance,
+            importance_repeats,
         } = spec;
         // A written momentum beside adam is refused, so only sgd can carry one.
         let (kind, learning_rate, momentum) = match *optimizer {
@@ -715,6 +734,8 @@ impl RawTrain {
             shuffle: written.kept("shuffle", *shuffle),
             seed: written.kept("seed", *seed),
             precision: written.kept("precision", *precision),
+            importance: *importance,
+            importance_repeats: written.kept("importance_repeats", *importance_repeats),
         }
     }
 }
@@ -781,6 +802,10 @@ pub(crate) fn validate_train(
     check.require(l2 >= 0.0 && l2.is_finite(), "l2", || {
         format!("l2 must be 0 or more, not {l2}")
     });
+    let importance_repeats = raw.importance_repeats.unwrap_or(DEFAULT_IMPORTANCE_REPEATS);
+    check.require(importance_repeats > 0, "importance_repeats", || {
+        "importance_repeats must be at least 1 shuffle".into()
+    });
     TrainSpec {
         data: raw.data,
         net: raw.net,
@@ -794,5 +819,7 @@ pub(crate) fn validate_train(
         shuffle: raw.shuffle.unwrap_or(true),
         seed: raw.seed.unwrap_or(default_seed),
         precision: raw.precision.unwrap_or_default(),
+        importance: raw.importance,
+        importance_repeats,
     }
 }
