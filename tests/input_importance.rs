@@ -128,6 +128,7 @@ fn held_out_csv(csv: &Path) -> String {
         missing: Missing::Error,
         split: Split::Holdout(0.25),
         validation: None,
+        scale_target: None,
         seed: 7,
     };
     let prepared = prepare(&table, &settings, DEFAULT_MAX_CATEGORIES).unwrap();

@@ -26,6 +26,15 @@ def activation(name, z, slope):
     raise ValueError(name)
 
 
+def in_target_units(model, outputs):
+    """Maps a regression network's outputs back to the targets' units (format 3's
+    `target_scaling`; the identity for classifiers and older exports)."""
+    scaling = model.get("target_scaling")
+    if scaling is None:
+        return outputs
+    return outputs * np.array(scaling["divisor"]) + np.array(scaling["offset"])
+
+
 def main():
     model = json.load(open(sys.argv[1]))
     rows = list(csv.DictReader(open(sys.argv[2], newline="")))
@@ -45,7 +54,7 @@ def main():
     slope = model.get("leaky_relu_slope", 0.01)
     for layer in model["layers"]:
         x = activation(layer["activation"], x @ np.array(layer["weights"]) + np.array(layer["biases"]), slope)
-    json.dump(x.tolist(), sys.stdout)
+    json.dump(in_target_units(model, x).tolist(), sys.stdout)
 
 
 if __name__ == "__main__":

@@ -10,7 +10,7 @@ import numpy as np
 from sklearn.inspection import permutation_importance
 from sklearn.metrics import r2_score
 
-from apply_export import activation
+from apply_export import activation, in_target_units
 
 
 class ExportedModel:
@@ -28,7 +28,7 @@ class ExportedModel:
         slope = self.model.get("leaky_relu_slope", 0.01)
         for layer in self.model["layers"]:
             z = activation(layer["activation"], z @ np.array(layer["weights"]) + np.array(layer["biases"]), slope)
-        return z[:, 0]
+        return in_target_units(self.model, z)[:, 0]
 
     def score(self, x, y):
         return r2_score(y, self.predict(x))
