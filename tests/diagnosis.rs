@@ -6,12 +6,11 @@
 
 mod common;
 
-use std::io::Write;
-use std::process::{Command, Stdio};
+use std::process::Command;
 
 use serde_json::{Value, json};
 
-use common::{Workspace, project, reference_python, step};
+use common::{Workspace, reference_python, reference_script, step};
 
 fn numbers(value: &Value) -> Vec<f64> {
     value
@@ -50,21 +49,7 @@ fn write_breast_cancer(python: &std::path::Path, ws: &Workspace) {
 
 /// tests/reference/roc_reference.py on the exported model's held-out rows.
 fn scikit_learn_on(python: &std::path::Path, request: &Value) -> Value {
-    let mut child = Command::new(python)
-        .arg(project().join("tests/reference/roc_reference.py"))
-        .stdin(Stdio::piped())
-        .stdout(Stdio::piped())
-        .spawn()
-        .expect("the reference Python starts");
-    child
-        .stdin
-        .take()
-        .unwrap()
-        .write_all(request.to_string().as_bytes())
-        .unwrap();
-    let output = child.wait_with_output().unwrap();
-    assert!(output.status.success(), "the reference script failed");
-    serde_json::from_slice(&output.stdout).expect("the script writes JSON")
+    reference_script(python, "roc_reference.py", request)
 }
 
 const CANCER: &str = "# Breast cancer

@@ -7,9 +7,6 @@
 
 mod common;
 
-use std::io::Write;
-use std::process::{Command, Stdio};
-
 use ndarray::{Array2, Axis};
 use rand::{Rng, SeedableRng};
 use rand_chacha::ChaCha8Rng;
@@ -17,25 +14,11 @@ use serde_json::{Value, json};
 use stet::judge::linear::{fit_least_squares, fit_logistic};
 use stet::judge::stats::{bootstrap, mcnemar_exact, wilson};
 
-use common::{project, reference_python};
+use common::{project, reference_python, reference_script};
 
 /// Runs tests/reference/judge_reference.py on `request`.
 fn reference(python: &std::path::Path, request: &Value) -> Value {
-    let mut child = Command::new(python)
-        .arg(project().join("tests/reference/judge_reference.py"))
-        .stdin(Stdio::piped())
-        .stdout(Stdio::piped())
-        .spawn()
-        .expect("the reference Python starts");
-    child
-        .stdin
-        .take()
-        .unwrap()
-        .write_all(request.to_string().as_bytes())
-        .unwrap();
-    let output = child.wait_with_output().unwrap();
-    assert!(output.status.success(), "the reference script failed");
-    serde_json::from_slice(&output.stdout).expect("the script writes JSON")
+    reference_script(python, "judge_reference.py", request)
 }
 
 fn matrix(value: &Value) -> Vec<Vec<f64>> {

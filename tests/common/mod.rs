@@ -223,3 +223,25 @@ pub fn browser_available(check: &str) -> bool {
     }
     ready
 }
+
+/// Runs the reference script `tests/reference/<script>` with `python`, `request` as JSON
+/// on its stdin, and returns the JSON it writes.
+pub fn reference_script(python: &Path, script: &str, request: &Value) -> Value {
+    use std::io::Write;
+    use std::process::Stdio;
+    let mut child = Command::new(python)
+        .arg(project().join("tests/reference").join(script))
+        .stdin(Stdio::piped())
+        .stdout(Stdio::piped())
+        .spawn()
+        .expect("the reference Python starts");
+    child
+        .stdin
+        .take()
+        .unwrap()
+        .write_all(request.to_string().as_bytes())
+        .unwrap();
+    let output = child.wait_with_output().unwrap();
+    assert!(output.status.success(), "{script} failed");
+    serde_json::from_slice(&output.stdout).expect("the script writes JSON")
+}
