@@ -4,9 +4,10 @@ use serde::Serialize;
 
 use super::format::number;
 use super::view::{ConfusionView, MetricRow, confusion_table, log_loss_repeats_loss};
-use crate::build::outcome::{PredictResult, PredictScore, SetMetrics};
+use crate::build::outcome::{BatchScores, PredictResult, PredictScore, SetMetrics};
 use crate::document::spec::ExportFormat;
 use crate::export::ExportResult;
+use crate::judge::Scores;
 
 /// Rows a predict card shows; the written CSV has them all.
 const SHOWN_ROWS: usize = 50;
@@ -34,18 +35,25 @@ pub(crate) struct PredictRow {
     pub values: Vec<String>,
 }
 
-/// A labelled batch's scores, laid out as the train card lays out its held-out rows'.
+/// A labelled batch: its scores, and the reason for every row or score left out.
 #[derive(Serialize)]
 pub(crate) struct BatchView {
-    /// How many rows were scored, and on which units.
+    /// `None` when no row could be scored.
+    pub scores: Option<BatchScoresView>,
+    pub reasons: Vec<String>,
+}
+
+/// A labelled batch's scores, laid out as the train card lays out its held-out rows'.
+#[derive(Serialize)]
+pub(crate) struct BatchScoresView {
+    /// How many rows were scored, and in which units.
     pub caption: String,
     pub metric_names: Vec<String>,
+    /// The scores, then their 95 % intervals when the rows carry them.
     pub rows: Vec<MetricRow>,
     pub confusion: Option<ConfusionView>,
     /// Regression with several targets: each target's scores.
     pub targets: Vec<TargetRow>,
-    /// Rows left out and scores that could not be given, each with its reason.
-    pub reasons: Vec<String>,
 }
 
 #[derive(Serialize)]
@@ -99,56 +107,14 @@ fn batch_view(scored: &PredictScore, classes: Option<&[String]>, targets: &[Stri
     let Some(scores) = &scored.scores else {
         reasons.insert(0, "No row could be scored.".into());
         return BatchView {
-            caption: String::new(),
-            metric_names: Vec::new(),
-            rows: Vec::new(),
-            confusion: None,
-            targets: Vec::new(),
+            scores: None,
             reasons,
         };
     };
-    let hide_log_loss = log_loss_repeats_loss(&scores.metrics);
-    let shown: Vec<(&str, f64)> = scores
-        .metrics
-        .named()
-        .into_iter()
-        .filter(|(name, _)| !(hide_log_loss && *name == "log_loss"))
-        .collect();
-    let intervals = scores.intervals.as_deref();
-    if intervals.is_none() {
-        reasons.push(match scores.metrics {
-            SetMetrics::Classification { .. } => {
-                "No 95 % interval: it needs at least two scored rows, of more than one class."
-                    .into()
-            }
-            SetMetrics::Regression { .. } => {
-                "No 95 % interval: it needs at least two scored rows.".into()
-            }
-        });
+    if scores.intervals.is_none() {
+        reasons.push(no_interval_reason(&scores.metrics).into());
     }
-    let interval_of = |name: &str| {
-        // Shown as "loss", the log loss carries its interval.
-        let name = if hide_log_loss && name == "loss" {
-            "log_loss"
-        } else {
-            name
-        };
-        intervals
-            .and_then(|all| all.iter().find(|(n, _)| n == name))
-            .map_or(String::new(), |(_, i)| {
-                format!("{}–{}", number(i.low), number(i.high))
-            })
-    };
-    let mut rows = vec![MetricRow {
-        rows: "scored rows",
-        values: shown.iter().map(|(_, v)| number(*v)).collect(),
-    }];
-    if intervals.is_some() {
-        rows.push(MetricRow {
-            rows: "95 % interval",
-            values: shown.iter().map(|(name, _)| interval_of(name)).collect(),
-        });
-    }
+    let (metric_names, rows) = metric_table(scores);
     let (confusion, loss_units) = match &scores.metrics {
         SetMetrics::Classification { metrics, .. } => (
             classes.map(|labels| confusion_table(&metrics.confusion, labels, "the scored rows")),
@@ -160,37 +126,89 @@ fn batch_view(scored: &PredictScore, classes: Option<&[String]>, targets: &[Stri
         ),
     };
     BatchView {
-        caption: format!(
-            "{} row{} whose {} the file gives, scored like held-out rows{loss_units}",
-            scored.rows,
-            if scored.rows == 1 { "" } else { "s" },
-            targets.join(", ")
-        ),
-        metric_names: shown
-            .iter()
-            .map(|(name, _)| name.replace('_', " "))
-            .collect(),
-        rows,
-        confusion,
-        targets: if scores.targets.len() > 1 {
-            scores
-                .targets
-                .iter()
-                .zip(targets)
-                .map(|(target_scores, target)| TargetRow {
-                    target: target.clone(),
-                    values: target_scores
-                        .named()
-                        .iter()
-                        .map(|(_, v)| number(*v))
-                        .collect(),
-                })
-                .collect()
-        } else {
-            Vec::new()
-        },
+        scores: Some(BatchScoresView {
+            caption: format!(
+                "{} whose {} the file gives, scored like held-out rows{loss_units}",
+                rows_text(scored.rows),
+                targets.join(", ")
+            ),
+            metric_names,
+            rows,
+            confusion,
+            targets: target_rows(&scores.targets, targets),
+        }),
         reasons,
     }
+}
+
+/// The metric names and rows of a batch's table: the train card's held-out metrics
+/// (log loss left out when it is the loss again), then their intervals.
+fn metric_table(scores: &BatchScores) -> (Vec<String>, Vec<MetricRow>) {
+    let hide_log_loss = log_loss_repeats_loss(&scores.metrics);
+    let shown: Vec<(&str, f64)> = scores
+        .metrics
+        .named()
+        .into_iter()
+        .filter(|(name, _)| !(hide_log_loss && *name == "log_loss"))
+        .collect();
+    let mut rows = vec![MetricRow {
+        rows: "scored rows",
+        values: shown.iter().map(|(_, v)| number(*v)).collect(),
+    }];
+    if let Some(intervals) = &scores.intervals {
+        let interval_of = |name: &str| {
+            // Shown as "loss", the log loss carries its interval.
+            let name = if hide_log_loss && name == "loss" {
+                "log_loss"
+            } else {
+                name
+            };
+            intervals
+                .iter()
+                .find(|(n, _)| n == name)
+                .map_or(String::new(), |(_, i)| {
+                    format!("{}–{}", number(i.low), number(i.high))
+                })
+        };
+        rows.push(MetricRow {
+            rows: "95 % interval",
+            values: shown.iter().map(|(name, _)| interval_of(name)).collect(),
+        });
+    }
+    let names = shown
+        .iter()
+        .map(|(name, _)| name.replace('_', " "))
+        .collect();
+    (names, rows)
+}
+
+/// Why the scored rows carry no interval (`judge::enough_rows`).
+fn no_interval_reason(metrics: &SetMetrics) -> &'static str {
+    match metrics {
+        SetMetrics::Classification { .. } => {
+            "No 95 % interval: it needs at least two scored rows, of more than one class."
+        }
+        SetMetrics::Regression { .. } => "No 95 % interval: it needs at least two scored rows.",
+    }
+}
+
+/// Each target's scores, when there are several (one target's are the table's).
+fn target_rows(scores: &[Scores], targets: &[String]) -> Vec<TargetRow> {
+    if scores.len() < 2 {
+        return Vec::new();
+    }
+    scores
+        .iter()
+        .zip(targets)
+        .map(|(target_scores, target)| TargetRow {
+            target: target.clone(),
+            values: target_scores
+                .named()
+                .iter()
+                .map(|(_, v)| number(*v))
+                .collect(),
+        })
+        .collect()
 }
 
 /// Why rows of a labelled batch were predicted but not scored.
