@@ -1,5 +1,5 @@
-//! Reports read in a real browser (issue 16): the demo reports and a 200-combination
-//! sweep, opened in headless Chromium at a wide and a phone width by
+//! Reports read in a real browser (issue 16): the demo reports, a 200-combination
+//! sweep and a ten-class labelled predict batch, opened in headless Chromium at a wide and a phone width by
 //! `tests/browser/report_layout.py`, which checks the layout and lists what is wrong.
 //! Set `STET_KEEP_SCREENSHOTS=DIR` to keep the screenshots it takes.
 
@@ -39,6 +39,59 @@ vary:
 ```
 ";
 
+/// Ten invented tree species told apart by three measurements, and a labelled batch
+/// of new trees named by `tree_id` and `plot`, one label unseen: a predict card with a
+/// ten-class confusion matrix and twelve prediction columns, wider than a phone.
+fn ten_class_batch(ws: &Workspace) -> PathBuf {
+    const SPECIES: [&str; 10] = [
+        "alder",
+        "birch",
+        "cedar",
+        "douglas_fir",
+        "elm",
+        "hemlock",
+        "larch",
+        "maple",
+        "oak_red",
+        "pine_scots",
+    ];
+    // Measurements a fixed function of the species and the row, so classes overlap a little.
+    let measure = |class: usize, row: usize| {
+        let wobble = ((row * 7919) % 100) as f64 / 250.0;
+        format!(
+            "{:.3},{:.3},{:.3}",
+            class as f64 + wobble,
+            (class % 3) as f64 + wobble,
+            ((class * class) % 7) as f64 - wobble
+        )
+    };
+    let mut trees = String::from("a,b,c,species\n");
+    for row in 0..300 {
+        let class = (row * 3) % SPECIES.len();
+        trees.push_str(&format!("{},{}\n", measure(class, row), SPECIES[class]));
+    }
+    ws.write("experiments/trees.csv", &trees);
+    let mut batch = String::from("tree_id,a,b,c,plot,species\n");
+    for row in 0..40 {
+        let class = (row * 7) % SPECIES.len();
+        let label = if row == 5 { "yew" } else { SPECIES[class] };
+        batch.push_str(&format!(
+            "T-{},{},north-{},{label}\n",
+            1000 + row,
+            measure(class, row + 300),
+            row % 4
+        ));
+    }
+    ws.write("experiments/new-trees.csv", &batch);
+    ws.write(
+        "experiments/trees.md",
+        "# Trees\n\n```yaml data trees\nfile: trees.csv\ntarget: species\n```\n\n\
+         ```yaml net small\nhidden: [12]\n```\n\n\
+         ```yaml train fit\ndata: trees\nnet: small\noptimizer: adam\nlearning_rate: 0.02\nepochs: 60\n```\n\n\
+         ```yaml predict field\nmodel: fit\nfile: new-trees.csv\n```\n",
+    )
+}
+
 /// Where the screenshots go: `STET_KEEP_SCREENSHOTS` if set, else the test's folder.
 fn screenshot_folder(ws: &Workspace) -> PathBuf {
     std::env::var_os("STET_KEEP_SCREENSHOTS")
@@ -71,7 +124,7 @@ fn a_sweep_of_200_combinations_shows_its_shape_and_its_best_ten_with_the_rest_fo
 }
 
 #[test]
-fn every_demo_report_and_a_large_sweep_read_well_at_wide_and_phone_widths() {
+fn every_demo_report_a_large_sweep_and_a_ten_class_batch_read_well_at_wide_and_phone_widths() {
     let check = "report layout in Chromium";
     let Some(python) = reference_python(check) else {
         return;
@@ -91,6 +144,10 @@ fn every_demo_report_and_a_large_sweep_read_well_at_wide_and_phone_widths() {
     let sweep = ws.write("experiments/large_sweep.md", LARGE_SWEEP);
     ws.build_ok(&sweep, &[]);
     reports.push(sweep.with_extension("html").display().to_string());
+    // Issue 15: a labelled batch's card with ten classes scrolls inside itself.
+    let trees = ten_class_batch(&ws);
+    ws.build_ok(&trees, &[]);
+    reports.push(trees.with_extension("html").display().to_string());
 
     let output = Command::new(python)
         .arg(project().join("tests/browser/report_layout.py"))

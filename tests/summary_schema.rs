@@ -184,3 +184,59 @@ fn a_summary_with_validation_rows_matches_the_summary_schema() {
     assert!(step(&summary, "rates")["runs"][1]["metrics"]["validation"].is_object());
     assert_matches_schema(&summary, "a document with validation");
 }
+
+/// Iris on a holdout split, and a predict step on `batch.csv` (written by the caller),
+/// which holds the species column.
+const LABELLED_BATCH: &str = "\
+```yaml data iris
+file: iris.csv
+target: species
+```
+
+```yaml net small
+hidden: [3]
+```
+
+```yaml train fit
+data: iris
+net: small
+epochs: 20
+```
+
+```yaml predict batch
+model: fit
+file: batch.csv
+```
+";
+
+// Issue 15: a predict step whose file holds the target gains its scored rows, those
+// left out, its metrics, their interval and the confusion matrix.
+#[test]
+fn a_labelled_predict_batch_matches_the_summary_schema_and_its_scores_are_required_together() {
+    let ws = Workspace::new();
+    // Fisher's Iris data (tests/data/README.md): its first six rows, one label unseen.
+    ws.write(
+        "batch.csv",
+        "sepal_length_cm,sepal_width_cm,petal_length_cm,petal_width_cm,species\n\
+         5.1,3.5,1.4,0.2,setosa\n4.9,3.0,1.4,0.2,setosa\n7.0,3.2,4.7,1.4,versicolor\n\
+         6.4,3.2,4.5,1.5,\n6.3,3.3,6.0,2.5,virginica\n5.8,2.7,5.1,1.9,Iris-new\n",
+    );
+    let summary = ws.build_ok(&ws.write("labelled.md", LABELLED_BATCH), &[]);
+    let batch = step(&summary, "batch");
+    assert_eq!(batch["scored_rows"], 4);
+    assert!(batch["interval"]["accuracy"].is_array());
+    assert_matches_schema(&summary, "a labelled predict batch");
+    let validator = validator();
+    let at = step_index(&summary, "batch");
+    for field in ["interval", "scored_rows", "unseen_labels"] {
+        let mut changed = summary.clone();
+        changed["steps"][at].as_object_mut().unwrap().remove(field);
+        assert!(
+            !validator.is_valid(&changed),
+            "'batch' without {field} passed"
+        );
+    }
+    let mut changed = summary.clone();
+    changed["steps"][at]["metrics"]["accuracy"] = "high".into();
+    assert!(!validator.is_valid(&changed), "a text accuracy passed");
+}

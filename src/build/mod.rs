@@ -750,7 +750,10 @@ fn use_model_step(
         };
         match &step.spec {
             StepSpec::Predict(_) => {
-                model_use::predict(&model, &ready, &step.files[0]).map(Outcome::Predict)
+                // The seed of the model's own judgement, so a batch's intervals are
+                // drawn as its held-out rows' were.
+                let seed = plan.steps[model_index].fits[fit_index].judged_runs()[0].seed;
+                model_use::predict(&model, &ready, &step.files[0], seed).map(Outcome::Predict)
             }
             StepSpec::Export(export) => {
                 let provenance = model_use::provenance(plan, model_index, fit_index, &model);

@@ -2,13 +2,16 @@
 //! programs apply the model without stet (its file formats are `crate::export`'s). Both
 //! return data; the command layer writes any files.
 
+use ndarray::{Array2, Axis};
 use serde_json::{Value, json};
 
-use crate::build::outcome::{FitResult, PredictResult};
-use crate::data::{self, Prepared, Task};
+use super::training::Scored;
+use crate::build::outcome::{BatchScores, FitResult, PredictResult, PredictScore};
+use crate::data::{self, KnownTargets, Prepared, Task};
 use crate::document::spec::{ExportFormat, TrainSpec, word};
 use crate::export::{self, ExportResult, ExportedModel, Provenance};
-use crate::nn::{BatchSize, Network, Optimizer};
+use crate::judge::{self, diagnosis::target_scores};
+use crate::nn::{self, BatchSize, Network, Optimizer};
 use crate::plan::Plan;
 use crate::plan::input_file::{InputFile, ReadError};
 
@@ -47,20 +50,22 @@ fn single_network(model: &FitResult) -> Result<&Network, ModelUseError> {
 }
 
 /// Applies the model, with its data step's encoding and scaling, to the rows of `file`.
+/// `seed` draws the bootstrap intervals of a labelled batch's scores.
 pub(super) fn predict(
     model: &FitResult,
     prepared: &Prepared,
     file: &InputFile,
+    seed: u64,
 ) -> Result<PredictResult, ModelUseError> {
     let network = single_network(model)?;
     let table = file.read(|reader| data::read_table(reader))?;
-    let x = prepared
-        .encoding
-        .encode_inputs(&table)
-        .map_err(|error| ModelUseError::Encode {
-            file: file.written.clone(),
-            error,
-        })?;
+    let in_file = |error| ModelUseError::Encode {
+        file: file.written.clone(),
+        error,
+    };
+    let x = prepared.encoding.encode_inputs(&table).map_err(in_file)?;
+    let known = prepared.encoding.encode_targets(&table).map_err(in_file)?;
+    let scored = known.map(|known| score_batch(model, network, prepared, &x, known, seed));
     let scaled = prepared.partitions[0].scaler.apply(x.view());
     let mut raw = network.predict(scaled.view());
     // Regression outputs back in the targets' units; class probabilities are never scaled.
@@ -136,6 +141,7 @@ pub(super) fn predict(
         .map_err(|error| csv::Error::from(error.into_error()))?;
     let csv = String::from_utf8(bytes).expect("CSV of UTF-8 cells");
 
+    let identifying = encoding.identifying_columns(&table, IDENTIFYING_COLUMNS);
     Ok(PredictResult {
         labelled: encoding.classes.is_some(),
         lines: table.lines().to_vec(),
@@ -143,7 +149,68 @@ pub(super) fn predict(
         output_names,
         outputs,
         csv,
+        identifier_names: identifying
+            .iter()
+            .map(|&col| table.headers[col].clone())
+            .collect(),
+        identifiers: (0..table.row_count())
+            .map(|row| {
+                identifying
+                    .iter()
+                    .map(|&col| table.cell(row, col).to_string())
+                    .collect()
+            })
+            .collect(),
+        scored,
     })
+}
+
+/// Columns that name a predicted row beside its predictions (issue 15).
+const IDENTIFYING_COLUMNS: usize = 2;
+
+/// Scores the rows of a labelled batch whose target is known, as the train step
+/// scores its held-out rows: the same metrics (`training::Scored`), the same
+/// intervals from the same seed (`judge`).
+fn score_batch(
+    model: &FitResult,
+    network: &Network,
+    prepared: &Prepared,
+    x: &Array2<f64>,
+    known: KnownTargets,
+    seed: u64,
+) -> PredictScore {
+    let scores = (!known.rows.is_empty()).then(|| {
+        let part = &prepared.partitions[0];
+        let task = prepared.encoding.task;
+        let inputs = x.select(Axis(0), &known.rows);
+        // Training saw scaled targets, so the loss is measured on them too.
+        let scaled_targets = part.target_scaler.apply(known.y.view());
+        let rows = nn::Rows::all(inputs.view(), scaled_targets.view())
+            .scaled(&part.scaler.offset, &part.scaler.divisor);
+        let scored = Scored {
+            task,
+            loss: model.shape.loss,
+            target_scaler: &part.target_scaler,
+            own_targets: &known.y,
+        };
+        let every_row: Vec<usize> = (0..known.rows.len()).collect();
+        let (metrics, targets, outputs) = scored.metrics(network, &rows, &every_row);
+        BatchScores {
+            metrics,
+            intervals: judge::enough_rows(task, targets.view())
+                .then(|| judge::intervals(task, targets.view(), outputs.view(), seed)),
+            targets: match task {
+                Task::Regress => target_scores(targets.view(), outputs.view()),
+                Task::Classify => Vec::new(),
+            },
+        }
+    });
+    PredictScore {
+        rows: known.rows.len(),
+        empty_rows: known.empty_rows,
+        unseen_labels: known.unseen_labels,
+        scores,
+    }
 }
 
 /// The model and where it came from, ready to be written in the step's format.

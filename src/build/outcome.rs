@@ -12,7 +12,8 @@ use crate::data::{InputColumn, Scale, Task};
 use crate::document::spec::MetricName;
 use crate::document::spec::sweep::Varied;
 use crate::export::ExportResult;
-use crate::judge::{Judgement, RowErrors};
+use crate::judge::stats::Interval;
+use crate::judge::{Judgement, RowErrors, Scores};
 use crate::nn::{Activation, ClassificationMetrics, Loss, RegressionMetrics, TrainOutcome};
 
 /// Wall-clock seconds.
@@ -196,6 +197,38 @@ pub(crate) struct PredictResult {
     pub outputs: Vec<Vec<f64>>,
     /// The new rows with the predictions appended, as CSV.
     pub csv: String,
+    /// The columns that name the rows for a reader (neither inputs nor targets, at
+    /// most two, in file order); empty when the file has none, and lines name them.
+    pub identifier_names: Vec<String>,
+    /// Each row's cells of those columns.
+    pub identifiers: Vec<Vec<String>>,
+    /// How the rows scored against the file's own targets; `None` when the file
+    /// lacks a target column.
+    pub scored: Option<PredictScore>,
+}
+
+/// A labelled batch scored like held-out rows: the rows whose target is known.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub(crate) struct PredictScore {
+    /// Rows scored.
+    pub rows: usize,
+    /// Rows predicted but not scored: their target cell is empty.
+    pub empty_rows: usize,
+    /// Labels the model never saw, each with its row count (not scored).
+    pub unseen_labels: Vec<(String, usize)>,
+    /// `None` when no row could be scored.
+    pub scores: Option<BatchScores>,
+}
+
+/// The scores of a labelled batch, as the train card gives its held-out rows'.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+pub(crate) struct BatchScores {
+    /// The loss in the units training saw; every other score in the targets' units.
+    pub metrics: SetMetrics,
+    /// 95 % intervals by name (`judge`); `None` when the rows are too few.
+    pub intervals: Option<Vec<(String, Interval)>>,
+    /// Regression: each target's scores, in target order; empty for classification.
+    pub targets: Vec<Scores>,
 }
 
 /// A step's result.

@@ -263,11 +263,11 @@ pub(super) fn training_config(train: &TrainSpec, loss: Loss) -> TrainConfig {
 
 /// How a run's outputs are scored: its task, its training loss, the scaling that
 /// maps its outputs back to the targets' own units, and those targets (all kept rows).
-struct Scored<'a> {
-    task: Task,
-    loss: Loss,
-    target_scaler: &'a Scaler,
-    own_targets: &'a Array2<f64>,
+pub(super) struct Scored<'a> {
+    pub task: Task,
+    pub loss: Loss,
+    pub target_scaler: &'a Scaler,
+    pub own_targets: &'a Array2<f64>,
 }
 
 impl Scored<'_> {
@@ -276,7 +276,7 @@ impl Scored<'_> {
     /// units training saw, so it reads like the loss chart and `target_loss`; every other score
     /// compares the outputs, mapped back, with the unscaled targets of rows `picked`
     /// (the kept rows `rows` reads).
-    fn metrics(
+    pub(super) fn metrics(
         &self,
         network: &Network,
         rows: &nn::Rows,

@@ -123,6 +123,79 @@ impl Encoding {
         encode_rows(table, &self.columns, &positions, &rows)
     }
 
+    /// The columns of `table` that name its rows for a reader: neither an input nor a
+    /// target, at most `count` of them, in file order.
+    pub(crate) fn identifying_columns(&self, table: &Table, count: usize) -> Vec<usize> {
+        let used = |name: &String| {
+            self.columns.iter().any(|column| &column.name == name)
+                || self.target_names.contains(name)
+        };
+        (0..table.headers.len())
+            .filter(|&col| !used(&table.headers[col]))
+            .take(count)
+            .collect()
+    }
+
+    /// The targets of new rows (a labelled batch), encoded as the rows the network
+    /// learned from; `None` when the table lacks a target column. A row whose target
+    /// cell is missing, or (classify) holds a label outside the classes, is left out
+    /// and counted; a regression target that is not a number is an error, as in the
+    /// data step.
+    pub(crate) fn encode_targets(&self, table: &Table) -> Result<Option<KnownTargets>, DataError> {
+        let Some(positions) = self
+            .target_names
+            .iter()
+            .map(|name| table.column(name))
+            .collect::<Option<Vec<usize>>>()
+        else {
+            return Ok(None);
+        };
+        let columns: Vec<ParsedColumn> = positions
+            .iter()
+            .map(|&c| ParsedColumn::new(table, c))
+            .collect();
+        let mut known = KnownTargets::default();
+        let mut values: Vec<f64> = Vec::new();
+        for row in 0..table.row_count() {
+            if columns.iter().any(|column| is_missing(column.value(row))) {
+                known.empty_rows += 1;
+                continue;
+            }
+            match &self.classes {
+                Some(classes) => {
+                    let label = columns[0].value(row);
+                    match classes.iter().position(|class| class == label) {
+                        Some(class) => {
+                            known.rows.push(row);
+                            values.push(class as f64);
+                        }
+                        None => known.count_unseen(label),
+                    }
+                }
+                None => {
+                    for (column, &col) in columns.iter().zip(&positions) {
+                        values.push(column.number(row).ok_or_else(|| DataError::NotNumeric {
+                            line: table.line(row),
+                            column: table.headers[col].clone(),
+                            value: column.value(row).to_string(),
+                            reason: "because the task is `regress`",
+                        })?);
+                    }
+                    known.rows.push(row);
+                }
+            }
+        }
+        known.y = match &self.classes {
+            Some(classes) => {
+                let labels: Vec<usize> = values.iter().map(|&class| class as usize).collect();
+                one_hot_labels(&labels, classes.len())
+            }
+            None => Array2::from_shape_vec((known.rows.len(), positions.len()), values)
+                .expect("one value per target column of each kept row"),
+        };
+        Ok(Some(known))
+    }
+
     /// Whether each feature is a numeric column (true) or a one-hot indicator
     /// (false): the mask [`Scaler::fit`](super::scale::Scaler::fit) expects.
     pub(crate) fn numeric_mask(&self) -> Vec<bool> {
@@ -133,6 +206,34 @@ impl Encoding {
                 ColumnKind::Categorical { categories } => vec![false; categories.len()],
             })
             .collect()
+    }
+}
+
+/// The targets of a labelled batch of new rows, as [`Encoding::encode_targets`] reads them.
+#[derive(Clone, Debug, Default, PartialEq)]
+pub(crate) struct KnownTargets {
+    /// Rows with a usable target, in table order.
+    pub rows: Vec<usize>,
+    /// Their targets as the network learned them: values in the targets' own units, or
+    /// classes one-hot (one 0/1 column for two).
+    pub y: Array2<f64>,
+    /// Rows whose target cell is missing.
+    pub empty_rows: usize,
+    /// Labels outside the model's classes, each with its row count, in order of first
+    /// appearance.
+    pub unseen_labels: Vec<(String, usize)>,
+}
+
+impl KnownTargets {
+    fn count_unseen(&mut self, label: &str) {
+        match self
+            .unseen_labels
+            .iter_mut()
+            .find(|(seen, _)| seen == label)
+        {
+            Some((_, rows)) => *rows += 1,
+            None => self.unseen_labels.push((label.to_string(), 1)),
+        }
     }
 }
 

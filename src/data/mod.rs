@@ -20,8 +20,8 @@ mod settings;
 mod split;
 mod table;
 
-pub(crate) use encode::InputColumn;
 pub use encode::{ColumnKind, DEFAULT_MAX_CATEGORIES};
+pub(crate) use encode::{InputColumn, KnownTargets};
 pub(crate) use error::DataError;
 pub use prepare::{Prepared, prepare};
 pub(crate) use scale::Scaler;

@@ -258,24 +258,33 @@ fn reliability(labels: ArrayView1<f64>, scores: ArrayView1<f64>) -> Reliability 
     }
 }
 
+/// Each regression target's scores on its own, in target order.
+pub(crate) fn target_scores(targets: ArrayView2<f64>, outputs: ArrayView2<f64>) -> Vec<Scores> {
+    (0..targets.ncols())
+        .map(|column| {
+            let pick = |m: ArrayView2<f64>| m.slice(ndarray::s![.., column..=column]).to_owned();
+            Scores::of(Task::Regress, pick(targets).view(), pick(outputs).view())
+        })
+        .collect()
+}
+
 /// Each target's fit; unavailable when a score overflows (huge but finite outputs of a
 /// run on its way to diverging).
 fn target_fits(
     targets: ArrayView2<f64>,
     outputs: ArrayView2<f64>,
 ) -> Result<Vec<TargetFit>, Unavailable> {
-    let fits: Vec<TargetFit> = (0..targets.ncols())
-        .map(|column| {
-            let pick = |m: ArrayView2<f64>| m.slice(ndarray::s![.., column..=column]).to_owned();
-            let (actual, predicted) = (pick(targets), pick(outputs));
-            TargetFit {
-                scores: Scores::of(Task::Regress, actual.view(), predicted.view()),
-                pairs: actual
-                    .iter()
-                    .copied()
-                    .zip(predicted.iter().copied())
-                    .collect(),
-            }
+    let fits: Vec<TargetFit> = target_scores(targets, outputs)
+        .into_iter()
+        .enumerate()
+        .map(|(column, scores)| TargetFit {
+            scores,
+            pairs: targets
+                .column(column)
+                .iter()
+                .copied()
+                .zip(outputs.column(column).iter().copied())
+                .collect(),
         })
         .collect();
     let overflowed = fits.iter().any(|fit| {

@@ -380,7 +380,7 @@ pub(crate) fn row_errors(
 
 /// 95 % intervals of the held-out scores: Wilson for accuracy, the percentile
 /// bootstrap over rows for the rest.
-fn intervals(
+pub(crate) fn intervals(
     task: Task,
     targets: ArrayView2<f64>,
     outputs: ArrayView2<f64>,

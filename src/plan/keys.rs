@@ -16,7 +16,9 @@ use super::{Key, PlannedStep};
 ///    regression run trains on scaled targets by default.
 /// 6: a run keeps how each validation row went, for the paired tests of a sweep
 ///    ranked on validation rows, and its inputs' permutation importance.
-pub(crate) const CACHE_FORMAT_VERSION: u32 = 6;
+/// 7: a predict result keeps its rows' identifying cells and, when its file holds
+///    the targets, the labelled rows' scores (issue 15).
+pub(crate) const CACHE_FORMAT_VERSION: u32 = 7;
 
 /// A run's key depends on what it computes, not on step names, so identical runs in
 /// different steps share one entry.

@@ -340,15 +340,16 @@ fn step_view(input: &ReportInput<'_>, index: usize, yaml: &str, beside_html: Str
         Status::Reused => ("reused", "reused from the cache".to_string(), None),
         Status::Failed { error } => ("failed", "failed".to_string(), Some(error.clone())),
     };
-    let data_summary = match &step.spec {
-        StepSpec::Train(train) => match input
-            .plan
-            .index_of(&train.data)
-            .and_then(|d| input.results.steps[d].outcome.as_ref())
-        {
-            Some(Outcome::Data(summary)) => Some(summary),
-            _ => None,
-        },
+    // The data step a train step reads, or the one its model read for a predict step.
+    let data_index = match (&step.spec, &step.upstream) {
+        (StepSpec::Train(train), _) => input.plan.index_of(&train.data),
+        (StepSpec::Predict(_), Upstream::Model { model }) => {
+            input.plan.steps[*model].fits.first().map(|fit| fit.data)
+        }
+        _ => None,
+    };
+    let data_summary = match data_index.and_then(|d| input.results.steps[d].outcome.as_ref()) {
+        Some(Outcome::Data(summary)) => Some(summary),
         _ => None,
     };
     let classes = data_summary.and_then(|summary| summary.classes.clone());
@@ -388,7 +389,9 @@ fn step_view(input: &ReportInput<'_>, index: usize, yaml: &str, beside_html: Str
             _ => None,
         },
         predict: match &record.outcome {
-            Some(Outcome::Predict(result)) => Some(predict_view(result)),
+            Some(Outcome::Predict(result)) => {
+                Some(predict_view(result, classes.as_deref(), &targets))
+            }
             _ => None,
         },
         export: match &record.outcome {

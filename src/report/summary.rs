@@ -7,7 +7,9 @@ use super::card_view::warning_text;
 use super::format::stop_code;
 use super::verdict::verdict;
 use crate::build::importance::pooled_importance;
-use crate::build::outcome::{FitResult, MetricStat, Outcome, RowSet, RunResult, SetMetrics};
+use crate::build::outcome::{
+    FitResult, MetricStat, Outcome, PredictScore, RowSet, RunResult, SetMetrics,
+};
 use crate::build::{BuildResult, Status};
 use crate::data::card::{ColumnProfile, DataCard, Values};
 use crate::document::StepSpec;
@@ -93,6 +95,9 @@ pub(crate) fn summary(
                 Some(Outcome::Data(data)) => data_fields(&data.card, &mut object),
                 Some(Outcome::Predict(predict)) => {
                     object.insert("rows".into(), json!(predict.lines.len()));
+                    if let Some(scored) = &predict.scored {
+                        batch_fields(scored, &mut object);
+                    }
                 }
                 _ => {}
             }
@@ -220,6 +225,34 @@ fn importance_field(result: &FitResult, object: &mut Map<String, Value>) {
         })
         .collect();
     object.insert("importance".into(), Value::Array(inputs));
+}
+
+/// A labelled predict batch: the rows scored and left out, and, when any row was
+/// scored, its metrics as a train step's held-out rows have them.
+fn batch_fields(scored: &PredictScore, object: &mut Map<String, Value>) {
+    object.insert("scored_rows".into(), json!(scored.rows));
+    object.insert("empty_target_rows".into(), json!(scored.empty_rows));
+    let unseen = scored
+        .unseen_labels
+        .iter()
+        .map(|(label, rows)| json!({"label": label, "rows": rows}))
+        .collect();
+    object.insert("unseen_labels".into(), Value::Array(unseen));
+    let Some(scores) = &scored.scores else {
+        return;
+    };
+    object.insert("metrics".into(), set(&scores.metrics));
+    let interval = scores.intervals.as_deref().map(interval_object);
+    object.insert("interval".into(), json!(interval));
+    match &scores.metrics {
+        SetMetrics::Classification { metrics, .. } => {
+            object.insert("confusion".into(), json!(metrics.confusion));
+        }
+        SetMetrics::Regression { .. } => {
+            let each = scores.targets.iter().map(self::scores).collect();
+            object.insert("targets".into(), Value::Array(each));
+        }
+    }
 }
 
 /// A fit against the baseline and the model without a hidden layer (`judge`).

@@ -397,12 +397,17 @@ pub(crate) fn log_loss_is_loss(fits: &[FitResult]) -> bool {
     fits.iter()
         .flat_map(|fit| &fit.runs)
         .flat_map(|run| std::iter::once(&run.train).chain(run.test.as_ref()))
-        .all(|set| match set {
-            SetMetrics::Classification { loss, metrics } => {
-                (loss - metrics.log_loss).abs() <= 1e-9 * loss.abs().max(1.0)
-            }
-            SetMetrics::Regression { .. } => true,
-        })
+        .all(log_loss_repeats_loss)
+}
+
+/// Whether a set's log loss is its loss again (always, for regression, which has none).
+pub(crate) fn log_loss_repeats_loss(set: &SetMetrics) -> bool {
+    match set {
+        SetMetrics::Classification { loss, metrics } => {
+            (loss - metrics.log_loss).abs() <= 1e-9 * loss.abs().max(1.0)
+        }
+        SetMetrics::Regression { .. } => true,
+    }
 }
 
 /// The metrics a table shows: log loss only when it is not the loss again.
@@ -590,6 +595,21 @@ fn confusion_view(result: &FitResult, labels: &[String]) -> Option<ConfusionView
             }
         }
     }
+    let rows_label = if held_out {
+        "held-out rows"
+    } else {
+        "training rows"
+    };
+    Some(confusion_table(&total, labels, rows_label))
+}
+
+/// A confusion matrix (`total[true][predicted]`) with each class's precision and
+/// recall, on the rows `rows_label` names.
+pub(crate) fn confusion_table(
+    total: &[Vec<usize>],
+    labels: &[String],
+    rows_label: &'static str,
+) -> ConfusionView {
     let rows = total
         .iter()
         .enumerate()
@@ -611,15 +631,11 @@ fn confusion_view(result: &FitResult, labels: &[String]) -> Option<ConfusionView
             }
         })
         .collect();
-    Some(ConfusionView {
-        rows_label: if held_out {
-            "held-out rows"
-        } else {
-            "training rows"
-        },
+    ConfusionView {
+        rows_label,
         labels: labels.to_vec(),
         rows,
-    })
+    }
 }
 
 fn ratio(part: usize, whole: usize) -> String {
