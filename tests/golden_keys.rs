@@ -51,38 +51,34 @@ seed: 2
 // scaler. Format 6 (issue 14, judging on validation rows): a run's entry keeps how each
 // validation row went, so a sweep ranked on them marks "within noise of the best".
 
-// Cache format 7 (issue 15, a labelled predict batch): a predict result keeps its rows'
-// identifying cells and the scores of rows whose target its file gives. The version
-// enters every key, so these keys moved although the document's steps did not change.
-
 /// The step keys of `DOC`, in document order.
 const STEP_KEYS: [(&str, &str); 3] = [
     (
         "rows",
-        "a20f6704cd6171d0dae7fe63119a21ccab9bb5cbd758d1e3fdfc33fbb76d6bab",
+        "2ae5fcde6ff3c414e944860153a0e695f01786300db735d81826444874a48d7e",
     ),
     (
         "small",
-        "07237994fd5334692df7332ee5273bd7712aa1612e066c578b8ce694384254a9",
+        "1b920d328b3dc17118565c4d19e32aebadd296e0d6c976f7db83a2f439fb7411",
     ),
     (
         "fit",
-        "6f41dd76dc12f95d31b69f4d4ad58143c99f2967605f7c1ac7d1f7dc17aca683",
+        "750bd57f4546123e0e57048ce453f733e840d583dd6bc8c6b680c99c0932ea79",
     ),
 ];
 
 /// The run keys of the train step `fit` (one per fold).
 const RUN_KEYS: [&str; 2] = [
-    "b02cab07a4dff439b1941bde16113d2738c69c890d3b2f95b5726883b67b2b0c",
-    "28e42dfd1b401192f9f1a0540afbe95e8d4ead0bf50325536882a3c91f18efc2",
+    "8d43d3441524f9ef8c06aa0cc20629b1557e4bfa565b75a88f24c7df27550306",
+    "3c20d14694428af3a860a70454af67d48b0b48f549319f56ee6ee12189761223",
 ];
 
 /// The whole entry file of the net step `small` (a marker: header, no payload).
 const MARKER_ENTRY: &str =
-    "7374657400656e3218b454febdbd173070a3ceaddfc367c32b0419aba667d79f3d8a9a301b49e7bf";
+    "7374657400656e32ab91b0649577603bf2b722dce444fbe565a69d8a005a4f566c4d357e6cee2e23";
 
 /// The BLAKE3 of the entry file holding the data step's summary (too long to pin whole).
-const DATA_ENTRY_HASH: &str = "7327103440517661a6211af74fc8cca5b6d4e2fcd1779788efa33b85ae98ddc7";
+const DATA_ENTRY_HASH: &str = "f29b6454f2d7a0243f8fddcefa1114dc1707f282704c730961b54eef240dc47f";
 
 fn workspace() -> (Workspace, std::path::PathBuf) {
     let ws = Workspace::new();

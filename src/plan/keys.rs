@@ -1,7 +1,7 @@
 //! Cache keys: every step key and run key starts from the engine (the cache format
 //! and the crate version), so results of another engine never answer for this one's.
 
-use crate::document::spec::{NetSpec, TrainSpec};
+use crate::document::spec::{NetSpec, StepKind, TrainSpec};
 
 use super::{Key, PlannedStep};
 
@@ -16,9 +16,13 @@ use super::{Key, PlannedStep};
 ///    regression run trains on scaled targets by default.
 /// 6: a run keeps how each validation row went, for the paired tests of a sweep
 ///    ranked on validation rows, and its inputs' permutation importance.
-/// 7: a predict result keeps its rows' identifying cells and, when its file holds
+pub(crate) const CACHE_FORMAT_VERSION: u32 = 6;
+
+/// Bumped whenever a predict step's cached result changes shape. It enters predict
+/// keys only, so a change to predict does not throw away every trained run.
+/// 1: a predict result keeps its rows' identifying cells and, when its file holds
 ///    the targets, the labelled rows' scores (issue 15).
-pub(crate) const CACHE_FORMAT_VERSION: u32 = 7;
+const PREDICT_FORMAT_VERSION: u32 = 1;
 
 /// A run's key depends on what it computes, not on step names, so identical runs in
 /// different steps share one entry.
@@ -76,6 +80,9 @@ pub(super) fn step_key(step: &PlannedStep, upstream_keys: &[Key]) -> Key {
     let mut hasher = engine_hasher();
     hasher.update(step.kind.word().as_bytes());
     hasher.update(b"\0");
+    if step.kind == StepKind::Predict {
+        hasher.update(&PREDICT_FORMAT_VERSION.to_le_bytes());
+    }
     let settings = serde_json::to_vec(&step.spec).expect("specs serialise");
     hasher.update(&(settings.len() as u64).to_le_bytes());
     hasher.update(&settings);
