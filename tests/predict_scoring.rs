@@ -365,6 +365,34 @@ fn one_labelled_row_is_scored_without_an_interval_and_says_why() {
     assert!(!card.contains("95 % interval</td>"), "{card}");
 }
 
+// A batch of one class (every part good, say) is common: its accuracy still has a
+// Wilson interval, which needs only the count right out of the rows scored.
+#[test]
+fn a_batch_of_one_class_is_scored_with_an_interval() {
+    let ws = Workspace::new();
+    ws.write(
+        "batch.csv",
+        &labelled_batch(&ws, |_, species| {
+            if species == "setosa" {
+                species.into()
+            } else {
+                String::new()
+            }
+        }),
+    );
+    let doc = format!("{IRIS}{}", predict_block("batch.csv", None));
+    let summary = ws.build_ok(&ws.write("doc.md", &doc), &[]);
+    let batch = step(&summary, "batch");
+    assert!(batch["scored_rows"].as_u64().unwrap() >= 2, "{batch}");
+    let accuracy = batch["interval"]["accuracy"]
+        .as_array()
+        .expect("an interval");
+    assert!(accuracy[0].as_f64().unwrap() <= accuracy[1].as_f64().unwrap());
+    let html = report(&ws, "doc");
+    let card = card(&html, "batch");
+    assert!(!card.contains("No 95 % interval"), "{card}");
+}
+
 /// Invented regression rows: `y1 = 200 + 40·x1 − 25·x2` and `y2 = 3·x1·x2`, for `x1`,
 /// `x2` on a grid, so the targets are in the hundreds and a network fits them well.
 fn regression_rows(from: usize, to: usize) -> Vec<(String, f64, f64, f64, f64)> {

@@ -197,7 +197,9 @@ fn score_batch(
         let (metrics, targets, outputs) = scored.metrics(network, &rows, &every_row);
         BatchScores {
             metrics,
-            intervals: judge::enough_rows(task, targets.view())
+            // A batch of one class still has an accuracy interval (Wilson's needs only
+            // a count); the train card's stricter rule is for its paired tests.
+            intervals: (targets.nrows() >= 2)
                 .then(|| judge::intervals(task, targets.view(), outputs.view(), seed)),
             targets: match task {
                 Task::Regress => target_scores(targets.view(), outputs.view()),

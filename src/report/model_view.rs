@@ -112,7 +112,7 @@ fn batch_view(scored: &PredictScore, classes: Option<&[String]>, targets: &[Stri
         };
     };
     if scores.intervals.is_none() {
-        reasons.push(no_interval_reason(&scores.metrics).into());
+        reasons.push(NO_INTERVAL_REASON.into());
     }
     let (metric_names, rows) = metric_table(scores);
     let (confusion, loss_units) = match &scores.metrics {
@@ -182,15 +182,8 @@ fn metric_table(scores: &BatchScores) -> (Vec<String>, Vec<MetricRow>) {
     (names, rows)
 }
 
-/// Why the scored rows carry no interval (`judge::enough_rows`).
-fn no_interval_reason(metrics: &SetMetrics) -> &'static str {
-    match metrics {
-        SetMetrics::Classification { .. } => {
-            "No 95 % interval: it needs at least two scored rows, of more than one class."
-        }
-        SetMetrics::Regression { .. } => "No 95 % interval: it needs at least two scored rows.",
-    }
-}
+/// Why the scored rows carry no interval: there is one.
+const NO_INTERVAL_REASON: &str = "No 95 % interval: it needs at least two scored rows.";
 
 /// Each target's scores, when there are several (one target's are the table's).
 fn target_rows(scores: &[Scores], targets: &[String]) -> Vec<TargetRow> {
