@@ -266,12 +266,25 @@ fn flatten_into(prefix: &str, value: &Value, out: &mut std::collections::BTreeMa
     }
 }
 
+/// The row sets a step's metrics are on, and whether the summary gives intervals for
+/// them: a fit's `metrics.train` and `metrics.test` (held out), or a predict step's
+/// labelled batch, flat under `metrics`.
+fn row_sets<'v>(step: &'v Value) -> Vec<(&'static str, &'v Value, bool)> {
+    match step["kind"].as_str() {
+        Some("predict") => vec![("batch", &step["metrics"], true)],
+        _ => vec![
+            ("train", &step["metrics"]["train"], false),
+            ("test", &step["metrics"]["test"], true),
+        ],
+    }
+}
+
 /// Every metric either side reports, train rows first, in the new build's order.
 fn metric_moves(old: &Value, new: &Value) -> Vec<MetricMove> {
     let mut moves = Vec::new();
-    for rows in ["train", "test"] {
-        let old_set = &old["metrics"][rows];
-        let new_set = &new["metrics"][rows];
+    for ((rows, old_set, _), (_, new_set, has_intervals)) in
+        row_sets(old).into_iter().zip(row_sets(new))
+    {
         let mut names: Vec<&String> = Vec::new();
         for name in [new_set, old_set]
             .into_iter()
@@ -285,12 +298,10 @@ fn metric_moves(old: &Value, new: &Value) -> Vec<MetricMove> {
         for name in names {
             let old_value = old_set[name].as_f64();
             let new_value = new_set[name].as_f64();
-            // A summary gives intervals for held-out scores only:
             // `interval: {"level": 0.95, "<metric>": [low, high], …}`.
-            let interval = match rows {
-                "test" => interval(&new["interval"][name]),
-                _ => None,
-            };
+            let interval = has_intervals
+                .then(|| interval(&new["interval"][name]))
+                .flatten();
             moves.push(MetricMove {
                 rows: rows.to_string(),
                 name: name.clone(),
@@ -394,5 +405,16 @@ mod tests {
         assert_eq!(metric_moves(&old, &too_few)[0].within_new_interval, None);
         let without = json!({"metrics": {"test": {"accuracy": 0.92}}});
         assert_eq!(metric_moves(&old, &without)[0].within_new_interval, None);
+    }
+
+    #[test]
+    fn a_labelled_predict_batchs_metrics_are_compared_with_their_interval() {
+        let old = json!({"kind": "predict", "metrics": {"accuracy": 0.90}});
+        let new = json!({"kind": "predict", "metrics": {"accuracy": 0.80},
+                         "interval": {"level": 0.95, "accuracy": [0.70, 0.88]}});
+        let moves = metric_moves(&old, &new);
+        assert_eq!(moves.len(), 1);
+        assert_eq!(moves[0].rows, "batch");
+        assert_eq!(moves[0].within_new_interval, Some(false));
     }
 }
