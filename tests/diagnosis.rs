@@ -278,3 +278,131 @@ fn regression_fit_plots_come_in_pairs_for_at_most_four_targets_and_list_the_rest
     assert!(report.contains("Not charted: t5."));
     assert!(report.contains("Held-out R² per target: t1 R²"));
 }
+
+/// The text of every cell of the report's confusion table, row by row (header first),
+/// and the paragraphs that follow it up to the next table or figure.
+fn confusion_table(report: &str) -> (Vec<Vec<String>>, String) {
+    let start = report
+        .find(r#"<table class="grid numeric confusion">"#)
+        .expect("a confusion table");
+    let (table, after) = report[start..].split_once("</table>").unwrap();
+    let rows = table
+        .split("<tr")
+        .skip(1)
+        .map(|row| {
+            row.split("<t")
+                .skip(1)
+                .filter(|cell| cell.starts_with('h') || cell.starts_with('d'))
+                .map(|cell| plain_text(cell.split_once('>').unwrap().1))
+                .collect()
+        })
+        .collect();
+    let end = after
+        .find("<table")
+        .into_iter()
+        .chain(after.find("<figure"))
+        .chain(after.find("</section>"))
+        .min()
+        .unwrap();
+    (rows, plain_text(&after[..end]))
+}
+
+/// `html` without its tags, entities of the report's escaping undone.
+fn plain_text(html: &str) -> String {
+    let mut text = String::new();
+    let mut in_tag = false;
+    for c in html.chars() {
+        match c {
+            '<' => in_tag = true,
+            '>' => in_tag = false,
+            c if !in_tag => text.push(c),
+            _ => {}
+        }
+    }
+    text.replace("&#x27;", "'")
+        .replace("&amp;", "&")
+        .trim()
+        .to_string()
+}
+
+#[test]
+fn each_classs_auc_is_a_column_of_the_confusion_table_with_their_macro_mean_below() {
+    let ws = Workspace::new();
+    let doc = ws.write("iris.md", &document("iris.csv", "species", 0.3, 0.05));
+    let fit = step(&ws.build_ok(&doc, &[]), "fit").clone();
+    let report = std::fs::read_to_string(ws.path("iris.html")).unwrap();
+    let (rows, _) = confusion_table(&report);
+    let auc_column = rows[0]
+        .iter()
+        .position(|heading| heading.starts_with("AUC"))
+        .expect("an AUC column");
+    // The summary's values (the same numbers, unrounded) are the reference.
+    let expected: Vec<f64> = numbers(&fit["auc_per_class"])
+        .into_iter()
+        .chain([fit["auc"].as_f64().unwrap()])
+        .collect();
+    let shown: Vec<f64> = rows[1..]
+        .iter()
+        .map(|row| row[auc_column].parse().expect("a number"))
+        .collect();
+    assert_eq!(shown.len(), 4, "three species and the macro mean: {rows:?}");
+    for (shown, expected) in shown.iter().zip(&expected) {
+        assert!(
+            (shown - expected).abs() < 5e-4,
+            "{shown} against {expected}"
+        );
+    }
+    assert_eq!(rows[4][0], "macro mean");
+    assert!(!report.contains("Held-out AUC of each class against the rest"));
+}
+
+/// Twenty rows each of classes `a` and `b` and three of `c`: a holdout of 0.15 keeps
+/// round(0.15 · 3) = 0 rows of `c`.
+fn write_a_rare_class(ws: &Workspace) {
+    let mut rows = String::from("x1,x2,kind\n");
+    for i in 0..20 {
+        let step = f64::from(i) / 20.0;
+        rows.push_str(&format!("{step},{},a\n", f64::from(i * 7 % 20) / 20.0));
+        rows.push_str(&format!(
+            "{},{},b\n",
+            1.0 + step,
+            f64::from(i * 3 % 20) / 20.0
+        ));
+    }
+    for i in 0..3 {
+        rows.push_str(&format!(
+            "{},{},c\n",
+            2.0 + f64::from(i) / 20.0,
+            f64::from(i) / 20.0
+        ));
+    }
+    ws.write("rare.csv", &rows);
+}
+
+#[test]
+fn a_class_absent_from_the_held_out_rows_shows_why_it_has_no_auc() {
+    let ws = Workspace::new();
+    write_a_rare_class(&ws);
+    let doc = ws.write("rare.md", &document("rare.csv", "kind", 0.15, 0.1));
+    let (output, summary) = ws.build(&doc, &[]);
+    assert_eq!(output.status.code(), Some(0));
+    assert!(!String::from_utf8_lossy(&output.stderr).contains("panicked"));
+    let fit = step(summary.as_ref().expect("a summary"), "fit").clone();
+    assert_eq!(fit["auc_per_class"][2], Value::Null, "no held-out row of c");
+    let report = std::fs::read_to_string(ws.path("rare.html")).unwrap();
+    let (rows, notes) = confusion_table(&report);
+    let auc_column = rows[0]
+        .iter()
+        .position(|heading| heading.starts_with("AUC"))
+        .expect("an AUC column");
+    let cell = |label: &str| {
+        let row = rows.iter().find(|row| row[0] == label).expect(label);
+        row[auc_column].clone()
+    };
+    assert!(cell("a").parse::<f64>().is_ok(), "{rows:?}");
+    assert!(cell("c").starts_with('—'), "{rows:?}");
+    assert!(cell("macro mean").starts_with('—'), "{rows:?}");
+    assert!(notes.contains("no held-out row is c"), "{notes}");
+    assert!(notes.contains("macro mean needs every class"), "{notes}");
+    assert!(!report.contains("NaN"));
+}

@@ -1061,7 +1061,10 @@ mod tests {
         };
         assert!(negative_width > 1.0, "zero-width negative bar: {svg}");
         // Both bars meet at the zero line: the negative one ends where the positive starts.
-        assert!((negative_x + negative_width - positive_x).abs() < 0.11, "{svg}");
+        assert!(
+            (negative_x + negative_width - positive_x).abs() < 0.11,
+            "{svg}"
+        );
         assert!(positive_width > 5.0 * negative_width);
         assert!(svg.contains(">−0.03000</text>"), "signed label: {svg}");
         assert!(svg.contains(">+0.4000</text>"), "signed label: {svg}");

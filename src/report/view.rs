@@ -11,6 +11,7 @@ use super::verdict::{NOT_ENOUGH_ROWS, Verdict, interval_words, verdict};
 use crate::build::importance::pooled_importance;
 use crate::build::outcome::{DataSummary, FitResult, MetricStat, RowSet, SetMetrics};
 use crate::document::spec::word;
+use crate::judge::diagnosis::{Diagnosis, Unavailable};
 use crate::judge::{BaselineRule, Judgement};
 use crate::nn::{ClassificationMetrics, StopReason};
 
@@ -210,6 +211,18 @@ pub(crate) struct ConfusionView {
     pub rows_label: &'static str,
     pub labels: Vec<String>,
     pub rows: Vec<ConfusionRow>,
+    /// Each class's AUC against the rest and their macro mean, for several classes
+    /// judged on held-out rows.
+    pub auc: Option<AucColumn>,
+}
+
+/// The confusion table's AUC column: a cell per class, the macro mean for its last row,
+/// and why a cell holds no number, each reason after the marker its cells carry.
+#[derive(Serialize)]
+pub(crate) struct AucColumn {
+    pub cells: Vec<String>,
+    pub mean: String,
+    pub notes: Vec<String>,
 }
 
 #[derive(Serialize)]
@@ -306,7 +319,11 @@ pub(crate) fn train_view(
         epochs,
         seconds: seconds(runs.iter().map(|run| run.seconds).sum()),
         chart: loss_chart(result, scaled_targets),
-        confusion: classes.and_then(|labels| confusion_view(result, labels)),
+        confusion: classes.and_then(|labels| {
+            confusion_view(result, labels).map(|confusion| {
+                with_auc_column(confusion, result.judgement.as_deref().map(|j| &j.diagnosis))
+            })
+        }),
         hints: shape.hints.clone(),
         folds,
         fold_interval: result
@@ -318,7 +335,7 @@ pub(crate) fn train_view(
         diagnosis: result
             .judgement
             .as_deref()
-            .map(|judgement| diagnosis_view(&judgement.diagnosis, classes, targets)),
+            .map(|judgement| diagnosis_view(&judgement.diagnosis, targets)),
         watched_rows: match result.choice_rows() {
             RowSet::Validation => "validation",
             _ => "held-out",
@@ -619,7 +636,96 @@ fn confusion_view(result: &FitResult, labels: &[String]) -> Option<ConfusionView
         },
         labels: labels.to_vec(),
         rows,
+        auc: None,
     })
+}
+
+/// The confusion table with each class's one-vs-rest AUC, when the held-out rows it
+/// counts are the ones the diagnosis ranked and there are several classes.
+fn with_auc_column(mut confusion: ConfusionView, diagnosis: Option<&Diagnosis>) -> ConfusionView {
+    let Some(diagnosis @ Diagnosis::SeveralClasses { auc_per_class }) = diagnosis else {
+        return confusion;
+    };
+    if confusion.rows_label != "held-out rows" {
+        return confusion;
+    }
+    let mut notes = Footnotes::default();
+    let cells = auc_per_class
+        .iter()
+        .zip(&confusion.rows)
+        .map(|(auc, row)| match auc {
+            Ok(auc) => number(*auc),
+            Err(why) => format!("—{}", notes.mark(auc_unavailable(*why, row))),
+        })
+        .collect();
+    let mean = match diagnosis.auc() {
+        Some(Ok(mean)) => number(mean),
+        _ => format!(
+            "—{}",
+            notes.mark("the macro mean needs every class's AUC".into())
+        ),
+    };
+    confusion.auc = Some(AucColumn {
+        cells,
+        mean,
+        notes: notes.lines(),
+    });
+    confusion
+}
+
+/// Why a class has no AUC against the rest, naming the class when the reason is its own.
+fn auc_unavailable(why: Unavailable, row: &ConfusionRow) -> String {
+    let held_out: usize = row.cells.iter().map(|cell| cell.count).sum();
+    match why {
+        Unavailable::OneClass if held_out == 0 => format!(
+            "no held-out row is {}, so nothing ranks it against the rest",
+            row.label
+        ),
+        Unavailable::OneClass => format!(
+            "every held-out row is {}, so nothing ranks it against the rest",
+            row.label
+        ),
+        other => other.to_string(),
+    }
+}
+
+/// Reasons said once each below a table, numbered in the order cells first cite them.
+#[derive(Default)]
+struct Footnotes {
+    reasons: Vec<String>,
+}
+
+impl Footnotes {
+    /// The marker of `reason`, which becomes the next footnote when it is new.
+    fn mark(&mut self, reason: String) -> String {
+        let number = match self.reasons.iter().position(|known| *known == reason) {
+            Some(index) => index + 1,
+            None => {
+                self.reasons.push(reason);
+                self.reasons.len()
+            }
+        };
+        superscript(number)
+    }
+
+    /// Each reason after its marker, as a sentence.
+    fn lines(self) -> Vec<String> {
+        self.reasons
+            .iter()
+            .enumerate()
+            .map(|(index, reason)| format!("{} {reason}.", superscript(index + 1)))
+            .collect()
+    }
+}
+
+/// `number` in superscript digits, as a footnote marker.
+fn superscript(number: usize) -> String {
+    const DIGITS: [char; 10] = ['⁰', '¹', '²', '³', '⁴', '⁵', '⁶', '⁷', '⁸', '⁹'];
+    number
+        .to_string()
+        .bytes()
+        .map(|digit| DIGITS[usize::from(digit - b'0')])
+        .collect()
 }
 
 fn ratio(part: usize, whole: usize) -> String {
