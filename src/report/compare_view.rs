@@ -3,11 +3,11 @@
 
 use serde::Serialize;
 
-use super::chart::{self, Axes, Bar, HeatMap, Positions, Series};
+use super::chart::{self, Bar, HeatMap, Positions, Series};
 use super::format::number;
 use super::verdict::{NOT_ENOUGH_ROWS, evidence, p_text};
 use super::view::{
-    HONEST_CHOICE, log_loss_is_loss, mean_curve, shown_stats, stat_text, stop_counts,
+    HONEST_CHOICE, log_loss_is_loss, loss_axes, mean_curve, shown_stats, stat_text, stop_counts,
 };
 use crate::build::outcome::{FitResult, RowSet, SetMetrics, SweepResult, rank};
 use crate::document::spec::{ChartChoice, CompareSpec, MetricName};
@@ -71,7 +71,9 @@ pub(crate) fn rows_label(rows: RowSet) -> &'static str {
     }
 }
 
-pub(crate) fn sweep_view(result: &SweepResult) -> SweepView {
+/// `scaled_targets`: the sweep's runs trained on scaled targets (every combination
+/// reads the same data step), so their loss is in those units.
+pub(crate) fn sweep_view(result: &SweepResult, scaled_targets: bool) -> SweepView {
     let first = &result.fits[0];
     let hide = log_loss_is_loss(&result.fits);
     let stats_names: Vec<&'static str> = first
@@ -136,7 +138,7 @@ pub(crate) fn sweep_view(result: &SweepResult) -> SweepView {
         more_rows: rows.split_off(rows.len().min(TOP_ROWS)),
         rows,
         runs_per_combination: first.runs.len(),
-        loss_chart: chart::line_chart(&series, &Axes::loss(true)),
+        loss_chart: chart::line_chart(&series, &loss_axes(true, scaled_targets)),
         loss_chart_note,
         noise_note: noise_note(result),
         heat_map: heat_map(result),
@@ -348,6 +350,47 @@ pub(crate) struct Compared<'a> {
     /// For a sweep, which combination (its best) is shown.
     pub what: String,
     pub fit: &'a FitResult,
+    /// It trained on scaled targets, so its loss is in those units.
+    pub scaled_targets: bool,
+}
+
+/// The units of the losses a compare chart draws: each run's targets scaled for
+/// training or not. When the runs differ, the legend marks the scaled ones.
+#[derive(Clone, Copy, PartialEq, Eq)]
+enum LossUnits {
+    Targets,
+    Scaled,
+    Mixed,
+}
+
+impl LossUnits {
+    fn of(entries: &[Compared<'_>]) -> LossUnits {
+        let scaled = entries.iter().filter(|entry| entry.scaled_targets).count();
+        match scaled {
+            0 => LossUnits::Targets,
+            n if n == entries.len() => LossUnits::Scaled,
+            _ => LossUnits::Mixed,
+        }
+    }
+
+    /// The entry's legend or bar label; a short mark, since bar labels have little room.
+    fn legend(self, entry: &Compared<'_>) -> String {
+        if self == LossUnits::Mixed && entry.scaled_targets {
+            format!("{} (scaled)", entry.id)
+        } else {
+            entry.id.to_string()
+        }
+    }
+
+    /// Said after the chart's caption.
+    fn note(self) -> &'static str {
+        match self {
+            LossUnits::Mixed => {
+                " Runs marked (scaled) trained on scaled targets, the others on the targets as they are, so their losses are in different units and do not compare."
+            }
+            _ => "",
+        }
+    }
 }
 
 /// The default columns: what a practitioner reads first for the task.
@@ -396,6 +439,7 @@ pub(crate) fn compare_view(spec: &CompareSpec, entries: &[Compared<'_>]) -> Comp
             // The training loss favours the most overfit run, so the chart shows
             // the loss on rows the runs did not fit whenever they all have some.
             let unfitted = choice != RowSet::Train;
+            let units = LossUnits::of(entries);
             let series: Vec<Series> = entries
                 .iter()
                 .take(MAX_LINES)
@@ -403,7 +447,7 @@ pub(crate) fn compare_view(spec: &CompareSpec, entries: &[Compared<'_>]) -> Comp
                 .map(|(n, entry)| {
                     Series::nth(
                         n,
-                        entry.id.to_string(),
+                        units.legend(entry),
                         mean_curve(&entry.fit.runs, unfitted),
                     )
                 })
@@ -414,32 +458,44 @@ pub(crate) fn compare_view(spec: &CompareSpec, entries: &[Compared<'_>]) -> Comp
                 "linear scale"
             };
             (
-                Some(chart::line_chart(&series, &Axes::loss(spec.log_scale))),
+                Some(chart::line_chart(
+                    &series,
+                    &loss_axes(spec.log_scale, units == LossUnits::Scaled),
+                )),
                 format!(
-                    "Mean {} loss per epoch of each run, {scale}.",
-                    rows_label(choice).replace(' ', "-")
+                    "Mean {} loss per epoch of each run, {scale}.{}",
+                    rows_label(choice).replace(' ', "-"),
+                    units.note()
                 ),
             )
         }
         ChartChoice::Metric => {
             let metric = metrics.first().copied().unwrap_or(MetricName::Loss);
+            let units = match metric {
+                MetricName::Loss => LossUnits::of(entries),
+                _ => LossUnits::Targets,
+            };
             let bars: Vec<Bar> = entries
                 .iter()
                 .map(|entry| {
                     let stat = entry.fit.metric(metric, entry.fit.report_rows());
                     Bar {
-                        label: entry.id.to_string(),
+                        label: units.legend(entry),
                         value: stat.as_ref().map_or(f64::NAN, |s| s.mean),
                         spread: stat.and_then(|s| s.sd),
                     }
                 })
                 .collect();
-            let name = metric.key().replace('_', " ");
+            let mut name = metric.key().replace('_', " ");
+            if units == LossUnits::Scaled {
+                name.push_str(" (scaled targets)");
+            }
             (
                 Some(chart::bar_chart(&bars, &name)),
                 format!(
-                    "{} of each run (held-out rows where there are any).",
-                    capitalise(&name)
+                    "{} of each run (held-out rows where there are any).{}",
+                    capitalise(&name),
+                    units.note()
                 ),
             )
         }

@@ -22,7 +22,7 @@ use minijinja::Environment;
 use pulldown_cmark::{Event, Parser, Tag};
 use serde::Serialize;
 
-use crate::build::outcome::{Outcome, SweepResult};
+use crate::build::outcome::{DataSummary, Outcome, SweepResult};
 use crate::build::{BuildResult, Status};
 use crate::carry::Carried;
 use crate::data::Scale;
@@ -340,20 +340,10 @@ fn step_view(input: &ReportInput<'_>, index: usize, yaml: &str, beside_html: Str
         Status::Reused => ("reused", "reused from the cache".to_string(), None),
         Status::Failed { error } => ("failed", "failed".to_string(), Some(error.clone())),
     };
-    let data_summary = match &step.spec {
-        StepSpec::Train(train) => match input
-            .plan
-            .index_of(&train.data)
-            .and_then(|d| input.results.steps[d].outcome.as_ref())
-        {
-            Some(Outcome::Data(summary)) => Some(summary),
-            _ => None,
-        },
-        _ => None,
-    };
+    let data_summary = trained_on(input, index);
     let classes = data_summary.and_then(|summary| summary.classes.clone());
     let targets = data_summary.map_or(Vec::new(), |summary| summary.target_names.clone());
-    let scaled_targets = data_summary.is_some_and(|summary| summary.scale_target != Scale::None);
+    let scaled_targets = data_summary.is_some_and(scales_targets);
     StepView {
         id: step.id.clone(),
         kind: step.kind.word(),
@@ -378,7 +368,7 @@ fn step_view(input: &ReportInput<'_>, index: usize, yaml: &str, beside_html: Str
             _ => None,
         },
         sweep: match &record.outcome {
-            Some(Outcome::Sweep(result)) => Some(sweep_view(result)),
+            Some(Outcome::Sweep(result)) => Some(sweep_view(result, scaled_targets)),
             _ => None,
         },
         compare: match (&step.spec, &record.outcome) {
@@ -426,6 +416,24 @@ fn sweep_choice(sweep: &SweepResult) -> String {
 }
 
 /// The fits a compare step lists: a train step's own, a sweep's best combination.
+/// The data step a train step or a sweep (through the train step it varies) trained
+/// on, when that step has a result.
+fn trained_on<'a>(input: &'a ReportInput<'_>, index: usize) -> Option<&'a DataSummary> {
+    match &input.plan.steps[index].upstream {
+        Upstream::Train { data, .. } => match input.results.steps[*data].outcome.as_ref()? {
+            Outcome::Data(summary) => Some(summary),
+            _ => None,
+        },
+        Upstream::Sweep { from } => trained_on(input, *from),
+        _ => None,
+    }
+}
+
+/// Whether runs on this data trained on scaled targets, so their loss is in those units.
+fn scales_targets(summary: &DataSummary) -> bool {
+    summary.scale_target != Scale::None
+}
+
 fn compared<'a>(
     input: &'a ReportInput<'_>,
     step: &'a crate::plan::PlannedStep,
@@ -440,11 +448,13 @@ fn compared<'a>(
                     id,
                     what: String::new(),
                     fit,
+                    scaled_targets: trained_on(input, u).is_some_and(scales_targets),
                 }),
                 Outcome::Sweep(sweep) => Some(Compared {
                     id,
                     what: sweep_choice(sweep),
                     fit: sweep.best(),
+                    scaled_targets: trained_on(input, u).is_some_and(scales_targets),
                 }),
                 _ => None,
             }

@@ -532,11 +532,17 @@ fn loss_chart(result: &FitResult, scaled_targets: bool) -> String {
         series.push(loss_line(Some(validation_label), validation, true, weight));
     }
     series.retain(|line| !line.points.is_empty());
-    let mut axes = chart::Axes::loss(true);
+    chart::line_chart(&series, &loss_axes(true, scaled_targets))
+}
+
+/// A loss chart's axes; trained on scaled targets, the loss axis says so, since the
+/// loss is then not in the targets' units.
+pub(crate) fn loss_axes(log_y: bool, scaled_targets: bool) -> chart::Axes<'static> {
+    let mut axes = chart::Axes::loss(log_y);
     if scaled_targets {
         axes.y_label = "loss (scaled targets)";
     }
-    chart::line_chart(&series, &axes)
+    axes
 }
 
 /// A line of a loss chart: training loss in the first colour, solid; validation in the
