@@ -524,6 +524,10 @@ pub(crate) fn bar_chart(bars: &[Bar], value_label: &str) -> String {
         lo = ((bottom - step) / step).floor() * step;
         hi = top;
     }
+    if hi <= lo {
+        // Every bar is zero with no spread: an axis from 0 to 1 rather than no width.
+        hi = lo + 1.0;
+    }
     let title = if narrow {
         format!("{value_label} (axis starts at {})", number(lo))
     } else {
@@ -1071,5 +1075,17 @@ mod tests {
         // The axis reaches past the negative bar's spread (to −0.05, two thirds of its
         // width further left), which starts right of the labels (at least 40 + 10 units).
         assert!(negative_x - negative_width * 2.0 / 3.0 > 50.0, "{svg}");
+    }
+
+    #[test]
+    fn bars_that_are_all_zero_still_get_an_axis() {
+        // Shuffling a single held-out row changes nothing: every importance is 0 ± 0.
+        let bars = vec![Bar {
+            label: "x".into(),
+            value: 0.0,
+            spread: Some(0.0),
+        }];
+        let svg = bar_chart(&bars, "fall in held-out accuracy");
+        assert!(!svg.contains("NaN"), "{svg}");
     }
 }

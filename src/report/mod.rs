@@ -26,6 +26,7 @@ use crate::build::outcome::{DataSummary, Outcome, SweepResult};
 use crate::build::{BuildResult, Status};
 use crate::carry::Carried;
 use crate::data::Scale;
+use crate::data::card::{DataWarning, Role};
 use crate::document::{Document, Piece, StepSpec};
 use crate::plan::{Plan, Upstream, short_key};
 use compare_view::{CompareView, Compared, SweepView, compare_view, sweep_view};
@@ -344,6 +345,7 @@ fn step_view(input: &ReportInput<'_>, index: usize, yaml: &str, beside_html: Str
     let classes = data_summary.and_then(|summary| summary.classes.clone());
     let targets = data_summary.map_or(Vec::new(), |summary| summary.target_names.clone());
     let scaled_targets = data_summary.is_some_and(scales_targets);
+    let constant_target = data_summary.and_then(constant_target);
     StepView {
         id: step.id.clone(),
         kind: step.kind.word(),
@@ -364,6 +366,7 @@ fn step_view(input: &ReportInput<'_>, index: usize, yaml: &str, beside_html: Str
                 classes.as_deref(),
                 &targets,
                 scaled_targets,
+                constant_target,
             )),
             _ => None,
         },
@@ -432,6 +435,22 @@ fn trained_on<'a>(input: &'a ReportInput<'_>, index: usize) -> Option<&'a DataSu
 /// Whether runs on this data trained on scaled targets, so their loss is in those units.
 fn scales_targets(summary: &DataSummary) -> bool {
     summary.scale_target != Scale::None
+}
+
+/// A target column that holds one value in every row read (the data card's warning).
+fn constant_target(summary: &DataSummary) -> Option<&str> {
+    summary
+        .card
+        .warnings
+        .iter()
+        .find_map(|warning| match warning {
+            DataWarning::Constant {
+                column,
+                role: Role::Target,
+                ..
+            } => Some(column.as_str()),
+            _ => None,
+        })
 }
 
 fn compared<'a>(

@@ -7,11 +7,11 @@ use super::card_view::{CardView, card_view};
 use super::chart::{self, Dash, Series, Weight};
 use super::diagnosis_view::{DiagnosisView, diagnosis_view};
 use super::format::{mean_sd, number, seconds, stop_reason};
-use super::verdict::{NOT_ENOUGH_ROWS, Verdict, interval_words, verdict};
+use super::verdict::{NOT_ENOUGH_ROWS, Verdict, interval_words, no_variance_words, verdict};
 use crate::build::importance::pooled_importance;
 use crate::build::outcome::{DataSummary, FitResult, MetricStat, RowSet, SetMetrics};
 use crate::document::spec::word;
-use crate::judge::diagnosis::{Diagnosis, Unavailable};
+use crate::judge::diagnosis::{Diagnosis, NoVariance, Unavailable};
 use crate::judge::{BaselineRule, Judgement};
 use crate::nn::{ClassificationMetrics, StopReason};
 
@@ -114,12 +114,15 @@ pub(crate) struct TrainView {
     /// Said when the held-out rows chose the weights, so their score is optimistic.
     pub choice_note: Option<String>,
     pub importance: Option<ImportanceView>,
+    /// Why the R² cells show a dash, when the targets they score do not vary.
+    pub r2_note: Option<String>,
 }
 
-/// Which inputs the network leans on: permutation importance as a sorted bar chart.
+/// Which inputs the network leans on: permutation importance as a sorted bar chart, or
+/// why there is none to draw.
 #[derive(Serialize)]
 pub(crate) struct ImportanceView {
-    pub chart: String,
+    pub chart: Option<String>,
     pub note: String,
 }
 
@@ -135,7 +138,11 @@ pub(crate) struct JudgedView {
 
 pub(crate) fn judged_view(judgement: &Judgement) -> JudgedView {
     let names = judgement.network.named();
+    let r2_undefined = judgement.diagnosis.r2_undefined().is_some();
     let interval_of = |name: &str| -> String {
+        if r2_undefined && name == "r2" {
+            return "—".into();
+        }
         match &judgement.intervals {
             None => NOT_ENOUGH_ROWS.into(),
             Some(all) => all
@@ -146,8 +153,19 @@ pub(crate) fn judged_view(judgement: &Judgement) -> JudgedView {
                 }),
         }
     };
-    let values =
-        |scores: &crate::judge::Scores| scores.named().iter().map(|(_, v)| number(*v)).collect();
+    let values = |scores: &crate::judge::Scores| {
+        scores
+            .named()
+            .iter()
+            .map(|&(name, value)| {
+                if r2_undefined && name == "r2" {
+                    "—".into()
+                } else {
+                    number(value)
+                }
+            })
+            .collect()
+    };
     let baseline = match judgement.baseline_rule {
         BaselineRule::MajorityClass => "majority class (training frequencies)",
         BaselineRule::TrainingMean => "training mean",
@@ -239,12 +257,14 @@ pub(crate) struct ConfusionCell {
     pub diagonal: bool,
 }
 
-/// `scaled_targets`: the run trained on scaled targets, so its loss is in those units.
+/// `scaled_targets`: the run trained on scaled targets, so its loss is in those units;
+/// `constant_target`: a target column that holds one value in every row read.
 pub(crate) fn train_view(
     result: &FitResult,
     classes: Option<&[String]>,
     targets: &[String],
     scaled_targets: bool,
+    constant_target: Option<&str>,
 ) -> TrainView {
     let shape = &result.shape;
     let last = shape.sizes.len() - 1;
@@ -289,9 +309,21 @@ pub(crate) fn train_view(
             values: stat_values(stats),
         });
     }
+    let held_out_r2 = result
+        .judgement
+        .as_deref()
+        .and_then(|judgement| judgement.diagnosis.r2_undefined());
+    let r2_column = metric_names_position(&train_stats, "r2");
+    if let Some(column) = r2_column {
+        for row in &mut metric_rows {
+            if constant_target.is_some() || (held_out_r2.is_some() && row.rows == "held out") {
+                row.values[column] = "—".into();
+            }
+        }
+    }
     let runs = &result.runs;
     let single = runs.len() == 1;
-    let folds = if single {
+    let mut folds: Vec<FoldRow> = if single {
         Vec::new()
     } else {
         runs.iter()
@@ -299,6 +331,24 @@ pub(crate) fn train_view(
             .map(|(i, run)| fold_row(i, run, hide, result.judgement.as_deref()))
             .collect()
     };
+    if let (Some(column), Some(_)) = (r2_column, &held_out_r2) {
+        for fold in &mut folds {
+            fold.values[column] = "—".into();
+            fold.interval = "—".into();
+        }
+    }
+    let r2_note = match (constant_target, &held_out_r2) {
+        (Some(column), _) => Some(format!(
+            "{column} holds one value in every row read"
+        )),
+        (None, Some(why)) => Some(no_variance_words(why, targets)),
+        (None, None) => None,
+    }
+    .map(|why| {
+        format!(
+            "R² shows —: {why}, so there is no variance for it to explain (scikit-learn's convention would print 0, or 1 for exact predictions). MSE and MAE still measure the error."
+        )
+    });
     let stop = stop_counts(result);
     let epochs = if single {
         format!("{} epochs", runs[0].fit.epochs_run)
@@ -341,18 +391,58 @@ pub(crate) fn train_view(
             _ => "held-out",
         },
         choice_note: early_stop_note(result),
-        importance: importance_view(result),
+        importance: importance_view(result, held_out_r2.as_ref(), targets),
+        r2_note,
     }
 }
 
+/// Where the metric `name` sits among a table's columns.
+fn metric_names_position(stats: &[MetricStat], name: &str) -> Option<usize> {
+    stats.iter().position(|stat| stat.name == name)
+}
+
 /// The permutation importance chart, most important input first; `None` when the
-/// step did not measure it.
-fn importance_view(result: &FitResult) -> Option<ImportanceView> {
+/// step did not measure it, and a reason instead of the chart when the run diverged
+/// or the held-out R² is undefined (`held_out_r2`), since every bar would then be noise.
+fn importance_view(
+    result: &FitResult,
+    held_out_r2: Option<&NoVariance>,
+    targets: &[String],
+) -> Option<ImportanceView> {
     let stats = pooled_importance(&result.runs)?;
     let metric = match result.runs[0].test.as_ref()? {
         SetMetrics::Classification { .. } => "accuracy",
         SetMetrics::Regression { .. } => "R²",
     };
+    if result
+        .judgement
+        .as_deref()
+        .is_some_and(|judgement| judgement.held_out_rows < 2)
+    {
+        return Some(ImportanceView {
+            chart: None,
+            note: "No permutation importance: there is only one held-out row, and shuffling one row moves nothing.".into(),
+        });
+    }
+    if result
+        .runs
+        .iter()
+        .any(|run| run.fit.stop == StopReason::Diverged)
+    {
+        return Some(ImportanceView {
+            chart: None,
+            note: "No permutation importance: the run diverged, so the network's outputs are not all finite and shuffling an input changes nothing that can be measured.".into(),
+        });
+    }
+    if let Some(why) = held_out_r2 {
+        return Some(ImportanceView {
+            chart: None,
+            note: format!(
+                "No permutation importance: it measures the fall in held-out R², which is undefined because {}.",
+                no_variance_words(why, targets)
+            ),
+        });
+    }
     let bars: Vec<chart::Bar> = stats
         .iter()
         .map(|stat| chart::Bar {
@@ -373,7 +463,10 @@ fn importance_view(result: &FitResult) -> Option<ImportanceView> {
         .collect::<Vec<_>>()
         .join(", ");
     Some(ImportanceView {
-        chart: chart::bar_chart(&bars, &format!("fall in held-out {metric}")),
+        chart: Some(chart::bar_chart(
+            &bars,
+            &format!("fall in held-out {metric}"),
+        )),
         note: format!(
             "Permutation importance: the fall in held-out {metric} when one input's values are shuffled across the held-out rows, mean ± sd over {shuffles} shuffles (a categorical input's one-hot columns move together). Rise in held-out loss: {loss_rises}."
         ),
