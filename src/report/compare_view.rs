@@ -118,6 +118,11 @@ pub(crate) fn sweep_view(result: &SweepResult, scaled_targets: bool) -> SweepVie
         .enumerate()
         .map(|(n, fit)| Series::nth(n, describe(&fit.settings), mean_curve(&fit.runs, false)))
         .collect();
+    // Ranked by a loss on scaled targets, its charts say the units as the loss chart does.
+    let mut ranked_by = result.rank_by.key().replace('_', " ");
+    if scaled_targets && result.rank_by == MetricName::Loss {
+        ranked_by.push_str(" (scaled targets)");
+    }
     let loss_chart_note = if result.fits.len() > MAX_LINES {
         format!(
             "Mean training loss per epoch of the {MAX_LINES} best-ranked combinations, log scale."
@@ -141,8 +146,8 @@ pub(crate) fn sweep_view(result: &SweepResult, scaled_targets: bool) -> SweepVie
         loss_chart: chart::line_chart(&series, &loss_axes(true, scaled_targets)),
         loss_chart_note,
         noise_note: noise_note(result),
-        heat_map: heat_map(result),
-        marginals: marginals(result),
+        heat_map: heat_map(result, &ranked_by),
+        marginals: marginals(result, &ranked_by),
         choice_note: (result.rank_rows == RowSet::Test).then(|| {
             format!(
                 "The best was chosen on the held-out rows, so its held-out score is optimistic. {HONEST_CHOICE}"
@@ -202,7 +207,8 @@ fn mean_and_sd(values: &[f64]) -> (f64, f64) {
 /// The ranking metric (mean over seeds and other settings) over the first two varied
 /// settings, the one with more values down the side so the cells stay wide enough for
 /// their numbers.
-fn heat_map(result: &SweepResult) -> Option<Figure> {
+/// `metric`: the ranking metric's name as the chart says it.
+fn heat_map(result: &SweepResult, metric: &str) -> Option<Figure> {
     let first = &result.fits[0].settings;
     if first.len() < 2 {
         return None;
@@ -228,7 +234,6 @@ fn heat_map(result: &SweepResult) -> Option<Figure> {
         .collect();
     let higher_is_better = result.rank_by.higher_is_better();
     let best = best_cell(&cells, higher_is_better);
-    let metric = result.rank_by.key().replace('_', " ");
     let svg = chart::heat_map(&HeatMap {
         x_name: &first[across].name,
         x_labels: columns,
@@ -247,7 +252,7 @@ fn heat_map(result: &SweepResult) -> Option<Figure> {
         svg,
         note: format!(
             "{} on the {} rows, mean over seeds{others}; lighter is better, the best cell outlined.",
-            capitalise(&metric),
+            capitalise(metric),
             rows_label(result.rank_rows)
         ),
     })
@@ -276,8 +281,8 @@ const LOG_SPAN: f64 = 20.0;
 
 /// For each varied setting, the ranking metric's mean ± sd over seeds and the other
 /// settings at each of its values; numbers on a number line, other values as categories.
-fn marginals(result: &SweepResult) -> Vec<Figure> {
-    let metric = result.rank_by.key().replace('_', " ");
+/// `metric`: the ranking metric's name as the chart says it.
+fn marginals(result: &SweepResult, metric: &str) -> Vec<Figure> {
     result.fits[0]
         .settings
         .iter()
@@ -303,10 +308,10 @@ fn marginals(result: &SweepResult) -> Vec<Figure> {
                 _ => "",
             };
             Figure {
-                svg: chart::marginal_chart(&positions, &means, &varied.name, &metric),
+                svg: chart::marginal_chart(&positions, &means, &varied.name, metric),
                 note: format!(
                     "{} on the {} rows at each {}{log_note}: mean ± sd over seeds and the other settings.",
-                    capitalise(&metric),
+                    capitalise(metric),
                     rows_label(result.rank_rows),
                     varied.name
                 ),
