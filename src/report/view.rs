@@ -369,11 +369,7 @@ pub(crate) fn train_view(
         epochs,
         seconds: seconds(runs.iter().map(|run| run.seconds).sum()),
         chart: loss_chart(result, scaled_targets),
-        confusion: classes.and_then(|labels| {
-            confusion_view(result, labels).map(|confusion| {
-                with_auc_column(confusion, result.judgement.as_deref().map(|j| &j.diagnosis))
-            })
-        }),
+        confusion: classes.and_then(|labels| confusion_view(result, labels)),
         hints: shape.hints.clone(),
         folds,
         fold_interval: result
@@ -706,7 +702,7 @@ fn confusion_view(result: &FitResult, labels: &[String]) -> Option<ConfusionView
             }
         }
     }
-    let rows = total
+    let rows: Vec<ConfusionRow> = total
         .iter()
         .enumerate()
         .map(|(i, row)| {
@@ -734,24 +730,24 @@ fn confusion_view(result: &FitResult, labels: &[String]) -> Option<ConfusionView
             "training rows"
         },
         labels: labels.to_vec(),
+        // The diagnosis ranks the held-out rows, so its AUCs join only their counts.
+        auc: held_out
+            .then(|| result.judgement.as_deref())
+            .flatten()
+            .and_then(|judgement| auc_column(&judgement.diagnosis, &rows)),
         rows,
-        auc: None,
     })
 }
 
-/// The confusion table with each class's one-vs-rest AUC, when the held-out rows it
-/// counts are the ones the diagnosis ranked and there are several classes.
-fn with_auc_column(mut confusion: ConfusionView, diagnosis: Option<&Diagnosis>) -> ConfusionView {
-    let Some(diagnosis @ Diagnosis::SeveralClasses { auc_per_class }) = diagnosis else {
-        return confusion;
+/// Each class's one-vs-rest AUC beside its held-out `rows`, for several classes.
+fn auc_column(diagnosis: &Diagnosis, rows: &[ConfusionRow]) -> Option<AucColumn> {
+    let Diagnosis::SeveralClasses { auc_per_class } = diagnosis else {
+        return None;
     };
-    if confusion.rows_label != "held-out rows" {
-        return confusion;
-    }
     let mut notes = Footnotes::default();
     let cells = auc_per_class
         .iter()
-        .zip(&confusion.rows)
+        .zip(rows)
         .map(|(auc, row)| match auc {
             Ok(auc) => number(*auc),
             Err(why) => format!("—{}", notes.mark(auc_unavailable(*why, row))),
@@ -764,12 +760,11 @@ fn with_auc_column(mut confusion: ConfusionView, diagnosis: Option<&Diagnosis>) 
             notes.mark("the macro mean needs every class's AUC".into())
         ),
     };
-    confusion.auc = Some(AucColumn {
+    Some(AucColumn {
         cells,
         mean,
         notes: notes.lines(),
-    });
-    confusion
+    })
 }
 
 /// Why a class has no AUC against the rest, naming the class when the reason is its own.
