@@ -732,7 +732,7 @@ fn confusion_view(result: &FitResult, labels: &[String]) -> Option<ConfusionView
         labels: labels.to_vec(),
         // The diagnosis ranks the held-out rows, so its AUCs join only their counts.
         auc: held_out
-            .then(|| result.judgement.as_deref())
+            .then_some(result.judgement.as_deref())
             .flatten()
             .and_then(|judgement| auc_column(&judgement.diagnosis, &rows)),
         rows,
