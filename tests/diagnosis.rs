@@ -278,3 +278,278 @@ fn regression_fit_plots_come_in_pairs_for_at_most_four_targets_and_list_the_rest
     assert!(report.contains("Not charted: t5."));
     assert!(report.contains("Held-out R² per target: t1 R²"));
 }
+
+/// The text of every cell of the report's confusion table, row by row (header first),
+/// and the paragraphs that follow it up to the next table or figure.
+fn confusion_table(report: &str) -> (Vec<Vec<String>>, String) {
+    table(report, "confusion")
+}
+
+/// The text of every cell of the report's first table of class `class`, row by row
+/// (header first), and the paragraphs that follow it up to the next table or figure.
+fn table(report: &str, class: &str) -> (Vec<Vec<String>>, String) {
+    let start = report
+        .find(&format!(r#"<table class="grid numeric {class}">"#))
+        .unwrap_or_else(|| panic!("a {class} table"));
+    let (table, after) = report[start..].split_once("</table>").unwrap();
+    let rows = table
+        .split("<tr")
+        .skip(1)
+        .map(|row| {
+            row.split("<t")
+                .skip(1)
+                .filter(|cell| cell.starts_with('h') || cell.starts_with('d'))
+                .map(|cell| plain_text(cell.split_once('>').unwrap().1))
+                .collect()
+        })
+        .collect();
+    let end = after
+        .find("<table")
+        .into_iter()
+        .chain(after.find("<figure"))
+        .chain(after.find("</section>"))
+        .min()
+        .unwrap();
+    (rows, plain_text(&after[..end]))
+}
+
+/// `html` without its tags, entities of the report's escaping undone.
+fn plain_text(html: &str) -> String {
+    let mut text = String::new();
+    let mut in_tag = false;
+    for c in html.chars() {
+        match c {
+            '<' => in_tag = true,
+            '>' => in_tag = false,
+            c if !in_tag => text.push(c),
+            _ => {}
+        }
+    }
+    text.replace("&#x27;", "'")
+        .replace("&amp;", "&")
+        .trim()
+        .to_string()
+}
+
+#[test]
+fn each_classs_auc_is_a_column_of_the_confusion_table_with_their_macro_mean_below() {
+    let ws = Workspace::new();
+    let doc = ws.write("iris.md", &document("iris.csv", "species", 0.3, 0.05));
+    let fit = step(&ws.build_ok(&doc, &[]), "fit").clone();
+    let report = std::fs::read_to_string(ws.path("iris.html")).unwrap();
+    let (rows, _) = confusion_table(&report);
+    let auc_column = rows[0]
+        .iter()
+        .position(|heading| heading.starts_with("AUC"))
+        .expect("an AUC column");
+    // The summary's values (the same numbers, unrounded) are the reference.
+    let expected: Vec<f64> = numbers(&fit["auc_per_class"])
+        .into_iter()
+        .chain([fit["auc"].as_f64().unwrap()])
+        .collect();
+    let shown: Vec<f64> = rows[1..]
+        .iter()
+        .map(|row| row[auc_column].parse().expect("a number"))
+        .collect();
+    assert_eq!(shown.len(), 4, "three species and the macro mean: {rows:?}");
+    for (shown, expected) in shown.iter().zip(&expected) {
+        assert!(
+            (shown - expected).abs() < 5e-4,
+            "{shown} against {expected}"
+        );
+    }
+    assert_eq!(rows[4][0], "macro mean");
+    assert!(!report.contains("Held-out AUC of each class against the rest"));
+}
+
+/// Twenty rows each of classes `a` and `b` and three of `c`: a holdout of 0.15 keeps
+/// round(0.15 · 3) = 0 rows of `c`.
+fn write_a_rare_class(ws: &Workspace) {
+    let mut rows = String::from("x1,x2,kind\n");
+    for i in 0..20 {
+        let step = f64::from(i) / 20.0;
+        rows.push_str(&format!("{step},{},a\n", f64::from(i * 7 % 20) / 20.0));
+        rows.push_str(&format!(
+            "{},{},b\n",
+            1.0 + step,
+            f64::from(i * 3 % 20) / 20.0
+        ));
+    }
+    for i in 0..3 {
+        rows.push_str(&format!(
+            "{},{},c\n",
+            2.0 + f64::from(i) / 20.0,
+            f64::from(i) / 20.0
+        ));
+    }
+    ws.write("rare.csv", &rows);
+}
+
+#[test]
+fn a_class_absent_from_the_held_out_rows_shows_why_it_has_no_auc() {
+    let ws = Workspace::new();
+    write_a_rare_class(&ws);
+    let doc = ws.write("rare.md", &document("rare.csv", "kind", 0.15, 0.1));
+    let (output, summary) = ws.build(&doc, &[]);
+    assert_eq!(output.status.code(), Some(0));
+    assert!(!String::from_utf8_lossy(&output.stderr).contains("panicked"));
+    let fit = step(summary.as_ref().expect("a summary"), "fit").clone();
+    assert_eq!(fit["auc_per_class"][2], Value::Null, "no held-out row of c");
+    let report = std::fs::read_to_string(ws.path("rare.html")).unwrap();
+    let (rows, notes) = confusion_table(&report);
+    let auc_column = rows[0]
+        .iter()
+        .position(|heading| heading.starts_with("AUC"))
+        .expect("an AUC column");
+    let cell = |label: &str| {
+        let row = rows.iter().find(|row| row[0] == label).expect(label);
+        row[auc_column].clone()
+    };
+    assert!(cell("a").parse::<f64>().is_ok(), "{rows:?}");
+    assert!(cell("c").starts_with('—'), "{rows:?}");
+    assert!(cell("macro mean").starts_with('—'), "{rows:?}");
+    assert!(notes.contains("no held-out row is c"), "{notes}");
+    assert!(notes.contains("macro mean needs every class"), "{notes}");
+    assert!(!report.contains("NaN"));
+}
+
+/// The train card's verdict line.
+fn verdict_line(report: &str) -> String {
+    let start = report.find(r#"<p class="verdict"#).expect("a verdict");
+    let line = &report[start..];
+    plain_text(&line[line.find('>').unwrap() + 1..line.find("</p>").unwrap()])
+}
+
+/// The cell of `column` in the row whose first cell is `row`.
+fn cell(rows: &[Vec<String>], row: &str, column: &str) -> String {
+    let at = rows[0].iter().position(|c| c == column).expect(column);
+    rows.iter().find(|r| r[0] == row).expect(row)[at].clone()
+}
+
+/// Builds `doc`, which must not panic, and returns its report.
+fn report_of(ws: &Workspace, doc: &std::path::Path) -> String {
+    let (output, summary) = ws.build(doc, &[]);
+    assert_eq!(output.status.code(), Some(0));
+    assert!(!String::from_utf8_lossy(&output.stderr).contains("panicked"));
+    assert!(summary.is_some());
+    let report = std::fs::read_to_string(doc.with_extension("html")).unwrap();
+    assert!(!report.contains("NaN") && !report.contains("inf<"));
+    report
+}
+
+#[test]
+fn a_constant_target_shows_why_r2_is_undefined_instead_of_a_number() {
+    let ws = Workspace::new();
+    let rows: String = (0..40).map(|i| format!("{i},{},3\n", i * 7 % 11)).collect();
+    ws.write("flat.csv", &format!("x1,x2,y\n{rows}"));
+    let report = report_of(
+        &ws,
+        &ws.write("flat.md", &document("flat.csv", "y", 0.25, 0.05)),
+    );
+    let (metrics, note) = table(&report, "metrics");
+    // scikit-learn's convention would print 0 here (1 for exact predictions).
+    assert_eq!(cell(&metrics, "training", "r2"), "—");
+    assert_eq!(cell(&metrics, "held out", "r2"), "—");
+    assert!(
+        note.contains("y holds one value in every row read"),
+        "{note}"
+    );
+    let (judged, _) = table(&report, "judged");
+    assert_eq!(cell(&judged, "network", "held-out r2"), "—");
+    assert_eq!(cell(&judged, "training mean", "held-out r2"), "—");
+    let verdict = verdict_line(&report);
+    assert!(
+        verdict.contains("held-out R² undefined (every held-out row has the target 3"),
+        "{verdict}"
+    );
+    assert!(verdict.contains("held-out mse"), "{verdict}");
+    assert!(report.contains(
+        "No permutation importance: it measures the fall in held-out R², which is undefined"
+    ));
+}
+
+#[test]
+fn a_single_held_out_row_shows_why_instead_of_r2_and_fit_plots() {
+    let ws = Workspace::new();
+    let rows: String = (0..8).map(|i| format!("{i},{}\n", 2 * i + 1)).collect();
+    ws.write("eight.csv", &format!("x,y\n{rows}"));
+    let report = report_of(
+        &ws,
+        &ws.write("one.md", &document("eight.csv", "y", 0.125, 0.05)),
+    );
+    let (metrics, note) = table(&report, "metrics");
+    assert_ne!(
+        cell(&metrics, "training", "r2"),
+        "—",
+        "the training rows vary"
+    );
+    assert_eq!(cell(&metrics, "held out", "r2"), "—");
+    assert!(note.contains("there is only one held-out row"), "{note}");
+    let verdict = verdict_line(&report);
+    assert!(
+        verdict.contains("held-out R² undefined (there is only one held-out row)"),
+        "{verdict}"
+    );
+    assert!(report.contains("No fit plots: there is only one held-out row."));
+}
+
+#[test]
+fn a_single_held_out_row_of_two_classes_states_why_there_is_no_roc_curve() {
+    let ws = Workspace::new();
+    let rows: String = (0..8)
+        .map(|i| format!("{i},{}\n", if i < 3 { "low" } else { "high" }))
+        .collect();
+    ws.write("eight.csv", &format!("x,c\n{rows}"));
+    // Stratified: round(0.15 · 3) = 0 rows of low and round(0.15 · 5) = 1 of high.
+    let report = report_of(
+        &ws,
+        &ws.write("one.md", &document("eight.csv", "c", 0.15, 0.05)),
+    );
+    assert!(
+        report.contains("No ROC curve: there is only one held-out row."),
+        "{report}"
+    );
+    assert!(report.contains("No reliability chart: there is only one held-out row."));
+    assert!(verdict_line(&report).contains("not enough held-out rows"));
+    assert!(report.contains("No permutation importance: there is only one held-out row"));
+}
+
+#[test]
+fn a_diverged_classifier_states_why_it_has_no_aucs_or_importance() {
+    let ws = Workspace::new();
+    // A learning rate of 1e8 on relu units overflows the softmax within a few epochs.
+    let text = document("iris.csv", "species", 0.3, 1e8)
+        .replace("hidden: [4]", "hidden: [4]\nactivation: relu");
+    let report = report_of(&ws, &ws.write("boom.md", &text));
+    assert!(report.contains("stopped: diverged"));
+    let (rows, notes) = confusion_table(&report);
+    assert_eq!(cell(&rows, "setosa", "AUC against the rest"), "—¹");
+    assert_eq!(cell(&rows, "macro mean", "AUC against the rest"), "—²");
+    assert!(
+        notes.contains(
+            "¹ the network's outputs or their errors are not all finite (the run diverged)."
+        ),
+        "{notes}"
+    );
+    assert!(report.contains("No permutation importance: the run diverged"));
+}
+
+#[test]
+fn a_diverged_regression_card_states_why_instead_of_its_scores() {
+    let ws = Workspace::new();
+    // A learning rate of 1e6 makes a linear-output network overflow within an epoch.
+    let report = report_of(
+        &ws,
+        &ws.write(
+            "boom.md",
+            &document("demo-data/greenhouse.csv", "water_l", 0.25, 1e6),
+        ),
+    );
+    let verdict = verdict_line(&report);
+    assert!(verdict.contains("held-out R² — (the network's outputs or their errors are not all finite (the run diverged))"), "{verdict}");
+    assert!(report.contains("No permutation importance: the run diverged"));
+    assert!(
+        report.contains("No fit plots: the network&#x27;s outputs")
+            || report.contains("No fit plots: the network's outputs")
+    );
+}

@@ -124,3 +124,64 @@ fn scale_target_none_trains_on_the_targets_as_they_are() {
     let scaled = train_of(doc(""));
     assert_ne!(scaled["loss"].as_f64().unwrap(), half_mse(&scaled));
 }
+
+/// The report's section of step `id`.
+fn section<'a>(html: &'a str, id: &str) -> &'a str {
+    let start = html
+        .find(&format!(r#"id="step-{id}""#))
+        .unwrap_or_else(|| panic!("no step {id}"));
+    let rest = &html[start..];
+    &rest[..rest.find("</section>").unwrap()]
+}
+
+#[test]
+fn sweep_and_compare_loss_charts_say_when_their_runs_trained_on_scaled_targets() {
+    // Two data steps on the greenhouse demo's water use: `plants` scales it (the
+    // default for regression), `raw` does not.
+    let ws = Workspace::new();
+    let data = |id: &str, scale: &str| {
+        format!(
+            "```yaml data {id}\nfile: demo-data/greenhouse.csv\ntarget: water_l\n{scale}seed: 5\n```\n\n"
+        )
+    };
+    let train = |id: &str, data: &str| {
+        format!("```yaml train {id}\ndata: {data}\nnet: small\nepochs: 20\nseed: 3\n```\n\n")
+    };
+    let sweep = |id: &str, from: &str| {
+        format!("```yaml sweep {id}\nfrom: {from}\nvary:\n  learning_rate: [0.01, 0.03]\n```\n\n")
+    };
+    let text = [
+        data("plants", ""),
+        data("raw", "scale_target: none\n"),
+        "```yaml net small\nhidden: [6]\n```\n\n".to_string(),
+        train("scaled", "plants"),
+        train("unscaled", "raw"),
+        sweep("scaled_grid", "scaled"),
+        sweep("raw_grid", "unscaled"),
+        "```yaml compare both_scaled\nruns: [scaled, scaled_grid]\n```\n\n".to_string(),
+        "```yaml compare mixed\nruns: [scaled, unscaled]\n```\n\n".to_string(),
+        "```yaml compare mixed_bars\nruns: [scaled, unscaled]\nchart: metric\nmetrics: [loss]\n```\n".to_string(),
+    ]
+    .concat();
+    let doc = ws.write("doc.md", &text);
+    ws.build_ok(&doc, &[]);
+    let html = std::fs::read_to_string(doc.with_extension("html")).unwrap();
+    let scaled_axis = ">loss (scaled targets)</text>";
+    // The grid ranks by held-out loss (the default to regress), so its marginal plot
+    // draws that loss too.
+    let grid = section(&html, "scaled_grid");
+    assert_eq!(grid.matches(scaled_axis).count(), 2, "{grid}");
+    assert!(section(&html, "both_scaled").contains(scaled_axis));
+    let raw_grid = section(&html, "raw_grid");
+    assert!(raw_grid.contains(">loss</text>") && !raw_grid.contains("scaled targets"));
+    for mixed in ["mixed", "mixed_bars"] {
+        let card = section(&html, mixed);
+        assert!(
+            !card.contains(scaled_axis),
+            "{mixed}: one run is not scaled"
+        );
+        assert!(card.contains(">scaled (scaled)</text>"), "{mixed}: {card}");
+        assert!(card.contains(">unscaled</text>"), "{mixed}");
+        assert!(card.contains("Runs marked (scaled) trained on scaled targets"));
+    }
+}

@@ -87,7 +87,41 @@ pub(crate) enum Diagnosis {
     },
 }
 
+/// Why R² is undefined on the held-out rows: their targets do not vary, so there is no
+/// variance for it to explain. The metrics follow scikit-learn's `r2_score`, which then
+/// gives 0 (1 for exact predictions): a convention, not a score.
+#[derive(Clone, Debug, PartialEq)]
+pub(crate) enum NoVariance {
+    OneRow,
+    /// Target `target` (an index into the target columns) holds only `value`.
+    Constant {
+        target: usize,
+        value: f64,
+    },
+}
+
 impl Diagnosis {
+    /// Why the held-out R² is undefined, if it is; `None` for classification and for a
+    /// diverged run, whose R² is not finite anyway.
+    pub(crate) fn r2_undefined(&self) -> Option<NoVariance> {
+        match self {
+            Diagnosis::Regression {
+                targets: Err(Unavailable::OneRow),
+            } => Some(NoVariance::OneRow),
+            Diagnosis::Regression { targets: Ok(fits) } => {
+                fits.iter().enumerate().find_map(|(target, fit)| {
+                    let (first, _) = *fit.pairs.first()?;
+                    let constant = fit.pairs.iter().all(|&(actual, _)| actual == first);
+                    constant.then_some(NoVariance::Constant {
+                        target,
+                        value: first,
+                    })
+                })
+            }
+            _ => None,
+        }
+    }
+
     /// The AUC: the ROC curve's area for two classes, the macro mean of the classes'
     /// one-vs-rest AUCs for several (unavailable when any class's is).
     pub(crate) fn auc(&self) -> Option<Result<f64, Unavailable>> {
@@ -421,5 +455,26 @@ mod tests {
         // Squared errors 4, 4, 0 over three rows.
         assert_eq!(fits[1].scores.named()[0], ("mse", 8.0 / 3.0));
         assert_eq!(fits[1].pairs[1], (20.0, 18.0));
+    }
+
+    #[test]
+    fn r2_is_undefined_on_one_held_out_row_or_a_constant_target() {
+        let single = diagnose(Task::Regress, array![[3.0]].view(), array![[2.5]].view());
+        assert_eq!(single.r2_undefined(), Some(NoVariance::OneRow));
+        // 0.1 three times: a mean that rounds off 0.1 would give a tiny, non-zero
+        // variance and an R² of about −1e31, so constancy is checked on the values.
+        let targets = array![[1.0, 0.1], [2.0, 0.1], [3.0, 0.1]];
+        let outputs = array![[1.0, 0.2], [2.0, 0.1], [3.0, 0.0]];
+        let constant = diagnose(Task::Regress, targets.view(), outputs.view());
+        assert_eq!(
+            constant.r2_undefined(),
+            Some(NoVariance::Constant {
+                target: 1,
+                value: 0.1
+            })
+        );
+        let targets = array![[1.0, 0.1], [2.0, 0.2], [3.0, 0.3]];
+        let varied = diagnose(Task::Regress, targets.view(), outputs.view());
+        assert_eq!(varied.r2_undefined(), None);
     }
 }

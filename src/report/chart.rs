@@ -500,11 +500,15 @@ pub(crate) struct Bar {
 /// Bars share this much of the value range at least before the axis leaves out zero.
 const NARROW_BAND: f64 = 0.2;
 
-/// Horizontal bars, one per label (so long labels fit), each with its value printed
-/// and its spread as an error bar. When every bar sits in a narrow band away from zero
-/// the axis starts near the band, and its title says so.
+/// Horizontal bars, one per label (so long labels fit), each drawn from zero with its
+/// value printed and its spread as an error bar. A negative value extends left of the
+/// zero line, and when any value is negative every label carries its sign. When every
+/// bar sits in a narrow band away from zero the axis starts near the band, and its
+/// title says so.
 pub(crate) fn bar_chart(bars: &[Bar], value_label: &str) -> String {
     let finite: Vec<&Bar> = bars.iter().filter(|b| b.value.is_finite()).collect();
+    let signed = finite.iter().any(|b| b.value < 0.0);
+    let value_text = |value: f64| signed_number(value, signed);
     let high = |b: &&Bar| b.value + b.spread.unwrap_or(0.0);
     let low = |b: &&Bar| b.value - b.spread.unwrap_or(0.0);
     let top = finite.iter().map(high).fold(f64::NEG_INFINITY, f64::max);
@@ -520,7 +524,10 @@ pub(crate) fn bar_chart(bars: &[Bar], value_label: &str) -> String {
         lo = ((bottom - step) / step).floor() * step;
         hi = top;
     }
-    hi += (hi - lo) * 0.18; // room for the value labels
+    if hi <= lo {
+        // Every bar is zero with no spread: an axis from 0 to 1 rather than no width.
+        hi = lo + 1.0;
+    }
     let title = if narrow {
         format!("{value_label} (axis starts at {})", number(lo))
     } else {
@@ -531,6 +538,19 @@ pub(crate) fn bar_chart(bars: &[Bar], value_label: &str) -> String {
         .map(|b| text_width(&b.label))
         .fold(0.0, f64::max)
         .clamp(40.0, WIDTH * 0.4);
+    let (from, to) = (label_room + 10.0, WIDTH - RIGHT);
+    // Room beyond each end for the widest value label printed there.
+    let label_need = |negative: bool| {
+        finite
+            .iter()
+            .filter(|b| (b.value < 0.0) == negative)
+            .map(|b| text_width(&value_text(b.value)) + 8.0)
+            .fold(0.0, f64::max)
+    };
+    let (left_need, right_need) = (label_need(true), label_need(false));
+    let widened = (hi - lo) / (1.0 - ((left_need + right_need) / (to - from)).min(0.8));
+    lo -= widened * left_need / (to - from);
+    hi += widened * right_need / (to - from);
     let row = 26.0;
     let plot_top = TOP;
     let plot_bottom = plot_top + row * bars.len() as f64;
@@ -538,8 +558,8 @@ pub(crate) fn bar_chart(bars: &[Bar], value_label: &str) -> String {
         lo,
         hi,
         log: false,
-        from: label_room + 10.0,
-        to: WIDTH - RIGHT,
+        from,
+        to,
     };
     let mut canvas = Canvas::default();
     let ticks = linear_ticks(lo, hi);
@@ -554,6 +574,11 @@ pub(crate) fn bar_chart(bars: &[Bar], value_label: &str) -> String {
         );
     }
     canvas.line((x.from, plot_top), (x.from, plot_bottom), FRAME, 1.0);
+    // Bars grow from zero, or from the axis's start when it leaves zero out.
+    let base = if narrow { lo } else { 0.0 };
+    if base > lo {
+        canvas.line((x.at(base), plot_top), (x.at(base), plot_bottom), INK, 1.0);
+    }
     for (i, bar) in bars.iter().enumerate() {
         let middle = plot_top + row * (i as f64 + 0.5);
         let shown: String = truncated(&bar.label, label_room);
@@ -562,7 +587,7 @@ pub(crate) fn bar_chart(bars: &[Bar], value_label: &str) -> String {
             canvas.text(x.from + 6.0, middle + FONT * 0.35, "start", "—");
             continue;
         }
-        let (start, end) = (x.at(lo.max(0.0).min(bar.value)), x.at(bar.value));
+        let (start, end) = (x.at(base), x.at(bar.value));
         let _ = write!(
             canvas.body,
             r#"<rect x="{:.1}" y="{:.1}" width="{:.1}" height="{:.1}" fill="{}"/>"#,
@@ -572,20 +597,20 @@ pub(crate) fn bar_chart(bars: &[Bar], value_label: &str) -> String {
             row * 0.64,
             PALETTE[0]
         );
-        let mut label_at = end;
+        let (mut left, mut right) = (start.min(end), start.max(end));
         if let Some(sd) = bar.spread {
             let (a, b) = (x.at(bar.value - sd), x.at(bar.value + sd));
             canvas.line((a, middle), (b, middle), INK, 1.2);
             canvas.line((a, middle - 5.0), (a, middle + 5.0), INK, 1.2);
             canvas.line((b, middle - 5.0), (b, middle + 5.0), INK, 1.2);
-            label_at = label_at.max(b);
+            (left, right) = (left.min(a), right.max(b));
         }
-        canvas.text(
-            label_at + 4.0,
-            middle + FONT * 0.35,
-            "start",
-            &number(bar.value),
-        );
+        let text = value_text(bar.value);
+        if bar.value < 0.0 {
+            canvas.text(left - 4.0, middle + FONT * 0.35, "end", &text);
+        } else {
+            canvas.text(right + 4.0, middle + FONT * 0.35, "start", &text);
+        }
     }
     canvas.text(
         (x.from + x.to) / 2.0,
@@ -594,6 +619,18 @@ pub(crate) fn bar_chart(bars: &[Bar], value_label: &str) -> String {
         &title,
     );
     canvas.finish(plot_bottom + BOTTOM, &title)
+}
+
+/// A value with a true minus sign, and with a plus sign too when `signed` (some value
+/// in the chart is negative, so the sign carries meaning).
+fn signed_number(value: f64, signed: bool) -> String {
+    if value < 0.0 {
+        format!("−{}", number(-value))
+    } else if signed && value > 0.0 {
+        format!("+{}", number(value))
+    } else {
+        number(value)
+    }
 }
 
 /// A metric over a grid of two settings' values.
@@ -988,5 +1025,67 @@ mod tests {
         let svg = bar_chart(&bars, "accuracy");
         assert!(svg.contains("accuracy (axis starts at 0.8"), "{svg}");
         assert!(svg.contains(">0.9300</text>"), "value labels: {svg}");
+    }
+
+    /// The x of each `<rect>` and its width, in drawing order.
+    fn rects(svg: &str) -> Vec<(f64, f64)> {
+        svg.split("<rect ")
+            .skip(1)
+            .map(|rect| {
+                let attribute = |name: &str| -> f64 {
+                    rect.split(&format!(r#"{name}=""#))
+                        .nth(1)
+                        .and_then(|rest| rest.split('"').next())
+                        .and_then(|value| value.parse().ok())
+                        .unwrap()
+                };
+                (attribute("x"), attribute("width"))
+            })
+            .collect()
+    }
+
+    #[test]
+    fn a_negative_bar_extends_left_of_the_zero_line_with_its_sign() {
+        // A shuffle that helped the held-out score a little: a negative importance.
+        let bars = vec![
+            Bar {
+                label: "x1".into(),
+                value: 0.4,
+                spread: Some(0.05),
+            },
+            Bar {
+                label: "x3".into(),
+                value: -0.03,
+                spread: Some(0.02),
+            },
+        ];
+        let svg = bar_chart(&bars, "fall in held-out R²");
+        let [(positive_x, positive_width), (negative_x, negative_width)] = rects(&svg)[..] else {
+            panic!("two bars: {svg}");
+        };
+        assert!(negative_width > 1.0, "zero-width negative bar: {svg}");
+        // Both bars meet at the zero line: the negative one ends where the positive starts.
+        assert!(
+            (negative_x + negative_width - positive_x).abs() < 0.11,
+            "{svg}"
+        );
+        assert!(positive_width > 5.0 * negative_width);
+        assert!(svg.contains(">−0.03000</text>"), "signed label: {svg}");
+        assert!(svg.contains(">+0.4000</text>"), "signed label: {svg}");
+        // The axis reaches past the negative bar's spread (to −0.05, two thirds of its
+        // width further left), which starts right of the labels (at least 40 + 10 units).
+        assert!(negative_x - negative_width * 2.0 / 3.0 > 50.0, "{svg}");
+    }
+
+    #[test]
+    fn bars_that_are_all_zero_still_get_an_axis() {
+        // Shuffling a single held-out row changes nothing: every importance is 0 ± 0.
+        let bars = vec![Bar {
+            label: "x".into(),
+            value: 0.0,
+            spread: Some(0.0),
+        }];
+        let svg = bar_chart(&bars, "fall in held-out accuracy");
+        assert!(!svg.contains("NaN"), "{svg}");
     }
 }

@@ -3,11 +3,11 @@
 
 use serde::Serialize;
 
-use super::chart::{self, Axes, Bar, HeatMap, Positions, Series};
+use super::chart::{self, Bar, HeatMap, Positions, Series};
 use super::format::number;
 use super::verdict::{NOT_ENOUGH_ROWS, evidence, p_text};
 use super::view::{
-    HONEST_CHOICE, log_loss_is_loss, mean_curve, shown_stats, stat_text, stop_counts,
+    HONEST_CHOICE, log_loss_is_loss, loss_axes, mean_curve, shown_stats, stat_text, stop_counts,
 };
 use crate::build::outcome::{FitResult, RowSet, SetMetrics, SweepResult, rank};
 use crate::document::spec::{ChartChoice, CompareSpec, MetricName};
@@ -71,7 +71,9 @@ pub(crate) fn rows_label(rows: RowSet) -> &'static str {
     }
 }
 
-pub(crate) fn sweep_view(result: &SweepResult) -> SweepView {
+/// `scaled_targets`: the sweep's runs trained on scaled targets (every combination
+/// reads the same data step), so their loss is in those units.
+pub(crate) fn sweep_view(result: &SweepResult, scaled_targets: bool) -> SweepView {
     let first = &result.fits[0];
     let hide = log_loss_is_loss(&result.fits);
     let stats_names: Vec<&'static str> = first
@@ -116,6 +118,11 @@ pub(crate) fn sweep_view(result: &SweepResult) -> SweepView {
         .enumerate()
         .map(|(n, fit)| Series::nth(n, describe(&fit.settings), mean_curve(&fit.runs, false)))
         .collect();
+    // Ranked by a loss on scaled targets, its charts say the units as the loss chart does.
+    let mut ranked_by = result.rank_by.key().replace('_', " ");
+    if scaled_targets && result.rank_by == MetricName::Loss {
+        ranked_by.push_str(" (scaled targets)");
+    }
     let loss_chart_note = if result.fits.len() > MAX_LINES {
         format!(
             "Mean training loss per epoch of the {MAX_LINES} best-ranked combinations, log scale."
@@ -136,11 +143,11 @@ pub(crate) fn sweep_view(result: &SweepResult) -> SweepView {
         more_rows: rows.split_off(rows.len().min(TOP_ROWS)),
         rows,
         runs_per_combination: first.runs.len(),
-        loss_chart: chart::line_chart(&series, &Axes::loss(true)),
+        loss_chart: chart::line_chart(&series, &loss_axes(true, scaled_targets)),
         loss_chart_note,
         noise_note: noise_note(result),
-        heat_map: heat_map(result),
-        marginals: marginals(result),
+        heat_map: heat_map(result, &ranked_by),
+        marginals: marginals(result, &ranked_by),
         choice_note: (result.rank_rows == RowSet::Test).then(|| {
             format!(
                 "The best was chosen on the held-out rows, so its held-out score is optimistic. {HONEST_CHOICE}"
@@ -200,7 +207,8 @@ fn mean_and_sd(values: &[f64]) -> (f64, f64) {
 /// The ranking metric (mean over seeds and other settings) over the first two varied
 /// settings, the one with more values down the side so the cells stay wide enough for
 /// their numbers.
-fn heat_map(result: &SweepResult) -> Option<Figure> {
+/// `metric`: the ranking metric's name as the chart says it.
+fn heat_map(result: &SweepResult, metric: &str) -> Option<Figure> {
     let first = &result.fits[0].settings;
     if first.len() < 2 {
         return None;
@@ -226,7 +234,6 @@ fn heat_map(result: &SweepResult) -> Option<Figure> {
         .collect();
     let higher_is_better = result.rank_by.higher_is_better();
     let best = best_cell(&cells, higher_is_better);
-    let metric = result.rank_by.key().replace('_', " ");
     let svg = chart::heat_map(&HeatMap {
         x_name: &first[across].name,
         x_labels: columns,
@@ -245,7 +252,7 @@ fn heat_map(result: &SweepResult) -> Option<Figure> {
         svg,
         note: format!(
             "{} on the {} rows, mean over seeds{others}; lighter is better, the best cell outlined.",
-            capitalise(&metric),
+            capitalise(metric),
             rows_label(result.rank_rows)
         ),
     })
@@ -274,8 +281,8 @@ const LOG_SPAN: f64 = 20.0;
 
 /// For each varied setting, the ranking metric's mean ± sd over seeds and the other
 /// settings at each of its values; numbers on a number line, other values as categories.
-fn marginals(result: &SweepResult) -> Vec<Figure> {
-    let metric = result.rank_by.key().replace('_', " ");
+/// `metric`: the ranking metric's name as the chart says it.
+fn marginals(result: &SweepResult, metric: &str) -> Vec<Figure> {
     result.fits[0]
         .settings
         .iter()
@@ -301,10 +308,10 @@ fn marginals(result: &SweepResult) -> Vec<Figure> {
                 _ => "",
             };
             Figure {
-                svg: chart::marginal_chart(&positions, &means, &varied.name, &metric),
+                svg: chart::marginal_chart(&positions, &means, &varied.name, metric),
                 note: format!(
                     "{} on the {} rows at each {}{log_note}: mean ± sd over seeds and the other settings.",
-                    capitalise(&metric),
+                    capitalise(metric),
                     rows_label(result.rank_rows),
                     varied.name
                 ),
@@ -348,6 +355,47 @@ pub(crate) struct Compared<'a> {
     /// For a sweep, which combination (its best) is shown.
     pub what: String,
     pub fit: &'a FitResult,
+    /// It trained on scaled targets, so its loss is in those units.
+    pub scaled_targets: bool,
+}
+
+/// The units of the losses a compare chart draws: each run's targets scaled for
+/// training or not. When the runs differ, the legend marks the scaled ones.
+#[derive(Clone, Copy, PartialEq, Eq)]
+enum LossUnits {
+    Targets,
+    Scaled,
+    Mixed,
+}
+
+impl LossUnits {
+    fn of(entries: &[Compared<'_>]) -> LossUnits {
+        let scaled = entries.iter().filter(|entry| entry.scaled_targets).count();
+        match scaled {
+            0 => LossUnits::Targets,
+            n if n == entries.len() => LossUnits::Scaled,
+            _ => LossUnits::Mixed,
+        }
+    }
+
+    /// The entry's legend or bar label; a short mark, since bar labels have little room.
+    fn legend(self, entry: &Compared<'_>) -> String {
+        if self == LossUnits::Mixed && entry.scaled_targets {
+            format!("{} (scaled)", entry.id)
+        } else {
+            entry.id.to_string()
+        }
+    }
+
+    /// Said after the chart's caption.
+    fn note(self) -> &'static str {
+        match self {
+            LossUnits::Mixed => {
+                " Runs marked (scaled) trained on scaled targets, the others on the targets as they are, so their losses are in different units and do not compare."
+            }
+            _ => "",
+        }
+    }
 }
 
 /// The default columns: what a practitioner reads first for the task.
@@ -396,6 +444,7 @@ pub(crate) fn compare_view(spec: &CompareSpec, entries: &[Compared<'_>]) -> Comp
             // The training loss favours the most overfit run, so the chart shows
             // the loss on rows the runs did not fit whenever they all have some.
             let unfitted = choice != RowSet::Train;
+            let units = LossUnits::of(entries);
             let series: Vec<Series> = entries
                 .iter()
                 .take(MAX_LINES)
@@ -403,7 +452,7 @@ pub(crate) fn compare_view(spec: &CompareSpec, entries: &[Compared<'_>]) -> Comp
                 .map(|(n, entry)| {
                     Series::nth(
                         n,
-                        entry.id.to_string(),
+                        units.legend(entry),
                         mean_curve(&entry.fit.runs, unfitted),
                     )
                 })
@@ -414,32 +463,44 @@ pub(crate) fn compare_view(spec: &CompareSpec, entries: &[Compared<'_>]) -> Comp
                 "linear scale"
             };
             (
-                Some(chart::line_chart(&series, &Axes::loss(spec.log_scale))),
+                Some(chart::line_chart(
+                    &series,
+                    &loss_axes(spec.log_scale, units == LossUnits::Scaled),
+                )),
                 format!(
-                    "Mean {} loss per epoch of each run, {scale}.",
-                    rows_label(choice).replace(' ', "-")
+                    "Mean {} loss per epoch of each run, {scale}.{}",
+                    rows_label(choice).replace(' ', "-"),
+                    units.note()
                 ),
             )
         }
         ChartChoice::Metric => {
             let metric = metrics.first().copied().unwrap_or(MetricName::Loss);
+            let units = match metric {
+                MetricName::Loss => LossUnits::of(entries),
+                _ => LossUnits::Targets,
+            };
             let bars: Vec<Bar> = entries
                 .iter()
                 .map(|entry| {
                     let stat = entry.fit.metric(metric, entry.fit.report_rows());
                     Bar {
-                        label: entry.id.to_string(),
+                        label: units.legend(entry),
                         value: stat.as_ref().map_or(f64::NAN, |s| s.mean),
                         spread: stat.and_then(|s| s.sd),
                     }
                 })
                 .collect();
-            let name = metric.key().replace('_', " ");
+            let mut name = metric.key().replace('_', " ");
+            if units == LossUnits::Scaled {
+                name.push_str(" (scaled targets)");
+            }
             (
                 Some(chart::bar_chart(&bars, &name)),
                 format!(
-                    "{} of each run (held-out rows where there are any).",
-                    capitalise(&name)
+                    "{} of each run (held-out rows where there are any).{}",
+                    capitalise(&name),
+                    units.note()
                 ),
             )
         }

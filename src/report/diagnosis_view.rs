@@ -1,6 +1,6 @@
 //! Where a fit goes wrong, as the train card shows it (issue 15): the ROC curve with
-//! Youden's J threshold and the reliability chart for two classes, each class's AUC for
-//! several, and predicted-against-actual and residual charts per regression target.
+//! Youden's J threshold and the reliability chart for two classes (several classes'
+//! AUCs are a column of the confusion table, in `view.rs`), and predicted-against-actual and residual charts per regression target.
 //! A value the held-out rows cannot give is a stated reason in its place.
 
 use serde::Serialize;
@@ -26,12 +26,8 @@ pub(crate) struct DiagnosisView {
     pub notes: Vec<String>,
 }
 
-/// The view of `diagnosis`; `classes` names the classes, `targets` the target columns.
-pub(crate) fn diagnosis_view(
-    diagnosis: &Diagnosis,
-    classes: Option<&[String]>,
-    targets: &[String],
-) -> DiagnosisView {
+/// The view of `diagnosis`; `targets` names the target columns.
+pub(crate) fn diagnosis_view(diagnosis: &Diagnosis, targets: &[String]) -> DiagnosisView {
     let mut view = DiagnosisView {
         figures: Vec::new(),
         notes: Vec::new(),
@@ -47,25 +43,8 @@ pub(crate) fn diagnosis_view(
                 Err(why) => view.notes.push(format!("No reliability chart: {why}.")),
             }
         }
-        Diagnosis::SeveralClasses { auc_per_class } => {
-            let name = |i: usize| classes.and_then(|c| c.get(i)).cloned().unwrap_or_default();
-            let each: Vec<String> = auc_per_class
-                .iter()
-                .enumerate()
-                .map(|(i, auc)| match auc {
-                    Ok(auc) => format!("{} {}", name(i), number(*auc)),
-                    Err(why) => format!("{} unavailable ({why})", name(i)),
-                })
-                .collect();
-            let mean = match diagnosis.auc() {
-                Some(Ok(mean)) => number(mean),
-                _ => "unavailable".into(),
-            };
-            view.notes.push(format!(
-                "Held-out AUC of each class against the rest: {}; macro mean {mean}.",
-                each.join(", ")
-            ));
-        }
+        // Each class's AUC is a column of the confusion table (view.rs).
+        Diagnosis::SeveralClasses { .. } => {}
         Diagnosis::Regression { targets: fits } => match fits {
             Ok(fits) => regression_figures(&mut view, fits, targets),
             Err(why) => view.notes.push(format!("No fit plots: {why}.")),

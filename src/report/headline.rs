@@ -59,7 +59,16 @@ pub(crate) fn headlines(plan: &Plan, results: &BuildResult) -> Vec<Headline> {
             };
             let metric = headline_metric(fit);
             let rows = fit.report_rows();
-            let mean = fit.metric(metric, rows)?.mean;
+            // Held-out targets that do not vary leave R² undefined: a dash, never best.
+            let r2_undefined = metric == MetricName::R2
+                && fit
+                    .judgement
+                    .as_deref()
+                    .is_some_and(|judged| judged.diagnosis.r2_undefined().is_some());
+            let mean = match fit.metric(metric, rows)?.mean {
+                _ if r2_undefined => f64::NAN,
+                mean => mean,
+            };
             let headline = Headline {
                 id: step.id.clone(),
                 metric: metric.key().replace('_', " "),

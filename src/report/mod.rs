@@ -22,10 +22,11 @@ use minijinja::Environment;
 use pulldown_cmark::{Event, Parser, Tag};
 use serde::Serialize;
 
-use crate::build::outcome::{Outcome, SweepResult};
+use crate::build::outcome::{DataSummary, Outcome, SweepResult};
 use crate::build::{BuildResult, Status};
 use crate::carry::Carried;
 use crate::data::Scale;
+use crate::data::card::{DataWarning, Role};
 use crate::document::{Document, Piece, StepSpec};
 use crate::plan::{Plan, Upstream, short_key};
 use compare_view::{CompareView, Compared, SweepView, compare_view, sweep_view};
@@ -340,21 +341,11 @@ fn step_view(input: &ReportInput<'_>, index: usize, yaml: &str, beside_html: Str
         Status::Reused => ("reused", "reused from the cache".to_string(), None),
         Status::Failed { error } => ("failed", "failed".to_string(), Some(error.clone())),
     };
-    // The data step a train step reads, or the one its model read for a predict step.
-    let data_index = match (&step.spec, &step.upstream) {
-        (StepSpec::Train(train), _) => input.plan.index_of(&train.data),
-        (StepSpec::Predict(_), Upstream::Model { model }) => {
-            input.plan.steps[*model].fits.first().map(|fit| fit.data)
-        }
-        _ => None,
-    };
-    let data_summary = match data_index.and_then(|d| input.results.steps[d].outcome.as_ref()) {
-        Some(Outcome::Data(summary)) => Some(summary),
-        _ => None,
-    };
+    let data_summary = trained_on(input, index);
     let classes = data_summary.and_then(|summary| summary.classes.clone());
     let targets = data_summary.map_or(Vec::new(), |summary| summary.target_names.clone());
-    let scaled_targets = data_summary.is_some_and(|summary| summary.scale_target != Scale::None);
+    let scaled_targets = data_summary.is_some_and(scales_targets);
+    let constant_target = data_summary.and_then(constant_target);
     StepView {
         id: step.id.clone(),
         kind: step.kind.word(),
@@ -375,11 +366,12 @@ fn step_view(input: &ReportInput<'_>, index: usize, yaml: &str, beside_html: Str
                 classes.as_deref(),
                 &targets,
                 scaled_targets,
+                constant_target,
             )),
             _ => None,
         },
         sweep: match &record.outcome {
-            Some(Outcome::Sweep(result)) => Some(sweep_view(result)),
+            Some(Outcome::Sweep(result)) => Some(sweep_view(result, scaled_targets)),
             _ => None,
         },
         compare: match (&step.spec, &record.outcome) {
@@ -429,6 +421,46 @@ fn sweep_choice(sweep: &SweepResult) -> String {
 }
 
 /// The fits a compare step lists: a train step's own, a sweep's best combination.
+/// The data step a train step or a sweep (through the train step it varies) trained
+/// on, when that step has a result.
+fn trained_on<'a>(input: &'a ReportInput<'_>, index: usize) -> Option<&'a DataSummary> {
+    let step = &input.plan.steps[index];
+    let data = match (&step.spec, &step.upstream) {
+        (_, Upstream::Train { data, .. }) => *data,
+        (_, Upstream::Sweep { from }) => return trained_on(input, *from),
+        // A predict step scores its rows as the model's data step encoded them.
+        (StepSpec::Predict(_), Upstream::Model { model }) => {
+            input.plan.steps[*model].fits.first()?.data
+        }
+        _ => return None,
+    };
+    match input.results.steps[data].outcome.as_ref()? {
+        Outcome::Data(summary) => Some(summary),
+        _ => None,
+    }
+}
+
+/// Whether runs on this data trained on scaled targets, so their loss is in those units.
+fn scales_targets(summary: &DataSummary) -> bool {
+    summary.scale_target != Scale::None
+}
+
+/// A target column that holds one value in every row read (the data card's warning).
+fn constant_target(summary: &DataSummary) -> Option<&str> {
+    summary
+        .card
+        .warnings
+        .iter()
+        .find_map(|warning| match warning {
+            DataWarning::Constant {
+                column,
+                role: Role::Target,
+                ..
+            } => Some(column.as_str()),
+            _ => None,
+        })
+}
+
 fn compared<'a>(
     input: &'a ReportInput<'_>,
     step: &'a crate::plan::PlannedStep,
@@ -443,11 +475,13 @@ fn compared<'a>(
                     id,
                     what: String::new(),
                     fit,
+                    scaled_targets: trained_on(input, u).is_some_and(scales_targets),
                 }),
                 Outcome::Sweep(sweep) => Some(Compared {
                     id,
                     what: sweep_choice(sweep),
                     fit: sweep.best(),
+                    scaled_targets: trained_on(input, u).is_some_and(scales_targets),
                 }),
                 _ => None,
             }

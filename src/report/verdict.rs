@@ -5,6 +5,7 @@
 use serde::Serialize;
 
 use super::format::number;
+use crate::judge::diagnosis::{NoVariance, Unavailable};
 use crate::judge::stats::Interval;
 use crate::judge::{BaselineRule, Judgement, Paired, Scores};
 
@@ -42,22 +43,92 @@ fn interval_text(intervals: Option<&[(String, Interval)]>, name: &str) -> Option
         .map(|(_, i)| format!("{}–{}", score(i.low), score(i.high)))
 }
 
+/// The score a verdict leads with: the network's, the baseline's and the model's
+/// without a hidden layer, and how it is written.
+struct Lead {
+    name: &'static str,
+    words: &'static str,
+    network: f64,
+    baseline: f64,
+    linear: f64,
+    higher_is_better: bool,
+    /// Writes one of the three values.
+    text: fn(f64) -> String,
+}
+
+/// Accuracy or R², or the MSE when the held-out targets do not vary and R² is undefined.
+fn lead(judgement: &Judgement) -> Lead {
+    if judgement.diagnosis.r2_undefined().is_some() {
+        return Lead {
+            name: "mse",
+            words: "held-out mse",
+            network: mse(&judgement.network),
+            baseline: mse(&judgement.baseline),
+            linear: mse(&judgement.linear),
+            higher_is_better: false,
+            text: number,
+        };
+    }
+    let (name, network) = judgement.network.headline();
+    Lead {
+        name,
+        words: match judgement.network {
+            Scores::Classification { .. } => "held-out accuracy",
+            Scores::Regression { .. } => "held-out R²",
+        },
+        network,
+        baseline: judgement.baseline.headline().1,
+        linear: judgement.linear.headline().1,
+        higher_is_better: true,
+        text: score,
+    }
+}
+
+fn mse(scores: &Scores) -> f64 {
+    match scores {
+        Scores::Regression { mse, .. } => *mse,
+        Scores::Classification { .. } => f64::NAN,
+    }
+}
+
+/// Why R² means nothing on the held-out rows, naming the target when `targets` does.
+pub(crate) fn no_variance_words(why: &NoVariance, targets: &[String]) -> String {
+    match why {
+        NoVariance::OneRow => "there is only one held-out row".into(),
+        NoVariance::Constant { target, value } => match targets.get(*target) {
+            Some(name) => format!("every held-out row's {name} is {}", number(*value)),
+            None => format!("every held-out row has the target {}", number(*value)),
+        },
+    }
+}
+
 pub(crate) fn verdict(judgement: &Judgement) -> Verdict {
-    let (name, value) = judgement.network.headline();
-    let baseline = judgement.baseline.headline().1;
-    let linear = judgement.linear.headline().1;
-    let interval = format!("({})", interval_words(judgement.intervals.as_deref(), name));
-    let headline = match judgement.network {
-        Scores::Classification { .. } => "held-out accuracy",
-        Scores::Regression { .. } => "held-out R²",
+    let lead = lead(judgement);
+    let network = if lead.network.is_finite() {
+        let interval = judgement
+            .intervals
+            .as_deref()
+            .and_then(|all| all.iter().find(|(name, _)| name == lead.name))
+            .map_or(NOT_ENOUGH_ROWS.to_string(), |(_, i)| {
+                format!("{}–{}", (lead.text)(i.low), (lead.text)(i.high))
+            });
+        format!("{} ({interval})", (lead.text)(lead.network))
+    } else {
+        format!("— ({})", Unavailable::NotFinite)
     };
     let baseline_name = baseline_name(judgement);
     let mut parts = vec![
-        format!("{headline} {} {interval}", score(value)),
-        format!("{baseline_name} {}", score(baseline)),
-        format!("without a hidden layer {}", score(linear)),
+        format!("{} {network}", lead.words),
+        format!("{baseline_name} {}", (lead.text)(lead.baseline)),
+        format!("without a hidden layer {}", (lead.text)(lead.linear)),
         test_words(judgement.versus_linear.as_ref()),
     ];
+    if let Some(why) = judgement.diagnosis.r2_undefined() {
+        parts.insert(
+            0,
+            format!("held-out R² undefined ({})", no_variance_words(&why, &[])),
+        );
+    }
     let tone = tone(judgement);
     if tone == Tone::BelowBaseline {
         parts.insert(
@@ -88,6 +159,9 @@ pub(crate) fn short_verdict(judgement: &Judgement) -> Verdict {
 /// The 95 % interval of the headline score, as `low–high`; `None` when the held-out
 /// rows are too few.
 pub(crate) fn headline_interval(judgement: &Judgement) -> Option<String> {
+    if judgement.diagnosis.r2_undefined().is_some() {
+        return None;
+    }
     interval_text(
         judgement.intervals.as_deref(),
         judgement.network.headline().0,
@@ -95,14 +169,17 @@ pub(crate) fn headline_interval(judgement: &Judgement) -> Option<String> {
 }
 
 fn tone(judgement: &Judgement) -> Tone {
-    let value = judgement.network.headline().1;
-    let baseline = judgement.baseline.headline().1;
+    let lead = lead(judgement);
     let beats_linear = judgement
         .versus_linear
         .as_ref()
         .is_some_and(|test| test.significant() && test.first_better());
-    // Accuracy and R² are both better higher.
-    if value <= baseline {
+    let no_better = if lead.higher_is_better {
+        lead.network <= lead.baseline
+    } else {
+        lead.network >= lead.baseline
+    };
+    if no_better {
         Tone::BelowBaseline
     } else if beats_linear {
         Tone::Beats

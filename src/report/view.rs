@@ -7,10 +7,11 @@ use super::card_view::{CardView, card_view};
 use super::chart::{self, Dash, Series, Weight};
 use super::diagnosis_view::{DiagnosisView, diagnosis_view};
 use super::format::{mean_sd, number, seconds, stop_reason};
-use super::verdict::{NOT_ENOUGH_ROWS, Verdict, interval_words, verdict};
+use super::verdict::{NOT_ENOUGH_ROWS, Verdict, interval_words, no_variance_words, verdict};
 use crate::build::importance::pooled_importance;
 use crate::build::outcome::{DataSummary, FitResult, MetricStat, RowSet, SetMetrics};
 use crate::document::spec::word;
+use crate::judge::diagnosis::{Diagnosis, NoVariance, Unavailable};
 use crate::judge::{BaselineRule, Judgement};
 use crate::nn::{ClassificationMetrics, StopReason};
 
@@ -113,12 +114,15 @@ pub(crate) struct TrainView {
     /// Said when the held-out rows chose the weights, so their score is optimistic.
     pub choice_note: Option<String>,
     pub importance: Option<ImportanceView>,
+    /// Why the R² cells show a dash, when the targets they score do not vary.
+    pub r2_note: Option<String>,
 }
 
-/// Which inputs the network leans on: permutation importance as a sorted bar chart.
+/// Which inputs the network leans on: permutation importance as a sorted bar chart, or
+/// why there is none to draw.
 #[derive(Serialize)]
 pub(crate) struct ImportanceView {
-    pub chart: String,
+    pub chart: Option<String>,
     pub note: String,
 }
 
@@ -134,7 +138,11 @@ pub(crate) struct JudgedView {
 
 pub(crate) fn judged_view(judgement: &Judgement) -> JudgedView {
     let names = judgement.network.named();
+    let r2_undefined = judgement.diagnosis.r2_undefined().is_some();
     let interval_of = |name: &str| -> String {
+        if r2_undefined && name == "r2" {
+            return "—".into();
+        }
         match &judgement.intervals {
             None => NOT_ENOUGH_ROWS.into(),
             Some(all) => all
@@ -145,8 +153,19 @@ pub(crate) fn judged_view(judgement: &Judgement) -> JudgedView {
                 }),
         }
     };
-    let values =
-        |scores: &crate::judge::Scores| scores.named().iter().map(|(_, v)| number(*v)).collect();
+    let values = |scores: &crate::judge::Scores| {
+        scores
+            .named()
+            .iter()
+            .map(|&(name, value)| {
+                if r2_undefined && name == "r2" {
+                    "—".into()
+                } else {
+                    number(value)
+                }
+            })
+            .collect()
+    };
     let baseline = match judgement.baseline_rule {
         BaselineRule::MajorityClass => "majority class (training frequencies)",
         BaselineRule::TrainingMean => "training mean",
@@ -210,6 +229,18 @@ pub(crate) struct ConfusionView {
     pub rows_label: &'static str,
     pub labels: Vec<String>,
     pub rows: Vec<ConfusionRow>,
+    /// Each class's AUC against the rest and their macro mean, for several classes
+    /// judged on held-out rows.
+    pub auc: Option<AucColumn>,
+}
+
+/// The confusion table's AUC column: a cell per class, the macro mean for its last row,
+/// and why a cell holds no number, each reason after the marker its cells carry.
+#[derive(Serialize)]
+pub(crate) struct AucColumn {
+    pub cells: Vec<String>,
+    pub mean: String,
+    pub notes: Vec<String>,
 }
 
 #[derive(Serialize)]
@@ -226,12 +257,14 @@ pub(crate) struct ConfusionCell {
     pub diagonal: bool,
 }
 
-/// `scaled_targets`: the run trained on scaled targets, so its loss is in those units.
+/// `scaled_targets`: the run trained on scaled targets, so its loss is in those units;
+/// `constant_target`: a target column that holds one value in every row read.
 pub(crate) fn train_view(
     result: &FitResult,
     classes: Option<&[String]>,
     targets: &[String],
     scaled_targets: bool,
+    constant_target: Option<&str>,
 ) -> TrainView {
     let shape = &result.shape;
     let last = shape.sizes.len() - 1;
@@ -276,9 +309,21 @@ pub(crate) fn train_view(
             values: stat_values(stats),
         });
     }
+    let held_out_r2 = result
+        .judgement
+        .as_deref()
+        .and_then(|judgement| judgement.diagnosis.r2_undefined());
+    let r2_column = metric_names_position(&train_stats, "r2");
+    if let Some(column) = r2_column {
+        for row in &mut metric_rows {
+            if constant_target.is_some() || (held_out_r2.is_some() && row.rows == "held out") {
+                row.values[column] = "—".into();
+            }
+        }
+    }
     let runs = &result.runs;
     let single = runs.len() == 1;
-    let folds = if single {
+    let mut folds: Vec<FoldRow> = if single {
         Vec::new()
     } else {
         runs.iter()
@@ -286,6 +331,24 @@ pub(crate) fn train_view(
             .map(|(i, run)| fold_row(i, run, hide, result.judgement.as_deref()))
             .collect()
     };
+    if let (Some(column), Some(_)) = (r2_column, &held_out_r2) {
+        for fold in &mut folds {
+            fold.values[column] = "—".into();
+            fold.interval = "—".into();
+        }
+    }
+    let r2_note = match (constant_target, &held_out_r2) {
+        (Some(column), _) => Some(format!(
+            "{column} holds one value in every row read"
+        )),
+        (None, Some(why)) => Some(no_variance_words(why, targets)),
+        (None, None) => None,
+    }
+    .map(|why| {
+        format!(
+            "R² shows —: {why}, so there is no variance for it to explain (scikit-learn's convention would print 0, or 1 for exact predictions). MSE and MAE still measure the error."
+        )
+    });
     let stop = stop_counts(result);
     let epochs = if single {
         format!("{} epochs", runs[0].fit.epochs_run)
@@ -318,24 +381,64 @@ pub(crate) fn train_view(
         diagnosis: result
             .judgement
             .as_deref()
-            .map(|judgement| diagnosis_view(&judgement.diagnosis, classes, targets)),
+            .map(|judgement| diagnosis_view(&judgement.diagnosis, targets)),
         watched_rows: match result.choice_rows() {
             RowSet::Validation => "validation",
             _ => "held-out",
         },
         choice_note: early_stop_note(result),
-        importance: importance_view(result),
+        importance: importance_view(result, held_out_r2.as_ref(), targets),
+        r2_note,
     }
 }
 
+/// Where the metric `name` sits among a table's columns.
+fn metric_names_position(stats: &[MetricStat], name: &str) -> Option<usize> {
+    stats.iter().position(|stat| stat.name == name)
+}
+
 /// The permutation importance chart, most important input first; `None` when the
-/// step did not measure it.
-fn importance_view(result: &FitResult) -> Option<ImportanceView> {
+/// step did not measure it, and a reason instead of the chart when the run diverged
+/// or the held-out R² is undefined (`held_out_r2`), since every bar would then be noise.
+fn importance_view(
+    result: &FitResult,
+    held_out_r2: Option<&NoVariance>,
+    targets: &[String],
+) -> Option<ImportanceView> {
     let stats = pooled_importance(&result.runs)?;
     let metric = match result.runs[0].test.as_ref()? {
         SetMetrics::Classification { .. } => "accuracy",
         SetMetrics::Regression { .. } => "R²",
     };
+    if result
+        .judgement
+        .as_deref()
+        .is_some_and(|judgement| judgement.held_out_rows < 2)
+    {
+        return Some(ImportanceView {
+            chart: None,
+            note: "No permutation importance: there is only one held-out row, and shuffling one row moves nothing.".into(),
+        });
+    }
+    if result
+        .runs
+        .iter()
+        .any(|run| run.fit.stop == StopReason::Diverged)
+    {
+        return Some(ImportanceView {
+            chart: None,
+            note: "No permutation importance: the run diverged, so the network's outputs are not all finite and shuffling an input changes nothing that can be measured.".into(),
+        });
+    }
+    if let Some(why) = held_out_r2 {
+        return Some(ImportanceView {
+            chart: None,
+            note: format!(
+                "No permutation importance: it measures the fall in held-out R², which is undefined because {}.",
+                no_variance_words(why, targets)
+            ),
+        });
+    }
     let bars: Vec<chart::Bar> = stats
         .iter()
         .map(|stat| chart::Bar {
@@ -356,7 +459,10 @@ fn importance_view(result: &FitResult) -> Option<ImportanceView> {
         .collect::<Vec<_>>()
         .join(", ");
     Some(ImportanceView {
-        chart: chart::bar_chart(&bars, &format!("fall in held-out {metric}")),
+        chart: Some(chart::bar_chart(
+            &bars,
+            &format!("fall in held-out {metric}"),
+        )),
         note: format!(
             "Permutation importance: the fall in held-out {metric} when one input's values are shuffled across the held-out rows, mean ± sd over {shuffles} shuffles (a categorical input's one-hot columns move together). Rise in held-out loss: {loss_rises}."
         ),
@@ -520,11 +626,17 @@ fn loss_chart(result: &FitResult, scaled_targets: bool) -> String {
         series.push(loss_line(Some(validation_label), validation, true, weight));
     }
     series.retain(|line| !line.points.is_empty());
-    let mut axes = chart::Axes::loss(true);
+    chart::line_chart(&series, &loss_axes(true, scaled_targets))
+}
+
+/// A loss chart's axes; trained on scaled targets, the loss axis says so, since the
+/// loss is then not in the targets' units.
+pub(crate) fn loss_axes(log_y: bool, scaled_targets: bool) -> chart::Axes<'static> {
+    let mut axes = chart::Axes::loss(log_y);
     if scaled_targets {
         axes.y_label = "loss (scaled targets)";
     }
-    chart::line_chart(&series, &axes)
+    axes
 }
 
 /// A line of a loss chart: training loss in the first colour, solid; validation in the
@@ -600,7 +712,13 @@ fn confusion_view(result: &FitResult, labels: &[String]) -> Option<ConfusionView
     } else {
         "training rows"
     };
-    Some(confusion_table(&total, labels, rows_label))
+    let mut table = confusion_table(&total, labels, rows_label);
+    // The diagnosis ranks the held-out rows, so its AUCs join only their counts.
+    table.auc = held_out
+        .then_some(result.judgement.as_deref())
+        .flatten()
+        .and_then(|judgement| auc_column(&judgement.diagnosis, &table.rows));
+    Some(table)
 }
 
 /// A confusion matrix (`total[true][predicted]`) with each class's precision and
@@ -635,7 +753,91 @@ pub(crate) fn confusion_table(
         rows_label,
         labels: labels.to_vec(),
         rows,
+        auc: None,
     }
+}
+
+/// Each class's one-vs-rest AUC beside its held-out `rows`, for several classes.
+fn auc_column(diagnosis: &Diagnosis, rows: &[ConfusionRow]) -> Option<AucColumn> {
+    let Diagnosis::SeveralClasses { auc_per_class } = diagnosis else {
+        return None;
+    };
+    let mut notes = Footnotes::default();
+    let cells = auc_per_class
+        .iter()
+        .zip(rows)
+        .map(|(auc, row)| match auc {
+            Ok(auc) => number(*auc),
+            Err(why) => format!("—{}", notes.mark(auc_unavailable(*why, row))),
+        })
+        .collect();
+    let mean = match diagnosis.auc() {
+        Some(Ok(mean)) => number(mean),
+        _ => format!(
+            "—{}",
+            notes.mark("the macro mean needs every class's AUC".into())
+        ),
+    };
+    Some(AucColumn {
+        cells,
+        mean,
+        notes: notes.lines(),
+    })
+}
+
+/// Why a class has no AUC against the rest, naming the class when the reason is its own.
+fn auc_unavailable(why: Unavailable, row: &ConfusionRow) -> String {
+    let held_out: usize = row.cells.iter().map(|cell| cell.count).sum();
+    match why {
+        Unavailable::OneClass if held_out == 0 => format!(
+            "no held-out row is {}, so nothing ranks it against the rest",
+            row.label
+        ),
+        Unavailable::OneClass => format!(
+            "every held-out row is {}, so nothing ranks it against the rest",
+            row.label
+        ),
+        other => other.to_string(),
+    }
+}
+
+/// Reasons said once each below a table, numbered in the order cells first cite them.
+#[derive(Default)]
+struct Footnotes {
+    reasons: Vec<String>,
+}
+
+impl Footnotes {
+    /// The marker of `reason`, which becomes the next footnote when it is new.
+    fn mark(&mut self, reason: String) -> String {
+        let number = match self.reasons.iter().position(|known| *known == reason) {
+            Some(index) => index + 1,
+            None => {
+                self.reasons.push(reason);
+                self.reasons.len()
+            }
+        };
+        superscript(number)
+    }
+
+    /// Each reason after its marker, as a sentence.
+    fn lines(self) -> Vec<String> {
+        self.reasons
+            .iter()
+            .enumerate()
+            .map(|(index, reason)| format!("{} {reason}.", superscript(index + 1)))
+            .collect()
+    }
+}
+
+/// `number` in superscript digits, as a footnote marker.
+fn superscript(number: usize) -> String {
+    const DIGITS: [char; 10] = ['⁰', '¹', '²', '³', '⁴', '⁵', '⁶', '⁷', '⁸', '⁹'];
+    number
+        .to_string()
+        .bytes()
+        .map(|digit| DIGITS[usize::from(digit - b'0')])
+        .collect()
 }
 
 fn ratio(part: usize, whole: usize) -> String {
