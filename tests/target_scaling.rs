@@ -185,3 +185,52 @@ fn sweep_and_compare_loss_charts_say_when_their_runs_trained_on_scaled_targets()
         assert!(card.contains("Runs marked (scaled) trained on scaled targets"));
     }
 }
+
+// Losses in different units do not rank: a compare of a run trained on scaled targets
+// and one trained on the targets as they are stars the lower held-out MSE (in the
+// targets' units for both), not the lower loss.
+#[test]
+fn a_compare_of_scaled_and_unscaled_runs_ranks_them_by_mse_not_loss() {
+    let ws = Workspace::new();
+    let data = |id: &str, scale: &str| {
+        format!(
+            "```yaml data {id}\nfile: demo-data/greenhouse.csv\ntarget: water_l\n{scale}seed: 5\n```\n\n"
+        )
+    };
+    let text = [
+        data("plants", ""),
+        data("raw", "scale_target: none\n"),
+        "```yaml net small\nhidden: [6]\n```\n\n".to_string(),
+        "```yaml train scaled\ndata: plants\nnet: small\nepochs: 20\nseed: 3\n```\n\n".into(),
+        "```yaml train unscaled\ndata: raw\nnet: small\nepochs: 20\nseed: 3\n```\n\n".into(),
+        "```yaml compare mixed\nruns: [scaled, unscaled]\n```\n".into(),
+    ]
+    .concat();
+    let doc = ws.write("doc.md", &text);
+    let summary = ws.build_ok(&doc, &[]);
+    let mse = |id: &str| {
+        step(&summary, id)["metrics"]["test"]["mse"]
+            .as_f64()
+            .unwrap()
+    };
+    let loss = |id: &str| {
+        step(&summary, id)["metrics"]["test"]["loss"]
+            .as_f64()
+            .unwrap()
+    };
+    let lower = |value: &dyn Fn(&str) -> f64| {
+        if value("scaled") <= value("unscaled") {
+            "scaled"
+        } else {
+            "unscaled"
+        }
+    };
+    let by_mse = lower(&mse);
+    // The scaled run's loss is in the target's standard deviations, far below the other
+    // run's in squared litres: the test means something only because the two disagree.
+    assert_ne!(lower(&loss), by_mse);
+    let html = std::fs::read_to_string(doc.with_extension("html")).unwrap();
+    let card = section(&html, "mixed");
+    assert!(card.contains("★ best by mse"), "{card}");
+    assert!(card.contains(&format!("<td>{by_mse} ★</td>")), "{card}");
+}

@@ -398,6 +398,16 @@ impl LossUnits {
     }
 }
 
+/// The metric that picks the best run: the first column, except that losses in
+/// different units do not rank, so runs trained on scaled and unscaled targets are
+/// ranked by their MSE, in the targets' own units for both.
+fn ranking_metric(first_column: Option<MetricName>, units: LossUnits) -> MetricName {
+    match (first_column.unwrap_or(MetricName::Loss), units) {
+        (MetricName::Loss, LossUnits::Mixed) => MetricName::Mse,
+        (metric, _) => metric,
+    }
+}
+
 /// The default columns: what a practitioner reads first for the task.
 fn default_metrics(fit: &FitResult) -> Vec<MetricName> {
     match fit.runs.first().map(|run| &run.train) {
@@ -413,7 +423,7 @@ pub(crate) fn compare_view(spec: &CompareSpec, entries: &[Compared<'_>]) -> Comp
             .map_or(Vec::new(), |e| default_metrics(e.fit))
     });
     let choice = common_choice_rows(entries);
-    let best_by = metrics.first().copied().unwrap_or(MetricName::Loss);
+    let best_by = ranking_metric(metrics.first().copied(), LossUnits::of(entries));
     let fits: Vec<&FitResult> = entries.iter().map(|entry| entry.fit).collect();
     let best = rank(&fits, best_by, choice).first().copied();
     let rows = entries
