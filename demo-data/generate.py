@@ -30,9 +30,13 @@ greenhouse.csv (regression)
 hives-new.csv and greenhouse-new.csv hold ten further rows from the same
 scenarios without the target column, for a prediction step.
 
+hives-week7.csv holds 40 readings of week 7 with the status the beekeeper
+noted on inspection (same rule, same label noise): a labelled batch, so a
+prediction step can check the model on rows it has never seen.
+
 Run from anywhere with Python 3 (standard library only):
     python3 demo-data/generate.py
-It rewrites the four CSV files beside this script, byte for byte the same on
+It rewrites the five CSV files beside this script, byte for byte the same on
 every run: the generators are seeded and the output is written with "\\n"
 line ends.
 """
@@ -90,22 +94,29 @@ def hive_reading(rng, site):
     }
 
 
+def labelled_hive_reading(rng, hive, site, week):
+    """A reading with the status noted for it: the rule, then 3 % label noise."""
+    row = {"hive": hive, "week": week, **hive_reading(rng, site)}
+    status = hive_status(row["temp_c"], row["sound_hz"], row["daily_weight_change_kg"])
+    if rng.random() < 0.03:
+        status = rng.choice([c for c in CLASSES if c != status])
+    row["status"] = status
+    return row
+
+
 def hives(rng):
-    """400 labelled readings (80 hives, 5 weeks) and 10 new unlabelled ones."""
+    """400 labelled readings (80 hives, 5 weeks), 10 new unlabelled ones (week 6)
+    and 40 labelled ones (week 7), drawn in that order so earlier files never move."""
     hive_sites = [(f"H{n:02d}", SITES[(n - 1) % 3]) for n in range(1, 81)]
     rows = []
     for week in range(1, 6):
         for hive, site in hive_sites:
-            row = {"hive": hive, "week": week, **hive_reading(rng, site)}
-            status = hive_status(row["temp_c"], row["sound_hz"], row["daily_weight_change_kg"])
-            if rng.random() < 0.03:
-                status = rng.choice([c for c in CLASSES if c != status])
-            row["status"] = status
-            rows.append(row)
+            rows.append(labelled_hive_reading(rng, hive, site, week))
     new_rows = []
     for hive, site in rng.sample(hive_sites, 10):
         new_rows.append({"hive": hive, "week": 6, **hive_reading(rng, site)})
-    return rows, new_rows
+    week7 = [labelled_hive_reading(rng, hive, site, 7) for hive, site in rng.sample(hive_sites, 40)]
+    return rows, new_rows, week7
 
 
 CROP_FACTOR = {"tomato": 1.2, "cucumber": 1.5, "lettuce": 0.6}
@@ -157,9 +168,10 @@ def write_csv(name, rows):
 
 
 def main():
-    hive_rows, hive_new = hives(random.Random(HIVES_SEED))
+    hive_rows, hive_new, hive_week7 = hives(random.Random(HIVES_SEED))
     write_csv("hives.csv", hive_rows)
     write_csv("hives-new.csv", hive_new)
+    write_csv("hives-week7.csv", hive_week7)
     green_rows, green_new = greenhouse(random.Random(GREENHOUSE_SEED))
     write_csv("greenhouse.csv", green_rows)
     write_csv("greenhouse-new.csv", green_new)
