@@ -334,7 +334,7 @@ fn files_over_the_embedding_limit_are_left_out_and_listed() {
     let document = ws.demo("hives.md");
     ws.build_ok(&document, &["--embed-data-mb", "0"]);
     let html = std::fs::read_to_string(ws.path("experiments/hives.html")).unwrap();
-    assert!(html.contains("2 not included"), "the footer says so");
+    assert!(html.contains("3 not included"), "the footer says so");
     let output = run(&ws, &["unpack", "experiments/hives.html", "out"]);
     assert!(output.status.success(), "{}", stderr(&output));
     let out = String::from_utf8_lossy(&output.stdout);

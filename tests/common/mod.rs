@@ -29,6 +29,7 @@ impl Workspace {
             "hives.csv",
             "greenhouse.csv",
             "hives-new.csv",
+            "hives-week7.csv",
             "greenhouse-new.csv",
         ] {
             std::fs::copy(
