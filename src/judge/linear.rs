@@ -7,7 +7,10 @@
 //! `LogisticRegression(C=1.0)`, its defaults. Ridge is solved exactly (centred normal
 //! equations, Cholesky); logistic regression by Newton's method with a backtracking
 //! line search, which converges to machine precision in a few steps on the small tables
-//! stet is for and needs no tuning. Everything is deterministic: no random start.
+//! stet is for and needs no tuning. Each Newton direction is solved exactly while the
+//! Hessian is cheap to form; past [`DIRECT_NEWTON_BUDGET`] (wide one-hot inputs with
+//! many classes) by conjugate gradients on Hessian–vector products, which never forms
+//! it. Everything is deterministic: no random start.
 
 use ndarray::{Array1, Array2, ArrayView2, Axis, s};
 use serde::{Deserialize, Serialize};
@@ -17,6 +20,42 @@ pub const PENALTY: f64 = 1.0;
 
 /// Newton steps before giving up on a logistic fit (it converges in well under 30).
 const MAX_NEWTON_STEPS: usize = 100;
+
+/// A promised decrease, relative to the objective, below what rounding in summing the
+/// rows' terms can hide; on 4,000 rows × 150 inputs × 6 classes, stopping here moved
+/// the held-out log loss by 3e-10 against running to the step limit.
+const NEGLIGIBLE_DECREASE: f64 = 1e-15;
+
+/// Forming the Hessian costs rows × parameters² multiply–adds (and solving it
+/// parameters³ / 3); up to this many, a Newton direction is solved exactly, which takes
+/// about a second here. Past it, conjugate gradients: each Hessian–vector product costs
+/// about 4 · rows · parameters.
+const DIRECT_NEWTON_BUDGET: f64 = 2e9;
+
+/// Conjugate-gradient iterations per Newton direction at most; an inexact direction
+/// still descends, and the line search and the next step correct it.
+const MAX_CONJUGATE_STEPS: usize = 250;
+
+/// How a Newton direction is found.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+enum NewtonSolve {
+    /// Form the Hessian and solve by Cholesky.
+    Direct,
+    /// Conjugate gradients on Hessian–vector products (truncated Newton).
+    ConjugateGradient,
+}
+
+impl NewtonSolve {
+    fn for_size(rows: usize, parameters: usize) -> NewtonSolve {
+        let parameters = parameters as f64;
+        let work = rows as f64 * parameters * parameters + parameters.powi(3) / 3.0;
+        if work <= DIRECT_NEWTON_BUDGET {
+            NewtonSolve::Direct
+        } else {
+            NewtonSolve::ConjugateGradient
+        }
+    }
+}
 
 /// A fitted linear model: `outputs = link(x · weights + intercepts)`.
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
@@ -75,6 +114,11 @@ pub fn fit_least_squares(x: ArrayView2<f64>, y: ArrayView2<f64>) -> LinearModel 
 /// L2-penalised logistic regression: binary when `y` has one 0/1 column, multinomial
 /// when it is one-hot over several classes.
 pub fn fit_logistic(x: ArrayView2<f64>, y: ArrayView2<f64>) -> LinearModel {
+    let parameters = (x.ncols() + 1) * y.ncols();
+    fit_logistic_by(x, y, NewtonSolve::for_size(x.nrows(), parameters))
+}
+
+fn fit_logistic_by(x: ArrayView2<f64>, y: ArrayView2<f64>, solve: NewtonSolve) -> LinearModel {
     let link = if y.ncols() == 1 {
         Link::Sigmoid
     } else {
@@ -88,17 +132,29 @@ pub fn fit_logistic(x: ArrayView2<f64>, y: ArrayView2<f64>) -> LinearModel {
     };
     let mut objective = logistic_objective(&model, x, y);
     for _ in 0..MAX_NEWTON_STEPS {
-        let (gradient, hessian) = logistic_derivatives(&model, x, y);
+        let curvature = Curvature::at(&model, x);
+        let gradient = logistic_gradient(&model, &curvature, y);
         if gradient
             .iter()
             .all(|g| g.abs() <= 1e-11 * (1.0 + x.nrows() as f64))
         {
             break;
         }
-        let Some(step) = solve_positive_definite(hessian, gradient.insert_axis(Axis(1))) else {
-            break;
+        let step = match solve {
+            NewtonSolve::Direct => {
+                let hessian = curvature.hessian(model.weights.ncols());
+                match solve_positive_definite(hessian, gradient.clone().insert_axis(Axis(1))) {
+                    Some(step) => step.column(0).to_owned(),
+                    None => break,
+                }
+            }
+            NewtonSolve::ConjugateGradient => conjugate_gradient(&curvature, &gradient),
         };
-        let step = step.column(0).to_owned();
+        // The Newton decrement gᵀH⁻¹g / 2 is the decrease the step promises; once it is
+        // below the objective's own rounding, no step can be told from none.
+        if gradient.dot(&step) / 2.0 <= NEGLIGIBLE_DECREASE * (1.0 + objective.abs()) {
+            break;
+        }
         // Backtracking (Armijo): Newton's full step can overshoot far from the optimum.
         let mut size = 1.0;
         let mut accepted = false;
@@ -171,52 +227,143 @@ fn softplus(z: f64) -> f64 {
     }
 }
 
-/// The objective's gradient and Hessian over the parameter vector (see `stepped`).
-fn logistic_derivatives(
+/// What the objective's derivatives at one model need: the training rows with a
+/// column of ones for the intercepts, and the model's probabilities on them.
+struct Curvature {
+    /// `rows × (inputs + 1)`.
+    augmented: Array2<f64>,
+    probabilities: Array2<f64>,
+}
+
+impl Curvature {
+    fn at(model: &LinearModel, x: ArrayView2<f64>) -> Curvature {
+        let (n, inputs) = x.dim();
+        let mut augmented = Array2::ones((n, inputs + 1));
+        augmented.slice_mut(s![.., ..inputs]).assign(&x);
+        Curvature {
+            augmented,
+            probabilities: model.predict(x),
+        }
+    }
+
+    fn width(&self) -> usize {
+        self.augmented.ncols()
+    }
+
+    /// The Hessian over the parameter vector (see `stepped`), formed whole.
+    fn hessian(&self, outputs: usize) -> Array2<f64> {
+        let width = self.width();
+        let mut hessian = Array2::zeros((outputs * width, outputs * width));
+        for k in 0..outputs {
+            for l in 0..outputs {
+                // ∂p_k/∂z_l = p_k (δ_kl − p_l); for one sigmoid column, p (1 − p).
+                let kronecker = f64::from(u8::from(k == l));
+                let curvature: Array1<f64> = self
+                    .probabilities
+                    .rows()
+                    .into_iter()
+                    .map(|p| p[k] * (kronecker - p[l]))
+                    .collect();
+                let weighted = &self.augmented * &curvature.insert_axis(Axis(1));
+                hessian
+                    .slice_mut(s![k * width..(k + 1) * width, l * width..(l + 1) * width])
+                    .assign(&self.augmented.t().dot(&weighted));
+            }
+        }
+        for at in 0..outputs * width {
+            hessian[[at, at]] += penalty_at(at, width);
+        }
+        hessian
+    }
+
+    /// The Hessian times `direction`, without forming the Hessian: with `S = A · V`
+    /// (`V` the direction as `width × outputs`), column k of the data term is
+    /// `Aᵀ [p_k ⊙ (S_k − Σ_l p_l S_l)]`, the same p_k (δ_kl − p_l) as `hessian`.
+    fn times(&self, direction: &Array1<f64>) -> Array1<f64> {
+        let width = self.width();
+        let outputs = self.probabilities.ncols();
+        let v = Array2::from_shape_fn((width, outputs), |(j, k)| direction[k * width + j]);
+        let scores = self.augmented.dot(&v);
+        let mut weighted = Array2::zeros(scores.raw_dim());
+        for ((p, s), mut w) in self
+            .probabilities
+            .rows()
+            .into_iter()
+            .zip(scores.rows())
+            .zip(weighted.rows_mut())
+        {
+            let mixed = if outputs == 1 { p[0] * s[0] } else { p.dot(&s) };
+            for k in 0..outputs {
+                w[k] = p[k] * (s[k] - mixed);
+            }
+        }
+        let data = self.augmented.t().dot(&weighted);
+        Array1::from_shape_fn(outputs * width, |at| {
+            data[[at % width, at / width]] + penalty_at(at, width) * direction[at]
+        })
+    }
+}
+
+/// The curvature the penalty adds at parameter `at`: `PENALTY` on a weight. The
+/// softmax's intercepts share one flat direction (see `stepped`); a touch of curvature
+/// there keeps the Newton system solvable without moving the optimum.
+fn penalty_at(at: usize, width: usize) -> f64 {
+    if at % width == width - 1 {
+        1e-9
+    } else {
+        PENALTY
+    }
+}
+
+/// The objective's gradient over the parameter vector (see `stepped`).
+fn logistic_gradient(
     model: &LinearModel,
-    x: ArrayView2<f64>,
+    curvature: &Curvature,
     y: ArrayView2<f64>,
-) -> (Array1<f64>, Array2<f64>) {
-    let (n, inputs) = x.dim();
+) -> Array1<f64> {
+    let width = curvature.width();
+    let inputs = width - 1;
     let outputs = model.weights.ncols();
-    let width = inputs + 1;
-    let mut augmented = Array2::ones((n, width));
-    augmented.slice_mut(s![.., ..inputs]).assign(&x);
-    let probabilities = model.predict(x);
-    let residual = &probabilities - &y;
+    let residual = &curvature.probabilities - &y;
     let mut gradient = Array1::zeros(outputs * width);
-    let mut hessian = Array2::zeros((outputs * width, outputs * width));
     for k in 0..outputs {
-        let block = augmented.t().dot(&residual.column(k));
+        let block = curvature.augmented.t().dot(&residual.column(k));
         gradient
             .slice_mut(s![k * width..(k + 1) * width])
             .assign(&block);
-        for l in 0..outputs {
-            // ∂p_k/∂z_l = p_k (δ_kl − p_l); for one sigmoid column, p (1 − p).
-            let kronecker = f64::from(u8::from(k == l));
-            let curvature: Array1<f64> = probabilities
-                .rows()
-                .into_iter()
-                .map(|p| p[k] * (kronecker - p[l]))
-                .collect();
-            let weighted = &augmented * &curvature.insert_axis(Axis(1));
-            hessian
-                .slice_mut(s![k * width..(k + 1) * width, l * width..(l + 1) * width])
-                .assign(&augmented.t().dot(&weighted));
-        }
-    }
-    for k in 0..outputs {
         for j in 0..inputs {
-            let at = k * width + j;
-            gradient[at] += PENALTY * model.weights[[j, k]];
-            hessian[[at, at]] += PENALTY;
+            gradient[k * width + j] += PENALTY * model.weights[[j, k]];
         }
-        // The softmax's intercepts share one flat direction (see `stepped`); a touch of
-        // curvature there keeps the Newton system solvable without moving the optimum.
-        let at = k * width + inputs;
-        hessian[[at, at]] += 1e-9;
     }
-    (gradient, hessian)
+    gradient
+}
+
+/// Solves `H · step = gradient` by conjugate gradients, to the relative accuracy a
+/// truncated Newton method needs (min(½, √‖g‖) · ‖g‖, which converges superlinearly).
+fn conjugate_gradient(curvature: &Curvature, gradient: &Array1<f64>) -> Array1<f64> {
+    let norm = gradient.dot(gradient).sqrt();
+    let tolerance = norm * norm.sqrt().min(0.5);
+    let mut step = Array1::zeros(gradient.len());
+    let mut residual = gradient.clone();
+    let mut direction = residual.clone();
+    let mut residual_squared = residual.dot(&residual);
+    for _ in 0..MAX_CONJUGATE_STEPS {
+        if residual_squared.sqrt() <= tolerance {
+            break;
+        }
+        let curved = curvature.times(&direction);
+        let along = direction.dot(&curved);
+        if !(along > 0.0) {
+            break;
+        }
+        let size = residual_squared / along;
+        step.scaled_add(size, &direction);
+        residual.scaled_add(-size, &curved);
+        let next = residual.dot(&residual);
+        direction = &residual + &(next / residual_squared * &direction);
+        residual_squared = next;
+    }
+    step
 }
 
 fn softmax_rows(mut scores: Array2<f64>) -> Array2<f64> {
@@ -297,8 +444,82 @@ mod tests {
         let x = array![[-2.0], [-1.0], [0.0], [0.5], [1.0], [2.0]];
         let y = array![[0.0], [0.0], [1.0], [0.0], [1.0], [1.0]];
         let model = fit_logistic(x.view(), y.view());
-        let (gradient, _) = logistic_derivatives(&model, x.view(), y.view());
+        let gradient = logistic_gradient(&model, &Curvature::at(&model, x.view()), y.view());
         assert!(gradient.iter().all(|g| g.abs() < 1e-9), "{gradient}");
         assert!(model.weights[[0, 0]] > 0.0);
+    }
+
+    /// Invented rows: `inputs` columns from a fixed sequence, and a class from which of
+    /// the first `classes` columns is largest, with every seventh row's class moved on,
+    /// so the classes overlap and the optimum is finite.
+    fn overlapping_classes(
+        rows: usize,
+        inputs: usize,
+        classes: usize,
+    ) -> (Array2<f64>, Array2<f64>) {
+        let x = Array2::from_shape_fn((rows, inputs), |(i, j)| {
+            ((i * 7919 + j * 104_729) % 1000) as f64 / 250.0 - 2.0
+        });
+        let mut y = Array2::zeros((rows, classes.max(2) - usize::from(classes == 2)));
+        for i in 0..rows {
+            let first =
+                (0..classes).fold(0, |best, j| if x[[i, j]] > x[[i, best]] { j } else { best });
+            let class = if i % 7 == 0 {
+                (first + 1) % classes
+            } else {
+                first
+            };
+            match classes {
+                2 => y[[i, 0]] = class as f64,
+                _ => y[[i, class]] = 1.0,
+            }
+        }
+        (x, y)
+    }
+
+    // The Hessian–vector product is the formed Hessian's, column by column.
+    #[test]
+    fn the_hessian_times_a_vector_matches_the_formed_hessian() {
+        let (x, y) = overlapping_classes(40, 3, 3);
+        let model = fit_logistic_by(x.view(), y.view(), NewtonSolve::Direct);
+        let curvature = Curvature::at(&model, x.view());
+        let hessian = curvature.hessian(3);
+        for at in 0..hessian.ncols() {
+            let mut unit = Array1::zeros(hessian.ncols());
+            unit[at] = 1.0;
+            let product = curvature.times(&unit);
+            for (a, b) in product.iter().zip(hessian.column(at)) {
+                assert!((a - b).abs() <= 1e-12 * (1.0 + b.abs()), "{a} vs {b}");
+            }
+        }
+    }
+
+    // Conjugate gradients reach the same optimum as the exact Newton solve (which
+    // tests/judge_reference.rs checks against scikit-learn), two classes and several.
+    #[test]
+    fn conjugate_gradients_reach_the_exact_newton_optimum() {
+        for classes in [2, 4] {
+            let (x, y) = overlapping_classes(300, 6, classes);
+            let exact = fit_logistic_by(x.view(), y.view(), NewtonSolve::Direct);
+            let truncated = fit_logistic_by(x.view(), y.view(), NewtonSolve::ConjugateGradient);
+            for (a, b) in exact.weights.iter().zip(&truncated.weights) {
+                assert!((a - b).abs() < 1e-8, "{classes} classes: {a} vs {b}");
+            }
+            for (a, b) in exact.intercepts.iter().zip(&truncated.intercepts) {
+                assert!((a - b).abs() < 1e-8, "{classes} classes: {a} vs {b}");
+            }
+        }
+    }
+
+    // Wide inputs with many classes go to conjugate gradients; the small tables the
+    // reference checks use stay on the exact solve.
+    #[test]
+    fn only_large_hessians_are_left_unformed() {
+        assert_eq!(NewtonSolve::for_size(150, 15), NewtonSolve::Direct);
+        assert_eq!(NewtonSolve::for_size(1437, 650), NewtonSolve::Direct);
+        assert_eq!(
+            NewtonSolve::for_size(48_000, 7850),
+            NewtonSolve::ConjugateGradient
+        );
     }
 }

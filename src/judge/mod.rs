@@ -21,7 +21,7 @@ use stats::Interval;
 /// 2: a judgement keeps each fold's own intervals.
 /// 3: a judgement keeps the held-out rows' lines and their diagnosis (ROC,
 ///    reliability, per-target fits).
-pub(crate) const JUDGE_VERSION: u32 = 3;
+pub(crate) const JUDGE_VERSION: u32 = 4;
 
 /// Held-out scores of one set of outputs.
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
