@@ -21,6 +21,8 @@ use stats::Interval;
 /// 2: a judgement keeps each fold's own intervals.
 /// 3: a judgement keeps the held-out rows' lines and their diagnosis (ROC,
 ///    reliability, per-target fits).
+/// 4: the logistic reference stops once its Newton decrement is below rounding, and
+///    takes conjugate-gradient steps on wide inputs with many classes.
 pub(crate) const JUDGE_VERSION: u32 = 4;
 
 /// Held-out scores of one set of outputs.
