@@ -73,6 +73,47 @@ pub(super) fn map<F: Copy>(values: &mut [F], f: impl Fn(F) -> F) {
     values.iter_mut().for_each(|v| *v = f(*v));
 }
 
+/// `out[i] ← f(a[i], b[i])` for every `i < out.len()`, vectorised as [`map`] is.
+///
+/// # Panics
+/// If `a` or `b` is shorter than `out`.
+#[inline]
+pub(super) fn zip_map<F: Copy>(out: &mut [F], a: &[F], b: &[F], f: impl Fn(F, F) -> F) {
+    let (a, b) = (&a[..out.len()], &b[..out.len()]);
+    #[cfg(target_arch = "x86_64")]
+    if std::arch::is_x86_feature_detected!("avx512f") {
+        // SAFETY: AVX-512 F was detected.
+        unsafe { zip_map_avx512(out, a, b, f) };
+        return;
+    }
+    #[cfg(target_arch = "x86_64")]
+    if std::arch::is_x86_feature_detected!("avx2") {
+        // SAFETY: AVX2 was detected.
+        unsafe { zip_map_avx2(out, a, b, f) };
+        return;
+    }
+    zip_map_scalar(out, a, b, f);
+}
+
+#[inline(always)]
+fn zip_map_scalar<F: Copy>(out: &mut [F], a: &[F], b: &[F], f: impl Fn(F, F) -> F) {
+    out.iter_mut()
+        .zip(a.iter().zip(b))
+        .for_each(|(o, (&a, &b))| *o = f(a, b));
+}
+
+#[cfg(target_arch = "x86_64")]
+#[target_feature(enable = "avx2")]
+fn zip_map_avx2<F: Copy>(out: &mut [F], a: &[F], b: &[F], f: impl Fn(F, F) -> F) {
+    zip_map_scalar(out, a, b, f);
+}
+
+#[cfg(target_arch = "x86_64")]
+#[target_feature(enable = "avx512f")]
+fn zip_map_avx512<F: Copy>(out: &mut [F], a: &[F], b: &[F], f: impl Fn(F, F) -> F) {
+    zip_map_scalar(out, a, b, f);
+}
+
 #[cfg(target_arch = "x86_64")]
 #[target_feature(enable = "avx2")]
 fn map_avx2<F: Copy>(values: &mut [F], f: impl Fn(F) -> F) {
@@ -142,6 +183,37 @@ mod tests {
         let expected: Vec<f64> = values.iter().map(|&v| exp(-v.abs())).collect();
         map(&mut values, |v| exp(-v.abs()));
         assert_eq!(values, expected);
+    }
+
+    /// Every width of the two-operand map gives the scalar loop's bits,
+    /// including the lanes of a ragged end.
+    #[test]
+    fn every_width_of_the_two_operand_map_matches_the_scalar_loop() {
+        let a: Vec<f64> = (0..1003).map(|i| (i as f64 - 500.0) / 7.0).collect();
+        let b: Vec<f64> = (0..1003).map(|i| ((i * 37) % 11) as f64 - 5.5).collect();
+        let residual = |o: f64, t: f64| (o - t) / 3.0;
+        let expected: Vec<f64> = a.iter().zip(&b).map(|(&o, &t)| residual(o, t)).collect();
+        let mut out = vec![f64::NAN; 1003];
+        zip_map(&mut out, &a, &b, residual);
+        assert_eq!(out, expected);
+        #[cfg(target_arch = "x86_64")]
+        for (width, available) in [
+            ("AVX2", std::arch::is_x86_feature_detected!("avx2")),
+            ("AVX-512", std::arch::is_x86_feature_detected!("avx512f")),
+        ] {
+            if !available {
+                continue;
+            }
+            let mut out = vec![f64::NAN; 1003];
+            // SAFETY: the width's instructions were detected.
+            unsafe {
+                match width {
+                    "AVX2" => zip_map_avx2(&mut out, &a, &b, residual),
+                    _ => zip_map_avx512(&mut out, &a, &b, residual),
+                }
+            }
+            assert_eq!(out, expected, "{width}");
+        }
     }
 
     /// Each vector width this processor has gives the scalar loop's bits,
