@@ -151,10 +151,27 @@ fn sgd<F: Float, D: Dimension>(
     learning_rate: F,
     momentum: F,
 ) {
-    Zip::from(w).and(g).and(v).for_each(|w, &g, v| {
+    let step = |w: &mut F, g: F, v: &mut F| {
         *v = momentum * *v - learning_rate * g;
         *w += *v;
-    });
+    };
+    // Parameters, gradients and velocities are all built row-major; as plain
+    // slices the update is one short loop, where a small layer's `Zip` costs
+    // more in setting up than in arithmetic.
+    if let (Some(ws), Some(gs), Some(vs)) = (w.as_slice_mut(), g.as_slice(), v.as_slice_mut())
+        && ws.len() == gs.len()
+        && ws.len() == vs.len()
+    {
+        ws.iter_mut()
+            .zip(gs)
+            .zip(vs)
+            .for_each(|((w, &g), v)| step(w, g, v));
+        return;
+    }
+    Zip::from(w)
+        .and(g)
+        .and(v)
+        .for_each(|w, &g, v| step(w, g, v));
 }
 
 /// Adam's constants for one step.
