@@ -284,17 +284,29 @@ mod x86 {
     #[target_feature(enable = "avx2,fma")]
     pub(super) unsafe fn direct(s: &Shape, a: *const f64, b: *const f64, c: *mut f64) {
         let mut i = 0;
-        while i < s.m {
-            // SAFETY (all tiles): rows i.. and the columns named lie inside
-            // A, B and C.
-            unsafe {
-                if s.m - i >= ROWS {
-                    row_tiles::<ROWS>(s, a, b, c, i);
-                    i += ROWS;
-                } else {
-                    row_tiles::<1>(s, a, b, c, i);
-                    i += 1;
+        // SAFETY (all tiles): rows i.. and the columns named lie inside A, B
+        // and C.
+        unsafe {
+            // Products one vector wide (a layer of a few classes, or its
+            // gradient over a long batch) take eight rows a tile, so that
+            // eight independent chains hide the latency as two vectors a row
+            // do for wider ones.
+            if s.n <= LANES {
+                while s.m - i >= 2 * ROWS {
+                    row_tiles::<{ 2 * ROWS }>(s, a, b, c, i);
+                    i += 2 * ROWS;
                 }
+            }
+            while s.m - i >= ROWS {
+                row_tiles::<ROWS>(s, a, b, c, i);
+                i += ROWS;
+            }
+            // The last rows together, for the same reason.
+            match s.m - i {
+                3 => row_tiles::<3>(s, a, b, c, i),
+                2 => row_tiles::<2>(s, a, b, c, i),
+                1 => row_tiles::<1>(s, a, b, c, i),
+                _ => {}
             }
         }
     }
