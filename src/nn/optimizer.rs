@@ -17,6 +17,7 @@ use serde::{Deserialize, Serialize};
 use super::backprop::LayerGradient;
 use super::float::Float;
 use super::network::Network;
+use super::vector;
 
 /// The update rule and its hyper-parameters.
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
@@ -156,16 +157,13 @@ fn sgd<F: Float, D: Dimension>(
         *w += *v;
     };
     // Parameters, gradients and velocities are all built row-major; as plain
-    // slices the update is one short loop, where a small layer's `Zip` costs
-    // more in setting up than in arithmetic.
+    // slices the update is one vectorised loop, where a small layer's `Zip`
+    // costs more in setting up than in arithmetic.
     if let (Some(ws), Some(gs), Some(vs)) = (w.as_slice_mut(), g.as_slice(), v.as_slice_mut())
         && ws.len() == gs.len()
         && ws.len() == vs.len()
     {
-        ws.iter_mut()
-            .zip(gs)
-            .zip(vs)
-            .for_each(|((w, &g), v)| step(w, g, v));
+        vector::update(ws, vs, gs, |w, v, g| step(w, g, v));
         return;
     }
     Zip::from(w)

@@ -95,6 +95,49 @@ pub(super) fn zip_map<F: Copy>(out: &mut [F], a: &[F], b: &[F], f: impl Fn(F, F)
     zip_map_scalar(out, a, b, f);
 }
 
+/// `step(&mut w[i], &mut v[i], g[i])` for every `i < w.len()`: a parameter,
+/// its optimiser state and its gradient, vectorised as [`map`] is.
+///
+/// # Panics
+/// If `v` or `g` is shorter than `w`.
+#[inline]
+pub(super) fn update<F: Copy>(w: &mut [F], v: &mut [F], g: &[F], step: impl Fn(&mut F, &mut F, F)) {
+    let (v, g) = (&mut v[..w.len()], &g[..w.len()]);
+    #[cfg(target_arch = "x86_64")]
+    if std::arch::is_x86_feature_detected!("avx512f") {
+        // SAFETY: AVX-512 F was detected.
+        unsafe { update_avx512(w, v, g, step) };
+        return;
+    }
+    #[cfg(target_arch = "x86_64")]
+    if std::arch::is_x86_feature_detected!("avx2") {
+        // SAFETY: AVX2 was detected.
+        unsafe { update_avx2(w, v, g, step) };
+        return;
+    }
+    update_scalar(w, v, g, step);
+}
+
+#[inline(always)]
+fn update_scalar<F: Copy>(w: &mut [F], v: &mut [F], g: &[F], step: impl Fn(&mut F, &mut F, F)) {
+    w.iter_mut()
+        .zip(v.iter_mut())
+        .zip(g)
+        .for_each(|((w, v), &g)| step(w, v, g));
+}
+
+#[cfg(target_arch = "x86_64")]
+#[target_feature(enable = "avx2")]
+fn update_avx2<F: Copy>(w: &mut [F], v: &mut [F], g: &[F], step: impl Fn(&mut F, &mut F, F)) {
+    update_scalar(w, v, g, step);
+}
+
+#[cfg(target_arch = "x86_64")]
+#[target_feature(enable = "avx512f")]
+fn update_avx512<F: Copy>(w: &mut [F], v: &mut [F], g: &[F], step: impl Fn(&mut F, &mut F, F)) {
+    update_scalar(w, v, g, step);
+}
+
 #[inline(always)]
 fn zip_map_scalar<F: Copy>(out: &mut [F], a: &[F], b: &[F], f: impl Fn(F, F) -> F) {
     out.iter_mut()
@@ -213,6 +256,41 @@ mod tests {
                 }
             }
             assert_eq!(out, expected, "{width}");
+        }
+    }
+
+    /// Every width of the parameter update gives the scalar loop's bits (a
+    /// momentum step), including the lanes of a ragged end.
+    #[test]
+    fn every_width_of_the_parameter_update_matches_the_scalar_loop() {
+        let start: Vec<f64> = (0..1003).map(|i| (i as f64 - 500.0) / 7.0).collect();
+        let velocity: Vec<f64> = (0..1003).map(|i| ((i * 37) % 11) as f64 * 0.01).collect();
+        let gradient: Vec<f64> = (0..1003).map(|i| ((i * 13) % 7) as f64 - 3.1).collect();
+        let step = |w: &mut f64, v: &mut f64, g: f64| {
+            *v = 0.9 * *v - 0.1 * g;
+            *w += *v;
+        };
+        let fresh = || (start.clone(), velocity.clone());
+        let (mut w, mut v) = fresh();
+        update_scalar(&mut w, &mut v, &gradient, step);
+        let expected = (w, v);
+        let (mut w, mut v) = fresh();
+        update(&mut w, &mut v, &gradient, step);
+        assert_eq!((w, v), expected);
+        #[cfg(target_arch = "x86_64")]
+        {
+            if std::arch::is_x86_feature_detected!("avx2") {
+                let (mut w, mut v) = fresh();
+                // SAFETY: AVX2 was detected.
+                unsafe { update_avx2(&mut w, &mut v, &gradient, step) };
+                assert_eq!((w, v), expected, "AVX2");
+            }
+            if std::arch::is_x86_feature_detected!("avx512f") {
+                let (mut w, mut v) = fresh();
+                // SAFETY: AVX-512 F was detected.
+                unsafe { update_avx512(&mut w, &mut v, &gradient, step) };
+                assert_eq!((w, v), expected, "AVX-512");
+            }
         }
     }
 
