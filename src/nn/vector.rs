@@ -138,6 +138,49 @@ fn update_avx512<F: Copy>(w: &mut [F], v: &mut [F], g: &[F], step: impl Fn(&mut 
     update_scalar(w, v, g, step);
 }
 
+/// `values[i] ← f(values[i], other[i])` for every `i < values.len()`,
+/// vectorised as [`map`] is.
+///
+/// # Panics
+/// If `other` is shorter than `values`.
+#[inline]
+pub(super) fn map_with<F: Copy>(values: &mut [F], other: &[F], f: impl Fn(F, F) -> F) {
+    let other = &other[..values.len()];
+    #[cfg(target_arch = "x86_64")]
+    if std::arch::is_x86_feature_detected!("avx512f") {
+        // SAFETY: AVX-512 F was detected.
+        unsafe { map_with_avx512(values, other, f) };
+        return;
+    }
+    #[cfg(target_arch = "x86_64")]
+    if std::arch::is_x86_feature_detected!("avx2") {
+        // SAFETY: AVX2 was detected.
+        unsafe { map_with_avx2(values, other, f) };
+        return;
+    }
+    map_with_scalar(values, other, f);
+}
+
+#[inline(always)]
+fn map_with_scalar<F: Copy>(values: &mut [F], other: &[F], f: impl Fn(F, F) -> F) {
+    values
+        .iter_mut()
+        .zip(other)
+        .for_each(|(v, &o)| *v = f(*v, o));
+}
+
+#[cfg(target_arch = "x86_64")]
+#[target_feature(enable = "avx2")]
+fn map_with_avx2<F: Copy>(values: &mut [F], other: &[F], f: impl Fn(F, F) -> F) {
+    map_with_scalar(values, other, f);
+}
+
+#[cfg(target_arch = "x86_64")]
+#[target_feature(enable = "avx512f")]
+fn map_with_avx512<F: Copy>(values: &mut [F], other: &[F], f: impl Fn(F, F) -> F) {
+    map_with_scalar(values, other, f);
+}
+
 #[inline(always)]
 fn zip_map_scalar<F: Copy>(out: &mut [F], a: &[F], b: &[F], f: impl Fn(F, F) -> F) {
     out.iter_mut()
@@ -228,10 +271,10 @@ mod tests {
         assert_eq!(values, expected);
     }
 
-    /// Every width of the two-operand map gives the scalar loop's bits,
-    /// including the lanes of a ragged end.
+    /// Every width of the two-operand maps, into a third buffer and in
+    /// place, gives the scalar loop's bits, including the lanes of a ragged end.
     #[test]
-    fn every_width_of_the_two_operand_map_matches_the_scalar_loop() {
+    fn every_width_of_the_two_operand_maps_matches_the_scalar_loop() {
         let a: Vec<f64> = (0..1003).map(|i| (i as f64 - 500.0) / 7.0).collect();
         let b: Vec<f64> = (0..1003).map(|i| ((i * 37) % 11) as f64 - 5.5).collect();
         let residual = |o: f64, t: f64| (o - t) / 3.0;
@@ -239,6 +282,9 @@ mod tests {
         let mut out = vec![f64::NAN; 1003];
         zip_map(&mut out, &a, &b, residual);
         assert_eq!(out, expected);
+        let mut in_place = a.clone();
+        map_with(&mut in_place, &b, residual);
+        assert_eq!(in_place, expected, "in place");
         #[cfg(target_arch = "x86_64")]
         for (width, available) in [
             ("AVX2", std::arch::is_x86_feature_detected!("avx2")),
@@ -256,6 +302,15 @@ mod tests {
                 }
             }
             assert_eq!(out, expected, "{width}");
+            let mut in_place = a.clone();
+            // SAFETY: the width's instructions were detected.
+            unsafe {
+                match width {
+                    "AVX2" => map_with_avx2(&mut in_place, &b, residual),
+                    _ => map_with_avx512(&mut in_place, &b, residual),
+                }
+            }
+            assert_eq!(in_place, expected, "{width}, in place");
         }
     }
 
