@@ -13,7 +13,9 @@
 //! `A·B` as one fused multiply–add chain over `k` in order, starting from
 //! zero, in blocks of [`KC`] values of `k`, and then adds the block to `C`
 //! (`C ← ab + C`, or `C ← ab + 0` for the first block without accumulation).
-//! The kernels here do exactly that; where the
+//! The kernels here do exactly that; a layer's [`affine`] map reads its
+//! bias where the first block would read `C`, the same addition as filling
+//! `C`'s rows with the bias first. Where the
 //! processor lacks AVX2 or FMA, `matrixmultiply` uses other kernels with other
 //! rounding, so every product goes to it and nothing changes there.
 
