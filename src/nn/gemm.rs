@@ -109,7 +109,8 @@ fn fill_rows<T: Copy>(values: &mut [T], row: &[T]) {
 
 /// Runs the product in the direct kernel when it applies (small, row-
 /// contiguous `b` and `c`, non-negative strides, AVX2 and FMA) and returns
-/// `None`; otherwise hands `c` back untouched.
+/// `None`, as it does when `c` is empty (nothing to compute); otherwise hands
+/// `c` back untouched.
 ///
 /// # Panics
 /// If the shapes do not chain.
@@ -149,6 +150,7 @@ fn try_direct<'c>(
         unsafe { x86::direct(&shape, a.as_ptr(), b.as_ptr(), c.as_mut_ptr()) };
         return None;
     }
+    // Only the direct kernel reads `start`; the other paths are told by their callers.
     let _ = start;
     Some(c)
 }
