@@ -150,7 +150,7 @@ impl<F: Float> Workspace<F> {
                 let (inputs, outputs) = weights.dim();
                 if F::reads_rows(n, outputs, inputs) {
                     let transposed = &mut self.transposed[l];
-                    transposed.assign(&weights.t());
+                    transpose_into(weights, transposed);
                     F::gemm(delta, transposed.view(), false, below.view_mut());
                 } else {
                     F::gemm(delta, weights.t(), false, below.view_mut());
@@ -159,6 +159,23 @@ impl<F: Float> Workspace<F> {
             }
         }
         total
+    }
+}
+
+/// `out ← weightsᵀ`, by plain loops over the row-major buffers where
+/// ndarray's assignment of a transposed view costs more, for a small layer,
+/// than the copying.
+fn transpose_into<F: Float>(weights: &Array2<F>, out: &mut Array2<F>) {
+    let (inputs, outputs) = weights.dim();
+    match (weights.as_slice(), out.as_slice_mut()) {
+        (Some(w), Some(o)) if inputs > 0 && outputs > 0 => {
+            for (i, row) in w.chunks_exact(outputs).enumerate() {
+                for (j, &value) in row.iter().enumerate() {
+                    o[j * inputs + i] = value;
+                }
+            }
+        }
+        _ => out.assign(&weights.t()),
     }
 }
 
@@ -243,6 +260,17 @@ mod tests {
                 every_other += &row;
             }
             assert_eq!(strided, every_other, "width {width}, strided");
+        }
+    }
+
+    /// The loops give ndarray's transpose, for square, wide and tall layers.
+    #[test]
+    fn transposing_by_loops_gives_the_transposed_view() {
+        for (inputs, outputs) in [(1, 1), (4, 8), (8, 3), (3, 16)] {
+            let weights = Array2::from_shape_fn((inputs, outputs), |(i, j)| (i * 100 + j) as f64);
+            let mut out = Array2::from_elem((outputs, inputs), f64::NAN);
+            transpose_into(&weights, &mut out);
+            assert_eq!(out, weights.t(), "{inputs} x {outputs}");
         }
     }
 

@@ -56,6 +56,9 @@ pub trait Float: NdFloat {
     /// `c ← a·b`, or `c ← a·b + c` with `accumulate` (see `gemm`).
     fn gemm(a: ArrayView2<Self>, b: ArrayView2<Self>, accumulate: bool, c: ArrayViewMut2<Self>);
 
+    /// `c ← a·b + bias`, `bias` added to every row (see `gemm::affine`).
+    fn affine(a: ArrayView2<Self>, b: ArrayView2<Self>, bias: &[Self], c: ArrayViewMut2<Self>);
+
     /// Whether [`Float::gemm`] takes a kernel that reads its right operand by rows
     /// for an `(m × k)·(k × n)` product, so that a transposed right operand is worth
     /// copying first.
@@ -86,6 +89,10 @@ impl Float for f64 {
 
     fn gemm(a: ArrayView2<f64>, b: ArrayView2<f64>, accumulate: bool, c: ArrayViewMut2<f64>) {
         gemm::gemm(a, b, accumulate, c);
+    }
+
+    fn affine(a: ArrayView2<f64>, b: ArrayView2<f64>, bias: &[f64], c: ArrayViewMut2<f64>) {
+        gemm::affine(a, b, bias, c);
     }
 
     fn reads_rows(m: usize, k: usize, n: usize) -> bool {
@@ -120,6 +127,10 @@ impl Float for f32 {
 
     fn gemm(a: ArrayView2<f32>, b: ArrayView2<f32>, accumulate: bool, c: ArrayViewMut2<f32>) {
         gemm::gemm_f32(a, b, accumulate, c);
+    }
+
+    fn affine(a: ArrayView2<f32>, b: ArrayView2<f32>, bias: &[f32], c: ArrayViewMut2<f32>) {
+        gemm::affine_f32(a, b, bias, c);
     }
 
     fn reads_rows(_: usize, _: usize, _: usize) -> bool {

@@ -13,7 +13,9 @@
 //! `A·B` as one fused multiply–add chain over `k` in order, starting from
 //! zero, in blocks of [`KC`] values of `k`, and then adds the block to `C`
 //! (`C ← ab + C`, or `C ← ab + 0` for the first block without accumulation).
-//! The kernels here do exactly that; where the
+//! The kernels here do exactly that; a layer's [`affine`] map reads its
+//! bias where the first block would read `C`, the same addition as filling
+//! `C`'s rows with the bias first. Where the
 //! processor lacks AVX2 or FMA, `matrixmultiply` uses other kernels with other
 //! rounding, so every product goes to it and nothing changes there.
 
@@ -42,11 +44,85 @@ pub(crate) fn gemm(
     a: ArrayView2<f64>,
     b: ArrayView2<f64>,
     accumulate: bool,
-    mut c: ArrayViewMut2<f64>,
+    c: ArrayViewMut2<f64>,
 ) {
+    let start = if accumulate { Start::C } else { Start::Zero };
+    if let Some(c) = try_direct(a, b, start, c) {
+        packed_or_general(a, b, accumulate, c);
+    }
+}
+
+/// `c ← a·b + bias`, `bias` added to every row: a layer's affine map. The
+/// same bits as setting each row of `c` to `bias` and accumulating `a·b` onto
+/// it, which is what happens where the direct kernel does not apply; the
+/// direct kernel reads the bias where it would have read `c`, which saves
+/// writing the rows.
+///
+/// # Panics
+/// If the shapes do not chain or `bias` is not one value per column of `c`.
+pub(crate) fn affine(a: ArrayView2<f64>, b: ArrayView2<f64>, bias: &[f64], c: ArrayViewMut2<f64>) {
+    assert_eq!(bias.len(), c.ncols(), "one bias per column");
+    if let Some(mut c) = try_direct(a, b, Start::Bias(bias.as_ptr()), c) {
+        set_rows(&mut c, bias);
+        packed_or_general(a, b, true, c);
+    }
+}
+
+/// [`affine`] in single precision (no direct kernel).
+///
+/// # Panics
+/// As [`affine`].
+pub(crate) fn affine_f32(
+    a: ArrayView2<f32>,
+    b: ArrayView2<f32>,
+    bias: &[f32],
+    mut c: ArrayViewMut2<f32>,
+) {
+    assert_eq!(bias.len(), c.ncols(), "one bias per column");
+    set_rows(&mut c, bias);
+    gemm_f32(a, b, true, c);
+}
+
+/// Every row of `c` set to `row`.
+fn set_rows<T: Copy>(c: &mut ArrayViewMut2<T>, row: &[T]) {
+    match c.as_slice_mut() {
+        Some(values) if !values.is_empty() => fill_rows(values, row),
+        _ => c.rows_mut().into_iter().for_each(|mut r| {
+            r.iter_mut().zip(row).for_each(|(v, &b)| *v = b);
+        }),
+    }
+}
+
+/// Every row of the row-major `values` set to `row`, by doubling the filled
+/// part: a few long copies instead of one short copy per row, which for narrow
+/// layers costs more in calls than in bytes (and ndarray's broadcasting
+/// assignment more still).
+fn fill_rows<T: Copy>(values: &mut [T], row: &[T]) {
+    values[..row.len()].copy_from_slice(row);
+    let mut filled = row.len();
+    while filled < values.len() {
+        let copy = filled.min(values.len() - filled);
+        values.copy_within(..copy, filled);
+        filled += copy;
+    }
+}
+
+/// Runs the product in the direct kernel when it applies (small, row-
+/// contiguous `b` and `c`, non-negative strides, AVX2 and FMA) and returns
+/// `None`, as it does when `c` is empty (nothing to compute); otherwise hands
+/// `c` back untouched.
+///
+/// # Panics
+/// If the shapes do not chain.
+fn try_direct<'c>(
+    a: ArrayView2<f64>,
+    b: ArrayView2<f64>,
+    start: Start,
+    mut c: ArrayViewMut2<'c, f64>,
+) -> Option<ArrayViewMut2<'c, f64>> {
     let (m, k, n) = dimensions(&a, &b, &c);
     if m == 0 || n == 0 {
-        return;
+        return None;
     }
     #[cfg(target_arch = "x86_64")]
     if direct(m, k, n)
@@ -64,13 +140,31 @@ pub(crate) fn gemm(
             csa: a.strides()[1] as usize,
             ldb: b.strides()[0] as usize,
             ldc: c.strides()[0] as usize,
-            accumulate,
+            start,
         };
         // SAFETY: `direct` detected AVX2 and FMA; the shapes were checked
         // against the views, whose strides are non-negative, so every offset
         // the kernel forms (`i·rsa + p·csa`, `p·ldb + j`, `i·ldc + j` for
-        // `i < m`, `p < k`, `j < n`) lies inside the viewed memory.
+        // `i < m`, `p < k`, `j < n`) lies inside the viewed memory, and a
+        // bias holds one value per column.
         unsafe { x86::direct(&shape, a.as_ptr(), b.as_ptr(), c.as_mut_ptr()) };
+        return None;
+    }
+    // Only the direct kernel reads `start`; the other paths are told by their callers.
+    let _ = start;
+    Some(c)
+}
+
+/// The packed kernel for large products where the processor has AVX-512,
+/// else `matrixmultiply`.
+fn packed_or_general(
+    a: ArrayView2<f64>,
+    b: ArrayView2<f64>,
+    accumulate: bool,
+    mut c: ArrayViewMut2<f64>,
+) {
+    let (m, k, n) = (a.nrows(), a.ncols(), b.ncols());
+    if m == 0 || n == 0 {
         return;
     }
     #[cfg(target_arch = "x86_64")]
@@ -151,29 +245,39 @@ struct Shape {
     csa: usize,
     ldb: usize,
     ldc: usize,
-    accumulate: bool,
+    start: Start,
+}
+
+/// What the first block of `k` is added to (`matrixmultiply` adds each
+/// later block to `C`).
+#[derive(Clone, Copy)]
+#[cfg_attr(not(target_arch = "x86_64"), allow(dead_code))]
+enum Start {
+    /// `ab + 0`, which also turns a −0 sum into +0.
+    Zero,
+    /// `ab + C`.
+    C,
+    /// `ab + bias[j]` in column `j`: `C` as it would be with every row set
+    /// to the bias.
+    Bias(*const f64),
 }
 
 #[cfg(target_arch = "x86_64")]
 mod x86 {
-    use std::cell::RefCell;
+    use std::arch::x86_64::{
+        __m256d, __m256i, _mm256_add_pd, _mm256_broadcast_sd, _mm256_fmadd_pd, _mm256_loadu_pd,
+        _mm256_maskload_pd, _mm256_maskstore_pd, _mm256_set_epi64x, _mm256_setzero_pd,
+        _mm256_storeu_pd,
+    };
 
-    use super::{KC, Shape};
+    use super::{KC, Shape, Start};
 
-    /// Rows of `C` per tile: with [`COLS`] this keeps 4 × 2 vectors of
-    /// accumulators in registers.
+    /// Rows of `C` per tile: with two vectors a row this keeps 4 × 2
+    /// accumulators in registers, enough independent chains to hide the
+    /// fused multiply–add's latency.
     const ROWS: usize = 4;
-    /// Columns of `C` per full-width tile.
-    const COLS: usize = 8;
-    /// Columns per vector; a last group of fewer columns is computed from a
-    /// zero-padded copy of those columns of `B`, so that narrow layers (three
-    /// classes, say) still run four lanes at a time.
+    /// `f64` lanes per AVX2 vector.
     const LANES: usize = 4;
-
-    thread_local! {
-        /// The padded copy of `B`'s last columns, reused between products.
-        static TAIL: RefCell<Vec<f64>> = const { RefCell::new(Vec::new()) };
-    }
 
     /// The direct product. Tiles of `C` are visited in any order (each entry
     /// is independent); within an entry the chain over `k` is sequential.
@@ -183,46 +287,41 @@ mod x86 {
     /// offsets described in [`super::gemm`].
     #[target_feature(enable = "avx2,fma")]
     pub(super) unsafe fn direct(s: &Shape, a: *const f64, b: *const f64, c: *mut f64) {
-        let full = s.n - s.n % LANES;
-        TAIL.with_borrow_mut(|tail| {
-            if full < s.n {
-                // Every lane is written below, so the buffer needs no clearing.
-                if tail.len() < s.k * LANES {
-                    tail.resize(s.k * LANES, 0.0);
-                }
-                for (p, padded) in tail.chunks_exact_mut(LANES).take(s.k).enumerate() {
-                    for (q, v) in padded.iter_mut().enumerate() {
-                        *v = if full + q < s.n {
-                            // SAFETY: p < k and full + q < n.
-                            unsafe { *b.add(p * s.ldb + full + q) }
-                        } else {
-                            0.0
-                        };
-                    }
+        let mut i = 0;
+        // SAFETY (all tiles): rows i.. and the columns named lie inside A, B
+        // and C.
+        unsafe {
+            // Products one vector wide (a layer of a few classes, or its
+            // gradient over a long batch) take eight rows a tile, so that
+            // eight independent chains hide the latency as two vectors a row
+            // do for wider ones.
+            if s.n <= LANES {
+                while s.m - i >= 2 * ROWS {
+                    row_tiles::<{ 2 * ROWS }>(s, a, b, c, i);
+                    i += 2 * ROWS;
                 }
             }
-            let mut i = 0;
-            while i < s.m {
-                // SAFETY (all tiles): rows i.. and the columns named lie inside
-                // A, B (or the padded copy) and C.
-                unsafe {
-                    if s.m - i >= ROWS {
-                        row_tiles::<ROWS>(s, a, b, c, i, full, tail);
-                        i += ROWS;
-                    } else {
-                        row_tiles::<1>(s, a, b, c, i, full, tail);
-                        i += 1;
-                    }
-                }
+            while s.m - i >= ROWS {
+                row_tiles::<ROWS>(s, a, b, c, i);
+                i += ROWS;
             }
-        });
+            // The last rows together, for the same reason.
+            match s.m - i {
+                3 => row_tiles::<3>(s, a, b, c, i),
+                2 => row_tiles::<2>(s, a, b, c, i),
+                1 => row_tiles::<1>(s, a, b, c, i),
+                _ => {}
+            }
+        }
     }
 
-    /// All tiles of rows `i..i + R` of `C`.
+    /// All tiles of rows `i..i + R` of `C`: eight columns at a time, then four,
+    /// then the last one to three through masked loads and stores (the masked
+    /// lanes read nothing and compute with zeros that are never stored), so
+    /// that narrow layers (three classes, say) still run four lanes at a time.
     ///
     /// # Safety
-    /// As [`direct`], with `i + R ≤ m`; `tail` holds the padded last columns
-    /// when `full < n`.
+    /// As [`direct`], with `i + R ≤ m`.
     #[inline(always)]
     unsafe fn row_tiles<const R: usize>(
         s: &Shape,
@@ -230,70 +329,100 @@ mod x86 {
         b: *const f64,
         c: *mut f64,
         i: usize,
-        full: usize,
-        tail: &[f64],
     ) {
         let a = unsafe { a.add(i * s.rsa) };
         let c = unsafe { c.add(i * s.ldc) };
         let mut j = 0;
         unsafe {
-            while j + COLS <= full {
-                tile::<R, COLS>(s, a, b.add(j), s.ldb, c.add(j), COLS);
-                j += COLS;
+            while j + 2 * LANES <= s.n {
+                tile::<R, 2>(s, a, b, c, j, None);
+                j += 2 * LANES;
             }
-            if j < full {
-                tile::<R, LANES>(s, a, b.add(j), s.ldb, c.add(j), LANES);
+            if j + LANES <= s.n {
+                tile::<R, 1>(s, a, b, c, j, None);
+                j += LANES;
             }
-            if full < s.n {
-                tile::<R, LANES>(s, a, tail.as_ptr(), LANES, c.add(full), s.n - full);
+            if j < s.n {
+                tile::<R, 1>(s, a, b, c, j, Some(lane_mask(s.n - j)));
             }
         }
     }
 
-    /// Computes an `R × W` block of `C` from the rows of `A` at `a`, the
-    /// columns of `B` at `b` (row stride `ldb`), and writes its first `cols`
-    /// columns to `c`.
+    /// A mask selecting the first `lanes` (1 to 3) lanes of a vector.
+    #[inline(always)]
+    fn lane_mask(lanes: usize) -> __m256i {
+        let on = |q: usize| if q < lanes { -1 } else { 0 };
+        // SAFETY: AVX is enabled in every caller.
+        unsafe { _mm256_set_epi64x(on(3), on(2), on(1), on(0)) }
+    }
+
+    /// Loads four values at `p`, or with `mask` only the lanes it selects
+    /// (the others are zero and `p` is not read there).
+    #[inline(always)]
+    unsafe fn load(p: *const f64, mask: Option<__m256i>) -> __m256d {
+        unsafe {
+            match mask {
+                Some(mask) => _mm256_maskload_pd(p, mask),
+                None => _mm256_loadu_pd(p),
+            }
+        }
+    }
+
+    /// Computes the `R × 4V` block of `C` at column `j` of the rows of `A` at
+    /// `a` and of `C` at `c`; with `mask`, only the lanes it selects of the
+    /// last vector are read from `B` and written to `C`.
     ///
     /// # Safety
-    /// As [`direct`]: `R` rows of `A` and `C`, `k` rows of `W` values of `B`
-    /// and `cols` values of each row of `C` are in bounds.
+    /// As [`direct`]: `R` rows of `A` and `C`, and columns `j..j + 4V` (the
+    /// masked lanes excepted) of `B`, `C` and a bias are in bounds.
     #[inline(always)]
-    unsafe fn tile<const R: usize, const W: usize>(
+    unsafe fn tile<const R: usize, const V: usize>(
         s: &Shape,
         a: *const f64,
         b: *const f64,
-        ldb: usize,
         c: *mut f64,
-        cols: usize,
+        j: usize,
+        mask: Option<__m256i>,
     ) {
+        let vector_mask = |v: usize| if v + 1 == V { mask } else { None };
         let mut start = 0;
         while start < s.k {
             let end = (start + KC).min(s.k);
-            let mut acc = [[0.0f64; W]; R];
-            for p in start..end {
-                let row = unsafe { &*b.add(p * ldb).cast::<[f64; W]>() };
-                for (r, acc) in acc.iter_mut().enumerate() {
-                    let x = unsafe { *a.add(r * s.rsa + p * s.csa) };
-                    for (acc, &y) in acc.iter_mut().zip(row) {
-                        *acc = x.mul_add(y, *acc);
+            // SAFETY: AVX2 and FMA are enabled in every caller; the offsets
+            // stay inside the operands as documented above.
+            unsafe {
+                let mut acc = [[_mm256_setzero_pd(); V]; R];
+                for p in start..end {
+                    let row = b.add(p * s.ldb + j);
+                    let row: [__m256d; V] =
+                        std::array::from_fn(|v| load(row.add(v * LANES), vector_mask(v)));
+                    for (r, acc) in acc.iter_mut().enumerate() {
+                        let x = _mm256_broadcast_sd(&*a.add(r * s.rsa + p * s.csa));
+                        for (acc, &y) in acc.iter_mut().zip(&row) {
+                            *acc = _mm256_fmadd_pd(x, y, *acc);
+                        }
                     }
                 }
-            }
-            // matrixmultiply adds each block to C, except that the first
-            // block overwrites C when not accumulating (as `ab + 0`, which
-            // also turns a −0 sum into +0).
-            let add = s.accumulate || start > 0;
-            for (r, acc) in acc.iter().enumerate() {
-                let out = unsafe { c.add(r * s.ldc) };
-                if cols == W {
-                    let out = unsafe { &mut *out.cast::<[f64; W]>() };
-                    for (out, &v) in out.iter_mut().zip(acc) {
-                        *out = v + if add { *out } else { 0.0 };
-                    }
-                } else {
-                    for (q, &v) in acc.iter().enumerate().take(cols) {
-                        let out = unsafe { &mut *out.add(q) };
-                        *out = v + if add { *out } else { 0.0 };
+                // matrixmultiply adds each block to C, except that the first
+                // block overwrites C when not accumulating (as `ab + 0`,
+                // which also turns a −0 sum into +0); a bias stands for C's
+                // rows.
+                let first = if start > 0 { Start::C } else { s.start };
+                for (r, acc) in acc.iter().enumerate() {
+                    let out = c.add(r * s.ldc + j);
+                    for (v, &sum) in acc.iter().enumerate() {
+                        let at = v * LANES;
+                        let mask = vector_mask(v);
+                        let addend = match first {
+                            Start::Zero => _mm256_setzero_pd(),
+                            Start::C => load(out.add(at), mask),
+                            Start::Bias(bias) => load(bias.add(j + at), mask),
+                        };
+                        let value = _mm256_add_pd(sum, addend);
+                        match mask {
+                            Some(mask) => _mm256_maskstore_pd(out.add(at), mask, value),
+                            None => _mm256_storeu_pd(out.add(at), value),
+                        }
                     }
                 }
             }
@@ -487,6 +616,58 @@ mod tests {
     #[test]
     fn negative_zeros_as_matrixmultiply_f32() {
         negative_zeros_as_matrixmultiply::<f32>(gemm_f32, 1e-30);
+    }
+
+    /// A layer's affine map gives the bits of setting every row of `C` to
+    /// the bias and accumulating the product onto it in matrixmultiply, on
+    /// the engine's shapes and on ragged ones (every remainder of four
+    /// columns, two blocks of `k`, a transposed left operand), and writes
+    /// nothing beside its columns.
+    #[test]
+    fn an_affine_map_gives_the_bits_of_bias_rows_accumulated() {
+        for &(m, k, n) in &[
+            (1, 1, 1),
+            (150, 4, 8),
+            (32, 8, 3),
+            (32, 2, 16),
+            (22, 16, 3),
+            (5, 7, 9),
+            (7, 5, 10),
+            (6, 3, 11),
+            (13, 300, 6),
+            (3, 600, 17),
+            (128, 784, 256),
+        ] {
+            for transposed in [false, true] {
+                let a_owned = if transposed {
+                    matrix(k, m, 1)
+                } else {
+                    matrix(m, k, 1)
+                };
+                let a = if transposed {
+                    a_owned.t()
+                } else {
+                    a_owned.view()
+                };
+                let b = matrix(k, n, 2);
+                let bias: Vec<f64> = matrix(1, n, 3).iter().copied().collect();
+                let mut expected = Array2::zeros((m, n));
+                expected.rows_mut().into_iter().for_each(|mut row| {
+                    row.assign(&ndarray::ArrayView1::from(&bias));
+                });
+                general_mat_mul(1.0, &a, &b, 1.0, &mut expected);
+                let start = matrix(m, n, 4);
+                let product: Product<f64> = |a, b, _, c| {
+                    let bias: Vec<f64> = matrix(1, c.ncols(), 3).iter().copied().collect();
+                    affine(a, b, &bias, c)
+                };
+                let ours = into_wider_c(product, a, b.view(), false, &start, 1);
+                assert!(
+                    same_bits(&ours, &expected),
+                    "{m}x{k}x{n} transposed {transposed}"
+                );
+            }
+        }
     }
 
     #[test]

@@ -28,6 +28,7 @@ use serde::{Deserialize, Serialize};
 
 use super::activation::Activation;
 use super::float::Float;
+use super::vector;
 
 /// Smallest probability used when evaluating a cross-entropy value.
 const PROBABILITY_CLIP: f64 = 1e-15;
@@ -162,8 +163,8 @@ struct Residuals<'a, F> {
 }
 
 /// `Σ_rows Σ_columns term(output, target)`, each row summed in order and
-/// the row sums added in order, every term in `f64`; with `residuals`, each
-/// row's residuals are written as the row is summed.
+/// the row sums added in order, every term in `f64`; with `residuals`, the
+/// residuals are written first.
 #[inline(always)]
 fn sum_rows<F: Float>(
     outputs: ArrayView2<F>,
@@ -179,25 +180,17 @@ fn sum_rows<F: Float>(
     if let (Some(o), Some(t)) = (outputs.as_slice(), targets.as_slice())
         && width > 0
     {
+        if let Some(mut r) = residuals {
+            let n = r.n;
+            match r.delta.as_slice_mut() {
+                // One pass over the whole batch: rows of a few classes are too
+                // short for their divisions to share vectors.
+                Some(d) => vector::zip_map(d, o, t, |o, t| (o - t) / n),
+                None => fill_residuals(r, outputs, targets),
+            }
+        }
         let rows = o.chunks_exact(width).zip(t.chunks_exact(width));
-        return match residuals {
-            None => rows.map(|(o, t)| row_sum(o, t)).sum(),
-            Some(mut r) => match r.delta.as_slice_mut() {
-                Some(d) => rows
-                    .zip(d.chunks_exact_mut(width))
-                    .map(|((o, t), d)| {
-                        d.iter_mut()
-                            .zip(o.iter().zip(t))
-                            .for_each(|(d, (&o, &t))| *d = (o - t) / r.n);
-                        row_sum(o, t)
-                    })
-                    .sum(),
-                None => {
-                    fill_residuals(r, outputs, targets);
-                    rows.map(|(o, t)| row_sum(o, t)).sum()
-                }
-            },
-        };
+        return rows.map(|(o, t)| row_sum(o, t)).sum::<f64>();
     }
     if let Some(r) = residuals {
         fill_residuals(r, outputs, targets);

@@ -23,6 +23,8 @@
 //! rather than through a `rand` distribution so that a change in `rand`'s
 //! sampling code cannot silently change every initial network.
 
+use std::borrow::Cow;
+
 use ndarray::{Array1, Array2, ArrayView2, ArrayViewMut2};
 use rand::{Rng, SeedableRng};
 use rand_chacha::ChaCha8Rng;
@@ -122,28 +124,13 @@ impl<F: Float> Layer<F> {
     /// Computes this layer's activations for `input` into `out`, which must
     /// have shape `(input.nrows(), self.outputs())`. Allocates nothing.
     pub(crate) fn forward_into(&self, input: ArrayView2<F>, mut out: ArrayViewMut2<F>) {
-        // Bias first, then `out ← input · W + out` accumulates the product
-        // onto it in one pass, with no temporary matrix.
-        match (out.as_slice_mut(), self.biases.as_slice()) {
-            (Some(values), Some(biases)) if !values.is_empty() => fill_rows(values, biases),
-            _ => out.assign(&self.biases),
-        }
-        F::gemm(input, self.weights.view(), true, out.view_mut());
+        // Owned bias vectors are contiguous unless sliced in place.
+        let biases = match self.biases.as_slice() {
+            Some(biases) => Cow::Borrowed(biases),
+            None => Cow::Owned(self.biases.to_vec()),
+        };
+        F::affine(input, self.weights.view(), &biases, out.view_mut());
         self.activation.apply(out);
-    }
-}
-
-/// Every row of the row-major `values` set to `row`, by doubling the filled
-/// part: a few long copies instead of one short copy per row, which for narrow
-/// layers costs more in calls than in bytes (and ndarray's broadcasting
-/// assignment more still).
-fn fill_rows<F: Copy>(values: &mut [F], row: &[F]) {
-    values[..row.len()].copy_from_slice(row);
-    let mut filled = row.len();
-    while filled < values.len() {
-        let copy = filled.min(values.len() - filled);
-        values.copy_within(..copy, filled);
-        filled += copy;
     }
 }
 
@@ -339,18 +326,6 @@ mod tests {
             .iter()
             .flat_map(|l| l.weights.iter().copied())
             .collect()
-    }
-
-    #[test]
-    fn fill_rows_sets_every_row() {
-        for rows in [1, 2, 3, 5, 8, 150] {
-            for width in [1, 3, 8] {
-                let row: Vec<usize> = (0..width).map(|j| j * 10 + 1).collect();
-                let mut values = vec![0; rows * width];
-                fill_rows(&mut values, &row);
-                assert_eq!(values, row.repeat(rows), "{rows} x {width}");
-            }
-        }
     }
 
     #[test]

@@ -17,6 +17,7 @@ use serde::{Deserialize, Serialize};
 use super::backprop::LayerGradient;
 use super::float::Float;
 use super::network::Network;
+use super::vector;
 
 /// The update rule and its hyper-parameters.
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
@@ -151,10 +152,24 @@ fn sgd<F: Float, D: Dimension>(
     learning_rate: F,
     momentum: F,
 ) {
-    Zip::from(w).and(g).and(v).for_each(|w, &g, v| {
+    let step = |w: &mut F, g: F, v: &mut F| {
         *v = momentum * *v - learning_rate * g;
         *w += *v;
-    });
+    };
+    // Parameters, gradients and velocities are all built row-major; as plain
+    // slices the update is one vectorised loop, where a small layer's `Zip`
+    // costs more in setting up than in arithmetic.
+    if let (Some(ws), Some(gs), Some(vs)) = (w.as_slice_mut(), g.as_slice(), v.as_slice_mut())
+        && ws.len() == gs.len()
+        && ws.len() == vs.len()
+    {
+        vector::update(ws, vs, gs, |w, v, g| step(w, g, v));
+        return;
+    }
+    Zip::from(w)
+        .and(g)
+        .and(v)
+        .for_each(|w, &g, v| step(w, g, v));
 }
 
 /// Adam's constants for one step.

@@ -73,6 +73,133 @@ pub(super) fn map<F: Copy>(values: &mut [F], f: impl Fn(F) -> F) {
     values.iter_mut().for_each(|v| *v = f(*v));
 }
 
+/// `out[i] ← f(a[i], b[i])` for every `i < out.len()`, vectorised as [`map`] is.
+///
+/// # Panics
+/// If `a` or `b` is shorter than `out`.
+#[inline]
+pub(super) fn zip_map<F: Copy>(out: &mut [F], a: &[F], b: &[F], f: impl Fn(F, F) -> F) {
+    let (a, b) = (&a[..out.len()], &b[..out.len()]);
+    #[cfg(target_arch = "x86_64")]
+    if std::arch::is_x86_feature_detected!("avx512f") {
+        // SAFETY: AVX-512 F was detected.
+        unsafe { zip_map_avx512(out, a, b, f) };
+        return;
+    }
+    #[cfg(target_arch = "x86_64")]
+    if std::arch::is_x86_feature_detected!("avx2") {
+        // SAFETY: AVX2 was detected.
+        unsafe { zip_map_avx2(out, a, b, f) };
+        return;
+    }
+    zip_map_scalar(out, a, b, f);
+}
+
+/// `step(&mut w[i], &mut v[i], g[i])` for every `i < w.len()`: a parameter,
+/// its optimiser state and its gradient, vectorised as [`map`] is.
+///
+/// # Panics
+/// If `v` or `g` is shorter than `w`.
+#[inline]
+pub(super) fn update<F: Copy>(w: &mut [F], v: &mut [F], g: &[F], step: impl Fn(&mut F, &mut F, F)) {
+    let (v, g) = (&mut v[..w.len()], &g[..w.len()]);
+    #[cfg(target_arch = "x86_64")]
+    if std::arch::is_x86_feature_detected!("avx512f") {
+        // SAFETY: AVX-512 F was detected.
+        unsafe { update_avx512(w, v, g, step) };
+        return;
+    }
+    #[cfg(target_arch = "x86_64")]
+    if std::arch::is_x86_feature_detected!("avx2") {
+        // SAFETY: AVX2 was detected.
+        unsafe { update_avx2(w, v, g, step) };
+        return;
+    }
+    update_scalar(w, v, g, step);
+}
+
+#[inline(always)]
+fn update_scalar<F: Copy>(w: &mut [F], v: &mut [F], g: &[F], step: impl Fn(&mut F, &mut F, F)) {
+    w.iter_mut()
+        .zip(v.iter_mut())
+        .zip(g)
+        .for_each(|((w, v), &g)| step(w, v, g));
+}
+
+#[cfg(target_arch = "x86_64")]
+#[target_feature(enable = "avx2")]
+fn update_avx2<F: Copy>(w: &mut [F], v: &mut [F], g: &[F], step: impl Fn(&mut F, &mut F, F)) {
+    update_scalar(w, v, g, step);
+}
+
+#[cfg(target_arch = "x86_64")]
+#[target_feature(enable = "avx512f")]
+fn update_avx512<F: Copy>(w: &mut [F], v: &mut [F], g: &[F], step: impl Fn(&mut F, &mut F, F)) {
+    update_scalar(w, v, g, step);
+}
+
+/// `values[i] ← f(values[i], other[i])` for every `i < values.len()`,
+/// vectorised as [`map`] is.
+///
+/// # Panics
+/// If `other` is shorter than `values`.
+#[inline]
+pub(super) fn map_with<F: Copy>(values: &mut [F], other: &[F], f: impl Fn(F, F) -> F) {
+    let other = &other[..values.len()];
+    #[cfg(target_arch = "x86_64")]
+    if std::arch::is_x86_feature_detected!("avx512f") {
+        // SAFETY: AVX-512 F was detected.
+        unsafe { map_with_avx512(values, other, f) };
+        return;
+    }
+    #[cfg(target_arch = "x86_64")]
+    if std::arch::is_x86_feature_detected!("avx2") {
+        // SAFETY: AVX2 was detected.
+        unsafe { map_with_avx2(values, other, f) };
+        return;
+    }
+    map_with_scalar(values, other, f);
+}
+
+#[inline(always)]
+fn map_with_scalar<F: Copy>(values: &mut [F], other: &[F], f: impl Fn(F, F) -> F) {
+    values
+        .iter_mut()
+        .zip(other)
+        .for_each(|(v, &o)| *v = f(*v, o));
+}
+
+#[cfg(target_arch = "x86_64")]
+#[target_feature(enable = "avx2")]
+fn map_with_avx2<F: Copy>(values: &mut [F], other: &[F], f: impl Fn(F, F) -> F) {
+    map_with_scalar(values, other, f);
+}
+
+#[cfg(target_arch = "x86_64")]
+#[target_feature(enable = "avx512f")]
+fn map_with_avx512<F: Copy>(values: &mut [F], other: &[F], f: impl Fn(F, F) -> F) {
+    map_with_scalar(values, other, f);
+}
+
+#[inline(always)]
+fn zip_map_scalar<F: Copy>(out: &mut [F], a: &[F], b: &[F], f: impl Fn(F, F) -> F) {
+    out.iter_mut()
+        .zip(a.iter().zip(b))
+        .for_each(|(o, (&a, &b))| *o = f(a, b));
+}
+
+#[cfg(target_arch = "x86_64")]
+#[target_feature(enable = "avx2")]
+fn zip_map_avx2<F: Copy>(out: &mut [F], a: &[F], b: &[F], f: impl Fn(F, F) -> F) {
+    zip_map_scalar(out, a, b, f);
+}
+
+#[cfg(target_arch = "x86_64")]
+#[target_feature(enable = "avx512f")]
+fn zip_map_avx512<F: Copy>(out: &mut [F], a: &[F], b: &[F], f: impl Fn(F, F) -> F) {
+    zip_map_scalar(out, a, b, f);
+}
+
 #[cfg(target_arch = "x86_64")]
 #[target_feature(enable = "avx2")]
 fn map_avx2<F: Copy>(values: &mut [F], f: impl Fn(F) -> F) {
@@ -142,6 +269,84 @@ mod tests {
         let expected: Vec<f64> = values.iter().map(|&v| exp(-v.abs())).collect();
         map(&mut values, |v| exp(-v.abs()));
         assert_eq!(values, expected);
+    }
+
+    /// Every width of the two-operand maps, into a third buffer and in
+    /// place, gives the scalar loop's bits, including the lanes of a ragged end.
+    #[test]
+    fn every_width_of_the_two_operand_maps_matches_the_scalar_loop() {
+        let a: Vec<f64> = (0..1003).map(|i| (i as f64 - 500.0) / 7.0).collect();
+        let b: Vec<f64> = (0..1003).map(|i| ((i * 37) % 11) as f64 - 5.5).collect();
+        let residual = |o: f64, t: f64| (o - t) / 3.0;
+        let expected: Vec<f64> = a.iter().zip(&b).map(|(&o, &t)| residual(o, t)).collect();
+        let mut out = vec![f64::NAN; 1003];
+        zip_map(&mut out, &a, &b, residual);
+        assert_eq!(out, expected);
+        let mut in_place = a.clone();
+        map_with(&mut in_place, &b, residual);
+        assert_eq!(in_place, expected, "in place");
+        #[cfg(target_arch = "x86_64")]
+        for (width, available) in [
+            ("AVX2", std::arch::is_x86_feature_detected!("avx2")),
+            ("AVX-512", std::arch::is_x86_feature_detected!("avx512f")),
+        ] {
+            if !available {
+                continue;
+            }
+            let mut out = vec![f64::NAN; 1003];
+            // SAFETY: the width's instructions were detected.
+            unsafe {
+                match width {
+                    "AVX2" => zip_map_avx2(&mut out, &a, &b, residual),
+                    _ => zip_map_avx512(&mut out, &a, &b, residual),
+                }
+            }
+            assert_eq!(out, expected, "{width}");
+            let mut in_place = a.clone();
+            // SAFETY: the width's instructions were detected.
+            unsafe {
+                match width {
+                    "AVX2" => map_with_avx2(&mut in_place, &b, residual),
+                    _ => map_with_avx512(&mut in_place, &b, residual),
+                }
+            }
+            assert_eq!(in_place, expected, "{width}, in place");
+        }
+    }
+
+    /// Every width of the parameter update gives the scalar loop's bits (a
+    /// momentum step), including the lanes of a ragged end.
+    #[test]
+    fn every_width_of_the_parameter_update_matches_the_scalar_loop() {
+        let start: Vec<f64> = (0..1003).map(|i| (i as f64 - 500.0) / 7.0).collect();
+        let velocity: Vec<f64> = (0..1003).map(|i| ((i * 37) % 11) as f64 * 0.01).collect();
+        let gradient: Vec<f64> = (0..1003).map(|i| ((i * 13) % 7) as f64 - 3.1).collect();
+        let step = |w: &mut f64, v: &mut f64, g: f64| {
+            *v = 0.9 * *v - 0.1 * g;
+            *w += *v;
+        };
+        let fresh = || (start.clone(), velocity.clone());
+        let (mut w, mut v) = fresh();
+        update_scalar(&mut w, &mut v, &gradient, step);
+        let expected = (w, v);
+        let (mut w, mut v) = fresh();
+        update(&mut w, &mut v, &gradient, step);
+        assert_eq!((w, v), expected);
+        #[cfg(target_arch = "x86_64")]
+        {
+            if std::arch::is_x86_feature_detected!("avx2") {
+                let (mut w, mut v) = fresh();
+                // SAFETY: AVX2 was detected.
+                unsafe { update_avx2(&mut w, &mut v, &gradient, step) };
+                assert_eq!((w, v), expected, "AVX2");
+            }
+            if std::arch::is_x86_feature_detected!("avx512f") {
+                let (mut w, mut v) = fresh();
+                // SAFETY: AVX-512 F was detected.
+                unsafe { update_avx512(&mut w, &mut v, &gradient, step) };
+                assert_eq!((w, v), expected, "AVX-512");
+            }
+        }
     }
 
     /// Each vector width this processor has gives the scalar loop's bits,
