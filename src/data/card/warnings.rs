@@ -398,15 +398,12 @@ fn duplicate_rows(prepared: &Prepared) -> Option<DataWarning> {
     let mut rows = 0;
     let mut example = None;
     for row in 0..prepared.x.nrows() {
-        match index.find(row) {
-            Some(earlier) => {
-                rows += 1;
-                example.get_or_insert(SameRows {
-                    line: prepared.lines[row],
-                    same_as: prepared.lines[earlier],
-                });
-            }
-            None => index.insert(row),
+        if let Some(earlier) = index.earlier_or_insert(row) {
+            rows += 1;
+            example.get_or_insert(SameRows {
+                line: prepared.lines[row],
+                same_as: prepared.lines[earlier],
+            });
         }
     }
     Some(DataWarning::DuplicateRows {
@@ -423,7 +420,7 @@ fn held_out_in_training(prepared: &Prepared) -> Option<DataWarning> {
     for partition in &prepared.partitions {
         let mut index = RowIndex::new(prepared);
         for &row in &partition.train_rows {
-            index.insert(row);
+            index.earlier_or_insert(row);
         }
         for &row in &partition.test_rows {
             if let Some(training) = index.find(row) {
@@ -472,11 +469,18 @@ impl<'p> RowIndex<'p> {
             .copied()
     }
 
-    fn insert(&mut self, row: usize) {
-        let (prepared, hasher) = (self.prepared, &self.hasher);
-        self.rows.insert_unique(self.hash(row), row, |&other| {
-            row_hash(prepared, hasher, other)
-        });
+    /// A row in the set equal to `row`, or `None` after adding `row`. The set holds
+    /// distinct rows only: equal rows share a hash, and many under one hash would make
+    /// every lookup and insertion walk them all (quadratic in a file of repeated rows).
+    fn earlier_or_insert(&mut self, row: usize) -> Option<usize> {
+        let earlier = self.find(row);
+        if earlier.is_none() {
+            let (prepared, hasher) = (self.prepared, &self.hasher);
+            self.rows.insert_unique(self.hash(row), row, |&other| {
+                row_hash(prepared, hasher, other)
+            });
+        }
+        earlier
     }
 }
 
