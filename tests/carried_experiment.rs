@@ -345,3 +345,26 @@ fn files_over_the_embedding_limit_are_left_out_and_listed() {
     assert!(out.contains("--embed-data-mb 0"), "{out}");
     assert!(!ws.path("out/demo-data").exists());
 }
+
+// Every build renders the report, a no-op rebuild too: a file more than eight times the
+// limit is left out without being read, however well it would compress (this one
+// compresses about a thousand to one), so a large data file costs no build its size in
+// memory or seconds of compression.
+#[test]
+fn a_file_over_eight_times_the_limit_is_left_out_unread() {
+    let ws = Workspace::new();
+    ws.write("big.csv", &format!("x,y\n{}", "1,2\n".repeat(2_400_000)));
+    let document = ws.write(
+        "big.md",
+        "```yaml data rows\nfile: big.csv\ntarget: y\n```\n",
+    );
+    ws.build_ok(&document, &["--embed-data-mb", "1"]);
+    let output = run(&ws, &["unpack", "big.html", "out"]);
+    assert!(output.status.success(), "{}", stderr(&output));
+    let out = String::from_utf8_lossy(&output.stdout);
+    assert!(out.contains("not included: out/big.csv"), "{out}");
+    assert!(
+        out.contains("the files total 9.2 MiB, more than 8 times --embed-data-mb 1"),
+        "{out}"
+    );
+}
