@@ -269,7 +269,7 @@ fn flatten_into(prefix: &str, value: &Value, out: &mut std::collections::BTreeMa
 /// The row sets a step's metrics are on, and whether the summary gives intervals for
 /// them: a fit's `metrics.train` and `metrics.test` (held out), or a predict step's
 /// labelled batch, flat under `metrics`.
-fn row_sets<'v>(step: &'v Value) -> Vec<(&'static str, &'v Value, bool)> {
+fn row_sets(step: &Value) -> Vec<(&'static str, &Value, bool)> {
     match step["kind"].as_str() {
         Some("predict") => vec![("batch", &step["metrics"], true)],
         _ => vec![

@@ -353,7 +353,8 @@ fn conjugate_gradient(curvature: &Curvature, gradient: &Array1<f64>) -> Array1<f
         }
         let curved = curvature.times(&direction);
         let along = direction.dot(&curved);
-        if !(along > 0.0) {
+        // No curvature along the direction (or a NaN): no further step is trustworthy.
+        if along.is_nan() || along <= 0.0 {
             break;
         }
         let size = residual_squared / along;
