@@ -58,7 +58,7 @@ fn build_demo(name: &str, steps: usize, charts: usize) {
 fn the_hives_demo_builds_a_complete_report() {
     // 4 trains (each a loss chart and an importance chart), a sweep (a heat map over
     // its two settings, a plot for each, its loss chart), a compare.
-    build_demo("hives.md", 11, 13);
+    build_demo("hives.md", 12, 13);
 }
 
 #[test]

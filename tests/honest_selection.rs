@@ -145,14 +145,35 @@ fn demo_results(name: &str, raw_targets: bool) -> Value {
 fn the_demo_documents_without_validation_train_exactly_as_before_it_existed() {
     // The hives demo classifies, so target scaling never applies to it; the greenhouse
     // demo regresses and keeps its old numbers with its targets left unscaled.
+    let recorded = recorded_results("hives");
     assert!(
-        demo_results("hives", false) == recorded_results("hives"),
+        recorded_steps_of(demo_results("hives", false), &recorded) == recorded,
         "hives: the results moved without validation"
     );
+    let recorded = recorded_results("greenhouse");
     assert!(
-        demo_results("greenhouse", true) == recorded_results("greenhouse"),
+        recorded_steps_of(demo_results("greenhouse", true), &recorded) == recorded,
         "greenhouse: the results moved with scale_target: none"
     );
+}
+
+/// The steps of `results` that `recorded` has: the demos gained steps since (the
+/// hives demo's labelled week-seven batch), which leave the recorded ones as they were.
+fn recorded_steps_of(results: Value, recorded: &Value) -> Value {
+    let ids: Vec<&Value> = recorded["steps"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|step| &step["id"])
+        .collect();
+    let steps: Vec<Value> = results["steps"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .filter(|step| ids.contains(&&step["id"]))
+        .cloned()
+        .collect();
+    serde_json::json!({ "steps": steps })
 }
 
 /// The greenhouse demo with its default target scaling, recorded deliberately when
