@@ -167,17 +167,27 @@ impl<'a> Rows<'a> {
     /// # Panics
     /// If the rows do not have the network's input size.
     pub fn predict(&self, network: &Network) -> Array2<f64> {
-        if let Some((x, _)) = self.in_place(0, self.len()) {
-            return network.predict(x);
-        }
         let mut outputs = Array2::zeros((self.len(), network.output_size()));
         let chunk = PREDICT_CHUNK.min(self.len());
-        let mut x = Array2::zeros((chunk, self.inputs()));
-        let mut y = Array2::zeros((chunk, self.targets()));
+        // Rows read in place are chunked too: the hidden layers' activations of every
+        // row at once would be the largest thing a big build holds (60,000 rows × 256
+        // units: 117 MiB).
+        let mut buffers = None;
         for start in (0..self.len()).step_by(chunk.max(1)) {
             let end = (start + chunk).min(self.len());
-            self.gather(start..end, x.view_mut(), y.view_mut());
-            let predicted = network.predict(x.slice(s![..end - start, ..]));
+            let predicted = match self.in_place(start, end) {
+                Some((x, _)) => network.predict(x),
+                None => {
+                    let (x, y) = buffers.get_or_insert_with(|| {
+                        (
+                            Array2::zeros((chunk, self.inputs())),
+                            Array2::zeros((chunk, self.targets())),
+                        )
+                    });
+                    self.gather(start..end, x.view_mut(), y.view_mut());
+                    network.predict(x.slice(s![..end - start, ..]))
+                }
+            };
             outputs.slice_mut(s![start..end, ..]).assign(&predicted);
         }
         outputs
@@ -225,6 +235,25 @@ mod tests {
         let (vx, vy) = rows.in_place(1, 3).expect("identity reads in place");
         assert_eq!(vx, x.slice(s![1..3, ..]));
         assert_eq!(vy, y.slice(s![1..3, ..]));
+    }
+
+    // Rows read in place are predicted a chunk at a time too (a big build's largest
+    // allocation otherwise), with the bits of one pass over all of them.
+    #[test]
+    fn rows_read_in_place_are_predicted_in_chunks_with_the_same_bits() {
+        let n = PREDICT_CHUNK + 37;
+        let x = Array2::from_shape_fn((n, 3), |(i, j)| ((i * 5 + j * 7) % 13) as f64 - 6.0);
+        let y = Array2::zeros((n, 2));
+        let network = Network::initialise(
+            &[3, 6, 2],
+            Activation::Tanh,
+            Activation::Softmax,
+            Init::Xavier,
+            4,
+        );
+        let rows = Rows::all(x.view(), y.view());
+        assert!(rows.in_place(0, n).is_some());
+        assert_eq!(rows.predict(&network), network.predict(x.view()));
     }
 
     #[test]
