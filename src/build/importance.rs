@@ -12,7 +12,7 @@ use rand_chacha::ChaCha8Rng;
 use serde::{Deserialize, Serialize};
 
 use crate::build::outcome::RunResult;
-use crate::data::{ColumnKind, InputColumn, Task};
+use crate::data::{InputColumn, Task, feature_ranges};
 use crate::nn::{self, Loss, Network};
 
 /// A train step whose data has at most this many input columns measures importance
@@ -69,22 +69,6 @@ pub(crate) fn permutation_importance(
                 metric_drops,
                 loss_rises,
             }
-        })
-        .collect()
-}
-
-/// The feature columns of each input column, in feature order.
-fn feature_ranges(columns: &[InputColumn]) -> Vec<Range<usize>> {
-    let mut start = 0;
-    columns
-        .iter()
-        .map(|column| {
-            let width = match &column.kind {
-                ColumnKind::Numeric => 1,
-                ColumnKind::Categorical { categories } => categories.len(),
-            };
-            start += width;
-            start - width..start
         })
         .collect()
 }
@@ -189,25 +173,5 @@ mod tests {
         assert_eq!(mean, 3.0);
         assert!((sd - (14.0f64 / 3.0).sqrt()).abs() < 1e-15);
         assert_eq!(mean_and_sd(&[0.5]), (0.5, 0.0));
-    }
-
-    #[test]
-    fn a_categorical_input_spans_one_feature_per_category() {
-        let column = |name: &str, kind| InputColumn {
-            name: name.into(),
-            kind,
-            constant: false,
-        };
-        let columns = [
-            column("x", ColumnKind::Numeric),
-            column(
-                "site",
-                ColumnKind::Categorical {
-                    categories: vec!["a".into(), "b".into(), "c".into()],
-                },
-            ),
-            column("z", ColumnKind::Numeric),
-        ];
-        assert_eq!(feature_ranges(&columns), vec![0..1, 1..4, 4..5]);
     }
 }

@@ -8,6 +8,8 @@
 //! The [`Encoding`] remembers every decision, so that new rows (to predict)
 //! are encoded exactly like the rows the network learned from.
 
+use std::ops::Range;
+
 use ndarray::Array2;
 use serde::{Deserialize, Serialize};
 
@@ -70,6 +72,14 @@ pub struct InputColumn {
 }
 
 impl InputColumn {
+    /// How many features (columns of `x`) it becomes: one, or one per category.
+    pub(crate) fn width(&self) -> usize {
+        match &self.kind {
+            ColumnKind::Numeric => 1,
+            ColumnKind::Categorical { categories } => categories.len(),
+        }
+    }
+
     /// Names of this column's features: its own name, or `name=category` per category.
     fn feature_names(&self) -> Vec<String> {
         match &self.kind {
@@ -80,6 +90,19 @@ impl InputColumn {
                 .collect(),
         }
     }
+}
+
+/// The features of each of `columns` in the encoded matrix, in feature order: a
+/// categorical column's one-hot features lie together.
+pub(crate) fn feature_ranges(columns: &[InputColumn]) -> Vec<Range<usize>> {
+    let mut start = 0;
+    columns
+        .iter()
+        .map(|column| {
+            start += column.width();
+            start - column.width()..start
+        })
+        .collect()
 }
 
 /// Every decision made while encoding a table, enough to encode new rows the same way.
@@ -326,13 +349,7 @@ fn encode_rows(
     positions: &[usize],
     rows: &[usize],
 ) -> Result<Array2<f64>, DataError> {
-    let width = columns
-        .iter()
-        .map(|c| match &c.kind {
-            ColumnKind::Numeric => 1,
-            ColumnKind::Categorical { categories } => categories.len(),
-        })
-        .sum();
+    let width = columns.iter().map(InputColumn::width).sum();
     // Each distinct text of a column is looked at once; rows then only look up codes.
     let features: Vec<(ParsedColumn, Vec<Feature>)> = columns
         .iter()
@@ -611,6 +628,26 @@ fn one_hot_labels(labels: &[usize], n_classes: usize) -> Array2<f64> {
 
 #[cfg(test)]
 mod tests {
+    #[test]
+    fn a_categorical_input_spans_one_feature_per_category() {
+        let column = |name: &str, kind| super::InputColumn {
+            name: name.into(),
+            kind,
+            constant: false,
+        };
+        let columns = [
+            column("x", super::ColumnKind::Numeric),
+            column(
+                "site",
+                super::ColumnKind::Categorical {
+                    categories: vec!["a".into(), "b".into(), "c".into()],
+                },
+            ),
+            column("z", super::ColumnKind::Numeric),
+        ];
+        assert_eq!(super::feature_ranges(&columns), vec![0..1, 1..4, 4..5]);
+    }
+
     #[test]
     fn a_stray_text_cell_in_a_numeric_column_names_its_line_and_column() {
         let mut csv = String::from("temp_c,status\n");

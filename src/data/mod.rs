@@ -21,7 +21,7 @@ mod split;
 mod table;
 
 pub use encode::{ColumnKind, DEFAULT_MAX_CATEGORIES};
-pub(crate) use encode::{InputColumn, KnownTargets};
+pub(crate) use encode::{InputColumn, KnownTargets, feature_ranges};
 pub(crate) use error::DataError;
 pub use prepare::{Prepared, prepare};
 pub(crate) use scale::Scaler;

@@ -12,7 +12,7 @@ use ndarray::ArrayView1;
 use serde::{Deserialize, Serialize};
 
 use super::profile::{ColumnProfile, Role, Values};
-use crate::data::encode::ColumnKind;
+use crate::data::encode::{self, ColumnKind};
 use crate::data::prepare::Prepared;
 
 /// Fewest distinct values at which a column whose values are mostly unique to a row
@@ -184,21 +184,13 @@ fn looks_like_identifier(distinct: usize, count: usize) -> bool {
     distinct >= IDENTIFIER_LIKE_DISTINCT && 2 * distinct > count
 }
 
-/// Where each input column's features lie in the prepared matrix.
-fn feature_ranges(prepared: &Prepared) -> Vec<(&str, &ColumnKind, std::ops::Range<usize>)> {
-    let mut start = 0;
-    prepared
-        .encoding
-        .columns
+/// Each input column's name and kind, and where its features lie in the prepared matrix.
+fn input_features(prepared: &Prepared) -> Vec<(&str, &ColumnKind, std::ops::Range<usize>)> {
+    let columns = &prepared.encoding.columns;
+    columns
         .iter()
-        .map(|column| {
-            let width = match &column.kind {
-                ColumnKind::Numeric => 1,
-                ColumnKind::Categorical { categories } => categories.len(),
-            };
-            start += width;
-            (column.name.as_str(), &column.kind, start - width..start)
-        })
+        .zip(encode::feature_ranges(columns))
+        .map(|(column, range)| (column.name.as_str(), &column.kind, range))
         .collect()
 }
 
@@ -214,7 +206,7 @@ fn separating_inputs(columns: &[ColumnProfile], prepared: &Prepared) -> Vec<Data
     let target = &prepared.encoding.target_names[0];
     let class_count = prepared.encoding.classes.as_ref().map_or(0, Vec::len);
     // The card lists the inputs first, in feature order, so they pair up with the ranges.
-    feature_ranges(prepared)
+    input_features(prepared)
         .into_iter()
         .zip(columns)
         .filter(|((_, kind, range), profile)| match kind {
@@ -276,7 +268,7 @@ fn correlated_inputs(prepared: &Prepared) -> Vec<DataWarning> {
         return Vec::new();
     }
     let mut found = Vec::new();
-    for (name, kind, range) in feature_ranges(prepared) {
+    for (name, kind, range) in input_features(prepared) {
         if !matches!(kind, ColumnKind::Numeric) {
             continue;
         }
@@ -333,7 +325,7 @@ fn rare_classes(prepared: &Prepared) -> Vec<DataWarning> {
 /// Numeric inputs and targets with values more than [`FAR_FROM_MEAN_SDS`] sample
 /// standard deviations from the mean of a partition's training rows.
 fn far_from_mean(prepared: &Prepared) -> Vec<DataWarning> {
-    let inputs = feature_ranges(prepared)
+    let inputs = input_features(prepared)
         .into_iter()
         .filter(|(_, kind, _)| matches!(kind, ColumnKind::Numeric))
         .map(|(name, _, range)| (name, prepared.x.column(range.start)));
