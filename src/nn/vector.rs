@@ -52,70 +52,75 @@ pub(super) fn exp(x: f64) -> f64 {
     p * scale(k1) * scale(k2)
 }
 
-/// `values[i] ← f(values[i])` for every element, vectorised with AVX-512 or
-/// AVX2 where the processor has them. `f` must be pure arithmetic for that to
-/// pay; the results do not depend on which path runs (each lane does the same
-/// IEEE operations, and Rust never fuses them).
-#[inline]
-pub(super) fn map<F: Copy>(values: &mut [F], f: impl Fn(F) -> F) {
+/// Runs `work` compiled for the widest vectors the processor has: AVX-512, AVX2, or
+/// neither. `work`'s loops are inlined into a function built for that width, so they
+/// vectorise there; `work` must be pure arithmetic for that to pay. The results do not
+/// depend on which width runs: each lane does the same IEEE operations, and Rust never
+/// fuses them.
+#[inline(always)]
+fn at_widest<R>(work: impl FnOnce() -> R) -> R {
     #[cfg(target_arch = "x86_64")]
     if std::arch::is_x86_feature_detected!("avx512f") {
         // SAFETY: AVX-512 F was detected.
-        unsafe { map_avx512(values, f) };
-        return;
+        return unsafe { with_avx512(work) };
     }
     #[cfg(target_arch = "x86_64")]
     if std::arch::is_x86_feature_detected!("avx2") {
         // SAFETY: AVX2 was detected.
-        unsafe { map_avx2(values, f) };
-        return;
+        return unsafe { with_avx2(work) };
     }
+    work()
+}
+
+#[cfg(target_arch = "x86_64")]
+#[target_feature(enable = "avx2")]
+fn with_avx2<R>(work: impl FnOnce() -> R) -> R {
+    work()
+}
+
+#[cfg(target_arch = "x86_64")]
+#[target_feature(enable = "avx512f")]
+fn with_avx512<R>(work: impl FnOnce() -> R) -> R {
+    work()
+}
+
+/// `values[i] ← f(values[i])` for every element, at the widest vectors there are.
+#[inline]
+pub(super) fn map<F: Copy>(values: &mut [F], f: impl Fn(F) -> F) {
+    at_widest(|| map_scalar(values, f));
+}
+
+#[inline(always)]
+fn map_scalar<F: Copy>(values: &mut [F], f: impl Fn(F) -> F) {
     values.iter_mut().for_each(|v| *v = f(*v));
 }
 
-/// `out[i] ← f(a[i], b[i])` for every `i < out.len()`, vectorised as [`map`] is.
+/// `out[i] ← f(a[i], b[i])` for every `i < out.len()`, at the widest vectors there are.
 ///
 /// # Panics
 /// If `a` or `b` is shorter than `out`.
 #[inline]
 pub(super) fn zip_map<F: Copy>(out: &mut [F], a: &[F], b: &[F], f: impl Fn(F, F) -> F) {
     let (a, b) = (&a[..out.len()], &b[..out.len()]);
-    #[cfg(target_arch = "x86_64")]
-    if std::arch::is_x86_feature_detected!("avx512f") {
-        // SAFETY: AVX-512 F was detected.
-        unsafe { zip_map_avx512(out, a, b, f) };
-        return;
-    }
-    #[cfg(target_arch = "x86_64")]
-    if std::arch::is_x86_feature_detected!("avx2") {
-        // SAFETY: AVX2 was detected.
-        unsafe { zip_map_avx2(out, a, b, f) };
-        return;
-    }
-    zip_map_scalar(out, a, b, f);
+    at_widest(|| zip_map_scalar(out, a, b, f));
 }
 
-/// `step(&mut w[i], &mut v[i], g[i])` for every `i < w.len()`: a parameter,
-/// its optimiser state and its gradient, vectorised as [`map`] is.
+#[inline(always)]
+fn zip_map_scalar<F: Copy>(out: &mut [F], a: &[F], b: &[F], f: impl Fn(F, F) -> F) {
+    out.iter_mut()
+        .zip(a.iter().zip(b))
+        .for_each(|(o, (&a, &b))| *o = f(a, b));
+}
+
+/// `step(&mut w[i], &mut v[i], g[i])` for every `i < w.len()`: a parameter, its
+/// optimiser state and its gradient, at the widest vectors there are.
 ///
 /// # Panics
 /// If `v` or `g` is shorter than `w`.
 #[inline]
 pub(super) fn update<F: Copy>(w: &mut [F], v: &mut [F], g: &[F], step: impl Fn(&mut F, &mut F, F)) {
     let (v, g) = (&mut v[..w.len()], &g[..w.len()]);
-    #[cfg(target_arch = "x86_64")]
-    if std::arch::is_x86_feature_detected!("avx512f") {
-        // SAFETY: AVX-512 F was detected.
-        unsafe { update_avx512(w, v, g, step) };
-        return;
-    }
-    #[cfg(target_arch = "x86_64")]
-    if std::arch::is_x86_feature_detected!("avx2") {
-        // SAFETY: AVX2 was detected.
-        unsafe { update_avx2(w, v, g, step) };
-        return;
-    }
-    update_scalar(w, v, g, step);
+    at_widest(|| update_scalar(w, v, g, step));
 }
 
 #[inline(always)]
@@ -126,39 +131,15 @@ fn update_scalar<F: Copy>(w: &mut [F], v: &mut [F], g: &[F], step: impl Fn(&mut 
         .for_each(|((w, v), &g)| step(w, v, g));
 }
 
-#[cfg(target_arch = "x86_64")]
-#[target_feature(enable = "avx2")]
-fn update_avx2<F: Copy>(w: &mut [F], v: &mut [F], g: &[F], step: impl Fn(&mut F, &mut F, F)) {
-    update_scalar(w, v, g, step);
-}
-
-#[cfg(target_arch = "x86_64")]
-#[target_feature(enable = "avx512f")]
-fn update_avx512<F: Copy>(w: &mut [F], v: &mut [F], g: &[F], step: impl Fn(&mut F, &mut F, F)) {
-    update_scalar(w, v, g, step);
-}
-
-/// `values[i] ← f(values[i], other[i])` for every `i < values.len()`,
-/// vectorised as [`map`] is.
+/// `values[i] ← f(values[i], other[i])` for every `i < values.len()`, at the widest
+/// vectors there are.
 ///
 /// # Panics
 /// If `other` is shorter than `values`.
 #[inline]
 pub(super) fn map_with<F: Copy>(values: &mut [F], other: &[F], f: impl Fn(F, F) -> F) {
     let other = &other[..values.len()];
-    #[cfg(target_arch = "x86_64")]
-    if std::arch::is_x86_feature_detected!("avx512f") {
-        // SAFETY: AVX-512 F was detected.
-        unsafe { map_with_avx512(values, other, f) };
-        return;
-    }
-    #[cfg(target_arch = "x86_64")]
-    if std::arch::is_x86_feature_detected!("avx2") {
-        // SAFETY: AVX2 was detected.
-        unsafe { map_with_avx2(values, other, f) };
-        return;
-    }
-    map_with_scalar(values, other, f);
+    at_widest(|| map_with_scalar(values, other, f));
 }
 
 #[inline(always)]
@@ -167,49 +148,6 @@ fn map_with_scalar<F: Copy>(values: &mut [F], other: &[F], f: impl Fn(F, F) -> F
         .iter_mut()
         .zip(other)
         .for_each(|(v, &o)| *v = f(*v, o));
-}
-
-#[cfg(target_arch = "x86_64")]
-#[target_feature(enable = "avx2")]
-fn map_with_avx2<F: Copy>(values: &mut [F], other: &[F], f: impl Fn(F, F) -> F) {
-    map_with_scalar(values, other, f);
-}
-
-#[cfg(target_arch = "x86_64")]
-#[target_feature(enable = "avx512f")]
-fn map_with_avx512<F: Copy>(values: &mut [F], other: &[F], f: impl Fn(F, F) -> F) {
-    map_with_scalar(values, other, f);
-}
-
-#[inline(always)]
-fn zip_map_scalar<F: Copy>(out: &mut [F], a: &[F], b: &[F], f: impl Fn(F, F) -> F) {
-    out.iter_mut()
-        .zip(a.iter().zip(b))
-        .for_each(|(o, (&a, &b))| *o = f(a, b));
-}
-
-#[cfg(target_arch = "x86_64")]
-#[target_feature(enable = "avx2")]
-fn zip_map_avx2<F: Copy>(out: &mut [F], a: &[F], b: &[F], f: impl Fn(F, F) -> F) {
-    zip_map_scalar(out, a, b, f);
-}
-
-#[cfg(target_arch = "x86_64")]
-#[target_feature(enable = "avx512f")]
-fn zip_map_avx512<F: Copy>(out: &mut [F], a: &[F], b: &[F], f: impl Fn(F, F) -> F) {
-    zip_map_scalar(out, a, b, f);
-}
-
-#[cfg(target_arch = "x86_64")]
-#[target_feature(enable = "avx2")]
-fn map_avx2<F: Copy>(values: &mut [F], f: impl Fn(F) -> F) {
-    values.iter_mut().for_each(|v| *v = f(*v));
-}
-
-#[cfg(target_arch = "x86_64")]
-#[target_feature(enable = "avx512f")]
-fn map_avx512<F: Copy>(values: &mut [F], f: impl Fn(F) -> F) {
-    values.iter_mut().for_each(|v| *v = f(*v));
 }
 
 #[cfg(test)]
@@ -294,22 +232,19 @@ mod tests {
                 continue;
             }
             let mut out = vec![f64::NAN; 1003];
+            let mut in_place = a.clone();
+            let work = || {
+                zip_map_scalar(&mut out, &a, &b, residual);
+                map_with_scalar(&mut in_place, &b, residual);
+            };
             // SAFETY: the width's instructions were detected.
             unsafe {
                 match width {
-                    "AVX2" => zip_map_avx2(&mut out, &a, &b, residual),
-                    _ => zip_map_avx512(&mut out, &a, &b, residual),
+                    "AVX2" => with_avx2(work),
+                    _ => with_avx512(work),
                 }
             }
             assert_eq!(out, expected, "{width}");
-            let mut in_place = a.clone();
-            // SAFETY: the width's instructions were detected.
-            unsafe {
-                match width {
-                    "AVX2" => map_with_avx2(&mut in_place, &b, residual),
-                    _ => map_with_avx512(&mut in_place, &b, residual),
-                }
-            }
             assert_eq!(in_place, expected, "{width}, in place");
         }
     }
@@ -337,13 +272,13 @@ mod tests {
             if std::arch::is_x86_feature_detected!("avx2") {
                 let (mut w, mut v) = fresh();
                 // SAFETY: AVX2 was detected.
-                unsafe { update_avx2(&mut w, &mut v, &gradient, step) };
+                unsafe { with_avx2(|| update_scalar(&mut w, &mut v, &gradient, step)) };
                 assert_eq!((w, v), expected, "AVX2");
             }
             if std::arch::is_x86_feature_detected!("avx512f") {
                 let (mut w, mut v) = fresh();
                 // SAFETY: AVX-512 F was detected.
-                unsafe { update_avx512(&mut w, &mut v, &gradient, step) };
+                unsafe { with_avx512(|| update_scalar(&mut w, &mut v, &gradient, step)) };
                 assert_eq!((w, v), expected, "AVX-512");
             }
         }
@@ -373,13 +308,13 @@ mod tests {
         if std::arch::is_x86_feature_detected!("avx2") {
             let mut values = inputs.clone();
             // SAFETY: AVX2 was detected.
-            unsafe { map_avx2(&mut values, exp) };
+            unsafe { with_avx2(|| map_scalar(&mut values, exp)) };
             assert!(same(&values), "AVX2");
         }
         if std::arch::is_x86_feature_detected!("avx512f") {
             let mut values = inputs.clone();
             // SAFETY: AVX-512 F was detected.
-            unsafe { map_avx512(&mut values, exp) };
+            unsafe { with_avx512(|| map_scalar(&mut values, exp)) };
             assert!(same(&values), "AVX-512");
         }
     }
