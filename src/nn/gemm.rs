@@ -156,19 +156,15 @@ fn try_direct<'c>(
 }
 
 /// The packed kernel for large products where the processor has AVX-512,
-/// else `matrixmultiply`.
+/// else `matrixmultiply`. `c` is not empty: [`try_direct`] has returned those.
 fn packed_or_general(
     a: ArrayView2<f64>,
     b: ArrayView2<f64>,
     accumulate: bool,
     mut c: ArrayViewMut2<f64>,
 ) {
-    let (m, k, n) = (a.nrows(), a.ncols(), b.ncols());
-    if m == 0 || n == 0 {
-        return;
-    }
     #[cfg(target_arch = "x86_64")]
-    if m * n * k > DIRECT_MAX_WORK && c.strides()[1] == 1 && packed::available() {
+    if a.nrows() * a.ncols() * b.ncols() > DIRECT_MAX_WORK && c.strides()[1] == 1 && packed::available() {
         packed::gemm(a, b, accumulate, c);
         return;
     }
