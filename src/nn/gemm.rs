@@ -164,7 +164,10 @@ fn packed_or_general(
     mut c: ArrayViewMut2<f64>,
 ) {
     #[cfg(target_arch = "x86_64")]
-    if a.nrows() * a.ncols() * b.ncols() > DIRECT_MAX_WORK && c.strides()[1] == 1 && packed::available() {
+    if a.nrows() * a.ncols() * b.ncols() > DIRECT_MAX_WORK
+        && c.strides()[1] == 1
+        && packed::available()
+    {
         packed::gemm(a, b, accumulate, c);
         return;
     }

@@ -3,7 +3,9 @@
 use serde::Serialize;
 
 use super::format::number;
-use super::view::{ConfusionView, MetricRow, confusion_table, log_loss_repeats_loss};
+use super::view::{
+    ConfusionView, MetricRow, confusion_table, interval_cell, log_loss_repeats_loss,
+};
 use crate::build::outcome::{BatchScores, PredictResult, PredictScore, SetMetrics};
 use crate::document::spec::ExportFormat;
 use crate::export::ExportResult;
@@ -163,12 +165,7 @@ fn metric_table(scores: &BatchScores) -> (Vec<String>, Vec<MetricRow>) {
             } else {
                 name
             };
-            intervals
-                .iter()
-                .find(|(n, _)| n == name)
-                .map_or(String::new(), |(_, i)| {
-                    format!("{}–{}", number(i.low), number(i.high))
-                })
+            interval_cell(intervals, name)
         };
         rows.push(MetricRow {
             rows: "95 % interval",

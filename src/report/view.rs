@@ -12,6 +12,7 @@ use crate::build::importance::pooled_importance;
 use crate::build::outcome::{DataSummary, FitResult, MetricStat, RowSet, SetMetrics};
 use crate::document::spec::word;
 use crate::judge::diagnosis::{Diagnosis, NoVariance, Unavailable};
+use crate::judge::stats::Interval;
 use crate::judge::{BaselineRule, Judgement};
 use crate::nn::{ClassificationMetrics, StopReason};
 
@@ -136,6 +137,17 @@ pub(crate) struct JudgedView {
     pub note: String,
 }
 
+/// The interval of the score `name` as a table cell, `low–high` in the table's number
+/// format; empty when `intervals` has none for it.
+pub(crate) fn interval_cell(intervals: &[(String, Interval)], name: &str) -> String {
+    intervals
+        .iter()
+        .find(|(n, _)| n == name)
+        .map_or(String::new(), |(_, i)| {
+            format!("{}–{}", number(i.low), number(i.high))
+        })
+}
+
 pub(crate) fn judged_view(judgement: &Judgement) -> JudgedView {
     let names = judgement.network.named();
     let r2_undefined = judgement.diagnosis.r2_undefined().is_some();
@@ -145,12 +157,7 @@ pub(crate) fn judged_view(judgement: &Judgement) -> JudgedView {
         }
         match &judgement.intervals {
             None => NOT_ENOUGH_ROWS.into(),
-            Some(all) => all
-                .iter()
-                .find(|(n, _)| n == name)
-                .map_or(String::new(), |(_, i)| {
-                    format!("{}–{}", number(i.low), number(i.high))
-                }),
+            Some(all) => interval_cell(all, name),
         }
     };
     let values = |scores: &crate::judge::Scores| {
