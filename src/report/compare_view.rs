@@ -7,7 +7,8 @@ use super::chart::{self, Bar, HeatMap, Positions, Series};
 use super::format::number;
 use super::verdict::{NOT_ENOUGH_ROWS, evidence, p_text};
 use super::view::{
-    HONEST_CHOICE, log_loss_is_loss, loss_axes, mean_curve, shown_stats, stat_text, stop_counts,
+    HONEST_CHOICE, log_loss_is_loss, loss_axes, mean_curve, metric_label, shown_stats, stat_text,
+    stop_counts,
 };
 use crate::build::outcome::{FitResult, RowSet, SetMetrics, SweepResult, rank};
 use crate::document::spec::{ChartChoice, CompareSpec, MetricName};
@@ -119,10 +120,7 @@ pub(crate) fn sweep_view(result: &SweepResult, scaled_targets: bool) -> SweepVie
         .map(|(n, fit)| Series::nth(n, describe(&fit.settings), mean_curve(&fit.runs, false)))
         .collect();
     // Ranked by a loss on scaled targets, its charts say the units as the loss chart does.
-    let mut ranked_by = result.rank_by.key().replace('_', " ");
-    if scaled_targets && result.rank_by == MetricName::Loss {
-        ranked_by.push_str(" (scaled targets)");
-    }
+    let ranked_by = metric_label(result.rank_by, scaled_targets);
     let loss_chart_note = if result.fits.len() > MAX_LINES {
         format!(
             "Mean training loss per epoch of the {MAX_LINES} best-ranked combinations, log scale."
@@ -423,7 +421,8 @@ pub(crate) fn compare_view(spec: &CompareSpec, entries: &[Compared<'_>]) -> Comp
             .map_or(Vec::new(), |e| default_metrics(e.fit))
     });
     let choice = common_choice_rows(entries);
-    let best_by = ranking_metric(metrics.first().copied(), LossUnits::of(entries));
+    let units = LossUnits::of(entries);
+    let best_by = ranking_metric(metrics.first().copied(), units);
     let fits: Vec<&FitResult> = entries.iter().map(|entry| entry.fit).collect();
     let best = rank(&fits, best_by, choice).first().copied();
     let rows = entries
@@ -454,7 +453,6 @@ pub(crate) fn compare_view(spec: &CompareSpec, entries: &[Compared<'_>]) -> Comp
             // The training loss favours the most overfit run, so the chart shows
             // the loss on rows the runs did not fit whenever they all have some.
             let unfitted = choice != RowSet::Train;
-            let units = LossUnits::of(entries);
             let series: Vec<Series> = entries
                 .iter()
                 .take(MAX_LINES)
@@ -487,7 +485,7 @@ pub(crate) fn compare_view(spec: &CompareSpec, entries: &[Compared<'_>]) -> Comp
         ChartChoice::Metric => {
             let metric = metrics.first().copied().unwrap_or(MetricName::Loss);
             let units = match metric {
-                MetricName::Loss => LossUnits::of(entries),
+                MetricName::Loss => units,
                 _ => LossUnits::Targets,
             };
             let bars: Vec<Bar> = entries
@@ -501,10 +499,7 @@ pub(crate) fn compare_view(spec: &CompareSpec, entries: &[Compared<'_>]) -> Comp
                     }
                 })
                 .collect();
-            let mut name = metric.key().replace('_', " ");
-            if units == LossUnits::Scaled {
-                name.push_str(" (scaled targets)");
-            }
+            let name = metric_label(metric, units == LossUnits::Scaled);
             (
                 Some(chart::bar_chart(&bars, &name)),
                 format!(

@@ -10,7 +10,7 @@ use super::format::{mean_sd, number, seconds, stop_reason};
 use super::verdict::{NOT_ENOUGH_ROWS, Verdict, interval_words, no_variance_words, verdict};
 use crate::build::importance::pooled_importance;
 use crate::build::outcome::{DataSummary, FitResult, MetricStat, RowSet, SetMetrics};
-use crate::document::spec::word;
+use crate::document::spec::{MetricName, word};
 use crate::judge::diagnosis::{Diagnosis, NoVariance, Unavailable};
 use crate::judge::stats::Interval;
 use crate::judge::{BaselineRule, Judgement};
@@ -644,6 +644,17 @@ pub(crate) fn loss_axes(log_y: bool, scaled_targets: bool) -> chart::Axes<'stati
         axes.y_label = "loss (scaled targets)";
     }
     axes
+}
+
+/// A metric's name as a chart says it: a loss on scaled targets says so, as
+/// [`loss_axes`] does.
+pub(crate) fn metric_label(metric: MetricName, scaled_targets: bool) -> String {
+    let name = metric.key().replace('_', " ");
+    if scaled_targets && metric == MetricName::Loss {
+        format!("{name} (scaled targets)")
+    } else {
+        name
+    }
 }
 
 /// A line of a loss chart: training loss in the first colour, solid; validation in the
