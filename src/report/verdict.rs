@@ -33,14 +33,20 @@ pub(crate) struct Verdict {
 
 /// The interval of the metric `name` as "low–high", or why there is none.
 pub(crate) fn interval_words(intervals: Option<&[(String, Interval)]>, name: &str) -> String {
-    interval_text(intervals, name).unwrap_or_else(|| NOT_ENOUGH_ROWS.to_string())
+    interval_text(intervals, name, score).unwrap_or_else(|| NOT_ENOUGH_ROWS.to_string())
 }
 
-fn interval_text(intervals: Option<&[(String, Interval)]>, name: &str) -> Option<String> {
+/// The interval of the score `name`, as `low–high` with each bound written by `write`;
+/// `None` when there are no intervals or none for it.
+pub(crate) fn interval_text(
+    intervals: Option<&[(String, Interval)]>,
+    name: &str,
+    write: fn(f64) -> String,
+) -> Option<String> {
     intervals?
         .iter()
         .find(|(n, _)| n == name)
-        .map(|(_, i)| format!("{}–{}", score(i.low), score(i.high)))
+        .map(|(_, i)| format!("{}–{}", write(i.low), write(i.high)))
 }
 
 /// The score a verdict leads with: the network's, the baseline's and the model's
@@ -105,13 +111,8 @@ pub(crate) fn no_variance_words(why: &NoVariance, targets: &[String]) -> String 
 pub(crate) fn verdict(judgement: &Judgement) -> Verdict {
     let lead = lead(judgement);
     let network = if lead.network.is_finite() {
-        let interval = judgement
-            .intervals
-            .as_deref()
-            .and_then(|all| all.iter().find(|(name, _)| name == lead.name))
-            .map_or(NOT_ENOUGH_ROWS.to_string(), |(_, i)| {
-                format!("{}–{}", (lead.text)(i.low), (lead.text)(i.high))
-            });
+        let interval = interval_text(judgement.intervals.as_deref(), lead.name, lead.text)
+            .unwrap_or_else(|| NOT_ENOUGH_ROWS.to_string());
         format!("{} ({interval})", (lead.text)(lead.network))
     } else {
         format!("— ({})", Unavailable::NotFinite)
@@ -165,6 +166,7 @@ pub(crate) fn headline_interval(judgement: &Judgement) -> Option<String> {
     interval_text(
         judgement.intervals.as_deref(),
         judgement.network.headline().0,
+        score,
     )
 }
 

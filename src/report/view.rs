@@ -7,7 +7,9 @@ use super::card_view::{CardView, card_view};
 use super::chart::{self, Dash, Series, Weight};
 use super::diagnosis_view::{DiagnosisView, diagnosis_view};
 use super::format::{mean_sd, number, seconds, stop_reason};
-use super::verdict::{NOT_ENOUGH_ROWS, Verdict, interval_words, no_variance_words, verdict};
+use super::verdict::{
+    NOT_ENOUGH_ROWS, Verdict, interval_text, interval_words, no_variance_words, verdict,
+};
 use crate::build::importance::pooled_importance;
 use crate::build::outcome::{DataSummary, FitResult, MetricStat, RowSet, SetMetrics};
 use crate::document::spec::{MetricName, word};
@@ -140,12 +142,7 @@ pub(crate) struct JudgedView {
 /// The interval of the score `name` as a table cell, `low–high` in the table's number
 /// format; empty when `intervals` has none for it.
 pub(crate) fn interval_cell(intervals: &[(String, Interval)], name: &str) -> String {
-    intervals
-        .iter()
-        .find(|(n, _)| n == name)
-        .map_or(String::new(), |(_, i)| {
-            format!("{}–{}", number(i.low), number(i.high))
-        })
+    interval_text(Some(intervals), name, number).unwrap_or_default()
 }
 
 pub(crate) fn judged_view(judgement: &Judgement) -> JudgedView {
