@@ -420,7 +420,6 @@ fn sweep_choice(sweep: &SweepResult) -> String {
     )
 }
 
-/// The fits a compare step lists: a train step's own, a sweep's best combination.
 /// The data step a train step or a sweep (through the train step it varies) trained
 /// on, when that step has a result.
 fn trained_on<'a>(input: &'a ReportInput<'_>, index: usize) -> Option<&'a DataSummary> {
@@ -461,6 +460,7 @@ fn constant_target(summary: &DataSummary) -> Option<&str> {
         })
 }
 
+/// The fits a compare step lists: a train step's own, a sweep's best combination.
 fn compared<'a>(
     input: &'a ReportInput<'_>,
     step: &'a crate::plan::PlannedStep,
@@ -469,22 +469,17 @@ fn compared<'a>(
         .all()
         .into_iter()
         .filter_map(|u| {
-            let id = input.plan.steps[u].id.as_str();
-            match input.results.steps[u].outcome.as_ref()? {
-                Outcome::Train(fit) => Some(Compared {
-                    id,
-                    what: String::new(),
-                    fit,
-                    scaled_targets: trained_on(input, u).is_some_and(scales_targets),
-                }),
-                Outcome::Sweep(sweep) => Some(Compared {
-                    id,
-                    what: sweep_choice(sweep),
-                    fit: sweep.best(),
-                    scaled_targets: trained_on(input, u).is_some_and(scales_targets),
-                }),
-                _ => None,
-            }
+            let (what, fit) = match input.results.steps[u].outcome.as_ref()? {
+                Outcome::Train(fit) => (String::new(), fit),
+                Outcome::Sweep(sweep) => (sweep_choice(sweep), sweep.best()),
+                _ => return None,
+            };
+            Some(Compared {
+                id: input.plan.steps[u].id.as_str(),
+                what,
+                fit,
+                scaled_targets: trained_on(input, u).is_some_and(scales_targets),
+            })
         })
         .collect()
 }
