@@ -15,6 +15,7 @@ use serde_json::Value;
 
 use crate::plan::Plan;
 use crate::plan::input_file::{self, InputFile};
+use crate::plan::outputs::absolute_folder;
 
 /// The layout of the payload; a reader refuses any other.
 const FORMAT: u32 = 1;
@@ -201,7 +202,7 @@ fn layout(
     source: &[u8],
     plan: &Plan,
 ) -> (CarriedFile, Vec<CarriedFile>, Vec<PathBuf>) {
-    let folder = document_folder(document);
+    let folder = absolute_folder(document.parent().unwrap_or(Path::new("")));
     let mut inputs: Vec<(&InputFile, Option<PathBuf>)> = Vec::new();
     for file in plan.steps.iter().flat_map(|step| &step.files) {
         let place =
@@ -289,18 +290,6 @@ fn leave_out(files: &mut [CarriedFile], reason: &str) -> Vec<Vec<u8>> {
 
 fn mebibytes(bytes: u64) -> String {
     format!("{:.1} MiB", bytes as f64 / (1 << 20) as f64)
-}
-
-/// The document's folder as an absolute path, links resolved where it exists.
-fn document_folder(document: &Path) -> PathBuf {
-    let parent = match document.parent() {
-        Some(parent) if !parent.as_os_str().is_empty() => parent,
-        _ => Path::new("."),
-    };
-    parent
-        .canonicalize()
-        .or_else(|_| std::path::absolute(parent))
-        .unwrap_or_else(|_| parent.to_path_buf())
 }
 
 /// `path` with `.` dropped and each `..` taking away the folder before it, without
