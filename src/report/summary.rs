@@ -348,9 +348,13 @@ fn interval_object(all: &[(String, Interval)]) -> Value {
 }
 
 fn scores(scores: &Scores) -> Value {
+    named_numbers(scores.named())
+}
+
+/// Named scores as one JSON object, each a number (`null` when not finite).
+fn named_numbers(named: Vec<(&str, f64)>) -> Value {
     Value::Object(
-        scores
-            .named()
+        named
             .into_iter()
             .map(|(k, v)| (k.to_string(), number(v)))
             .collect(),
@@ -461,13 +465,7 @@ fn fold(run: &RunResult, intervals: Option<&Option<Vec<(String, Interval)>>>) ->
 }
 
 fn set(metrics: &SetMetrics) -> Value {
-    Value::Object(
-        metrics
-            .named()
-            .into_iter()
-            .map(|(k, v)| (k.to_string(), number(v)))
-            .collect(),
-    )
+    named_numbers(metrics.named())
 }
 
 fn number(value: f64) -> Value {
